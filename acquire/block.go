@@ -1,0 +1,56 @@
+package acquire
+
+import (
+	"context"
+	"time"
+)
+
+// Block is a set of raw readings from one source that share one timebase:
+// sample i of every series was taken at device time T0Us + i·DtUs.
+//
+// A Block is owned by whoever receives it from a channel; the sender must not
+// touch it again, so stages may keep or modify it without copying.
+type Block struct {
+	Source   string    // name of the source (rig [[source]] name)
+	Seq      uint64    // per-source message counter from the device (wraps)
+	T0Us     int64     // device clock at sample 0, µs
+	DtUs     int64     // sample spacing on the device clock, µs (> 0)
+	Received time.Time // host clock when the block arrived
+	Series   []Series  // one per channel, all of the same length
+}
+
+// Series is one channel's raw readings in a Block. NaN marks "no sample".
+type Series struct {
+	Channel string
+	Raw     []float64
+}
+
+// Len returns the number of sample times in the block.
+func (b *Block) Len() int {
+	if len(b.Series) == 0 {
+		return 0
+	}
+	return len(b.Series[0].Raw)
+}
+
+// Raw returns the raw readings of the named channel, or nil.
+func (b *Block) Raw(channel string) []float64 {
+	for i := range b.Series {
+		if b.Series[i].Channel == channel {
+			return b.Series[i].Raw
+		}
+	}
+	return nil
+}
+
+// Source produces raw blocks.
+//
+// Run sends blocks on out until ctx is done or the source ends for good (a
+// finished file, a failure it cannot recover from), then returns. It never
+// closes out: the caller owns the channel and closes it once every source
+// sharing it has returned. Run must not block forever on a full out: a live
+// source drops the block and counts it in its Health instead (acquisition
+// never waits for storage). Run returns nil after ctx is cancelled.
+type Source interface {
+	Run(ctx context.Context, out chan<- Block) error
+}

@@ -1,0 +1,43 @@
+package calibrate
+
+
+
+// Block is an acquire.Block after calibration: every series holds values in
+// the SI unit of its channel's quantity (N, Pa, rad, K, ...).
+// It is owned by its receiver, like acquire.Block.
+type Block struct {
+	Source string
+	Seq    uint64
+	T0Us   int64 // device clock at sample 0, µs
+	DtUs   int64 // sample spacing, µs
+	Series []Series
+}
+
+// Series is one channel's calibrated values. U is the standard uncertainty of
+// each value from its calibration (Type B); it is systematic within a run, so
+// averaging does not reduce it.
+type Series struct {
+	Channel string
+	Values  []float64 // SI; NaN = no sample
+	U       float64   // standard uncertainty of one value from the calibration, SI
+	Dof     float64   // degrees of freedom of U (+Inf when stated without doubt)
+}
+
+// Len returns the number of sample times.
+func (b *Block) Len() int {
+	if len(b.Series) == 0 {
+		return 0
+	}
+	return len(b.Series[0].Values)
+}
+
+// Find returns the named series, or nil.
+func (b *Block) Find(channel string) *Series {
+	for i := range b.Series {
+		if b.Series[i].Channel == channel {
+			return &b.Series[i]
+		}
+	}
+	return nil
+}
+

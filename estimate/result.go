@@ -1,0 +1,63 @@
+package estimate
+
+import (
+	"time"
+
+	"liftyard/calibrate"
+)
+
+// Contribution is one line of an uncertainty budget (JCGM 100 §8): how much
+// one input adds to the standard uncertainty of a result.
+type Contribution struct {
+	Input       string  // what the input is, e.g. "normal force (type A)", "reference area"
+	U           float64 // standard uncertainty of the input, in the input's SI unit
+	Sensitivity float64 // sensitivity coefficient c_i = ∂y/∂x_i
+	UY          float64 // |c_i|·u(x_i): contribution in the result's unit
+	Dof         float64 // degrees of freedom of u(x_i) (+Inf when exact)
+}
+
+// Segment is one steady segment of a run: one polar point (DESIGN §3.4).
+// Dimensionless coefficients carry no unit suffix; every Value holds its
+// standard uncertainty (U95() gives the expanded one).
+type Segment struct {
+	Index      int       // 0-based segment number within the run
+	TStart     time.Time // first sample used (device clock)
+	TEnd       time.Time // last sample used (device clock)
+	N          int       // samples used
+	NEff       float64   // effective number of independent samples of C_L (autocorrelation)
+	AlphaRad   calibrate.Value
+	QPa        calibrate.Value
+	SpeedMPerS calibrate.Value
+	RhoKgPerM3 float64
+	MuPaS      float64
+	Re         float64 // Reynolds number on Reference.LengthM
+	LiftN      calibrate.Value
+	DragN      calibrate.Value
+	CL         calibrate.Value
+	CD         calibrate.Value
+	SpinRatio  float64 // ωR/V for rotors; 0 otherwise
+	DesignCL   calibrate.Value // zero Value when no design curve applies
+	En         float64         // normalised error vs design; NaN when no design value
+	CLBudget   []Contribution
+	CDBudget   []Contribution
+}
+
+// Live is the moving-window estimate shown on the dashboard. It is computed
+// by the same code as Segment, over the most recent window of samples.
+type Live struct {
+	T          time.Time // time of the newest sample (device clock)
+	Window     time.Duration
+	N          int
+	AlphaRad   calibrate.Value
+	QPa        calibrate.Value
+	SpeedMPerS calibrate.Value
+	RhoKgPerM3 float64
+	Re         float64
+	LiftN      calibrate.Value
+	DragN      calibrate.Value
+	CL         calibrate.Value
+	CD         calibrate.Value
+	Steady     bool // the window lies inside a steady segment
+	Segments   int  // segments completed so far in this run
+	Warnings   []string
+}

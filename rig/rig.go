@@ -1,0 +1,199 @@
+package rig
+
+import "math"
+
+// Kind names the body under test. It decides which results a run produces.
+type Kind string
+
+// The kinds of rig that liftyard knows.
+const (
+	KindFoil  Kind = "foil"  // foil, fin, sail or strut on a tow rig: polar points C_L(α), C_D(α)
+	KindRoof  Kind = "roof"  // roof or cladding mock-up with pressure taps: Cp per tap and zone
+	KindRotor Kind = "rotor" // spinning body (Magnus): C_L(S) with spin ratio S = ωR/V
+	KindBody  Kind = "body"  // any other body with a force balance
+)
+
+// Fluid names the medium around the body; it selects the property formulas.
+type Fluid string
+
+// The fluids that liftyard has property formulas for.
+const (
+	FluidAir        Fluid = "air"
+	FluidFreshWater Fluid = "fresh_water"
+	FluidSeaWater   Fluid = "sea_water"
+)
+
+// Quantity is what a channel measures once calibrated. It fixes the SI unit
+// of the channel's values inside the program.
+type Quantity string
+
+// The channel quantities and the SI unit each carries inside the program.
+const (
+	QuantityForce       Quantity = "force"       // N
+	QuantityMoment      Quantity = "moment"      // N·m
+	QuantityPressure    Quantity = "pressure"    // Pa (differential or absolute)
+	QuantitySpeed       Quantity = "speed"       // m/s
+	QuantityAngle       Quantity = "angle"       // rad
+	QuantityTemperature Quantity = "temperature" // K
+	QuantityRotation    Quantity = "rotation"    // rad/s
+	QuantityHumidity    Quantity = "humidity"    // fraction 0..1
+	QuantityVoltage     Quantity = "voltage"     // V
+)
+
+// Rig describes one experiment: the body, the fluid, the sensors and how
+// they combine into lift. Every dimensional number in it is in SI units; the
+// file's own units were converted once, by Parse.
+type Rig struct {
+	Name  string
+	Kind  Kind
+	Fluid Fluid
+
+	Conditions Conditions
+	Reference  Reference
+	Sources    []Source
+	Channels   []Channel
+	Lift       Lift
+	Taps       []Tap
+	Zones      []Zone
+	Internal   Internal
+}
+
+// Conditions are the fixed fluid conditions used when no channel gives them.
+// Parse fills the defaults: ISA sea level (288.15 K, 101 325 Pa, dry) for air,
+// 288.15 K for water, and standard seawater salinity for sea water.
+type Conditions struct {
+	TempK           float64 // fluid temperature, K
+	PressurePa      float64 // ambient static pressure, Pa
+	RelHumidity     float64 // relative humidity of air, fraction 0..1
+	SalinityKgPerKg float64 // absolute salinity of sea water, kg/kg (0.035 165 04 for standard seawater)
+}
+
+// Reference holds the reference geometry that coefficients are made on.
+// AreaM2 must be the area the design data uses (planform for foils, frontal
+// for spheres, projected for rotors); AreaKind records which it is.
+type Reference struct {
+	AreaM2   float64 // reference area S, m²
+	AreaUM2  float64 // standard uncertainty of S, m² (0: no area tolerance given)
+	AreaKind string  // "planform", "frontal", "projected", "tributary" (free text, shown in reports)
+	LengthM  float64 // reference length (chord) for Re and C_M, m
+	SpanM    float64 // span, m (aspect ratio = span²/area)
+	RadiusM  float64 // rotor radius for the spin ratio, m
+}
+
+// AspectRatio returns b²/S, or 0 when span or area is missing.
+func (r Reference) AspectRatio() float64 {
+	if r.SpanM <= 0 || r.AreaM2 <= 0 {
+		return 0
+	}
+	return r.SpanM * r.SpanM / r.AreaM2
+}
+
+// SourceType says how a source reaches liftyard.
+type SourceType string
+
+// The source types.
+const (
+	SourceSerial    SourceType = "serial"
+	SourceMQTT      SourceType = "mqtt"
+	SourceSimulated SourceType = "simulated"
+)
+
+// Source is one stream of raw readings.
+type Source struct {
+	Name     string
+	Type     SourceType
+	Port     string   // serial device path
+	Baud     int      // serial baud rate (default 115200)
+	Format   string   // serial: "frame" (our CRC frame) or "delimited"
+	Channels []string // serial: channel names in frame order
+	Broker   string   // mqtt: broker URL, e.g. tcp://127.0.0.1:1883
+	Topic    string   // mqtt: topic carrying JSON blocks
+	RateHz   float64  // simulated: sample rate, Hz (default 200)
+}
+
+// Channel is one measured quantity.
+type Channel struct {
+	Name     string
+	Quantity Quantity
+	// Unit is the unit that the calibration polynomial produces, as written
+	// in the file ("N", "kgf", "Pa", "deg", ...). ToSI converts it.
+	Unit string
+	// ToSI converts a value in Unit to SI: si = Scale·v + Offset.
+	ToSI Affine
+	// CapacitySI is the rated capacity in SI units (N, Pa, ...); 0 = not rated.
+	CapacitySI  float64
+	Calibration Calibration
+}
+
+// Affine is a linear unit conversion si = Scale·v + Offset.
+type Affine struct{ Scale, Offset float64 }
+
+// Apply converts v.
+func (a Affine) Apply(v float64) float64 { return a.Scale*v + a.Offset }
+
+// Calibration is a channel's calibration as the rig file states it: either an
+// inline polynomial reading → value (in the channel's Unit), or the id of a
+// stored calibration record.
+type Calibration struct {
+	Poly []float64 // c0, c1, ... ascending powers; value = Σ c_k·reading^k, in Unit
+	U    float64   // standard uncertainty of one calibrated value, in Unit
+	ID   string    // stored calibration id; empty for inline
+}
+
+// Lift says how channels combine into forces, flow and angle.
+type Lift struct {
+	Normal []string // channels summed into the normal force (body axes)
+	Axial  []string // channels summed into the axial force (body axes)
+	Moment string   // pitching-moment channel (optional)
+
+	AngleChannel string  // angle-of-attack channel, or empty when fixed
+	AngleRad     float64 // fixed angle of attack when AngleChannel is empty, rad
+	AngleURad    float64 // standard uncertainty of the angle, rad
+
+	DynamicPressure string // pitot-static Δp channel (q = Δp)
+	PitotCoeff      float64 // pitot coefficient C: q = Δp / C² (default 1)
+	Speed           string  // speed channel (q = ½ρV²) when there is no pitot
+	Spin            string  // rotation channel for rotors
+	Direction       string  // wind direction channel for roofs
+	Temperature     string  // fluid temperature channel (optional)
+	Design          string  // design-curve CSV path (optional)
+}
+
+// Tap is one roof pressure tap.
+type Tap struct {
+	Name    string
+	Channel string
+	AreaM2  float64 // tributary area, m²
+	Zone    string
+	XM, YM  float64 // position on the roof, m
+}
+
+// Zone is a roof zone with its design net pressure coefficient.
+type Zone struct {
+	Name     string
+	DesignCp float64 // design net Cp of the zone
+	DesignU  float64 // expanded (95 %) uncertainty of DesignCp
+}
+
+// Internal is the roof's internal pressure: a channel or a fixed coefficient.
+type Internal struct {
+	Channel string
+	Cp      float64
+	HasCp   bool
+}
+
+// Channel returns the channel with the given name.
+func (r *Rig) Channel(name string) (Channel, bool) {
+	for _, c := range r.Channels {
+		if c.Name == name {
+			return c, true
+		}
+	}
+	return Channel{}, false
+}
+
+// Deg converts radians to degrees, for display and export.
+func Deg(rad float64) float64 { return rad * 180 / math.Pi }
+
+// Rad converts degrees to radians.
+func Rad(deg float64) float64 { return deg * math.Pi / 180 }
