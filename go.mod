@@ -21,6 +21,7 @@ require (
 	github.com/stretchr/testify v1.12.1 // indirect
 	go.bug.st/serial v1.8.0 // indirect
 	go.etcd.io/bbolt v1.5.0 // indirect
+	go.yaml.in/yaml/v3 v3.0.5 // indirect
 	golang.org/x/image v0.30.0 // indirect
 	golang.org/x/net v0.44.0 // indirect
 	golang.org/x/sync v0.20.0 // indirect
@@ -28,4 +29,5 @@ require (
 	golang.org/x/text v0.29.0 // indirect
 	gonum.org/v1/gonum v0.17.0 // indirect
 	gonum.org/v1/plot v0.17.0 // indirect
+	gopkg.in/yaml.v3 v3.0.1 // indirect
 )

@@ -30,6 +30,7 @@ type Health struct {
 	Frames         atomic.Uint64 // blocks (messages, frames) accepted
 	Samples        atomic.Uint64 // sample times accepted
 	SamplesDropped atomic.Uint64 // sample times dropped because a queue was full
+	BlocksDropped  atomic.Uint64 // whole messages dropped undecoded because a queue was full
 	Duplicates     atomic.Uint64 // blocks dropped as duplicates (same seq seen)
 	Gaps           atomic.Uint64 // jumps in seq (missing blocks)
 	Reconnects     atomic.Uint64 // re-established connections
@@ -59,6 +60,7 @@ type HealthSnapshot struct {
 	Rejected       uint64            `json:"rejected"`
 	RejectedBy     map[string]uint64 `json:"rejected_by,omitempty"`
 	SamplesDropped uint64            `json:"samples_dropped"`
+	BlocksDropped  uint64            `json:"blocks_dropped"`
 	Duplicates     uint64            `json:"duplicates"`
 	Gaps           uint64            `json:"gaps"`
 	Reconnects     uint64            `json:"reconnects"`
@@ -71,6 +73,7 @@ func (h *Health) Snapshot(source string) HealthSnapshot {
 		Frames:         h.Frames.Load(),
 		Samples:        h.Samples.Load(),
 		SamplesDropped: h.SamplesDropped.Load(),
+		BlocksDropped:  h.BlocksDropped.Load(),
 		Duplicates:     h.Duplicates.Load(),
 		Gaps:           h.Gaps.Load(),
 		Reconnects:     h.Reconnects.Load(),

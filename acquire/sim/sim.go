@@ -1,0 +1,400 @@
+package sim
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"time"
+
+	"liftyard/acquire"
+	"liftyard/rig"
+)
+
+// Config sets the simulated flow, foil and sweep. A zero field takes the
+// default given beside it.
+type Config struct {
+	QPa                 float64       // mean dynamic pressure, Pa (required: ½ρV² of the chosen speed)
+	TurbulenceIntensity float64       // u′/U, default 0.02
+	IntegralTimeS       float64       // integral time scale of the turbulence, s (default 0.05)
+	RateHz              float64       // sample rate, Hz (default 200)
+	BlockSamples        int           // samples per block, default 20 (100 ms at 200 Hz)
+	StepsDeg            []float64     // angle-of-attack steps, degrees (default −4 … 12 by 2)
+	Hold                time.Duration // steady time per step, default 2.5 s
+	Move                time.Duration // ramp time between steps, default 0.5 s
+	Foil                Foil          // true foil model (defaults: see Foil)
+	NoiseFrac           float64       // load-cell noise as a fraction of capacity, default 2e-4
+	Seed                uint64        // random seed (0 is a valid seed)
+	Start               time.Time     // device clock at the first sample (default: Now at Run, or the Unix epoch for Next)
+}
+
+// Foil is the simulator's true foil. Invented numbers: they describe no real
+// section.
+type Foil struct {
+	LiftSlopePerRad float64 // dC_L/dα below stall, per rad (default 4.2)
+	AlphaZeroRad    float64 // zero-lift angle, rad (default −1.5°)
+	StallRad        float64 // stall angle, rad (default 11°)
+	CD0             float64 // zero-lift drag coefficient (default 0.012)
+	K               float64 // induced-drag factor: C_D = CD0 + K·C_L² (default 0.08)
+}
+
+func (f *Foil) defaults() {
+	if f.LiftSlopePerRad == 0 {
+		f.LiftSlopePerRad = 4.2
+	}
+	if f.AlphaZeroRad == 0 {
+		f.AlphaZeroRad = rig.Rad(-1.5)
+	}
+	if f.StallRad == 0 {
+		f.StallRad = rig.Rad(11)
+	}
+	if f.CD0 == 0 {
+		f.CD0 = 0.012
+	}
+	if f.K == 0 {
+		f.K = 0.08
+	}
+}
+
+// Truth returns the foil's true C_L and C_D at angle of attack α. Past the
+// stall angle the lift falls off and the drag rises, as a stalled foil does.
+func (f Foil) Truth(alphaRad float64) (cl, cd float64) {
+	a := alphaRad
+	if a <= f.StallRad {
+		cl = f.LiftSlopePerRad * (a - f.AlphaZeroRad)
+		return cl, f.CD0 + f.K*cl*cl
+	}
+	clStall := f.LiftSlopePerRad * (f.StallRad - f.AlphaZeroRad)
+	over := a - f.StallRad
+	cl = clStall - 2.5*f.LiftSlopePerRad*over
+	cd = f.CD0 + f.K*clStall*clStall + 1.8*over
+	return cl, cd
+}
+
+// Rig simulates one rig description. It is an acquire.Source.
+type Rig struct {
+	// Health counts the blocks made and those dropped on a full channel.
+	Health acquire.Health
+
+	cfg    Config
+	source string
+	rng    *rand.Rand
+
+	normal   []chanInv // normal-force cells, with their share of N
+	shares   []float64
+	axial    []chanInv
+	pitot    *chanInv
+	speed    *chanInv
+	angle    *chanInv
+	temp     *chanInv
+	rhoForV  float64
+	tempK    float64
+	areaM2   float64
+	pitotC   float64
+	channels []string
+
+	n      int64   // samples generated so far
+	seq    uint64  // blocks generated so far
+	turb   float64 // AR(1) state of u′/U
+	t0Us   int64
+	sweepS float64 // length of one sweep, s
+}
+
+type chanInv struct {
+	name     string
+	poly     []float64
+	toSI     rig.Affine
+	capacity float64
+}
+
+// New builds a simulator for the rig's lift roles (normal, axial, angle,
+// dynamic_pressure or speed, temperature). rhoKgPerM3 converts q to a speed
+// when the rig measures speed instead of Δp; it may be 0 otherwise.
+func New(r *rig.Rig, cfg Config, rhoKgPerM3 float64) (*Rig, error) {
+	if cfg.QPa <= 0 {
+		return nil, errors.New("sim: QPa must be > 0")
+	}
+	if cfg.TurbulenceIntensity == 0 {
+		cfg.TurbulenceIntensity = 0.02
+	}
+	if cfg.IntegralTimeS == 0 {
+		cfg.IntegralTimeS = 0.05
+	}
+	if cfg.RateHz == 0 {
+		cfg.RateHz = 200
+	}
+	if cfg.BlockSamples == 0 {
+		cfg.BlockSamples = 20
+	}
+	if len(cfg.StepsDeg) == 0 {
+		cfg.StepsDeg = []float64{-4, -2, 0, 2, 4, 6, 8, 10, 12}
+	}
+	if cfg.Hold == 0 {
+		cfg.Hold = 2500 * time.Millisecond
+	}
+	if cfg.Move == 0 {
+		cfg.Move = 500 * time.Millisecond
+	}
+	if cfg.NoiseFrac == 0 {
+		cfg.NoiseFrac = 2e-4
+	}
+	cfg.Foil.defaults()
+	s := &Rig{
+		cfg:     cfg,
+		rng:     rand.New(rand.NewPCG(cfg.Seed, 0x5eed)),
+		rhoForV: rhoKgPerM3,
+		tempK:   r.Conditions.TempK,
+		areaM2:  r.Reference.AreaM2,
+		pitotC:  r.Lift.PitotCoeff,
+	}
+	if s.pitotC == 0 {
+		s.pitotC = 1
+	}
+	if s.areaM2 <= 0 {
+		return nil, errors.New("sim: rig reference area must be > 0")
+	}
+	if len(r.Sources) > 0 {
+		s.source = r.Sources[0].Name
+	}
+	look := func(name string) (*chanInv, error) {
+		if name == "" {
+			return nil, nil
+		}
+		ch, ok := r.Channel(name)
+		if !ok {
+			return nil, fmt.Errorf("sim: channel %q not in rig", name)
+		}
+		poly := ch.Calibration.Poly
+		if len(poly) == 0 {
+			poly = []float64{0, 1}
+		}
+		s.channels = append(s.channels, name)
+		return &chanInv{name: name, poly: poly, toSI: ch.ToSI, capacity: ch.CapacitySI}, nil
+	}
+	for i, name := range r.Lift.Normal {
+		c, err := look(name)
+		if err != nil {
+			return nil, err
+		}
+		s.normal = append(s.normal, *c)
+		// An invented, uneven split: the fore cell carries more, as it
+		// would with the centre of pressure ahead of the balance centre.
+		s.shares = append(s.shares, float64(len(r.Lift.Normal)-i))
+	}
+	if len(s.normal) == 0 {
+		return nil, errors.New("sim: rig has no normal-force channels in [lift] normal")
+	}
+	var total float64
+	for _, w := range s.shares {
+		total += w
+	}
+	for i := range s.shares {
+		s.shares[i] /= total
+	}
+	for _, name := range r.Lift.Axial {
+		c, err := look(name)
+		if err != nil {
+			return nil, err
+		}
+		s.axial = append(s.axial, *c)
+	}
+	var err error
+	if s.pitot, err = look(r.Lift.DynamicPressure); err != nil {
+		return nil, err
+	}
+	if s.pitot == nil {
+		if s.speed, err = look(r.Lift.Speed); err != nil {
+			return nil, err
+		}
+		if s.speed == nil {
+			return nil, errors.New("sim: rig needs [lift] dynamic_pressure or speed")
+		}
+		if rhoKgPerM3 <= 0 {
+			return nil, errors.New("sim: a speed channel needs the fluid density")
+		}
+	}
+	if s.angle, err = look(r.Lift.AngleChannel); err != nil {
+		return nil, err
+	}
+	if s.temp, err = look(r.Lift.Temperature); err != nil {
+		return nil, err
+	}
+	s.sweepS = float64(len(cfg.StepsDeg)) * (cfg.Hold + cfg.Move).Seconds()
+	return s, nil
+}
+
+// Source returns the name of the rig source the blocks are labelled with.
+func (s *Rig) Source() string { return s.source }
+
+// Foil returns the true foil model.
+func (s *Rig) Foil() Foil { return s.cfg.Foil }
+
+// Config returns the configuration with defaults filled in.
+func (s *Rig) Config() Config { return s.cfg }
+
+// AngleAt returns the commanded angle of attack at time t (seconds since the
+// first sample) and whether the rig is holding a step (not moving).
+// The sweep runs up through the steps and back down, and repeats.
+func (s *Rig) AngleAt(tS float64) (alphaRad float64, holding bool) {
+	steps := s.cfg.StepsDeg
+	hold, move := s.cfg.Hold.Seconds(), s.cfg.Move.Seconds()
+	period := hold + move
+	// Up then down: a sequence of 2n−2 steps (the ends are not repeated).
+	seq := len(steps)
+	if seq > 1 {
+		seq = 2*len(steps) - 2
+	}
+	k := int(math.Floor(tS / period))
+	in := tS - float64(k)*period
+	idx := func(k int) int {
+		k %= seq
+		if k < len(steps) {
+			return k
+		}
+		return seq - k
+	}
+	cur := steps[idx(k)]
+	if in < hold || len(steps) == 1 {
+		return rig.Rad(cur), true
+	}
+	next := steps[idx(k+1)]
+	f := (in - hold) / move
+	return rig.Rad(cur + (next-cur)*f), false
+}
+
+// Next returns the next block of raw readings. The device clock starts at
+// Config.Start (the Unix epoch when zero) and advances by one sample period
+// per sample, whatever the wall clock does.
+func (s *Rig) Next() acquire.Block {
+	n := s.cfg.BlockSamples
+	dtS := 1 / s.cfg.RateHz
+	dtUs := int64(math.Round(dtS * 1e6))
+	if s.n == 0 {
+		s.t0Us = s.cfg.Start.UnixMicro()
+		if s.cfg.Start.IsZero() {
+			s.t0Us = 0
+		}
+	}
+	b := acquire.Block{
+		Source: s.source,
+		Seq:    s.seq,
+		T0Us:   s.t0Us + s.n*dtUs,
+		DtUs:   dtUs,
+		Series: make([]acquire.Series, len(s.channels)),
+	}
+	for i, name := range s.channels {
+		b.Series[i] = acquire.Series{Channel: name, Raw: make([]float64, n)}
+	}
+	phi := math.Exp(-dtS / s.cfg.IntegralTimeS)
+	innov := s.cfg.TurbulenceIntensity * math.Sqrt(1-phi*phi)
+	for i := 0; i < n; i++ {
+		tS := float64(s.n) * dtS
+		s.turb = phi*s.turb + innov*s.rng.NormFloat64()
+		q := s.cfg.QPa * (1 + s.turb) * (1 + s.turb)
+		alpha, _ := s.AngleAt(tS)
+		cl, cd := s.cfg.Foil.Truth(alpha)
+		lift, drag := cl*q*s.areaM2, cd*q*s.areaM2
+		normal := lift*math.Cos(alpha) + drag*math.Sin(alpha)
+		axial := drag*math.Cos(alpha) - lift*math.Sin(alpha)
+		col := 0
+		put := func(c *chanInv, si float64) {
+			b.Series[col].Raw[i] = c.raw(si + s.noise(c))
+			col++
+		}
+		for k := range s.normal {
+			put(&s.normal[k], normal*s.shares[k])
+		}
+		for k := range s.axial {
+			put(&s.axial[k], axial/float64(len(s.axial)))
+		}
+		if s.pitot != nil {
+			put(s.pitot, q*s.pitotC*s.pitotC)
+		} else {
+			put(s.speed, math.Sqrt(2*q/s.rhoForV))
+		}
+		if s.angle != nil {
+			put(s.angle, alpha)
+		}
+		if s.temp != nil {
+			put(s.temp, s.tempK)
+		}
+		s.n++
+	}
+	s.seq++
+	return b
+}
+
+// noise is white sensor noise, a fraction of the channel's capacity.
+func (s *Rig) noise(c *chanInv) float64 {
+	if c.capacity <= 0 {
+		return 0
+	}
+	return s.cfg.NoiseFrac * c.capacity * s.rng.NormFloat64()
+}
+
+// raw inverts the channel's unit conversion and calibration polynomial and
+// quantises to whole ADC counts when the calibration is in counts (|c1| < 1
+// of the unit per count is taken to mean a counting converter).
+func (c *chanInv) raw(si float64) float64 {
+	v := (si - c.toSI.Offset) / c.toSI.Scale
+	r := invertPoly(c.poly, v)
+	if len(c.poly) > 1 && math.Abs(c.poly[1]) < 1 {
+		r = math.Round(r)
+	}
+	return r
+}
+
+// invertPoly solves Σ c_k r^k = v for r by Newton's method, starting from the
+// linear solution. The calibrations are monotonic over their range.
+func invertPoly(c []float64, v float64) float64 {
+	if len(c) < 2 || c[1] == 0 {
+		return v
+	}
+	r := (v - c[0]) / c[1]
+	for range 20 {
+		f, d := 0.0, 0.0
+		for k := len(c) - 1; k >= 0; k-- {
+			d = d*r + f
+			f = f*r + c[k]
+		}
+		if d == 0 {
+			break
+		}
+		step := (f - v) / d
+		r -= step
+		if math.Abs(step) <= 1e-12*math.Max(1, math.Abs(r)) {
+			break
+		}
+	}
+	return r
+}
+
+// Run generates blocks in real time, one every BlockSamples/RateHz, stamped
+// with the wall clock, and sends them on out until ctx is done. It never
+// blocks on a full out: the block is dropped and counted in Health. It
+// returns nil when ctx is cancelled.
+func (s *Rig) Run(ctx context.Context, out chan<- acquire.Block) error {
+	if s.cfg.Start.IsZero() {
+		s.cfg.Start = time.Now()
+	}
+	period := time.Duration(float64(s.cfg.BlockSamples) / s.cfg.RateHz * float64(time.Second))
+	tick := time.NewTicker(period)
+	defer tick.Stop()
+	for {
+		select {
+		case <-ctx.Done():
+			return nil
+		case now := <-tick.C:
+			b := s.Next()
+			b.Received = now
+			select {
+			case out <- b:
+				s.Health.Frames.Add(1)
+				s.Health.Samples.Add(uint64(b.Len()))
+			default:
+				s.Health.SamplesDropped.Add(uint64(b.Len()))
+			}
+		}
+	}
+}
