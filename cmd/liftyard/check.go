@@ -1,0 +1,39 @@
+package main
+
+import (
+	"context"
+	"fmt"
+	"io"
+	"os"
+
+	"liftyard/rig"
+)
+
+// runCheck is `liftyard check RIG.toml`.
+func runCheck(_ context.Context, args []string, stdout, _ io.Writer) error {
+	fs := newFlags("check", "RIG.toml", "validate a rig file and list every problem with its line", stdout)
+	pos, err := parseFlags(fs, args)
+	if err != nil {
+		return err
+	}
+	if len(pos) != 1 {
+		return usagef("want exactly one rig file, got %d arguments", len(pos))
+	}
+	data, err := os.ReadFile(pos[0])
+	if err != nil {
+		return usagef("read rig file: %v", err)
+	}
+	r, err := rig.Parse(pos[0], data)
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(stdout, "%s: ok: %q, %s in %s; %d sources, %d channels", pos[0], r.Name, r.Kind, r.Fluid, len(r.Sources), len(r.Channels))
+	if r.Reference.AreaM2 > 0 {
+		fmt.Fprintf(stdout, "; reference area %g m²", r.Reference.AreaM2)
+		if r.Reference.AreaKind != "" {
+			fmt.Fprintf(stdout, " (%s)", r.Reference.AreaKind)
+		}
+	}
+	fmt.Fprintln(stdout)
+	return nil
+}

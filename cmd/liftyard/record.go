@@ -1,0 +1,294 @@
+package main
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"log/slog"
+	"net"
+	"os"
+	"sync"
+	"time"
+
+	"liftyard/acquire"
+	"liftyard/acquire/mqtt"
+	"liftyard/acquire/sim"
+	"liftyard/calibrate"
+	"liftyard/dashboard"
+	"liftyard/estimate"
+	"liftyard/rig"
+	"liftyard/storage"
+)
+
+// rawQueue is the capacity of the sources → recorder channel: 64 blocks is
+// several seconds of data at typical block rates; the sources never wait on
+// it (they drop and count), so it only smooths bursts.
+const rawQueue = 64
+
+// storeQueue is the capacity of the recorder → store channel. The writer
+// commits every 200 ms; 1024 items ride out a slow commit of a few seconds
+// on an SD card before the oldest blocks are dropped (and counted).
+const storeQueue = 1024
+
+// livePeriod is how often the dashboard gets a new live estimate: 5 Hz is
+// smooth to watch and costs little.
+const livePeriod = 200 * time.Millisecond
+
+// Main is one recording session: sources → calibrate → estimate → store and
+// dashboard. The demo and record verbs and the end-to-end tests share it.
+type Main struct {
+	Rig     *rig.Rig
+	RigTOML string // the rig file text, stored with the run
+	DBPath  string
+	Addr    string // dashboard listen address
+	Token   string // dashboard token when Addr is not loopback
+	Logger  *slog.Logger
+	Sources []Source // built from the rig unless set
+
+	// OnReady, when set, is called once the dashboard listens and the run
+	// exists, with the dashboard URL and the run id.
+	OnReady func(url string, runID uint64)
+
+	runID uint64
+}
+
+// Source is a named acquire.Source with its health counters.
+type Source struct {
+	Name   string
+	Src    acquire.Source
+	Health *acquire.Health
+}
+
+// buildSources makes the sources a rig file declares.
+func buildSources(r *rig.Rig, logger *slog.Logger, rhoKgPerM3 float64) ([]Source, error) {
+	var out []Source
+	for _, s := range r.Sources {
+		switch s.Type {
+		case rig.SourceMQTT:
+			src := &mqtt.Source{Name: s.Name, Broker: s.Broker, Topic: s.Topic, Logger: logger}
+			out = append(out, Source{Name: s.Name, Src: src, Health: &src.Health})
+		case rig.SourceSimulated:
+			q := estimate.DynamicPressure(rhoKgPerM3, defaultSpeed(r.Fluid))
+			sr, err := sim.New(r, sim.Config{QPa: q, RateHz: s.RateHz}, rhoKgPerM3)
+			if err != nil {
+				return nil, fmt.Errorf("source %q: %w", s.Name, err)
+			}
+			out = append(out, Source{Name: s.Name, Src: sr, Health: &sr.Health})
+		default:
+			return nil, fmt.Errorf("source %q: %s sources are not built yet (planned in issue 4); use mqtt or simulated", s.Name, s.Type)
+		}
+	}
+	if len(out) == 0 {
+		return nil, errors.New("the rig file declares no [[source]]")
+	}
+	return out, nil
+}
+
+// defaultSpeed is the simulated flow speed: a brisk tow in water, a fresh
+// breeze in air (invented demo values).
+func defaultSpeed(f rig.Fluid) float64 {
+	if f == rig.FluidAir {
+		return 12
+	}
+	return 2
+}
+
+// Run records until ctx is done, then shuts down in order: sources stop, the
+// estimator closes its open segment, the store commits its last batch, the
+// run is finished, the dashboard stops.
+func (m *Main) Run(ctx context.Context) error {
+	log := m.Logger
+	if log == nil {
+		log = slog.New(slog.DiscardHandler)
+	}
+	fluid, err := estimate.Properties(m.Rig.Fluid, m.Rig.Conditions)
+	if err != nil {
+		return err
+	}
+	if m.Sources == nil {
+		if m.Sources, err = buildSources(m.Rig, log, fluid.RhoKgPerM3); err != nil {
+			return err
+		}
+	}
+	cal, err := calibrate.NewCalibrator(m.Rig)
+	if err != nil {
+		return err
+	}
+	est, err := estimate.NewEstimator(m.Rig, estimate.Config{})
+	if err != nil {
+		return err
+	}
+	store, err := storage.Open(m.DBPath, storage.Options{})
+	if err != nil {
+		return err
+	}
+	defer store.Close()
+	started := time.Now()
+	runID, err := store.CreateRun(storage.Run{
+		Rig: m.Rig.Name, Kind: string(m.Rig.Kind), Fluid: string(m.Rig.Fluid), RigTOML: m.RigTOML,
+		AreaM2: m.Rig.Reference.AreaM2, AreaKind: m.Rig.Reference.AreaKind, Started: started,
+	})
+	if err != nil {
+		return err
+	}
+	m.runID = runID
+	dash, err := dashboard.New(dashboard.Config{Addr: m.Addr, Token: m.Token, Store: store, Logger: log})
+	if err != nil {
+		return err
+	}
+	ln, err := net.Listen("tcp", m.Addr)
+	if err != nil {
+		return fmt.Errorf("dashboard listen on %s: %w", m.Addr, err)
+	}
+	if run, err := store.Run(runID); err == nil {
+		dash.SetRun(run)
+	}
+
+	ctx, cancel := context.WithCancelCause(ctx)
+	defer cancel(nil)
+	var wg sync.WaitGroup
+	dashErr := make(chan error, 1)
+	dashCtx, stopDash := context.WithCancel(context.WithoutCancel(ctx))
+	defer stopDash()
+	go func() { dashErr <- dash.Serve(dashCtx, ln) }()
+
+	raw := make(chan acquire.Block, rawQueue)
+	var srcWG sync.WaitGroup
+	for _, s := range m.Sources {
+		srcWG.Go(func() {
+			if err := s.Src.Run(ctx, raw); err != nil {
+				cancel(fmt.Errorf("source %q: %w", s.Name, err))
+			}
+		})
+	}
+	go func() { srcWG.Wait(); close(raw) }()
+
+	items := make(chan storage.Item, storeQueue)
+	var storeDropped storeCounter
+	writer := store.NewWriter(runID, storage.WriterConfig{})
+	writerErr := make(chan error, 1)
+	// The writer outlives ctx: it commits until items is closed.
+	go func() { writerErr <- writer.Run(context.WithoutCancel(ctx), items) }()
+
+	health := func() []acquire.HealthSnapshot {
+		hs := make([]acquire.HealthSnapshot, 0, len(m.Sources)+1)
+		for _, s := range m.Sources {
+			hs = append(hs, s.Health.Snapshot(s.Name))
+		}
+		hs = append(hs, acquire.HealthSnapshot{Source: "store", BlocksDropped: storeDropped.blocks.Load()})
+		return hs
+	}
+	wg.Go(func() {
+		t := time.NewTicker(time.Second)
+		defer t.Stop()
+		for {
+			select {
+			case <-ctx.Done():
+				return
+			case <-t.C:
+				dash.PublishHealth(health())
+			}
+		}
+	})
+
+	if m.OnReady != nil {
+		m.OnReady("http://"+ln.Addr().String(), runID)
+	}
+	log.Info("recording", "run", runID, "rig", m.Rig.Name, "db", m.DBPath)
+
+	// The recorder loop: the only goroutine that touches the estimator.
+	var lastLive time.Time
+	for b := range raw {
+		storeDropped.offer(items, storage.Item{Block: &b})
+		cb := cal.Apply(&b)
+		for _, seg := range est.Add(&cb) {
+			m.segment(items, dash, seg)
+		}
+		if now := time.Now(); now.Sub(lastLive) >= livePeriod {
+			if l, ok := est.Live(); ok {
+				dash.PublishLive(l)
+			}
+			lastLive = now
+		}
+	}
+	for _, seg := range est.Flush() {
+		m.segment(items, dash, seg)
+	}
+	close(items)
+	werr := <-writerErr
+	wg.Wait()
+	status := storage.StatusComplete
+	runErr := context.Cause(ctx)
+	if errors.Is(runErr, context.Canceled) || errors.Is(runErr, context.DeadlineExceeded) {
+		runErr = nil
+	}
+	if runErr != nil || werr != nil {
+		status = storage.StatusInterrupted
+	}
+	ferr := store.FinishRun(runID, time.Now(), status, health())
+	if run, err := store.Run(runID); err == nil {
+		dash.SetRun(run)
+	}
+	stopDash()
+	derr := <-dashErr
+	return errors.Join(runErr, werr, ferr, derr)
+}
+
+// segment hands a completed segment to the store (waiting if need be: a
+// result row is never dropped) and to the dashboard.
+func (m *Main) segment(items chan<- storage.Item, dash *dashboard.Server, seg estimate.Segment) {
+	items <- storage.Item{Segment: &seg}
+	dash.PublishSegment(seg)
+}
+
+// RunID returns the id of the run being recorded (0 before Run creates it).
+func (m *Main) RunID() uint64 { return m.runID }
+
+// runRecord is `liftyard record --rig RIG.toml [--db FILE] [--addr ADDR] [--for DURATION]`.
+func runRecord(ctx context.Context, args []string, stdout, stderr io.Writer) error {
+	fs := newFlags("record", "--rig RIG.toml [--db FILE] [--addr ADDR] [--for DURATION]",
+		"record from the sources of a rig file, with the live dashboard", stdout)
+	rigPath := fs.String("rig", "", "rig file (TOML) describing sources, channels and lift roles")
+	db := fs.String("db", "liftyard.db", "bbolt store file")
+	addr := fs.String("addr", "127.0.0.1:8470", "dashboard listen address")
+	token := fs.String("token", "", "dashboard access token (required when --addr is not loopback)")
+	dur := fs.Duration("for", 0, "stop after this long (0: until Ctrl-C)")
+	verbose := fs.Bool("v", false, "log progress to stderr")
+	if _, err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	if *rigPath == "" {
+		return usagef("--rig is required")
+	}
+	data, err := os.ReadFile(*rigPath)
+	if err != nil {
+		return usagef("read rig file: %v", err)
+	}
+	r, err := rig.Parse(*rigPath, data)
+	if err != nil {
+		return err
+	}
+	m := &Main{Rig: r, RigTOML: string(data), DBPath: *db, Addr: *addr, Token: *token, Logger: newLogger(stderr, *verbose)}
+	m.OnReady = func(url string, id uint64) {
+		fmt.Fprintf(stdout, "liftyard record: run %d of %q; dashboard on %s (Ctrl-C to stop)\n", id, r.Name, url)
+	}
+	if *dur > 0 {
+		var cancel context.CancelFunc
+		ctx, cancel = context.WithTimeout(ctx, *dur)
+		defer cancel()
+	}
+	if err := m.Run(ctx); err != nil {
+		return err
+	}
+	fmt.Fprintf(stdout, "liftyard record: run %d stored in %s\n", m.RunID(), *db)
+	return nil
+}
+
+func newLogger(w io.Writer, verbose bool) *slog.Logger {
+	lvl := slog.LevelWarn
+	if verbose {
+		lvl = slog.LevelInfo
+	}
+	return slog.New(slog.NewTextHandler(w, &slog.HandlerOptions{Level: lvl}))
+}
