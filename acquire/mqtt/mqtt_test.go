@@ -76,4 +76,3 @@ func TestPublisherToSource_EmbeddedBroker(t *testing.T) {
 	assert.Zero(t, br.Dropped())
 	assert.Equal(t, uint64(n), pub.Published.Load())
 }
-

@@ -48,13 +48,13 @@ func demoForTest(t *testing.T, d time.Duration, onReady func(url string, id uint
 // segment whose C_L agrees with the simulator's true C_L within its U95
 // (issue 3, "must show").
 func TestDemo_SegmentsAgreeWithTruth(t *testing.T) {
-	db, s := demoForTest(t, 9*time.Second, nil)
+	db, s := demoForTest(t, 11*time.Second, nil)
 
 	code, out, errOut := runCLI(t, "export", "--db", db, "--run", "latest", "--what", "segments", "--format", "json")
 	require.Equal(t, 0, code, errOut)
 	var rows []map[string]any
 	require.NoError(t, json.Unmarshal([]byte(out), &rows))
-	require.GreaterOrEqual(t, len(rows), 3, "one segment per 2.5 s step over 9 s")
+	require.GreaterOrEqual(t, len(rows), 3, "one segment per 2.5 s step over 11 s")
 
 	steps := map[float64]bool{-2: true, 3: true, 8: true}
 	complete := 0
@@ -109,7 +109,7 @@ func abs(x float64) float64 {
 func TestDemoRig_IsTheExample(t *testing.T) {
 	want, err := os.ReadFile("../../testdata/rigs/foil-towtank.toml")
 	require.NoError(t, err)
-	assert.Equal(t, string(want), string(demoRigTOML))
+	assert.Equal(t, string(want), string(demoRigTOML), "refresh it: cp testdata/rigs/foil-towtank.toml cmd/liftyard/demo-rig.toml")
 }
 
 // Ensure that usage errors exit 2, runtime failures 1, help 0, and that
