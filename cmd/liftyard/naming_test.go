@@ -1,0 +1,124 @@
+package main
+
+import (
+	"go/ast"
+	"go/parser"
+	"go/token"
+	"io/fs"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+// siSuffixes are the coherent SI unit suffixes a dimensional float64 field may
+// end with (STYLE §2). Longer suffixes come first so that "M2PerS" is not
+// read as "S".
+var siSuffixes = []string{
+	"KgPerKg", "KgPerM3", "M2PerS", "MPerS", "RadPerS", "PerRad", "PaS", "NM",
+	"M2", "Pa", "Rad", "Hz", "Us", "N", "M", "K", "S", "V",
+}
+
+// dimensionless lists field names that carry no unit: coefficients and
+// numbers of the trade, ratios, counts and statistics.
+var dimensionless = map[string]bool{
+	// coefficients and numbers of the trade
+	"CL": true, "CD": true, "CM": true, "Cp": true, "Re": true, "Fn": true, "En": true,
+	"SpinRatio": true, "DesignCL": true, "DesignCp": true, "DesignU": true, "PitotCoeff": true,
+	"CD0": true, "K": true, "Mach": true,
+	// ratios and fractions
+	"RelHumidity": true, "TurbulenceIntensity": true, "NoiseFrac": true, "QTolFrac": true,
+	// statistics: X and U take the unit of the field that holds the Value;
+	// a budget line's U and UY take the unit of its input and result.
+	"X": true, "U": true, "Dof": true, "NEff": true, "Sensitivity": true, "UY": true,
+	// unit conversion factors
+	"Scale": true, "Offset": true,
+}
+
+// Ensure that every exported float64 or calibrate.Value field in our
+// packages names its SI unit, or is a known dimensionless quantity (STYLE §2:
+// one grep from a number on the screen to the code).
+func TestNaming_FieldsCarrySIUnits(t *testing.T) {
+	root := "../.."
+	fset := token.NewFileSet()
+	checked := 0
+	err := filepath.WalkDir(root, func(path string, d fs.DirEntry, err error) error {
+		if err != nil {
+			return err
+		}
+		if d.IsDir() && (d.Name() == "testdata" || strings.HasPrefix(d.Name(), ".")) && path != root {
+			return filepath.SkipDir
+		}
+		if d.IsDir() || !strings.HasSuffix(path, ".go") || strings.HasSuffix(path, "_test.go") {
+			return nil
+		}
+		f, err := parser.ParseFile(fset, path, nil, parser.SkipObjectResolution)
+		if err != nil {
+			return err
+		}
+		ast.Inspect(f, func(n ast.Node) bool {
+			ts, ok := n.(*ast.TypeSpec)
+			if !ok || !ts.Name.IsExported() {
+				return true
+			}
+			st, ok := ts.Type.(*ast.StructType)
+			if !ok {
+				return true
+			}
+			for _, field := range st.Fields.List {
+				if !isQuantityType(field.Type) {
+					continue
+				}
+				for _, name := range field.Names {
+					if !name.IsExported() {
+						continue
+					}
+					checked++
+					if !hasUnit(name.Name) {
+						t.Errorf("%s: %s.%s: a float64 quantity needs an SI unit suffix (%v) or an entry in the dimensionless list",
+							fset.Position(name.Pos()), ts.Name.Name, name.Name, siSuffixes)
+					}
+				}
+			}
+			return true
+		})
+		return nil
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if checked < 30 {
+		t.Fatalf("only %d fields checked: the walk found too little", checked)
+	}
+}
+
+func isQuantityType(e ast.Expr) bool {
+	switch x := e.(type) {
+	case *ast.Ident:
+		return x.Name == "float64" || x.Name == "Value"
+	case *ast.SelectorExpr:
+		return x.Sel.Name == "Value"
+	}
+	return false
+}
+
+// dimensionlessSuffixes end names of dimensionless quantities: degrees of
+// freedom, fractions, coefficients. "SI" ends a value in the SI unit of its
+// channel's quantity (N for a force channel, Pa for a pressure channel).
+var dimensionlessSuffixes = []string{"Dof", "Frac", "Coeff", "SI"}
+
+func hasUnit(name string) bool {
+	if dimensionless[name] {
+		return true
+	}
+	for _, s := range dimensionlessSuffixes {
+		if strings.HasSuffix(name, s) && len(name) > len(s) {
+			return true
+		}
+	}
+	for _, s := range siSuffixes {
+		if strings.HasSuffix(name, s) && len(name) > len(s) {
+			return true
+		}
+	}
+	return false
+}
