@@ -1,0 +1,253 @@
+package estimate
+
+import (
+	"errors"
+	"fmt"
+	"math"
+
+	"liftyard/calibrate"
+)
+
+// ErrNoSamples is returned by Reduce when fewer than two sample times carry a
+// value on every required channel.
+var ErrNoSamples = errors.New("fewer than two complete samples")
+
+// ErrReference is returned by Reduce when the reference area is missing or
+// not positive.
+var ErrReference = errors.New("reference area must be positive")
+
+// Window is the input of Reduce: aligned sample series over one window of a
+// run (the live window or a steady segment), all in SI units. Sample i of
+// every series belongs to the same time. NaN means "no sample"; a sample time
+// is used only when normal force, q and angle all have a value there (and the
+// axial force, when AxialN is not nil). Series of unequal length are cut to
+// the shortest.
+//
+// The U fields are Type B standard uncertainties of one sample from the
+// calibration (calibrate.Series.U). They are systematic within a run, so
+// averaging does not reduce them; for a force summed from several load cells
+// with independent calibrations, pass √(Σ u_j²). A Dof of 0 means +Inf (the
+// uncertainty is stated without doubt).
+type Window struct {
+	NormalN  []float64 // normal force (body axes), N
+	AxialN   []float64 // axial force (body axes), N; nil when there is no axial channel
+	QPa      []float64 // dynamic pressure, Pa
+	AlphaRad []float64 // angle of attack, rad
+
+	NormalUN, AxialUN, QUPa, AlphaURad  float64 // Type B standard uncertainties
+	NormalDof, AxialDof, QDof, AlphaDof float64 // their degrees of freedom; 0 = +Inf
+	AreaM2, AreaUM2                     float64 // reference area S and its standard uncertainty, m²
+	LengthM                             float64 // reference length for Re, m (0: Re not computed)
+	Fluid                               Fluid   // fluid properties for speed and Re
+}
+
+// Point is the reduced result of one Window: one polar point with its
+// uncertainty budgets. Every Value holds its standard uncertainty and the
+// Welch–Satterthwaite degrees of freedom; U95() gives the expanded one.
+type Point struct {
+	N          int     // complete samples used
+	NEff       float64 // effective independent samples of the C_L series
+	QPa        calibrate.Value
+	AlphaRad   calibrate.Value
+	LiftN      calibrate.Value
+	DragN      calibrate.Value
+	CL         calibrate.Value // NaN when q̄ ≤ 0 (no flow)
+	CD         calibrate.Value // NaN when q̄ ≤ 0 (no flow)
+	SpeedMPerS calibrate.Value // √(2q̄/ρ); NaN when ρ is unknown
+	Re         float64         // ρ·V·L/μ; NaN when L or μ is unknown
+	CLBudget   []Contribution
+	CDBudget   []Contribution
+	QBudget    []Contribution
+}
+
+// Reduce turns a window of samples into coefficients with uncertainty. It is
+// the one computation behind both live and segment results.
+//
+// # Estimates
+//
+// From the means N̄, Ā, q̄, ᾱ of the complete samples:
+//
+//	L = N̄·cos ᾱ − Ā·sin ᾱ,  D = N̄·sin ᾱ + Ā·cos ᾱ   (WindAxes)
+//	C_L = L/(q̄·S),  C_D = D/(q̄·S)
+//
+// # Type A (scatter)
+//
+// The model is linearised about the means (the "delta method", JCGM 100
+// §5.1.2): for C_L the series
+//
+//	z_i = c_N·N_i + c_A·A_i + c_q·q_i + c_α·α_i
+//	c_N = cos ᾱ/(q̄S), c_A = −sin ᾱ/(q̄S), c_q = −C_L/q̄, c_α = −D/(q̄S)
+//
+// has mean-of-z variance equal to the first-order variance of C_L including
+// every covariance between the inputs (JCGM 100 §5.2: the load follows the
+// gusts in q, so N and q are strongly correlated and must not be combined as
+// independent). Its standard error is s_z/√N_eff with N_eff from the
+// autocorrelation of z (NEff) and ν = N_eff − 1. C_D, L, D, q and α are
+// treated the same way with their own sensitivities.
+//
+// # Type B (calibration, geometry)
+//
+// One contribution per systematic input: normal and axial force calibration,
+// q calibration, angle, and reference area (c_S = −C_L/S). Their sensitivities
+// are the same c's.
+//
+// # Combination
+//
+// u_c = √(Σ u_i²) over Type A and Type B (they are independent), ν_eff by
+// Welch–Satterthwaite, U95 = K95(ν_eff)·u_c. Speed V = √(2q̄/ρ) carries
+// u_V = V·u_q/(2q̄) (the density's uncertainty is not propagated).
+func Reduce(w *Window) (Point, error) {
+	var p Point
+	if !(w.AreaM2 > 0) {
+		return p, fmt.Errorf("reduce: area %g m²: %w", w.AreaM2, ErrReference)
+	}
+	n := min(len(w.NormalN), len(w.QPa), len(w.AlphaRad))
+	if w.AxialN != nil {
+		n = min(n, len(w.AxialN))
+	}
+	// Compact to the complete sample times.
+	nn := make([]float64, 0, n)
+	aa := make([]float64, 0, n)
+	qq := make([]float64, 0, n)
+	al := make([]float64, 0, n)
+	for i := range n {
+		a := 0.0
+		if w.AxialN != nil {
+			a = w.AxialN[i]
+		}
+		if !finite(w.NormalN[i]) || !finite(a) || !finite(w.QPa[i]) || !finite(w.AlphaRad[i]) {
+			continue
+		}
+		nn = append(nn, w.NormalN[i])
+		aa = append(aa, a)
+		qq = append(qq, w.QPa[i])
+		al = append(al, w.AlphaRad[i])
+	}
+	m := len(nn)
+	if m < 2 {
+		return p, fmt.Errorf("reduce: %d complete samples of %d: %w", m, n, ErrNoSamples)
+	}
+	p.N = m
+	nBar, aBar, qBar, alBar := mean(nn), mean(aa), mean(qq), mean(al)
+	s := w.AreaM2
+	lift, drag := WindAxes(nBar, aBar, alBar)
+	sinA, cosA := math.Sincos(alBar)
+
+	// Linearised per-sample lift and drag (about the means).
+	ls := make([]float64, m)
+	ds := make([]float64, m)
+	for i := range m {
+		da := al[i] - alBar
+		ls[i] = nn[i]*cosA - aa[i]*sinA - drag*da
+		ds[i] = nn[i]*sinA + aa[i]*cosA + lift*da
+	}
+
+	dof := func(d float64) float64 {
+		if d == 0 {
+			return math.Inf(1)
+		}
+		return d
+	}
+	typeB := func(cs []Contribution, name string, u, c, d float64) []Contribution {
+		if u == 0 {
+			return cs
+		}
+		return append(cs, Contribution{Input: name, U: u, Sensitivity: c, UY: math.Abs(c) * u, Dof: dof(d)})
+	}
+
+	// q
+	qA, qNeff := typeA(qq)
+	p.QBudget = []Contribution{typeAContribution("dynamic pressure scatter", qA, qNeff)}
+	p.QBudget = typeB(p.QBudget, "dynamic pressure calibration", w.QUPa, 1, w.QDof)
+	p.QPa = withX(qBar, Combine(p.QBudget))
+
+	// α
+	alA, alNeff := typeA(al)
+	alBudget := []Contribution{typeAContribution("angle scatter", alA, alNeff)}
+	alBudget = typeB(alBudget, "angle calibration", w.AlphaURad, 1, w.AlphaDof)
+	p.AlphaRad = withX(alBar, Combine(alBudget))
+
+	// L and D in newtons.
+	forceBudget := func(series []float64, cN, cA, cAl float64, what string) calibrate.Value {
+		u, ne := typeA(series)
+		cs := []Contribution{typeAContribution(what+" scatter", u, ne)}
+		cs = typeB(cs, "normal force calibration", w.NormalUN, cN, w.NormalDof)
+		cs = typeB(cs, "axial force calibration", w.AxialUN, cA, w.AxialDof)
+		cs = typeB(cs, "angle of attack", w.AlphaURad, cAl, w.AlphaDof)
+		return Combine(cs)
+	}
+	p.LiftN = withX(lift, forceBudget(ls, cosA, -sinA, -drag, "lift"))
+	p.DragN = withX(drag, forceBudget(ds, sinA, cosA, lift, "drag"))
+
+	// Coefficients.
+	nan := calibrate.Value{X: math.NaN(), U: math.NaN(), Dof: math.NaN()}
+	p.CL, p.CD, p.NEff = nan, nan, math.NaN()
+	if qBar > 0 {
+		qs := qBar * s
+		cl, cd := lift/qs, drag/qs
+		coef := func(lin []float64, c float64, cN, cA, cAl float64, what string) (calibrate.Value, []Contribution, float64) {
+			z := make([]float64, m)
+			for i := range m {
+				z[i] = lin[i]/qs - c*qq[i]/qBar
+			}
+			u, ne := typeA(z)
+			cs := []Contribution{typeAContribution(what+" scatter (loads and q together)", u, ne)}
+			cs = typeB(cs, "normal force calibration", w.NormalUN, cN/qs, w.NormalDof)
+			cs = typeB(cs, "axial force calibration", w.AxialUN, cA/qs, w.AxialDof)
+			cs = typeB(cs, "dynamic pressure calibration", w.QUPa, -c/qBar, w.QDof)
+			cs = typeB(cs, "angle of attack", w.AlphaURad, cAl/qs, w.AlphaDof)
+			cs = typeB(cs, "reference area", w.AreaUM2, -c/s, 0)
+			return withX(c, Combine(cs)), cs, ne
+		}
+		p.CL, p.CLBudget, p.NEff = coef(ls, cl, cosA, -sinA, -drag, "C_L")
+		p.CD, p.CDBudget, _ = coef(ds, cd, sinA, cosA, lift, "C_D")
+	}
+
+	// Speed and Reynolds number.
+	p.SpeedMPerS = calibrate.Value{X: math.NaN(), U: math.NaN(), Dof: math.NaN()}
+	p.Re = math.NaN()
+	if rho := w.Fluid.RhoKgPerM3; rho > 0 {
+		v := SpeedFromQ(qBar, rho)
+		uv := math.NaN()
+		if qBar != 0 {
+			uv = math.Abs(v / (2 * qBar) * p.QPa.U)
+		}
+		p.SpeedMPerS = calibrate.Value{X: v, U: uv, Dof: p.QPa.Dof}
+		if w.LengthM > 0 && w.Fluid.MuPaS > 0 {
+			p.Re = Reynolds(rho, math.Abs(v), w.LengthM, w.Fluid.MuPaS)
+		}
+	}
+	return p, nil
+}
+
+// typeA returns the Type A standard uncertainty of the mean of x,
+// s/√N_eff, and N_eff.
+func typeA(x []float64) (u, neff float64) {
+	neff = NEff(x)
+	mu := mean(x)
+	ss := 0.0
+	for _, v := range x {
+		ss += (v - mu) * (v - mu)
+	}
+	sd := math.Sqrt(ss / float64(len(x)-1))
+	return sd / math.Sqrt(neff), neff
+}
+
+func typeAContribution(name string, u, neff float64) Contribution {
+	return Contribution{Input: name + " (type A)", U: u, Sensitivity: 1, UY: u, Dof: math.Max(1, neff-1)}
+}
+
+func withX(x float64, v calibrate.Value) calibrate.Value {
+	v.X = x
+	return v
+}
+
+func mean(x []float64) float64 {
+	s := 0.0
+	for _, v := range x {
+		s += v
+	}
+	return s / float64(len(x))
+}
+
+func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }

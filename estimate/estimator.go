@@ -1,0 +1,549 @@
+package estimate
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"time"
+
+	"liftyard/calibrate"
+	"liftyard/rig"
+)
+
+// Config sets up an Estimator. A zero Config takes every default.
+type Config struct {
+	// Window is the length of the live moving window (default 2 s).
+	Window time.Duration
+	// Steady sets the steady-segment test (see SteadyConfig).
+	Steady SteadyConfig
+	// MaxSegment caps the samples one segment keeps (default 10 min of
+	// samples). A steady stretch longer than this is split into several
+	// segments, so memory stays bounded on hour-long records.
+	MaxSegment time.Duration
+	// Now gives the host clock; Live uses it to warn when no block has
+	// arrived for a while (default time.Now).
+	Now func() time.Time
+}
+
+// ErrRig is returned by NewEstimator when the rig lacks what the estimator
+// needs; the message names each missing piece.
+var ErrRig = errors.New("rig cannot give lift coefficients")
+
+// Estimator is the streaming estimation stage: it turns calibrated blocks
+// into a live moving-window estimate and one Segment per steady stretch.
+//
+// An Estimator is not safe for concurrent use: the caller serialises Add,
+// Live and Flush (one goroutine owns it). Memory is bounded: it keeps the
+// live window, one 0.1 s tick and the open segment (capped by MaxSegment).
+type Estimator struct {
+	rig   *rig.Rig
+	cfg   Config
+	roles roles
+
+	primary string               // source whose blocks carry the timeline
+	held    map[string]heldValue // latest value of channels from other sources
+	dtUs    int64
+	nextTUs int64 // device time expected for the next primary sample
+	started bool
+
+	ring ring        // live window
+	tick sampleBuf   // samples of the tick being filled
+	seg  sampleBuf   // samples of the open segment
+	det  detector    //
+	capN int         // max samples per segment
+	uB   typeBInputs // latest Type B inputs
+
+	segments  int
+	ignored   int // blocks ignored as unusable
+	lastAddAt time.Time
+	lastTUs   int64
+
+	rhoCacheTK, rhoCache float64 // density at the last temperature asked (speed rigs)
+}
+
+// roles are the channel names the lift roles use.
+type roles struct {
+	normal, axial []string
+	q             string
+	qIsSpeed      bool
+	pitotC        float64
+	angle         string
+	angleFixedRad float64
+	angleURad     float64
+	temp          string
+	spin          string
+}
+
+type heldValue struct {
+	v, u, dof float64
+}
+
+// typeBInputs are the Type B standard uncertainties of one sample of each
+// derived quantity, with their degrees of freedom.
+type typeBInputs struct {
+	normalU, normalDof float64
+	axialU, axialDof   float64
+	qU, qDof           float64 // for a speed channel: u of V, m/s
+	alphaU, alphaDof   float64
+}
+
+// sample is one joined sample time.
+type sample struct {
+	tUs                            int64
+	normalN, axialN, qPa, alphaRad float64
+	tempK, spinRadPerS             float64
+}
+
+// NewEstimator checks that r has what a force-balance body needs — normal
+// force channels, a dynamic pressure (pitot) or speed channel, an angle
+// channel or a fixed angle, a positive reference area, and fluid conditions
+// the property formulas cover — and returns an Estimator for it. The error
+// wraps ErrRig and names every missing or unknown piece.
+func NewEstimator(r *rig.Rig, cfg Config) (*Estimator, error) {
+	if r == nil {
+		return nil, fmt.Errorf("nil rig: %w", ErrRig)
+	}
+	var problems []error
+	need := func(role, name string) {
+		if _, ok := r.Channel(name); !ok {
+			problems = append(problems, fmt.Errorf("lift.%s names channel %q, which no [[channel]] declares", role, name))
+		}
+	}
+	if r.Kind == rig.KindRoof {
+		problems = append(problems, errors.New("kind \"roof\" is reduced per tap, not by the force-balance estimator"))
+	}
+	ro := roles{normal: r.Lift.Normal, axial: r.Lift.Axial, angle: r.Lift.AngleChannel,
+		angleFixedRad: r.Lift.AngleRad, angleURad: r.Lift.AngleURad, temp: r.Lift.Temperature,
+		spin: r.Lift.Spin, pitotC: r.Lift.PitotCoeff}
+	if len(ro.normal) == 0 {
+		problems = append(problems, errors.New("lift.normal is empty: name the normal-force channel(s)"))
+	}
+	for _, c := range ro.normal {
+		need("normal", c)
+	}
+	for _, c := range ro.axial {
+		need("axial", c)
+	}
+	switch {
+	case r.Lift.DynamicPressure != "":
+		ro.q = r.Lift.DynamicPressure
+		need("dynamic_pressure", ro.q)
+		if ro.pitotC < 0 {
+			problems = append(problems, fmt.Errorf("lift pitot coefficient %g must be positive", ro.pitotC))
+		}
+	case r.Lift.Speed != "":
+		ro.q, ro.qIsSpeed = r.Lift.Speed, true
+		need("speed", ro.q)
+	default:
+		problems = append(problems, errors.New("no flow reference: set lift.dynamic_pressure (pitot channel) or lift.speed"))
+	}
+	if ro.angle != "" {
+		need("angle", ro.angle)
+	}
+	if ro.temp != "" {
+		need("temperature", ro.temp)
+	}
+	if ro.spin != "" {
+		need("spin", ro.spin)
+	}
+	if !(r.Reference.AreaM2 > 0) {
+		problems = append(problems, errors.New("reference.area_m2 is missing or not positive"))
+	}
+	if _, err := Properties(r.Fluid, r.Conditions); err != nil {
+		problems = append(problems, fmt.Errorf("fluid conditions: %w", err))
+	}
+	if len(problems) > 0 {
+		return nil, fmt.Errorf("rig %q: %w: %w", r.Name, ErrRig, errors.Join(problems...))
+	}
+	if cfg.Window <= 0 {
+		cfg.Window = 2 * time.Second
+	}
+	if cfg.MaxSegment <= 0 {
+		cfg.MaxSegment = 10 * time.Minute
+	}
+	if cfg.Now == nil {
+		cfg.Now = time.Now
+	}
+	cfg.Steady = cfg.Steady.withDefaults()
+	e := &Estimator{rig: r, cfg: cfg, roles: ro, held: map[string]heldValue{}, det: newDetector(cfg.Steady)}
+	e.uB.alphaU = ro.angleURad
+	e.uB.alphaDof = math.Inf(1)
+	return e, nil
+}
+
+// Add feeds one calibrated block and returns the segments it completed
+// (usually none), numbered from 0 in the order they complete.
+//
+// # Joining sources (skeleton timebase)
+//
+// The block's source that first carries a normal-force channel sets the
+// timeline: sample i of its blocks is at device time T0Us + i·DtUs. Role
+// channels found in the same block are read sample by sample; role channels
+// that come from other sources are held at their latest finite value (zero
+// order hold) and joined onto this timeline. Clocks of different sources
+// are not aligned; a later issue refines the timebase.
+//
+// Bad input never panics: a nil or empty block, a block without a positive
+// DtUs, or series of unequal length (missing samples read as NaN) give fewer
+// results, and unusable blocks are counted in a Live warning.
+func (e *Estimator) Add(b *calibrate.Block) []Segment {
+	e.lastAddAt = e.cfg.Now()
+	if b == nil || len(b.Series) == 0 {
+		return nil
+	}
+	if e.primary == "" {
+		for _, c := range e.roles.normal {
+			if b.Find(c) != nil {
+				e.primary = b.Source
+				break
+			}
+		}
+	}
+	if b.Source != e.primary {
+		e.holdLatest(b)
+		return nil
+	}
+	if b.DtUs <= 0 {
+		e.ignored++
+		return nil
+	}
+	n := 0
+	for _, s := range b.Series {
+		n = max(n, len(s.Values))
+	}
+	if n == 0 {
+		return nil
+	}
+	var out []Segment
+	// A change of spacing, a clock step backwards or a gap longer than a
+	// tick ends the open segment.
+	if e.started && (b.DtUs != e.dtUs || b.T0Us < e.nextTUs || b.T0Us-e.nextTUs > int64(tickDuration/time.Microsecond)) {
+		out = e.closeSegment(out)
+		e.tick.reset()
+		e.det.reset()
+		if b.DtUs != e.dtUs || b.T0Us < e.nextTUs {
+			e.ring = ring{}
+		}
+	}
+	if !e.started || b.DtUs != e.dtUs {
+		e.dtUs = b.DtUs
+		e.capN = int(int64(e.cfg.MaxSegment/time.Microsecond) / e.dtUs)
+		e.capN = max(e.capN, 2)
+	}
+	e.started = true
+	if e.ring.cap() == 0 {
+		e.ring = newRing(max(2, int(math.Ceil(float64(e.cfg.Window/time.Microsecond)/float64(e.dtUs)))))
+	}
+	e.readTypeB(b)
+	pick := func(name string) []float64 {
+		if s := b.Find(name); s != nil {
+			return s.Values
+		}
+		return nil
+	}
+	normal := make([][]float64, len(e.roles.normal))
+	for j, c := range e.roles.normal {
+		normal[j] = pick(c)
+	}
+	axial := make([][]float64, len(e.roles.axial))
+	for j, c := range e.roles.axial {
+		axial[j] = pick(c)
+	}
+	qv, av, tv, sv := pick(e.roles.q), pick(e.roles.angle), pick(e.roles.temp), pick(e.roles.spin)
+	tickN := max(1, int(int64(tickDuration/time.Microsecond)/e.dtUs))
+	for i := range n {
+		sm := sample{tUs: b.T0Us + int64(i)*b.DtUs}
+		sm.normalN = e.sum(e.roles.normal, normal, i)
+		sm.axialN = 0
+		if len(e.roles.axial) > 0 {
+			sm.axialN = e.sum(e.roles.axial, axial, i)
+		}
+		sm.tempK = e.value(e.roles.temp, tv, i, e.rig.Conditions.TempK)
+		q := e.value(e.roles.q, qv, i, math.NaN())
+		if e.roles.qIsSpeed {
+			sm.qPa = DynamicPressure(e.rhoAt(sm.tempK), q)
+		} else {
+			sm.qPa = DynamicPressureFromPitot(q, e.roles.pitotC)
+		}
+		sm.alphaRad = e.value(e.roles.angle, av, i, e.roles.angleFixedRad)
+		sm.spinRadPerS = e.value(e.roles.spin, sv, i, math.NaN())
+		e.ring.push(sm)
+		e.tick.push(sm)
+		e.lastTUs = sm.tUs
+		if e.tick.len() >= tickN {
+			out = e.endTick(out)
+		}
+	}
+	e.nextTUs = b.T0Us + int64(n)*b.DtUs
+	return out
+}
+
+// Flush ends the run: the partial tick is judged and the open segment is
+// closed and returned when it is long enough.
+func (e *Estimator) Flush() []Segment {
+	var out []Segment
+	if e.tick.len() > 0 {
+		out = e.endTick(out)
+	}
+	out = e.closeSegment(out)
+	e.det.reset()
+	return out
+}
+
+// endTick judges the filled tick and moves its samples to the open segment
+// when it joins.
+func (e *Estimator) endTick(out []Segment) []Segment {
+	a, q := nanMean(e.tick.alphaRad), nanMean(e.tick.qPa)
+	closeSeg, join := e.det.step(a, q)
+	if closeSeg {
+		out = e.closeSegment(out)
+	}
+	if join {
+		if e.seg.len()+e.tick.len() > e.capN {
+			out = e.closeSegment(out)
+		}
+		e.seg.appendBuf(&e.tick)
+	}
+	e.tick.reset()
+	return out
+}
+
+// closeSegment reduces the open segment, appends it to out when it spans at
+// least MinDuration, and empties it.
+func (e *Estimator) closeSegment(out []Segment) []Segment {
+	defer e.seg.reset()
+	n := e.seg.len()
+	if n < 2 || time.Duration(int64(n)*e.dtUs)*time.Microsecond < e.cfg.Steady.MinDuration {
+		return out
+	}
+	seg, ok := e.reduceBuf(&e.seg)
+	if !ok {
+		return out
+	}
+	seg.Index = e.segments
+	e.segments++
+	return append(out, seg)
+}
+
+// reduceBuf runs Reduce on a buffer of samples and fills a Segment.
+func (e *Estimator) reduceBuf(buf *sampleBuf) (Segment, bool) {
+	fl, _ := e.fluidFor(nanMean(buf.tempK))
+	w := e.window(buf, fl)
+	p, err := Reduce(&w)
+	if err != nil {
+		return Segment{}, false
+	}
+	seg := Segment{
+		TStart: time.UnixMicro(buf.tUs[0]).UTC(), TEnd: time.UnixMicro(buf.tUs[len(buf.tUs)-1]).UTC(),
+		N: p.N, NEff: p.NEff, AlphaRad: p.AlphaRad, QPa: p.QPa, SpeedMPerS: p.SpeedMPerS,
+		RhoKgPerM3: fl.RhoKgPerM3, MuPaS: fl.MuPaS, Re: p.Re, LiftN: p.LiftN, DragN: p.DragN,
+		CL: p.CL, CD: p.CD, En: math.NaN(), CLBudget: p.CLBudget, CDBudget: p.CDBudget,
+	}
+	if omega := nanMean(buf.spinRadPerS); !math.IsNaN(omega) && e.rig.Reference.RadiusM > 0 && p.SpeedMPerS.X != 0 {
+		seg.SpinRatio = omega * e.rig.Reference.RadiusM / math.Abs(p.SpeedMPerS.X)
+	}
+	return seg, true
+}
+
+// window builds the Reduce input from a sample buffer.
+func (e *Estimator) window(buf *sampleBuf, fl Fluid) Window {
+	w := Window{
+		NormalN: buf.normalN, QPa: buf.qPa, AlphaRad: buf.alphaRad,
+		NormalUN: e.uB.normalU, NormalDof: e.uB.normalDof,
+		AxialUN: e.uB.axialU, AxialDof: e.uB.axialDof,
+		QUPa: e.uB.qU, QDof: e.uB.qDof,
+		AlphaURad: e.uB.alphaU, AlphaDof: e.uB.alphaDof,
+		AreaM2: e.rig.Reference.AreaM2, AreaUM2: e.rig.Reference.AreaUM2,
+		LengthM: e.rig.Reference.LengthM, Fluid: fl,
+	}
+	if len(e.roles.axial) > 0 {
+		w.AxialN = buf.axialN
+	}
+	if e.roles.qIsSpeed {
+		// u(q) = ρ·V̄·u(V) for q = ½ρV².
+		w.QUPa = fl.RhoKgPerM3 * SpeedFromQ(math.Max(0, nanMean(buf.qPa)), fl.RhoKgPerM3) * e.uB.qU
+	}
+	return w
+}
+
+// Live returns the estimate over the most recent Config.Window of samples,
+// computed by Reduce like a segment. ok is false until the window holds two
+// complete samples.
+func (e *Estimator) Live() (lv Live, ok bool) {
+	if e.ring.len() < 2 {
+		return lv, false
+	}
+	buf := e.ring.ordered()
+	fl, flErr := e.fluidFor(nanMean(buf.tempK))
+	w := e.window(&buf, fl)
+	p, err := Reduce(&w)
+	if err != nil {
+		return lv, false
+	}
+	lv = Live{
+		T: time.UnixMicro(e.lastTUs).UTC(), Window: e.cfg.Window, N: p.N,
+		AlphaRad: p.AlphaRad, QPa: p.QPa, SpeedMPerS: p.SpeedMPerS, RhoKgPerM3: fl.RhoKgPerM3,
+		Re: p.Re, LiftN: p.LiftN, DragN: p.DragN, CL: p.CL, CD: p.CD,
+		Steady: e.det.state == stSteady && e.seg.len() > 0, Segments: e.segments,
+	}
+	if flErr != nil {
+		lv.Warnings = append(lv.Warnings, fmt.Sprintf("fluid temperature channel out of range (%v): using the rig's fixed conditions", flErr))
+	}
+	if qMax := e.det.qMaxRunPa; p.QPa.X <= flowOffFrac*qMax || p.QPa.X <= 0 {
+		lv.Steady = false
+		lv.Warnings = append(lv.Warnings, "q below 5 % of the run's maximum: flow off, coefficients meaningless")
+	}
+	if e.rig.Fluid == rig.FluidAir {
+		tK := nanMean(buf.tempK)
+		if math.IsNaN(tK) {
+			tK = e.rig.Conditions.TempK
+		}
+		if mach := math.Abs(p.SpeedMPerS.X) / SpeedOfSoundMPerS(tK); mach > 0.3 {
+			lv.Warnings = append(lv.Warnings, fmt.Sprintf("Mach %.2f > 0.3: compressibility is not corrected (pitot Δp exceeds ½ρV², so C_L is understated)", mach))
+		}
+	}
+	if idle := e.cfg.Now().Sub(e.lastAddAt); idle > 2*e.cfg.Window+time.Second {
+		lv.Steady = false
+		lv.Warnings = append(lv.Warnings, fmt.Sprintf("no new blocks for %s: is the source running?", idle.Round(time.Second)))
+	}
+	if e.ignored > 0 {
+		lv.Warnings = append(lv.Warnings, fmt.Sprintf("%d blocks ignored: no positive sample spacing", e.ignored))
+	}
+	return lv, true
+}
+
+// fluidFor returns the fluid properties at temperature tK (the rig's fixed
+// conditions when tK is NaN or outside the formulas' range; the error says so).
+func (e *Estimator) fluidFor(tK float64) (Fluid, error) {
+	c := e.rig.Conditions
+	var err error
+	if !math.IsNaN(tK) && tK != c.TempK {
+		c.TempK = tK
+		f, ferr := Properties(e.rig.Fluid, c)
+		if ferr == nil {
+			return f, nil
+		}
+		err = ferr
+		c = e.rig.Conditions
+	}
+	f, _ := Properties(e.rig.Fluid, c) // checked by NewEstimator
+	return f, err
+}
+
+// rhoAt returns the density at tK, cached for repeated temperatures (the
+// held or fixed temperature is the same for many samples).
+func (e *Estimator) rhoAt(tK float64) float64 {
+	if tK == e.rhoCacheTK && e.rhoCache > 0 {
+		return e.rhoCache
+	}
+	f, _ := e.fluidFor(tK)
+	e.rhoCacheTK, e.rhoCache = tK, f.RhoKgPerM3
+	return f.RhoKgPerM3
+}
+
+// holdLatest keeps the last finite value of every series of a block from a
+// source other than the timeline's.
+func (e *Estimator) holdLatest(b *calibrate.Block) {
+	for _, s := range b.Series {
+		for i := len(s.Values) - 1; i >= 0; i-- {
+			if finite(s.Values[i]) {
+				e.held[s.Channel] = heldValue{v: s.Values[i], u: s.U, dof: s.Dof}
+				break
+			}
+		}
+	}
+}
+
+// value reads channel name at sample i from vals (this block) or from the
+// held values; def applies when the role has no channel.
+func (e *Estimator) value(name string, vals []float64, i int, def float64) float64 {
+	if name == "" {
+		return def
+	}
+	if vals != nil {
+		if i < len(vals) {
+			return vals[i]
+		}
+		return math.NaN()
+	}
+	if h, ok := e.held[name]; ok {
+		return h.v
+	}
+	return math.NaN()
+}
+
+// sum adds the channels of one force role at sample i; any missing channel
+// makes the sum NaN.
+func (e *Estimator) sum(names []string, vals [][]float64, i int) float64 {
+	s := 0.0
+	for j, name := range names {
+		s += e.value(name, vals[j], i, math.NaN())
+	}
+	return s
+}
+
+// readTypeB updates the Type B inputs from the calibration uncertainties of
+// the block's series (or of held channels). Channels summed into one force
+// have independent calibrations: u = √(Σ u_j²), ν by Welch–Satterthwaite.
+func (e *Estimator) readTypeB(b *calibrate.Block) {
+	uOf := func(name string) (u, dof float64, ok bool) {
+		if s := b.Find(name); s != nil {
+			return s.U, s.Dof, true
+		}
+		if h, found := e.held[name]; found {
+			return h.u, h.dof, true
+		}
+		return 0, 0, false
+	}
+	group := func(names []string) (u, dof float64) {
+		cs := make([]Contribution, 0, len(names))
+		for _, n := range names {
+			if uu, d, ok := uOf(n); ok {
+				cs = append(cs, Contribution{UY: uu, Dof: dofOrInf(d)})
+			}
+		}
+		v := Combine(cs)
+		return v.U, v.Dof
+	}
+	e.uB.normalU, e.uB.normalDof = group(e.roles.normal)
+	e.uB.axialU, e.uB.axialDof = group(e.roles.axial)
+	if u, d, ok := uOf(e.roles.q); ok {
+		if e.roles.qIsSpeed {
+			e.uB.qU, e.uB.qDof = u, dofOrInf(d)
+		} else {
+			c := e.roles.pitotC
+			if c == 0 {
+				c = 1
+			}
+			e.uB.qU, e.uB.qDof = u/(c*c), dofOrInf(d)
+		}
+	}
+	if e.roles.angle != "" {
+		if u, d, ok := uOf(e.roles.angle); ok {
+			v := Combine([]Contribution{{UY: u, Dof: dofOrInf(d)}, {UY: e.roles.angleURad, Dof: math.Inf(1)}})
+			e.uB.alphaU, e.uB.alphaDof = v.U, v.Dof
+		}
+	}
+}
+
+func dofOrInf(d float64) float64 {
+	if d == 0 || math.IsNaN(d) {
+		return math.Inf(1)
+	}
+	return d
+}
+
+// nanMean is the mean of the finite values of x (NaN when there are none).
+func nanMean(x []float64) float64 {
+	s, n := 0.0, 0
+	for _, v := range x {
+		if finite(v) {
+			s += v
+			n++
+		}
+	}
+	if n == 0 {
+		return math.NaN()
+	}
+	return s / float64(n)
+}
