@@ -1,0 +1,470 @@
+package rig
+
+import (
+	"fmt"
+	"math"
+	"regexp"
+	"slices"
+	"strings"
+)
+
+// Validate checks a Rig built in code (Parse already runs these checks on
+// files): names are unique and well formed, every reference names a channel
+// of the right quantity, the kind has what it needs, and every number is in
+// range. It returns Errors without file positions, or nil.
+func (r *Rig) Validate() error {
+	d := &decoder{reported: map[string]bool{}}
+	validate(r, d)
+	if len(d.errs) > 0 {
+		return d.errs
+	}
+	return nil
+}
+
+// nameRE is what a channel, source, tap or zone name may hold: names travel
+// as CSV headers, JSON keys and URL parts, so no blanks or punctuation.
+var nameRE = regexp.MustCompile(`^[A-Za-z0-9_.-]{1,64}$`)
+
+// validate adds every cross-check problem of r to d.
+func validate(r *Rig, d *decoder) {
+	v := &validator{r: r, d: d, chans: map[string]int{}}
+	v.top()
+	v.conditions()
+	v.reference()
+	v.channels()
+	v.sources()
+	v.lift()
+	v.roof()
+}
+
+type validator struct {
+	r     *Rig
+	d     *decoder
+	chans map[string]int // channel name → index of its first definition
+}
+
+func (v *validator) add(path string, kind error, format string, args ...any) {
+	v.d.add(path, kind, format, args...)
+}
+
+// firstLine says where an earlier definition is, when the file tells.
+func (v *validator) firstLine(path string) string {
+	if p := v.d.idx.at(path); p.line > 0 {
+		return fmt.Sprintf(" (first on line %d)", p.line)
+	}
+	return ""
+}
+
+func (v *validator) top() {
+	r := v.r
+	if r.Name == "" {
+		v.add("name", ErrMissing, `name missing (add name = "..." at the top of the file, before any [table])`)
+	}
+	if r.Kind == "" {
+		v.add("kind", ErrMissing, `kind missing (add kind = "foil", "roof", "rotor" or "body" at the top of the file)`)
+	} else if !slices.Contains(kindWords, string(r.Kind)) {
+		v.add("kind", ErrValue, `kind %q is not known (use "foil", "roof", "rotor" or "body")`, r.Kind)
+	}
+	if r.Fluid == "" {
+		v.add("fluid", ErrMissing, `fluid missing (add fluid = "air", "fresh_water" or "sea_water" at the top of the file)`)
+	} else if !slices.Contains(fluidWords, string(r.Fluid)) {
+		v.add("fluid", ErrValue, `fluid %q is not known (use "air", "fresh_water" or "sea_water")`, r.Fluid)
+	}
+}
+
+func (v *validator) conditions() {
+	c := v.r.Conditions
+	switch {
+	case !finite(c.TempK) || c.TempK <= 0:
+		v.add("conditions.temperature_c", ErrValue, "conditions: temperature %.2f °C is at or below absolute zero", c.TempK-273.15)
+	case v.r.Fluid != FluidAir && v.r.Fluid != "" && (c.TempK < 273.15-2.5 || c.TempK > 273.15+100):
+		v.add("conditions.temperature_c", ErrValue, "conditions: water at %.2f °C is outside liquid water (0 to 100 °C)", c.TempK-273.15)
+	}
+	if !finite(c.PressurePa) || c.PressurePa <= 0 {
+		v.add("conditions.pressure_pa", ErrValue, "conditions: pressure_pa must be > 0 (absolute ambient pressure; sea level is 101325)")
+	}
+	if !finite(c.RelHumidity) || c.RelHumidity < 0 || c.RelHumidity > 1 {
+		v.add("conditions.humidity_pct", ErrValue, "conditions: humidity_pct must be within 0 to 100, not %g", c.RelHumidity*100)
+	} else if c.RelHumidity > 0 && v.r.Fluid != FluidAir && v.r.Fluid != "" {
+		v.add("conditions.humidity_pct", ErrValue, "conditions: humidity_pct applies to air only (remove it for %s)", v.r.Fluid)
+	}
+	switch s := c.SalinityKgPerKg; {
+	case !finite(s) || s < 0 || s > 0.05:
+		v.add("conditions.salinity_g_per_kg", ErrValue, "conditions: salinity_g_per_kg must be within 0 to 50, not %g (standard seawater is 35.16504)", s*1000)
+	case s > 0 && v.r.Fluid != FluidSeaWater && v.r.Fluid != "":
+		v.add("conditions.salinity_g_per_kg", ErrValue, `conditions: salinity_g_per_kg applies to sea water only (set fluid = "sea_water", or remove it)`)
+	}
+}
+
+func (v *validator) reference() {
+	ref, kind := v.r.Reference, v.r.Kind
+	switch {
+	case !finite(ref.AreaM2) || ref.AreaM2 < 0:
+		v.add("reference.area_m2", ErrValue, "reference: area_m2 must be > 0, not %g", ref.AreaM2)
+	case ref.AreaM2 == 0 && kind != KindRoof && kind != "":
+		v.add("reference.area_m2", ErrMissing, "reference: area_m2 missing (add [reference] area_m2 = the %s area that coefficients are made on, in m²)", defaultAreaKind(kind))
+	}
+	if !finite(ref.AreaUM2) || ref.AreaUM2 < 0 {
+		v.add("reference.area_u_m2", ErrValue, "reference: area_u_m2 must be ≥ 0 (a standard uncertainty), not %g", ref.AreaUM2)
+	} else if ref.AreaM2 > 0 && ref.AreaUM2 >= ref.AreaM2 {
+		v.add("reference.area_u_m2", ErrValue, "reference: area_u_m2 = %g m² is not smaller than area_m2 = %g m²", ref.AreaUM2, ref.AreaM2)
+	}
+	for _, f := range []struct {
+		key string
+		val float64
+	}{{"length_m", ref.LengthM}, {"span_m", ref.SpanM}, {"radius_m", ref.RadiusM}} {
+		if !finite(f.val) || f.val < 0 {
+			v.add("reference."+f.key, ErrValue, "reference: %s must be > 0, not %g", f.key, f.val)
+		}
+	}
+	if kind == KindFoil && ref.LengthM == 0 {
+		v.add("reference.length_m", ErrMissing, "reference: length_m missing (add length_m = the chord in m, for the Reynolds number and C_M)")
+	}
+	if kind == KindRotor && ref.RadiusM == 0 {
+		v.add("reference.radius_m", ErrMissing, "reference: radius_m missing (add radius_m = the rotor radius in m, for the spin ratio ωR/V)")
+	}
+}
+
+// checkName reports a missing, malformed or repeated name of an item.
+func (v *validator) checkName(kind, path, name string, seen map[string]int, i int) {
+	switch {
+	case name == "":
+		v.add(path+".name", ErrMissing, "[[%s]] #%d: name missing (add name = \"...\")", kind, i+1)
+	case !nameRE.MatchString(name):
+		v.add(path+".name", ErrValue, "%s %q: a name may hold letters, digits, _ . and - only (up to 64)", kind, name)
+	default:
+		if j, dup := seen[name]; dup {
+			v.add(path+".name", ErrDuplicate, "%s %q is defined twice%s", kind, name, v.firstLine(indexPath(kind, j)))
+			return
+		}
+		seen[name] = i
+	}
+}
+
+func (v *validator) channels() {
+	for i, c := range v.r.Channels {
+		p := indexPath("channel", i)
+		v.checkName("channel", p, c.Name, v.chans, i)
+		subj := itemName("channel", i, c.Name)
+		switch {
+		case c.Quantity == "":
+			v.add(p+".quantity", ErrMissing, "%s: quantity missing (add quantity = one of %s)", subj, orList(quantityWords()))
+		case !c.Quantity.Known():
+			v.add(p+".quantity", ErrValue, "%s: quantity %q is not known (use %s)", subj, c.Quantity, orList(quantityWords()))
+		}
+		unit := c.Unit
+		if c.Quantity.Known() {
+			if c.Unit == "" {
+				v.add(p+".unit", ErrMissing, "%s: unit missing (add unit = %q, the unit the calibration produces; %s also work)", subj, c.Quantity.SIUnit(), orList(Units(c.Quantity)[1:]))
+				unit = c.Quantity.SIUnit()
+			} else if _, err := UnitToSI(c.Quantity, c.Unit); err != nil {
+				v.add(p+".unit", ErrUnit, "%s: %v", subj, err)
+				unit = c.Quantity.SIUnit()
+			}
+		}
+		switch {
+		case !finite(c.CapacitySI) || c.CapacitySI < 0:
+			v.add(p+".capacity", ErrValue, "%s: capacity must be > 0", subj)
+		case c.CapacitySI == 0 && (c.Quantity == QuantityForce || c.Quantity == QuantityMoment || c.Quantity == QuantityPressure):
+			v.add(p+".capacity", ErrMissing, "%s: capacity missing (add capacity = \"500 %s\", the sensor's rated range, for the overload warning)", subj, unit)
+		}
+		v.calibration(p, subj, unit, c.Calibration)
+	}
+}
+
+func (v *validator) calibration(p, subj, unit string, cal Calibration) {
+	cp := p + ".calibration"
+	switch {
+	case cal.ID == "" && cal.Poly == nil:
+		v.add(cp, ErrMissing, "%s: calibration missing (add calibration = { poly = [c0, c1], u = ... } giving %s from the raw reading, or { id = \"...\" } for a stored calibration)", subj, unit)
+		return
+	case cal.ID != "" && cal.Poly != nil:
+		v.add(cp+".id", ErrValue, "%s: calibration has both id and poly (keep one)", subj)
+		return
+	case cal.ID != "":
+		return
+	}
+	if len(cal.Poly) == 0 {
+		v.add(cp+".poly", ErrValue, "%s: calibration poly needs at least one coefficient, like [c0, c1]", subj)
+	}
+	for k, c := range cal.Poly {
+		if !finite(c) {
+			v.add(fmt.Sprintf("%s.poly[%d]", cp, k), ErrValue, "%s: calibration poly[%d] must be a finite number", subj, k)
+		}
+	}
+	if !finite(cal.U) || cal.U < 0 {
+		v.add(cp+".u", ErrValue, "%s: calibration u must be ≥ 0 (a standard uncertainty in %s), not %g", subj, unit, cal.U)
+	}
+}
+
+func itemName(kind string, i int, name string) string {
+	if name == "" {
+		return fmt.Sprintf("[[%s]] #%d", kind, i+1)
+	}
+	return fmt.Sprintf("%s %q", kind, name)
+}
+
+// ref checks that name is a defined channel of quantity want.
+func (v *validator) ref(path, subj, role, name string, want Quantity) {
+	i, ok := v.chans[name]
+	if !ok {
+		hint := ""
+		names := make([]string, 0, len(v.chans))
+		for n := range v.chans {
+			names = append(names, n)
+		}
+		slices.Sort(names)
+		if s := suggest(name, names); s != "" {
+			hint = fmt.Sprintf("; did you mean %q?", s)
+		}
+		v.add(path, ErrReference, "%s: %s names channel %q, which is not defined (define it under [[channel]]%s)", subj, role, name, hint)
+		return
+	}
+	c := v.r.Channels[i]
+	if want != "" && c.Quantity.Known() && c.Quantity != want {
+		v.add(path, ErrReference, "%s: %s needs a %s channel, but %q measures %s", subj, role, want, name, c.Quantity)
+	}
+}
+
+func (v *validator) sources() {
+	seen := map[string]int{}
+	ports := map[string]int{}
+	readBy := map[string]string{}
+	for i, s := range v.r.Sources {
+		p := indexPath("source", i)
+		v.checkName("source", p, s.Name, seen, i)
+		subj := itemName("source", i, s.Name)
+		switch s.Type {
+		case "":
+			v.add(p+".type", ErrMissing, `%s: type missing (add type = "serial", "mqtt" or "simulated")`, subj)
+		case SourceSerial:
+			if s.Port == "" {
+				v.add(p+".port", ErrMissing, `%s: port missing (add port = "/dev/ttyUSB0", the serial device)`, subj)
+			} else if j, dup := ports[s.Port]; dup {
+				v.add(p+".port", ErrDuplicate, "%s: port %q is already used by source %q; one port carries one source", subj, s.Port, v.r.Sources[j].Name)
+			} else {
+				ports[s.Port] = i
+			}
+			if len(s.Channels) == 0 {
+				v.add(p+".channels", ErrMissing, `%s: channels missing (add channels = ["a", "b"], the channel names in frame order)`, subj)
+			}
+			if s.Baud <= 0 {
+				v.add(p+".baud", ErrValue, "%s: baud must be > 0, such as 115200", subj)
+			}
+			if !slices.Contains(formatWords, s.Format) {
+				v.add(p+".format", ErrValue, `%s: format %q is not known (use "frame" or "delimited")`, subj, s.Format)
+			}
+		case SourceMQTT:
+			switch {
+			case s.Broker == "":
+				v.add(p+".broker", ErrMissing, `%s: broker missing (add broker = "tcp://127.0.0.1:1883")`, subj)
+			case !validBroker(s.Broker):
+				v.add(p+".broker", ErrValue, `%s: broker %q needs a scheme, host and port, like "tcp://127.0.0.1:1883"`, subj, s.Broker)
+			}
+			if s.Topic == "" {
+				v.add(p+".topic", ErrMissing, `%s: topic missing (add topic = "liftyard/<rig>/raw")`, subj)
+			}
+		case SourceSimulated:
+			if !finite(s.RateHz) || s.RateHz <= 0 {
+				v.add(p+".rate_hz", ErrValue, "%s: rate_hz must be > 0 (samples per second)", subj)
+			}
+		default:
+			v.add(p+".type", ErrValue, `%s: type %q is not known (use "serial", "mqtt" or "simulated")`, subj, s.Type)
+		}
+		own := map[string]bool{}
+		for k, name := range s.Channels {
+			cp := fmt.Sprintf("%s.channels[%d]", p, k)
+			if own[name] {
+				v.add(cp, ErrDuplicate, "%s: channel %q is listed twice", subj, name)
+				continue
+			}
+			own[name] = true
+			v.ref(cp, subj, "channels", name, "")
+			if other, dup := readBy[name]; dup {
+				v.add(cp, ErrDuplicate, "%s: channel %q is already read by source %q; a channel has one source", subj, name, other)
+			} else {
+				readBy[name] = s.Name
+			}
+		}
+	}
+}
+
+func validBroker(b string) bool {
+	scheme, rest, ok := strings.Cut(b, "://")
+	if !ok || rest == "" {
+		return false
+	}
+	switch scheme {
+	case "tcp", "ssl", "tls", "ws", "wss", "mqtt", "mqtts":
+	default:
+		return false
+	}
+	host, port, ok := strings.Cut(rest, ":")
+	if scheme == "ws" || scheme == "wss" {
+		return host != ""
+	}
+	return ok && host != "" && port != ""
+}
+
+func (v *validator) lift() {
+	l, kind := v.r.Lift, v.r.Kind
+	const subj = "lift"
+	list := func(key string, names []string) {
+		seen := map[string]bool{}
+		for k, n := range names {
+			path := fmt.Sprintf("lift.%s[%d]", key, k)
+			if seen[n] {
+				v.add(path, ErrDuplicate, "lift: %s lists %q twice", key, n)
+				continue
+			}
+			seen[n] = true
+			v.ref(path, subj, key, n, QuantityForce)
+		}
+	}
+	list("normal", l.Normal)
+	list("axial", l.Axial)
+	for _, one := range []struct {
+		key, name string
+		q         Quantity
+	}{
+		{"moment", l.Moment, QuantityMoment},
+		{"angle", l.AngleChannel, QuantityAngle},
+		{"dynamic_pressure", l.DynamicPressure, QuantityPressure},
+		{"speed", l.Speed, QuantitySpeed},
+		{"spin", l.Spin, QuantityRotation},
+		{"direction", l.Direction, QuantityAngle},
+		{"temperature", l.Temperature, QuantityTemperature},
+	} {
+		if one.name != "" {
+			v.ref("lift."+one.key, subj, one.key, one.name, one.q)
+		}
+	}
+	if !finite(l.AngleRad) || math.Abs(l.AngleRad) > math.Pi {
+		v.add("lift.angle", ErrValue, "lift: a fixed angle must be within -180 to 180 degrees")
+	}
+	if !finite(l.AngleURad) || l.AngleURad < 0 {
+		v.add("lift.angle_u_deg", ErrValue, "lift: angle_u_deg must be ≥ 0 (a standard uncertainty in degrees)")
+	}
+	if !finite(l.PitotCoeff) || l.PitotCoeff <= 0 {
+		v.add("lift.pitot_coefficient", ErrValue, "lift: pitot_coefficient must be > 0 (1 for a standard pitot-static tube)")
+	}
+	needQ := func() {
+		if l.DynamicPressure == "" && l.Speed == "" {
+			v.add("lift.dynamic_pressure", ErrMissing, `lift: no flow reference (add dynamic_pressure = "<pitot channel>" or speed = "<speed channel>")`)
+		}
+	}
+	needNormal := func(what string) {
+		if len(l.Normal) == 0 {
+			v.add("lift.normal", ErrMissing, "lift: normal missing (add normal = [\"...\"], the force channels summed into %s)", what)
+		}
+	}
+	switch kind {
+	case KindFoil, KindBody:
+		needNormal("the normal force")
+		needQ()
+		if l.AngleChannel == "" && v.d.angleMissing {
+			v.add("lift.angle", ErrMissing, `lift: angle missing (add angle = "<angle channel>", or a fixed angle of attack in degrees such as angle = 4.0)`)
+		}
+	case KindRotor:
+		needNormal("the lift force")
+		needQ()
+		if l.Spin == "" {
+			v.add("lift.spin", ErrMissing, `lift: spin missing (add spin = "<rotation channel>" for the spin ratio)`)
+		}
+	case KindRoof:
+		needQ()
+	}
+}
+
+func (v *validator) roof() {
+	r := v.r
+	isRoof := r.Kind == KindRoof
+	zones := map[string]int{}
+	for i, z := range r.Zones {
+		p := indexPath("zone", i)
+		v.checkName("zone", p, z.Name, zones, i)
+		if !finite(z.DesignCp) {
+			v.add(p+".design_cp", ErrValue, "%s: design_cp must be a finite number", itemName("zone", i, z.Name))
+		}
+		if !finite(z.DesignU) || z.DesignU < 0 {
+			v.add(p+".design_u", ErrValue, "%s: design_u must be ≥ 0 (an expanded 95 %% uncertainty)", itemName("zone", i, z.Name))
+		}
+	}
+	taps := map[string]int{}
+	tapChan := map[string]string{}
+	for i, t := range r.Taps {
+		p := indexPath("tap", i)
+		v.checkName("tap", p, t.Name, taps, i)
+		subj := itemName("tap", i, t.Name)
+		if t.Channel == "" {
+			v.add(p+".channel", ErrMissing, `%s: channel missing (add channel = "<pressure channel>")`, subj)
+		} else {
+			v.ref(p+".channel", subj, "channel", t.Channel, QuantityPressure)
+			if other, dup := tapChan[t.Channel]; dup {
+				v.add(p+".channel", ErrDuplicate, "%s: channel %q is already tap %q", subj, t.Channel, other)
+			} else {
+				tapChan[t.Channel] = t.Name
+			}
+		}
+		switch {
+		case !finite(t.AreaM2) || t.AreaM2 < 0:
+			v.add(p+".area_m2", ErrValue, "%s: area_m2 must be > 0", subj)
+		case t.AreaM2 == 0:
+			v.add(p+".area_m2", ErrMissing, "%s: area_m2 missing (add area_m2 = the tap's tributary area in m²)", subj)
+		}
+		if !finite(t.XM) || !finite(t.YM) {
+			v.add(p+".x_m", ErrValue, "%s: x_m and y_m must be finite", subj)
+		}
+		switch _, ok := zones[t.Zone]; {
+		case t.Zone == "":
+			v.add(p+".zone", ErrMissing, `%s: zone missing (add zone = "<zone name>")`, subj)
+		case !ok:
+			names := make([]string, 0, len(zones))
+			for n := range zones {
+				names = append(names, n)
+			}
+			slices.Sort(names)
+			hint := ""
+			if s := suggest(t.Zone, names); s != "" {
+				hint = fmt.Sprintf("; did you mean %q?", s)
+			}
+			v.add(p+".zone", ErrReference, "%s: zone %q is not defined (define it under [[zone]]%s)", subj, t.Zone, hint)
+		}
+	}
+	in := r.Internal
+	if in.Channel != "" {
+		v.ref("internal.channel", "internal", "channel", in.Channel, QuantityPressure)
+		if in.HasCp {
+			v.add("internal.cp", ErrValue, "internal: give channel or cp, not both")
+		}
+	}
+	if in.HasCp && !finite(in.Cp) {
+		v.add("internal.cp", ErrValue, "internal: cp must be a finite number")
+	}
+	if isRoof {
+		if len(r.Taps) == 0 {
+			v.add("tap", ErrMissing, `a roof needs pressure taps (add [[tap]] tables with name, channel, area_m2 and zone)`)
+		}
+		if len(r.Zones) == 0 {
+			v.add("zone", ErrMissing, `a roof needs zones (add [[zone]] tables with name, design_cp and design_u)`)
+		}
+		if in.Channel == "" && !in.HasCp {
+			v.add("internal", ErrMissing, `a roof needs its internal pressure (add [internal] with cp = 0.0 for a sealed mock-up, or channel = "<pressure channel>")`)
+		}
+		return
+	}
+	if r.Kind == "" {
+		return
+	}
+	if len(r.Taps) > 0 {
+		v.add("tap", ErrValue, `taps apply to kind = "roof" only (this rig is %q)`, r.Kind)
+	}
+	if len(r.Zones) > 0 {
+		v.add("zone", ErrValue, `zones apply to kind = "roof" only (this rig is %q)`, r.Kind)
+	}
+	if in.Channel != "" || in.HasCp {
+		v.add("internal", ErrValue, `[internal] applies to kind = "roof" only (this rig is %q)`, r.Kind)
+	}
+}
+
+func finite(f float64) bool { return !math.IsNaN(f) && !math.IsInf(f, 0) }
