@@ -245,6 +245,10 @@ func TestParse_BadGolden(t *testing.T) {
 			if !errors.As(err, &errs) || len(errs) == 0 {
 				t.Fatalf("err = %T %v, want non-empty rig.Errors", err, err)
 			}
+			var first *rig.Error // what cmd/liftyard tests for its exit status 2
+			if !errors.As(err, &first) || first != errs[0] {
+				t.Errorf("errors.As(*rig.Error) = %v, want the first problem", first)
+			}
 			for i := 1; i < len(errs); i++ {
 				if errs[i].Line < errs[i-1].Line {
 					t.Errorf("not sorted by line: %d after %d", errs[i].Line, errs[i-1].Line)
