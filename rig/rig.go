@@ -150,8 +150,8 @@ type Lift struct {
 	AngleRad     float64 // fixed angle of attack when AngleChannel is empty, rad
 	AngleURad    float64 // standard uncertainty of the angle, rad
 
-	DynamicPressure string // pitot-static Δp channel (q = Δp)
-	PitotCoeff      float64 // pitot coefficient C: q = Δp / C² (default 1)
+	DynamicPressure string  // pitot-static Δp channel (q = Δp)
+	PitotCoeff      float64 // pitot coefficient C: V = C·√(2Δp/ρ), so q = C²·Δp (default 1)
 	Speed           string  // speed channel (q = ½ρV²) when there is no pitot
 	Spin            string  // rotation channel for rotors
 	Direction       string  // wind direction channel for roofs
