@@ -1,0 +1,159 @@
+package dashboard_test
+
+import (
+	"context"
+	"math"
+	"os"
+	"path/filepath"
+	"strconv"
+	"strings"
+	"testing"
+	"time"
+
+	"github.com/chromedp/chromedp"
+
+	"liftyard/acquire"
+	"liftyard/dashboard"
+	"liftyard/internal/browsertest"
+	"liftyard/storage"
+)
+
+// waitText polls until the element's text is want (safety net 10 s).
+func waitText(t *testing.T, ctx context.Context, id, want string) {
+	t.Helper()
+	expr := `(document.getElementById(` + strconv.Quote(id) + `) || {}).textContent === ` + strconv.Quote(want)
+	if _, err := chromedp.Run(ctx, chromedp.Poll[bool](expr, chromedp.WithPollingTimeout(10*time.Second))); err != nil {
+		got, _ := chromedp.Run(ctx, chromedp.Evaluate[string](`(document.getElementById(`+strconv.Quote(id)+`) || {}).textContent || ""`))
+		t.Fatalf("#%s: text %q, want %q: %v", id, got, want, err)
+	}
+}
+
+// Ensure that the live page in a real browser shows the published numbers,
+// draws the trends, grows the segment table and throws no exception.
+func TestLivePage_Browser(t *testing.T) {
+	ctx := browsertest.Browser(t)
+	ctx, cancel := context.WithTimeout(ctx, 30*time.Second)
+	defer cancel()
+
+	s, _ := newServer(t, dashboard.Config{Addr: "127.0.0.1:0", Store: testRuns()})
+	ln := listen(t)
+	sctx, stop := context.WithCancel(context.Background())
+	errc := make(chan error, 1)
+	go func() { errc <- s.Serve(sctx, ln) }()
+	t.Cleanup(func() { stop(); <-errc })
+	url := "http://" + ln.Addr().String() + "/"
+
+	s.SetRun(storage.Run{ID: 7, Rig: hostileRig, Kind: "foil", Fluid: "fresh_water", AreaM2: 0.12,
+		AreaKind: "planform", Started: epoch, Status: storage.StatusRecording})
+	s.PublishHealth([]acquire.HealthSnapshot{{Source: "balance", Frames: 6000, Samples: 600000, Rejected: 2, Gaps: 1}})
+
+	if err := chromedp.Do(ctx, chromedp.Navigate(url)); err != nil {
+		t.Fatalf("open %s: %v", url, err)
+	}
+	waitText(t, ctx, "conn", "connected")
+	// The hostile rig name is shown as text, not run.
+	waitText(t, ctx, "run-rig", hostileRig)
+
+	// A producer publishes estimates as the estimator would, about 20 per second.
+	cl := make(chan float64, 1)
+	cl <- 0.43
+	pubDone := make(chan struct{})
+	go func() {
+		defer close(pubDone)
+		value := 0.43
+		tick := time.NewTicker(50 * time.Millisecond)
+		defer tick.Stop()
+		for i := 1; ; i++ {
+			select {
+			case <-ctx.Done():
+				return
+			case value = <-cl:
+			case <-tick.C:
+			}
+			l := liveSample(i, value)
+			l.QPa.X += 4 * math.Sin(float64(i)/6) // a gusty tow: q wanders a little
+			s.PublishLive(l)
+		}
+	}()
+	t.Cleanup(func() { cancel(); <-pubDone })
+
+	waitText(t, ctx, "v-cl", "0.430")
+	waitText(t, ctx, "u-cl", "0.024")
+	waitText(t, ctx, "u-speed", "0.0027")
+	waitText(t, ctx, "v-alpha", "4.00")
+	waitText(t, ctx, "v-re", "2.90×10⁵")
+	waitText(t, ctx, "v-rho", "999.1")
+	waitText(t, ctx, "v-steady", "steady")
+	cl <- 0.512
+	waitText(t, ctx, "v-cl", "0.512")
+
+	// The trend canvases exist and hold points (about 2 s of them, so the
+	// screenshot shows a trace).
+	if _, err := chromedp.Run(ctx, chromedp.Poll[bool](
+		`Number(document.getElementById("trend-q").dataset.points) > 40 && Number(document.getElementById("trend-cl").dataset.points) > 40`,
+		chromedp.WithPollingTimeout(10*time.Second))); err != nil {
+		t.Fatalf("trend canvases not drawn: %v", err)
+	}
+
+	// A completed segment adds a row.
+	s.PublishSegment(segment(0, 4, 0.43))
+	if _, err := chromedp.Run(ctx, chromedp.Poll[bool](`document.querySelectorAll("#segments tbody tr").length === 1`,
+		chromedp.WithPollingTimeout(10*time.Second))); err != nil {
+		t.Fatalf("segment row did not appear: %v", err)
+	}
+	row, err := chromedp.Run(ctx, chromedp.Text(chromedp.CSS("#segments tbody tr")))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(row, "0.430 ± 0.024") || !strings.Contains(row, "4.000 ± 0.098") {
+		t.Errorf("segment row %q, want C_L 0.430 ± 0.024 and α 4.000 ± 0.098", row)
+	}
+	health, err := chromedp.Run(ctx, chromedp.Text(chromedp.ID("health")))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(health, "balance: 6000 frames, 2 rejected, 0 samples dropped, 1 gaps, 0 reconnects") {
+		t.Errorf("health line %q", health)
+	}
+
+	png, err := chromedp.Run(ctx, chromedp.FullScreenshot(100))
+	if err != nil {
+		t.Fatalf("screenshot: %v", err)
+	}
+	for _, p := range []string{filepath.Join(t.ArtifactDir(), "dashboard-live.png"), "/tmp/dashboard-live.png"} {
+		if err := os.WriteFile(p, png, 0o644); err != nil {
+			t.Errorf("save screenshot: %v", err)
+		}
+	}
+	if ex := browsertest.Exceptions(ctx); len(ex) > 0 {
+		t.Errorf("page threw: %q", ex)
+	}
+}
+
+// Ensure that a run page with its polar renders in the browser without
+// exceptions and the SVG loads.
+func TestRunPage_Browser(t *testing.T) {
+	ctx := browsertest.Browser(t)
+	ctx, cancel := context.WithTimeout(ctx, 20*time.Second)
+	defer cancel()
+	s, _ := newServer(t, dashboard.Config{Addr: "127.0.0.1:0", Store: testRuns()})
+	ts := loopbackServer(t, s)
+	if err := chromedp.Do(ctx, chromedp.Navigate(ts.URL+"/runs/1")); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := chromedp.Run(ctx, chromedp.Poll[bool](`(() => { const i = document.querySelector(".polar img"); return i && i.complete && i.naturalWidth > 0; })()`,
+		chromedp.WithPollingTimeout(10*time.Second))); err != nil {
+		t.Fatalf("polar image did not load: %v", err)
+	}
+	png, err := chromedp.Run(ctx, chromedp.FullScreenshot(100))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(filepath.Join(t.ArtifactDir(), "dashboard-run.png"), png, 0o644); err != nil {
+		t.Error(err)
+	}
+	os.WriteFile("/tmp/dashboard-run.png", png, 0o644)
+	if ex := browsertest.Exceptions(ctx); len(ex) > 0 {
+		t.Errorf("page threw: %q", ex)
+	}
+}

@@ -1,0 +1,294 @@
+package dashboard
+
+import (
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io/fs"
+	"net/http"
+	"slices"
+	"strconv"
+	"time"
+
+	"liftyard/estimate"
+	"liftyard/storage"
+)
+
+// pingInterval is how often an idle live stream sends a comment line, so
+// proxies keep the connection and a dead client is noticed by a failed
+// write.
+const pingInterval = 15 * time.Second
+
+// streamWriteTimeout bounds one write to a live-stream client. It replaces
+// http.Server.WriteTimeout, which would cut every stream after a fixed time.
+const streamWriteTimeout = 10 * time.Second
+
+// retryMillis is the reconnect delay that the live stream asks browsers for.
+const retryMillis = 2000
+
+// errBadRequest marks a request the client must fix (HTTP 400).
+var errBadRequest = errors.New("bad request")
+
+func (s *Server) routes() http.Handler {
+	mux := http.NewServeMux()
+	static, err := fs.Sub(webFS, "web/static")
+	if err != nil {
+		panic(err) // the embedded tree is fixed at build time
+	}
+	mux.Handle("GET /static/", http.StripPrefix("/static/", http.FileServerFS(static)))
+	mux.HandleFunc("GET /{$}", s.livePage)
+	mux.HandleFunc("GET /runs", s.runsPage)
+	mux.HandleFunc("GET /runs/{id}", s.runPage)
+	mux.HandleFunc("GET /runs/{id}/polar.svg", s.polarSVG)
+	mux.HandleFunc("POST /logout", s.logout)
+	mux.HandleFunc("GET /api/v1/live", s.apiLive)
+	mux.HandleFunc("GET /api/v1/stream", s.stream)
+	mux.HandleFunc("GET /api/v1/runs", s.apiRuns)
+	mux.HandleFunc("GET /api/v1/runs/{id}", s.apiRun)
+	mux.HandleFunc("GET /api/v1/runs/{id}/segments", s.apiSegments)
+	return s.secure(mux)
+}
+
+// isNotFound reports whether a RunStore error means "no such run".
+func isNotFound(err error) bool { return errors.Is(err, storage.ErrNotFound) }
+
+// fail maps err to a status: 400 for errBadRequest, 404 for a missing run,
+// 500 otherwise with the detail in the log only. API paths get a JSON body.
+func (s *Server) fail(w http.ResponseWriter, r *http.Request, err error, api bool) {
+	status, msg := http.StatusInternalServerError, "internal error; the liftyard log has the details"
+	switch {
+	case errors.Is(err, errBadRequest):
+		status, msg = http.StatusBadRequest, err.Error()
+	case isNotFound(err):
+		status, msg = http.StatusNotFound, "no such run"
+	default:
+		s.log.Error("request failed", "method", r.Method, "path", r.URL.Path, "err", err)
+	}
+	if api {
+		writeJSONStatus(w, status, map[string]string{"error": msg})
+		return
+	}
+	http.Error(w, msg, status)
+}
+
+func writeJSONStatus(w http.ResponseWriter, status int, v any) {
+	w.Header().Set("Content-Type", "application/json")
+	w.Header().Set("Cache-Control", "no-store")
+	w.WriteHeader(status)
+	json.NewEncoder(w).Encode(v) // the client may be gone; nothing to do about it
+}
+
+func writeJSONBytes(w http.ResponseWriter, b []byte) {
+	w.Header().Set("Content-Type", "application/json")
+	w.Header().Set("Cache-Control", "no-store")
+	w.Write(b)
+	w.Write([]byte("\n"))
+}
+
+// runID parses the {id} path segment.
+func runID(r *http.Request) (uint64, error) {
+	v := r.PathValue("id")
+	id, err := strconv.ParseUint(v, 10, 64)
+	if err != nil || id == 0 {
+		return 0, fmt.Errorf("%w: run id %q is not a positive whole number", errBadRequest, v)
+	}
+	return id, nil
+}
+
+// runs lists the recorded runs, newest first, plus the current run when the
+// store does not have it (yet, or no store).
+func (s *Server) runs() ([]storage.Run, error) {
+	var out []storage.Run
+	if s.store != nil {
+		rs, err := s.store.Runs()
+		if err != nil {
+			return nil, fmt.Errorf("list runs: %w", err)
+		}
+		out = rs
+	}
+	if cur := s.current.Load(); cur != nil && !slices.ContainsFunc(out, func(r storage.Run) bool { return r.ID == cur.ID }) {
+		out = append(out, *cur)
+	}
+	slices.SortStableFunc(out, func(a, b storage.Run) int {
+		switch {
+		case a.ID > b.ID:
+			return -1
+		case a.ID < b.ID:
+			return 1
+		}
+		return 0
+	})
+	return out, nil
+}
+
+// run returns one run and its segments. The current run is served from
+// memory when the store does not know it.
+func (s *Server) run(id uint64) (storage.Run, []segmentJSON, error) {
+	if cur := s.current.Load(); cur != nil && cur.ID == id {
+		r := *cur
+		if s.store != nil {
+			if sr, err := s.store.Run(id); err == nil {
+				r = sr
+			}
+		}
+		var segs []segmentJSON
+		for _, b := range s.hub.keptSegments() {
+			var sj segmentJSON
+			if err := json.Unmarshal(b, &sj); err != nil {
+				return storage.Run{}, nil, fmt.Errorf("decode kept segment: %w", err)
+			}
+			segs = append(segs, sj)
+		}
+		return r, segs, nil
+	}
+	if s.store == nil {
+		return storage.Run{}, nil, fmt.Errorf("run %d: %w", id, storage.ErrNotFound)
+	}
+	r, err := s.store.Run(id)
+	if err != nil {
+		return storage.Run{}, nil, fmt.Errorf("read run %d: %w", id, err)
+	}
+	ss, err := s.store.Segments(id)
+	if err != nil {
+		return storage.Run{}, nil, fmt.Errorf("read segments of run %d: %w", id, err)
+	}
+	return r, segmentsOf(id, ss), nil
+}
+
+func (s *Server) apiLive(w http.ResponseWriter, r *http.Request) {
+	b := s.hub.latestLive()
+	if b == nil {
+		writeJSONStatus(w, http.StatusServiceUnavailable, map[string]string{"error": "no live estimate yet: no run is recording, or the first window is not full"})
+		return
+	}
+	writeJSONBytes(w, b)
+}
+
+func (s *Server) apiRuns(w http.ResponseWriter, r *http.Request) {
+	rs, err := s.runs()
+	if err != nil {
+		s.fail(w, r, err, true)
+		return
+	}
+	now := s.now()
+	out := make([]runJSON, len(rs))
+	for i, run := range rs {
+		out[i] = toRunJSON(run, now)
+	}
+	writeJSONStatus(w, http.StatusOK, out)
+}
+
+func (s *Server) apiRun(w http.ResponseWriter, r *http.Request) {
+	id, err := runID(r)
+	if err != nil {
+		s.fail(w, r, err, true)
+		return
+	}
+	run, _, err := s.run(id)
+	if err != nil {
+		s.fail(w, r, err, true)
+		return
+	}
+	writeJSONStatus(w, http.StatusOK, toRunJSON(run, s.now()))
+}
+
+func (s *Server) apiSegments(w http.ResponseWriter, r *http.Request) {
+	id, err := runID(r)
+	if err != nil {
+		s.fail(w, r, err, true)
+		return
+	}
+	_, segs, err := s.run(id)
+	if err != nil {
+		s.fail(w, r, err, true)
+		return
+	}
+	if segs == nil {
+		segs = []segmentJSON{}
+	}
+	writeJSONStatus(w, http.StatusOK, segs)
+}
+
+// logout clears the token cookie (off loopback); it is a POST so that no
+// other site can trigger it.
+func (s *Server) logout(w http.ResponseWriter, r *http.Request) {
+	http.SetCookie(w, &http.Cookie{Name: tokenCookie, Value: "", Path: "/", MaxAge: -1, HttpOnly: true, SameSite: http.SameSiteLaxMode})
+	http.Redirect(w, r, "/", http.StatusSeeOther)
+}
+
+// stream is the live stream (server-sent events). One connection per page
+// carries every event name: run, health, live and segment. On connect the
+// client first gets the current state, then each event as it is published.
+func (s *Server) stream(w http.ResponseWriter, r *http.Request) {
+	rc := http.NewResponseController(w)
+	h := w.Header()
+	h.Set("Content-Type", "text/event-stream")
+	h.Set("Cache-Control", "no-store")
+	h.Set("X-Accel-Buffering", "no")
+
+	after := s.hub.parseID(r.Header.Get("Last-Event-ID"))
+	sub, snap := s.hub.subscribe(after)
+	defer s.hub.unsubscribe(sub)
+
+	write := func(ev event) bool {
+		// Not every ResponseWriter supports deadlines (httptest's recorder
+		// does not); the stream still works there.
+		_ = rc.SetWriteDeadline(time.Now().Add(streamWriteTimeout))
+		if _, err := fmt.Fprintf(w, "id: %s\nevent: %s\ndata: %s\n\n", s.hub.id(ev.seq), ev.name, ev.data); err != nil {
+			return false
+		}
+		return rc.Flush() == nil
+	}
+
+	_ = rc.SetWriteDeadline(time.Now().Add(streamWriteTimeout))
+	if _, err := fmt.Fprintf(w, "retry: %d\n\n", retryMillis); err != nil {
+		return
+	}
+	for _, ev := range []*event{snap.run, snap.health, snap.live} {
+		if ev != nil && !write(*ev) {
+			return
+		}
+	}
+	for _, ev := range snap.segments {
+		if !write(ev) {
+			return
+		}
+	}
+	if rc.Flush() != nil {
+		return
+	}
+
+	ping := time.NewTicker(pingInterval)
+	defer ping.Stop()
+	for {
+		select {
+		case <-r.Context().Done():
+			return
+		case <-s.hub.shutdown:
+			return
+		case <-sub.gone:
+			// Too slow: the hub dropped us. Ending the response makes the
+			// browser reconnect and start again from a fresh snapshot.
+			s.log.Warn("live stream client fell behind and was disconnected", "remote", r.RemoteAddr, "buffer", SubscriberBuffer)
+			return
+		case ev := <-sub.ch:
+			if !write(ev) {
+				return
+			}
+		case <-ping.C:
+			_ = rc.SetWriteDeadline(time.Now().Add(streamWriteTimeout))
+			if _, err := fmt.Fprint(w, ": ping\n\n"); err != nil || rc.Flush() != nil {
+				return
+			}
+		}
+	}
+}
+
+// segmentsOf converts store segments for a template.
+func segmentsOf(run uint64, ss []estimate.Segment) []segmentJSON {
+	out := make([]segmentJSON, len(ss))
+	for i, s := range ss {
+		out[i] = toSegmentJSON(run, s)
+	}
+	return out
+}

@@ -1,0 +1,213 @@
+package dashboard
+
+import (
+	"bytes"
+	"embed"
+	"fmt"
+	"html/template"
+	"math"
+	"net/http"
+	"strconv"
+	"strings"
+	"time"
+
+	"liftyard/acquire"
+	"liftyard/storage"
+)
+
+//go:embed web
+var webFS embed.FS
+
+// pages holds the parsed templates, one set per page, parsed once by New.
+type pages struct {
+	live, runs, run *template.Template
+}
+
+func parsePages() (*pages, error) {
+	parse := func(page string) (*template.Template, error) {
+		t, err := template.New(page).Funcs(funcs).ParseFS(webFS, "web/templates/base.html", "web/templates/"+page)
+		if err != nil {
+			return nil, fmt.Errorf("dashboard template %s: %w", page, err)
+		}
+		return t, nil
+	}
+	var p pages
+	var err error
+	if p.live, err = parse("live.html"); err != nil {
+		return nil, err
+	}
+	if p.runs, err = parse("runs.html"); err != nil {
+		return nil, err
+	}
+	if p.run, err = parse("run.html"); err != nil {
+		return nil, err
+	}
+	return &p, nil
+}
+
+// render executes a page into a buffer first, so a template error becomes
+// a clean 500 instead of half a page.
+func (s *Server) render(w http.ResponseWriter, r *http.Request, t *template.Template, data any) {
+	var buf bytes.Buffer
+	if err := t.ExecuteTemplate(&buf, "base", data); err != nil {
+		s.fail(w, r, fmt.Errorf("render %s: %w", t.Name(), err), false)
+		return
+	}
+	h := w.Header()
+	h.Set("Content-Type", "text/html; charset=utf-8")
+	h.Set("Cache-Control", "no-store")
+	h.Set("Content-Security-Policy", "default-src 'self'; img-src 'self'; style-src 'self'; script-src 'self'; connect-src 'self'; base-uri 'none'; form-action 'self'; frame-ancestors 'none'")
+	buf.WriteTo(w)
+}
+
+// pageData is what every page gets.
+type pageData struct {
+	Title   string
+	Nav     string // "live" or "runs": the highlighted link
+	Token   bool   // off loopback: show the sign-out button
+	Content any
+}
+
+type livePageData struct {
+	Run *storage.Run
+}
+
+type runsPageData struct {
+	Runs []runRow
+}
+
+type runRow struct {
+	Run      storage.Run
+	Duration time.Duration
+}
+
+type runPageData struct {
+	Run      storage.Run
+	Duration time.Duration
+	Segments []segmentJSON
+	Health   []acquire.HealthSnapshot
+}
+
+func (s *Server) livePage(w http.ResponseWriter, r *http.Request) {
+	s.render(w, r, s.pages.live, pageData{
+		Title: "Live", Nav: "live", Token: !s.loopback.Load(),
+		Content: livePageData{Run: s.current.Load()},
+	})
+}
+
+func (s *Server) runsPage(w http.ResponseWriter, r *http.Request) {
+	rs, err := s.runs()
+	if err != nil {
+		s.fail(w, r, err, false)
+		return
+	}
+	now := s.now()
+	rows := make([]runRow, len(rs))
+	for i, run := range rs {
+		rows[i] = runRow{Run: run, Duration: runDuration(run, now)}
+	}
+	s.render(w, r, s.pages.runs, pageData{
+		Title: "Runs", Nav: "runs", Token: !s.loopback.Load(),
+		Content: runsPageData{Runs: rows},
+	})
+}
+
+func (s *Server) runPage(w http.ResponseWriter, r *http.Request) {
+	id, err := runID(r)
+	if err != nil {
+		s.fail(w, r, err, false)
+		return
+	}
+	run, segs, err := s.run(id)
+	if err != nil {
+		s.fail(w, r, err, false)
+		return
+	}
+	s.render(w, r, s.pages.run, pageData{
+		Title: "Run " + strconv.FormatUint(id, 10), Nav: "runs", Token: !s.loopback.Load(),
+		Content: runPageData{Run: run, Duration: runDuration(run, s.now()), Segments: segs, Health: run.Sources},
+	})
+}
+
+// funcs format numbers for the pages. They only round and label; every
+// number was computed by estimate (angles arrive in degrees, U95 expanded).
+var funcs = template.FuncMap{
+	"fix": func(v any, digits int) string {
+		switch v := v.(type) {
+		case num:
+			return fix(v, digits)
+		case float64:
+			return fix(num(v), digits)
+		}
+		return fmt.Sprint(v)
+	},
+	"pm":    pm,
+	"sci":   sci,
+	"dur":   func(d time.Duration) string { return d.Round(time.Second).String() },
+	"when":  func(t time.Time) string { return whenStr(t) },
+	"count": func(n uint64) string { return strconv.FormatUint(n, 10) },
+}
+
+func finite(n num) bool { f := float64(n); return !math.IsNaN(f) && !math.IsInf(f, 0) }
+
+// fix rounds to digits decimals; "—" for a missing value.
+func fix(n num, digits int) string {
+	if !finite(n) {
+		return "—"
+	}
+	return strconv.FormatFloat(float64(n), 'f', digits, 64)
+}
+
+// uDigits returns the decimals that show u with at least two significant
+// digits (JCGM 100 §7.2.6), and never fewer than digits.
+func uDigits(u num, digits int) int {
+	f := math.Abs(float64(u))
+	if !finite(u) || f == 0 {
+		return digits
+	}
+	d := int(math.Ceil(-math.Log10(f))) + 1
+	return min(max(d, digits), 8)
+}
+
+// pm writes "v ± u" with both rounded to the same decimals: at least
+// digits, more when u needs them for two significant digits.
+func pm(v, u num, digits int) string {
+	if !finite(v) {
+		return "—"
+	}
+	if !finite(u) {
+		return fix(v, digits)
+	}
+	d := uDigits(u, digits)
+	return fix(v, d) + " ± " + fix(u, d)
+}
+
+var superscript = strings.NewReplacer("0", "⁰", "1", "¹", "2", "²", "3", "³", "4", "⁴", "5", "⁵", "6", "⁶", "7", "⁷", "8", "⁸", "9", "⁹", "-", "⁻")
+
+// sci writes a large number such as a Reynolds number as "3.21×10⁵".
+func sci(n num) string {
+	if !finite(n) {
+		return "—"
+	}
+	f := float64(n)
+	if f == 0 {
+		return "0"
+	}
+	e := int(math.Floor(math.Log10(math.Abs(f))))
+	if e >= -2 && e < 4 {
+		return strconv.FormatFloat(f, 'g', 3, 64)
+	}
+	m := f / math.Pow(10, float64(e))
+	if math.Abs(m) >= 9.995 { // rounding carried into the next power
+		m /= 10
+		e++
+	}
+	return strconv.FormatFloat(m, 'f', 2, 64) + "×10" + superscript.Replace(strconv.Itoa(e))
+}
+
+func whenStr(t time.Time) string {
+	if t.IsZero() {
+		return "—"
+	}
+	return t.Format("2006-01-02 15:04:05 MST")
+}

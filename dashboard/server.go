@@ -1,0 +1,243 @@
+package dashboard
+
+import (
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"log/slog"
+	"net"
+	"net/http"
+	"strconv"
+	"sync/atomic"
+	"time"
+
+	"liftyard/acquire"
+	"liftyard/estimate"
+	"liftyard/storage"
+)
+
+// DefaultAddr is the listen address when Config.Addr is empty: loopback only.
+const DefaultAddr = "127.0.0.1:8470"
+
+// MinTokenLen is the shortest token accepted off loopback. A shorter token
+// is guessable by anyone on the yard's network.
+const MinTokenLen = 16
+
+// shutdownTimeout bounds the graceful shutdown in Serve. Live streams end at
+// once (RegisterOnShutdown); this only waits for page and API requests.
+const shutdownTimeout = 3 * time.Second
+
+// RunStore reads recorded runs. *storage.Store implements it.
+//
+// Its methods may be called concurrently from HTTP handlers. Run and
+// Segments return an error wrapping storage.ErrNotFound when no run has the
+// id (the dashboard answers 404). The returned slices belong to the caller.
+type RunStore interface {
+	Runs() ([]storage.Run, error)
+	Run(id uint64) (storage.Run, error)
+	Segments(id uint64) ([]estimate.Segment, error)
+}
+
+// Config configures a Server. A zero Config serves live data only on
+// DefaultAddr with the default logger.
+type Config struct {
+	// Addr is the listen address, "host:port". Empty means DefaultAddr. When
+	// the host is not a loopback address (127.0.0.0/8, ::1, "localhost"),
+	// Token is required.
+	Addr string
+
+	// Token is the shared secret that clients must present off loopback,
+	// as "Authorization: Bearer TOKEN" or by opening /?token=TOKEN once in
+	// the browser (which sets a cookie). At least MinTokenLen characters.
+	// Ignored on loopback. Never logged.
+	Token string
+
+	// Store reads recorded runs for the run pages. Nil serves the live page
+	// and the current run only.
+	Store RunStore
+
+	// Logger receives request errors (the detail that a 500 response does
+	// not show) and dropped stream clients. Nil means slog.Default().
+	Logger *slog.Logger
+
+	// Now gives the wall-clock time, for the duration of a run that is still
+	// recording. Nil means time.Now.
+	Now func() time.Time
+}
+
+// Stats counts what the live stream did.
+type Stats struct {
+	Subscribers  int    // live-stream clients connected now
+	Disconnected uint64 // clients dropped because they fell SubscriberBuffer events behind
+}
+
+// Server is the dashboard: pages, JSON API and the live stream.
+//
+// The Publish methods and SetRun may be called from any goroutine, at any
+// time (also before Serve); none of them blocks on a client.
+type Server struct {
+	token    string
+	store    RunStore
+	log      *slog.Logger
+	now      func() time.Time
+	hub      *hub
+	pages    *pages
+	polars   *polarCache
+	handler  http.Handler
+	loopback atomic.Bool  // bound to loopback: check Host, no token
+	port     atomic.Int64 // port for the Host check; 0 = any (not yet known)
+	current  atomic.Pointer[storage.Run]
+}
+
+// New checks cfg and builds a Server. It parses the page templates, so a
+// broken template fails here, not on the first request.
+func New(cfg Config) (*Server, error) {
+	if cfg.Addr == "" {
+		cfg.Addr = DefaultAddr
+	}
+	host, portStr, err := net.SplitHostPort(cfg.Addr)
+	if err != nil {
+		return nil, fmt.Errorf("dashboard address %q: %w (write host:port, e.g. %s)", cfg.Addr, err, DefaultAddr)
+	}
+	port, err := strconv.ParseUint(portStr, 10, 16)
+	if err != nil {
+		return nil, fmt.Errorf("dashboard address %q: port %q is not a number from 0 to 65535", cfg.Addr, portStr)
+	}
+	loop := isLoopbackHost(host)
+	if !loop {
+		if cfg.Token == "" {
+			return nil, fmt.Errorf("dashboard address %q is not loopback: a token is required (or bind to %s)", cfg.Addr, DefaultAddr)
+		}
+		if len(cfg.Token) < MinTokenLen {
+			return nil, fmt.Errorf("dashboard token is %d characters: use at least %d", len(cfg.Token), MinTokenLen)
+		}
+	}
+	if cfg.Logger == nil {
+		cfg.Logger = slog.Default()
+	}
+	if cfg.Now == nil {
+		cfg.Now = time.Now
+	}
+	pg, err := parsePages()
+	if err != nil {
+		return nil, err
+	}
+	s := &Server{
+		token:  cfg.Token,
+		store:  cfg.Store,
+		log:    cfg.Logger.With("component", "dashboard"),
+		now:    cfg.Now,
+		hub:    newHub(strconv.FormatInt(cfg.Now().UnixNano(), 36)),
+		pages:  pg,
+		polars: newPolarCache(),
+	}
+	s.loopback.Store(loop)
+	s.port.Store(int64(port))
+	s.handler = s.routes()
+	return s, nil
+}
+
+// Handler returns the dashboard's handler, with the Host, token and
+// cross-origin checks in front. Serve uses it; tests may mount it on an
+// httptest.Server.
+func (s *Server) Handler() http.Handler { return s.handler }
+
+// Stats returns the live-stream counters.
+func (s *Server) Stats() Stats {
+	return Stats{Subscribers: s.hub.count(), Disconnected: s.hub.dropped.Load()}
+}
+
+// Serve serves on ln until ctx is done, then shuts down gracefully: live
+// streams end at once, other requests get up to 3 s. It returns nil after a
+// shutdown caused by ctx, or the error that stopped serving. Serve may be
+// called once.
+func (s *Server) Serve(ctx context.Context, ln net.Listener) error {
+	if tcp, ok := ln.Addr().(*net.TCPAddr); ok {
+		if !tcp.IP.IsLoopback() {
+			if len(s.token) < MinTokenLen {
+				return fmt.Errorf("dashboard listener %s is not loopback: a token of at least %d characters is required", tcp, MinTokenLen)
+			}
+			s.loopback.Store(false)
+		}
+		s.port.Store(int64(tcp.Port))
+	}
+	srv := &http.Server{
+		Handler:           s.handler,
+		ReadHeaderTimeout: 5 * time.Second,
+		ReadTimeout:       30 * time.Second, // bodies are tiny; WriteTimeout stays unset (it cuts live streams)
+		IdleTimeout:       2 * time.Minute,
+		MaxHeaderBytes:    64 << 10,
+		ErrorLog:          slog.NewLogLogger(s.log.Handler(), slog.LevelWarn),
+		BaseContext:       func(net.Listener) context.Context { return context.WithoutCancel(ctx) },
+	}
+	srv.RegisterOnShutdown(s.hub.close)
+	errc := make(chan error, 1)
+	go func() { errc <- srv.Serve(ln) }()
+	select {
+	case err := <-errc:
+		s.hub.close()
+		return fmt.Errorf("dashboard: %w", err)
+	case <-ctx.Done():
+	}
+	sctx, cancel := context.WithTimeout(context.Background(), shutdownTimeout)
+	defer cancel()
+	err := srv.Shutdown(sctx)
+	if err != nil {
+		s.log.Warn("dashboard shutdown timed out; closing connections", "err", err)
+		srv.Close()
+	}
+	if serr := <-errc; serr != nil && !errors.Is(serr, http.ErrServerClosed) {
+		return fmt.Errorf("dashboard: %w", serr)
+	}
+	return nil
+}
+
+// SetRun announces the run being recorded (or updates its metadata). A new
+// run id clears the live estimate, health and segments of the previous run.
+func (s *Server) SetRun(r storage.Run) {
+	rc := r
+	s.current.Store(&rc)
+	s.hub.setRun(r.ID, mustJSON(toRunJSON(r, s.now())))
+}
+
+// PublishLive sends a moving-window estimate to every live client and keeps
+// it for GET /api/v1/live. It never blocks.
+func (s *Server) PublishLive(l estimate.Live) {
+	s.hub.publish("live", mustJSON(toLiveJSON(l)))
+}
+
+// PublishSegment sends a completed steady segment of the current run to
+// every live client. It never blocks.
+func (s *Server) PublishSegment(seg estimate.Segment) {
+	id, _ := s.hub.currentRunID()
+	s.hub.publish("segment", mustJSON(toSegmentJSON(id, seg)))
+}
+
+// PublishHealth sends the sources' counters to every live client. It never
+// blocks.
+func (s *Server) PublishHealth(h []acquire.HealthSnapshot) {
+	if h == nil {
+		h = []acquire.HealthSnapshot{}
+	}
+	s.hub.publish("health", mustJSON(h))
+}
+
+// mustJSON marshals the dashboard's own wire types, which cannot fail: num
+// turns NaN and ±Inf into null, and no type holds a channel or func.
+func mustJSON(v any) []byte {
+	b, err := json.Marshal(v)
+	if err != nil {
+		panic(fmt.Sprintf("dashboard: marshal %T: %v", v, err)) // broken invariant, caught by tests
+	}
+	return b
+}
+
+// isLoopbackHost reports whether a listen host is loopback-only.
+func isLoopbackHost(host string) bool {
+	if host == "localhost" {
+		return true
+	}
+	ip := net.ParseIP(host)
+	return ip != nil && ip.IsLoopback()
+}
