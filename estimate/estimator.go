@@ -515,7 +515,7 @@ func (e *Estimator) readTypeB(b *calibrate.Block) {
 			if c == 0 {
 				c = 1
 			}
-			e.uB.qU, e.uB.qDof = u/(c*c), dofOrInf(d)
+			e.uB.qU, e.uB.qDof = u*c*c, dofOrInf(d)
 		}
 	}
 	if e.roles.angle != "" {

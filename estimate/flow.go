@@ -3,9 +3,10 @@ package estimate
 import "math"
 
 // DynamicPressureFromPitot returns the dynamic pressure q in Pa from the
-// differential pressure Δp of a pitot-static tube: q = Δp/C² (Bernoulli,
+// differential pressure Δp of a pitot-static tube: q = C²·Δp (Bernoulli,
 // incompressible: p_t − p_s = ½ρV² for an ideal probe). pitotCoeff is the
-// probe's velocity coefficient C (V = C·√(2Δp/ρ)); C = 1 for a standard
+// probe's velocity coefficient C (V = C·√(2Δp/ρ), so ½ρV² = C²·Δp; ISO 3966
+// writes the calibration coefficient the same way, from memory); C = 1 for a standard
 // pitot-static tube (common practice); C = 0 is read as 1 (not calibrated).
 // A negative C gives NaN. Compressibility is ignored: above Mach 0.3 the
 // result is off by more than about 1 % (V error ≈ M²/8).
@@ -16,7 +17,7 @@ func DynamicPressureFromPitot(deltaPPa, pitotCoeff float64) (qPa float64) {
 	case pitotCoeff < 0:
 		return math.NaN()
 	}
-	return deltaPPa / (pitotCoeff * pitotCoeff)
+	return deltaPPa * pitotCoeff * pitotCoeff
 }
 
 // DynamicPressure returns q = ½·ρ·V² in Pa (definition).

@@ -43,7 +43,10 @@ func TestSpeedFromQ(t *testing.T) {
 func TestDynamicPressureFromPitot(t *testing.T) {
 	near(t, "C=1", estimate.DynamicPressureFromPitot(250, 1), 250, 0)
 	near(t, "C=0 means 1", estimate.DynamicPressureFromPitot(250, 0), 250, 0)
-	near(t, "C=0.84", estimate.DynamicPressureFromPitot(250, 0.84), 250/(0.84*0.84), 1e-9)
+	// An S-type probe with C = 0.84 reads a Δp larger than q: the coefficient
+	// multiplies the velocity, V = C·√(2Δp/ρ) (US EPA Method 2, 40 CFR 60
+	// App. A, writes v = K_p·C_p·√(Δp·T/(P·M)); from memory).
+	near(t, "C=0.84", estimate.DynamicPressureFromPitot(250, 0.84), 250*0.84*0.84, 1e-9)
 	if q := estimate.DynamicPressureFromPitot(250, -1); !math.IsNaN(q) {
 		t.Errorf("negative C gave %g, want NaN", q)
 	}

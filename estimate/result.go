@@ -35,7 +35,7 @@ type Segment struct {
 	DragN      calibrate.Value
 	CL         calibrate.Value
 	CD         calibrate.Value
-	SpinRatio  float64 // ωR/V for rotors; 0 otherwise
+	SpinRatio  float64         // ωR/V for rotors; 0 otherwise
 	DesignCL   calibrate.Value // zero Value when no design curve applies
 	En         float64         // normalised error vs design; NaN when no design value
 	CLBudget   []Contribution

@@ -309,7 +309,7 @@ func (s *Rig) Next() acquire.Block {
 			put(&s.axial[k], axial/float64(len(s.axial)))
 		}
 		if s.pitot != nil {
-			put(s.pitot, q*s.pitotC*s.pitotC)
+			put(s.pitot, q/(s.pitotC*s.pitotC)) // the probe reads Δp = q/C²
 		} else {
 			put(s.speed, math.Sqrt(2*q/s.rhoForV))
 		}
