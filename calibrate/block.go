@@ -1,7 +1,5 @@
 package calibrate
 
-
-
 // Block is an acquire.Block after calibration: every series holds values in
 // the SI unit of its channel's quantity (N, Pa, rad, K, ...).
 // It is owned by its receiver, like acquire.Block.
@@ -40,4 +38,3 @@ func (b *Block) Find(channel string) *Series {
 	}
 	return nil
 }
-
