@@ -5,9 +5,9 @@ import (
 	"testing"
 )
 
-// Ensure that display rounding follows JCGM 100 §7.2.6 (uncertainty shown
-// with two significant digits, the value to the same decimal place) and
-// that missing values show as a dash.
+// Ensure that display rounding follows JCGM 100:2008 §7.2.6 (uncertainty
+// with two significant digits, the value to the same decimal place) unless
+// the column's fixed decimals show more, and that a missing value is a dash.
 func TestFormat(t *testing.T) {
 	nan := num(math.NaN())
 	tests := []struct {

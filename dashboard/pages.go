@@ -158,8 +158,9 @@ func fix(n num, digits int) string {
 	return strconv.FormatFloat(float64(n), 'f', digits, 64)
 }
 
-// uDigits returns the decimals that show u with at least two significant
-// digits (JCGM 100 §7.2.6), and never fewer than digits.
+// uDigits returns the decimals that show u with two significant digits
+// (JCGM 100:2008 §7.2.6 quotes U "to at most two significant digits"), but
+// never fewer than the column's fixed digits, which can show a third.
 func uDigits(u num, digits int) int {
 	f := math.Abs(float64(u))
 	if !finite(u) || f == 0 {

@@ -8,8 +8,8 @@
 
   function finite(v) { return typeof v === "number" && isFinite(v); }
   function fix(v, d) { return finite(v) ? v.toFixed(d) : "—"; }
-  // Decimals that show u with at least two significant digits (JCGM 100
-  // §7.2.6), never fewer than d; the same rule as the server's pages.
+  // Decimals that show u with two significant digits (JCGM 100:2008 §7.2.6),
+  // never fewer than d; the same rule as the server's pages.
   function uDigits(u, d) {
     if (!finite(u) || u === 0) return d;
     return Math.min(Math.max(Math.ceil(-Math.log10(Math.abs(u))) + 1, d), 8);
