@@ -1,0 +1,275 @@
+package storage
+
+import (
+	"bufio"
+	"encoding/csv"
+	"encoding/json"
+	"fmt"
+	"io"
+	"math"
+	"strconv"
+	"time"
+
+	"liftyard/acquire"
+	"liftyard/calibrate"
+	"liftyard/estimate"
+)
+
+// exportTimeLayout is RFC 3339 in UTC with microseconds always written
+// (the device clock counts µs).
+const exportTimeLayout = "2006-01-02T15:04:05.000000Z07:00"
+
+// segmentColumns are the fields of one exported segment, in order
+// (DESIGN §3.4). Field names carry units; "_u95" is the expanded (95 %)
+// uncertainty U = k·u with k from Student t (calibrate.Value.U95).
+var segmentColumns = []string{
+	"run", "segment", "t_start", "t_end", "n", "n_eff", "alpha_deg",
+	"q_pa", "q_u95_pa", "speed_m_s", "rho_kg_m3", "re",
+	"cl", "cl_u95", "cd", "cd_u95", "spin_ratio", "design_cl", "en",
+}
+
+// cell is one exported value: a JSON literal, or null (empty in CSV).
+type cell struct {
+	json string // JSON literal; "" means null
+	csv  string
+}
+
+var nullCell = cell{}
+
+func intCell(v int64) cell {
+	s := strconv.FormatInt(v, 10)
+	return cell{s, s}
+}
+
+// floatCell formats v as encoding/json does; NaN and ±Inf become null,
+// since JSON cannot hold them.
+func floatCell(v float64) cell {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return nullCell
+	}
+	b, _ := json.Marshal(v) // cannot fail for a finite float
+	return cell{string(b), string(b)}
+}
+
+func timeCell(t time.Time) cell {
+	if t.IsZero() {
+		return nullCell
+	}
+	s := t.UTC().Format(exportTimeLayout)
+	return cell{strconv.Quote(s), s}
+}
+
+// isZeroValue reports a calibrate.Value that means "not measured".
+func isZeroValue(v calibrate.Value) bool { return v.X == 0 && v.U == 0 && v.Dof == 0 }
+
+// radToDeg converts an angle for display and export only (STYLE §2).
+func radToDeg(rad float64) float64 { return rad * 180 / math.Pi }
+
+func segmentCells(run Run, sg *estimate.Segment) []cell {
+	design := nullCell
+	if !isZeroValue(sg.DesignCL) {
+		design = floatCell(sg.DesignCL.X)
+	}
+	en := nullCell
+	if !isZeroValue(sg.DesignCL) {
+		en = floatCell(sg.En) // NaN (no comparison made) is null as well
+	}
+	return []cell{
+		intCell(int64(run.ID)), intCell(int64(sg.Index)), timeCell(sg.TStart), timeCell(sg.TEnd),
+		intCell(int64(sg.N)), floatCell(sg.NEff), floatCell(radToDeg(sg.AlphaRad.X)),
+		floatCell(sg.QPa.X), floatCell(sg.QPa.U95()), floatCell(sg.SpeedMPerS.X),
+		floatCell(sg.RhoKgPerM3), floatCell(sg.Re),
+		floatCell(sg.CL.X), floatCell(sg.CL.U95()), floatCell(sg.CD.X), floatCell(sg.CD.U95()),
+		floatCell(sg.SpinRatio), design, en,
+	}
+}
+
+// ExportSegments writes the result rows of run in format "json" (an array,
+// one object per segment, fields as in DESIGN §3.4, null where a value does
+// not apply or is not a number) or "csv" (a header row, then the same fields,
+// an empty cell for null). design_cl and en are null when the segment has
+// no design value; t_start and t_end are RFC 3339 in UTC with microseconds;
+// alpha_deg is in degrees; *_u95 are expanded uncertainties at 95 %.
+func ExportSegments(w io.Writer, run Run, segs []estimate.Segment, format string) error {
+	switch format {
+	case "json":
+		return exportSegmentsJSON(w, run, segs)
+	case "csv":
+		return exportSegmentsCSV(w, run, segs)
+	}
+	return fmt.Errorf("export segments as %q: %w (use json or csv)", format, ErrFormat)
+}
+
+func exportSegmentsJSON(w io.Writer, run Run, segs []estimate.Segment) error {
+	bw := bufio.NewWriter(w)
+	if len(segs) == 0 {
+		bw.WriteString("[]\n")
+		return bw.Flush()
+	}
+	bw.WriteString("[\n")
+	for i := range segs {
+		bw.WriteString("  {")
+		for j, c := range segmentCells(run, &segs[i]) {
+			if j > 0 {
+				bw.WriteString(", ")
+			}
+			bw.WriteString(strconv.Quote(segmentColumns[j]))
+			bw.WriteString(": ")
+			if c.json == "" {
+				bw.WriteString("null")
+			} else {
+				bw.WriteString(c.json)
+			}
+		}
+		if i < len(segs)-1 {
+			bw.WriteString("},\n")
+		} else {
+			bw.WriteString("}\n")
+		}
+	}
+	bw.WriteString("]\n")
+	return bw.Flush()
+}
+
+func exportSegmentsCSV(w io.Writer, run Run, segs []estimate.Segment) error {
+	cw := csv.NewWriter(w)
+	if err := cw.Write(segmentColumns); err != nil {
+		return err
+	}
+	row := make([]string, len(segmentColumns))
+	for i := range segs {
+		for j, c := range segmentCells(run, &segs[i]) {
+			row[j] = c.csv
+		}
+		if err := cw.Write(row); err != nil {
+			return err
+		}
+	}
+	cw.Flush()
+	return cw.Error()
+}
+
+// ExportRaw writes the raw readings of run id as CSV (DESIGN §3.3 "Raw CSV"):
+// a header t_s,<channel>,..., then one row per sample time, in device time
+// order across all sources; a blank cell means that channel has no sample at
+// that time (another source's time, or a NaN reading). t_s is the device
+// clock in seconds with microsecond digits, written exactly from t_us.
+// Channels appear in the order of their sources' names, then as each source
+// first sends them. Blocks are read in short chunks, so a long run streams
+// with bounded memory; no read transaction is held while w is written.
+func (s *Store) ExportRaw(w io.Writer, id uint64) error {
+	sources, err := s.rawSources(id)
+	if err != nil {
+		return fmt.Errorf("export raw run %d: %w", id, err)
+	}
+	// Pass 1: the channel set, from every block (cheap next to pass 2, and a
+	// channel that appears late still gets its column).
+	col := map[string]int{}
+	var header []string
+	header = append(header, "t_s")
+	for _, src := range sources {
+		it := s.newBlockIter(id, src)
+		for {
+			b, ok, err := it.next()
+			if err != nil {
+				return fmt.Errorf("export raw run %d: %w", id, err)
+			}
+			if !ok {
+				break
+			}
+			for _, sr := range b.Series {
+				if _, seen := col[sr.Channel]; !seen {
+					col[sr.Channel] = len(header)
+					header = append(header, sr.Channel)
+				}
+			}
+		}
+	}
+
+	// Pass 2: merge the sources by sample time.
+	type cursor struct {
+		it  *blockIter
+		b   acquire.Block
+		i   int // next sample in b
+		end bool
+	}
+	advance := func(c *cursor) error {
+		for !c.end && c.i >= c.b.Len() {
+			b, ok, err := c.it.next()
+			if err != nil {
+				return err
+			}
+			if !ok {
+				c.end = true
+				return nil
+			}
+			c.b, c.i = b, 0
+		}
+		return nil
+	}
+	curs := make([]*cursor, len(sources))
+	for i, src := range sources {
+		curs[i] = &cursor{it: s.newBlockIter(id, src)}
+		if err := advance(curs[i]); err != nil {
+			return fmt.Errorf("export raw run %d: %w", id, err)
+		}
+	}
+	bw := bufio.NewWriterSize(w, 64<<10)
+	cw := csv.NewWriter(bw)
+	if err := cw.Write(header); err != nil {
+		return err
+	}
+	row := make([]string, len(header))
+	var buf []byte
+	for {
+		var tMin int64
+		found := false
+		for _, c := range curs {
+			if c.end {
+				continue
+			}
+			if t := c.b.T0Us + int64(c.i)*c.b.DtUs; !found || t < tMin {
+				tMin, found = t, true
+			}
+		}
+		if !found {
+			break
+		}
+		clear(row)
+		row[0] = formatMicros(tMin)
+		for _, c := range curs {
+			if c.end || c.b.T0Us+int64(c.i)*c.b.DtUs != tMin {
+				continue
+			}
+			for _, sr := range c.b.Series {
+				if v := sr.Raw[c.i]; !math.IsNaN(v) {
+					buf = strconv.AppendFloat(buf[:0], v, 'g', -1, 64)
+					row[col[sr.Channel]] = string(buf)
+				}
+			}
+			c.i++
+			if err := advance(c); err != nil {
+				return fmt.Errorf("export raw run %d: %w", id, err)
+			}
+		}
+		if err := cw.Write(row); err != nil {
+			return err
+		}
+	}
+	cw.Flush()
+	if err := cw.Error(); err != nil {
+		return err
+	}
+	return bw.Flush()
+}
+
+// formatMicros writes t µs as seconds with six decimals, exactly.
+func formatMicros(tUs int64) string {
+	sign := ""
+	u := uint64(tUs)
+	if tUs < 0 {
+		sign = "-"
+		u = -u
+	}
+	return fmt.Sprintf("%s%d.%06d", sign, u/1e6, u%1e6)
+}

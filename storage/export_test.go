@@ -1,0 +1,176 @@
+package storage_test
+
+import (
+	"bytes"
+	"encoding/csv"
+	"encoding/json"
+	"errors"
+	"flag"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"liftyard/acquire"
+	"liftyard/calibrate"
+	"liftyard/estimate"
+	"liftyard/storage"
+)
+
+var update = flag.Bool("update", false, "rewrite the golden files in testdata/")
+
+// golden compares got with testdata/export/<name>.golden, or rewrites it
+// with -update.
+func golden(t *testing.T, name string, got []byte) {
+	t.Helper()
+	path := filepath.Join("testdata", "export", name+".golden")
+	if *update {
+		if err := os.MkdirAll(filepath.Dir(path), 0o755); err != nil {
+			t.Fatal(err)
+		}
+		if err := os.WriteFile(path, got, 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	want, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatalf("%v (run go test ./storage -update to create it)", err)
+	}
+	if !bytes.Equal(got, want) {
+		t.Errorf("%s differs from golden:\n--- got\n%s\n--- want\n%s", name, got, want)
+	}
+}
+
+// exportSegments is an invented three-step α sweep: no design value, a
+// design value with En, and an n_eff that could not be estimated.
+func exportSegments() (storage.Run, []estimate.Segment) {
+	a, b, c := testSegment(0), testSegment(1), testSegment(2)
+	b.DesignCL = calibrate.Value{X: 0.22, U: 0.01, Dof: math.Inf(1)}
+	b.En = -0.83
+	c.NEff = math.NaN()
+	return storage.Run{ID: 3, Rig: "tow-fin-a", Kind: "foil"}, []estimate.Segment{a, b, c}
+}
+
+// Ensure that the segment export matches its golden files in both formats.
+func TestExportSegments_Golden(t *testing.T) {
+	run, segs := exportSegments()
+	for _, format := range []string{"json", "csv"} {
+		var buf bytes.Buffer
+		if err := storage.ExportSegments(&buf, run, segs, format); err != nil {
+			t.Fatal(err)
+		}
+		golden(t, "segments."+format, buf.Bytes())
+	}
+}
+
+// Ensure that the JSON export is valid JSON with exactly the contract's
+// fields, null where a value does not apply, and U95 = k·u.
+func TestExportSegments_JSONFields(t *testing.T) {
+	run, segs := exportSegments()
+	var buf bytes.Buffer
+	if err := storage.ExportSegments(&buf, run, segs, "json"); err != nil {
+		t.Fatal(err)
+	}
+	var rows []map[string]any
+	if err := json.Unmarshal(buf.Bytes(), &rows); err != nil {
+		t.Fatalf("export is not JSON: %v", err)
+	}
+	want := "run segment t_start t_end n n_eff alpha_deg q_pa q_u95_pa speed_m_s rho_kg_m3 re cl cl_u95 cd cd_u95 spin_ratio design_cl en"
+	if len(rows) != 3 {
+		t.Fatalf("%d rows", len(rows))
+	}
+	for i, row := range rows {
+		if len(row) != len(strings.Fields(want)) {
+			t.Errorf("row %d has %d fields", i, len(row))
+		}
+		for _, k := range strings.Fields(want) {
+			if _, ok := row[k]; !ok {
+				t.Errorf("row %d lacks %q", i, k)
+			}
+		}
+	}
+	if rows[0]["en"] != nil || rows[0]["design_cl"] != nil || rows[2]["n_eff"] != nil {
+		t.Errorf("nulls: en %v design_cl %v n_eff %v", rows[0]["en"], rows[0]["design_cl"], rows[2]["n_eff"])
+	}
+	if rows[1]["en"] != -0.83 || rows[1]["design_cl"] != 0.22 {
+		t.Errorf("row 1 en %v design_cl %v", rows[1]["en"], rows[1]["design_cl"])
+	}
+	// α = 1 step of 2° (π/90 rad) is 2°.
+	if d := rows[1]["alpha_deg"].(float64); math.Abs(d-2) > 1e-12 {
+		t.Errorf("alpha_deg = %v, want 2", d)
+	}
+	// k for ν = 48.2 lies between t_0.975(40) = 2.021 and t_0.975(50) = 2.009
+	// (Student t table, e.g. NIST/SEMATECH e-Handbook §1.3.6.7.2).
+	if k := rows[0]["q_u95_pa"].(float64) / 6.1; k < 2.009 || k > 2.021 {
+		t.Errorf("q coverage factor %v, want between 2.009 and 2.021", k)
+	}
+	if ts := rows[0]["t_end"].(string); ts != "2025-06-14T09:31:15.000250Z" {
+		t.Errorf("t_end = %q", ts)
+	}
+}
+
+// Ensure that the CSV export has the same columns, one row per segment and
+// empty cells for null.
+func TestExportSegments_CSV(t *testing.T) {
+	run, segs := exportSegments()
+	var buf bytes.Buffer
+	if err := storage.ExportSegments(&buf, run, segs, "csv"); err != nil {
+		t.Fatal(err)
+	}
+	recs, err := csv.NewReader(&buf).ReadAll()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(recs) != 4 || recs[0][18] != "en" || recs[1][18] != "" || recs[2][18] != "-0.83" || recs[3][5] != "" {
+		t.Errorf("csv = %q", recs)
+	}
+}
+
+// Ensure that an unknown format is refused with ErrFormat and empty input
+// gives an empty array.
+func TestExportSegments_Formats(t *testing.T) {
+	if err := storage.ExportSegments(&bytes.Buffer{}, storage.Run{}, nil, "xlsx"); !errors.Is(err, storage.ErrFormat) ||
+		!strings.Contains(err.Error(), `"xlsx"`) {
+		t.Errorf("xlsx: %v", err)
+	}
+	var buf bytes.Buffer
+	if err := storage.ExportSegments(&buf, storage.Run{}, nil, "json"); err != nil || buf.String() != "[]\n" {
+		t.Errorf("empty json = %q, %v", buf.String(), err)
+	}
+}
+
+// Ensure that the raw export merges two sources at different rates on one
+// time axis, blank where a channel has no sample, and matches its golden.
+func TestExportRaw_Golden(t *testing.T) {
+	s := MustOpenStore(t)
+	id := mustCreateRun(t, s)
+	bal := func(seq uint64, t0 int64, v ...float64) *acquire.Block {
+		b := &acquire.Block{Source: "balance", Seq: seq, T0Us: t0, DtUs: 1000}
+		n := len(v) / 2
+		b.Series = []acquire.Series{{Channel: "n_fore", Raw: v[:n]}, {Channel: "axial", Raw: v[n:]}}
+		return b
+	}
+	pit := &acquire.Block{Source: "pitot", Seq: 0, T0Us: 1_000_500, DtUs: 1500,
+		Series: []acquire.Series{{Channel: "dp", Raw: []float64{201.4, 201.9, 202.25}}}}
+	writeBlocks(t, s, id,
+		bal(0, 1_000_000, 812.1, 813, 814.5, -3.25, math.NaN(), -3.5),
+		bal(1, 1_003_000, 815, 816, 2.5e-7, -3.75),
+		pit)
+	var buf bytes.Buffer
+	if err := s.ExportRaw(&buf, id); err != nil {
+		t.Fatal(err)
+	}
+	golden(t, "raw.csv", buf.Bytes())
+	recs, err := csv.NewReader(bytes.NewReader(buf.Bytes())).ReadAll()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if strings.Join(recs[0], ",") != "t_s,n_fore,axial,dp" {
+		t.Errorf("header %q", recs[0])
+	}
+	// balance at 1.000000, .001, .002, .003, .004; pitot at .0005, .002, .0035
+	if len(recs) != 1+7 {
+		t.Errorf("%d rows, want 7", len(recs)-1)
+	}
+}

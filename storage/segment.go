@@ -1,0 +1,187 @@
+package storage
+
+import (
+	"encoding/binary"
+	"encoding/json"
+	"fmt"
+	"math"
+	"strconv"
+	"time"
+
+	bolt "go.etcd.io/bbolt"
+
+	"liftyard/calibrate"
+	"liftyard/estimate"
+)
+
+// jfloat is a float64 that survives JSON: NaN is written as null and read
+// back as NaN (absent also reads as NaN where the record pre-sets it), and
+// ±Inf are written as the strings "+Inf" and "-Inf" (an exact uncertainty
+// has Dof = +Inf).
+type jfloat float64
+
+func (f jfloat) MarshalJSON() ([]byte, error) {
+	v := float64(f)
+	switch {
+	case math.IsNaN(v):
+		return []byte("null"), nil
+	case math.IsInf(v, 1):
+		return []byte(`"+Inf"`), nil
+	case math.IsInf(v, -1):
+		return []byte(`"-Inf"`), nil
+	}
+	return strconv.AppendFloat(nil, v, 'g', -1, 64), nil
+}
+
+func (f *jfloat) UnmarshalJSON(b []byte) error {
+	switch string(b) {
+	case "null":
+		*f = jfloat(math.NaN())
+		return nil
+	case `"+Inf"`:
+		*f = jfloat(math.Inf(1))
+		return nil
+	case `"-Inf"`:
+		*f = jfloat(math.Inf(-1))
+		return nil
+	}
+	v, err := strconv.ParseFloat(string(b), 64)
+	if err != nil {
+		return fmt.Errorf("number %q: %w", b, err)
+	}
+	*f = jfloat(v)
+	return nil
+}
+
+// valueRec is a calibrate.Value as stored.
+type valueRec struct {
+	X   jfloat `json:"x"`
+	U   jfloat `json:"u"`
+	Dof jfloat `json:"dof"`
+}
+
+func toValueRec(v calibrate.Value) valueRec {
+	return valueRec{jfloat(v.X), jfloat(v.U), jfloat(v.Dof)}
+}
+
+func (r valueRec) value() calibrate.Value {
+	return calibrate.Value{X: float64(r.X), U: float64(r.U), Dof: float64(r.Dof)}
+}
+
+type contributionRec struct {
+	Input       string `json:"input"`
+	U           jfloat `json:"u"`
+	Sensitivity jfloat `json:"sensitivity"`
+	UY          jfloat `json:"u_y"`
+	Dof         jfloat `json:"dof"`
+}
+
+// segmentRec is an estimate.Segment as stored in results/<run>/<index>.
+// Field names follow the Go fields in snake_case (STYLE §2).
+type segmentRec struct {
+	Index      int               `json:"index"`
+	TStart     time.Time         `json:"t_start"`
+	TEnd       time.Time         `json:"t_end"`
+	N          int               `json:"n"`
+	NEff       jfloat            `json:"n_eff"`
+	AlphaRad   valueRec          `json:"alpha_rad"`
+	QPa        valueRec          `json:"q_pa"`
+	SpeedMPerS valueRec          `json:"speed_m_s"`
+	RhoKgPerM3 jfloat            `json:"rho_kg_m3"`
+	MuPaS      jfloat            `json:"mu_pa_s"`
+	Re         jfloat            `json:"re"`
+	LiftN      valueRec          `json:"lift_n"`
+	DragN      valueRec          `json:"drag_n"`
+	CL         valueRec          `json:"cl"`
+	CD         valueRec          `json:"cd"`
+	SpinRatio  jfloat            `json:"spin_ratio"`
+	DesignCL   valueRec          `json:"design_cl"`
+	En         jfloat            `json:"en"`
+	CLBudget   []contributionRec `json:"cl_budget,omitempty"`
+	CDBudget   []contributionRec `json:"cd_budget,omitempty"`
+}
+
+func budgetRec(in []estimate.Contribution) []contributionRec {
+	if in == nil {
+		return nil
+	}
+	out := make([]contributionRec, len(in))
+	for i, c := range in {
+		out[i] = contributionRec{c.Input, jfloat(c.U), jfloat(c.Sensitivity), jfloat(c.UY), jfloat(c.Dof)}
+	}
+	return out
+}
+
+func budget(in []contributionRec) []estimate.Contribution {
+	if in == nil {
+		return nil
+	}
+	out := make([]estimate.Contribution, len(in))
+	for i, c := range in {
+		out[i] = estimate.Contribution{Input: c.Input, U: float64(c.U), Sensitivity: float64(c.Sensitivity),
+			UY: float64(c.UY), Dof: float64(c.Dof)}
+	}
+	return out
+}
+
+func encodeSegment(sg *estimate.Segment) ([]byte, error) {
+	if sg.Index < 0 || sg.Index > math.MaxUint32 {
+		return nil, fmt.Errorf("segment index %d: %w", sg.Index, ErrBadRecord)
+	}
+	rec := segmentRec{
+		Index: sg.Index, TStart: sg.TStart, TEnd: sg.TEnd, N: sg.N, NEff: jfloat(sg.NEff),
+		AlphaRad: toValueRec(sg.AlphaRad), QPa: toValueRec(sg.QPa), SpeedMPerS: toValueRec(sg.SpeedMPerS),
+		RhoKgPerM3: jfloat(sg.RhoKgPerM3), MuPaS: jfloat(sg.MuPaS), Re: jfloat(sg.Re),
+		LiftN: toValueRec(sg.LiftN), DragN: toValueRec(sg.DragN), CL: toValueRec(sg.CL), CD: toValueRec(sg.CD),
+		SpinRatio: jfloat(sg.SpinRatio), DesignCL: toValueRec(sg.DesignCL), En: jfloat(sg.En),
+		CLBudget: budgetRec(sg.CLBudget), CDBudget: budgetRec(sg.CDBudget),
+	}
+	data, err := json.Marshal(rec)
+	if err != nil {
+		return nil, fmt.Errorf("segment %d: %w: %w", sg.Index, ErrBadRecord, err)
+	}
+	return data, nil
+}
+
+func decodeSegment(data []byte) (estimate.Segment, error) {
+	rec := segmentRec{En: jfloat(math.NaN())} // absent en means "no design value"
+	if err := json.Unmarshal(data, &rec); err != nil {
+		return estimate.Segment{}, fmt.Errorf("%w: %w", ErrCorrupt, err)
+	}
+	return estimate.Segment{
+		Index: rec.Index, TStart: rec.TStart, TEnd: rec.TEnd, N: rec.N, NEff: float64(rec.NEff),
+		AlphaRad: rec.AlphaRad.value(), QPa: rec.QPa.value(), SpeedMPerS: rec.SpeedMPerS.value(),
+		RhoKgPerM3: float64(rec.RhoKgPerM3), MuPaS: float64(rec.MuPaS), Re: float64(rec.Re),
+		LiftN: rec.LiftN.value(), DragN: rec.DragN.value(), CL: rec.CL.value(), CD: rec.CD.value(),
+		SpinRatio: float64(rec.SpinRatio), DesignCL: rec.DesignCL.value(), En: float64(rec.En),
+		CLBudget: budget(rec.CLBudget), CDBudget: budget(rec.CDBudget),
+	}, nil
+}
+
+func segmentKey(index int) []byte {
+	return binary.BigEndian.AppendUint32(nil, uint32(index))
+}
+
+// Segments returns the stored result rows of run id in segment order. A run
+// that does not exist gives ErrNotFound; a run without results gives none.
+func (s *Store) Segments(id uint64) (segs []estimate.Segment, err error) {
+	defer guard(&err, fmt.Sprintf("read segments of run %d", id))()
+	err = s.db.View(func(tx *bolt.Tx) error {
+		if tx.Bucket(bucketRuns).Get(u64(id)) == nil {
+			return fmt.Errorf("run %d: %w", id, ErrNotFound)
+		}
+		b := tx.Bucket(bucketResults).Bucket(u64(id))
+		if b == nil {
+			return nil
+		}
+		return b.ForEach(func(k, v []byte) error {
+			sg, err := decodeSegment(v)
+			if err != nil {
+				return fmt.Errorf("run %d segment key %x: %w", id, k, err)
+			}
+			segs = append(segs, sg)
+			return nil
+		})
+	})
+	return segs, err
+}

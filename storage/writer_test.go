@@ -1,0 +1,208 @@
+package storage_test
+
+import (
+	"context"
+	"sync"
+	"sync/atomic"
+	"testing"
+	"testing/synctest"
+	"time"
+
+	"liftyard/storage"
+)
+
+// Ensure that 1000 blocks fed fast are committed in a few transactions,
+// not one each, and that closing the channel commits the last batch.
+func TestWriter_Batches(t *testing.T) {
+	s := MustOpenStore(t)
+	id := mustCreateRun(t, s)
+	w := s.NewWriter(id, storage.WriterConfig{Interval: time.Hour, MaxBlocks: 300})
+	in := w.NewQueue()
+	errc := make(chan error, 1)
+	go func() { errc <- w.Run(context.Background(), in) }()
+	for i := range 1000 {
+		in <- storage.Item{Block: testBlock("bal", uint64(i), 10, "n", "a")}
+	}
+	close(in)
+	if err := <-errc; err != nil {
+		t.Fatal(err)
+	}
+	// 3 commits at MaxBlocks (900 blocks) and the last 100 on close.
+	if c := w.Commits(); c != 4 {
+		t.Errorf("commits = %d, want 4", c)
+	}
+	if b, n := w.Committed(); b != 1000 || n != 10000 {
+		t.Errorf("committed %d blocks, %d samples", b, n)
+	}
+	if got := readBlocks(t, s, id); len(got) != 1000 {
+		t.Errorf("stored %d blocks", len(got))
+	}
+	if r, _ := s.Run(id); r.Samples != 10000 {
+		t.Errorf("run samples = %d", r.Samples)
+	}
+	if w.LastCommit() <= 0 || w.LastCommitted().IsZero() {
+		t.Errorf("last commit %v at %v", w.LastCommit(), w.LastCommitted())
+	}
+}
+
+// Ensure that cancelling ctx loses nothing already handed to the Writer:
+// what is queued is drained and committed, and Run returns nil.
+func TestWriter_CancelDrainsQueue(t *testing.T) {
+	s := MustOpenStore(t)
+	id := mustCreateRun(t, s)
+	w := s.NewWriter(id, storage.WriterConfig{Interval: time.Hour, Queue: 600})
+	in := w.NewQueue()
+	for i := range 500 {
+		in <- storage.Item{Block: testBlock("bal", uint64(i), 10, "n")}
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel() // cancelled before Run even looks: the queue is all there is
+	if err := w.Run(ctx, in); err != nil {
+		t.Fatal(err)
+	}
+	if b, _ := w.Committed(); b != 500 {
+		t.Errorf("committed %d of 500 queued blocks", b)
+	}
+	if got := readBlocks(t, s, id); len(got) != 500 {
+		t.Errorf("stored %d blocks", len(got))
+	}
+}
+
+// Ensure that Run may be called only once.
+func TestWriter_RunTwice(t *testing.T) {
+	s := MustOpenStore(t)
+	w := s.NewWriter(mustCreateRun(t, s), storage.WriterConfig{})
+	in := make(chan storage.Item)
+	close(in)
+	if err := w.Run(context.Background(), in); err != nil {
+		t.Fatal(err)
+	}
+	if err := w.Run(context.Background(), in); err == nil {
+		t.Error("second Run returned nil")
+	}
+}
+
+// Ensure that a Writer for a run that does not exist fails with
+// ErrNotFound at its first commit.
+func TestWriter_MissingRun(t *testing.T) {
+	s := MustOpenStore(t)
+	w := s.NewWriter(7, storage.WriterConfig{})
+	in := make(chan storage.Item, 1)
+	in <- storage.Item{Block: testBlock("bal", 0, 1, "n")}
+	close(in)
+	if err := w.Run(context.Background(), in); err == nil {
+		t.Fatal("Run for a missing run returned nil")
+	}
+}
+
+// Ensure that a batch is committed Interval after its first item, not
+// before, and that an idle Writer commits nothing (fake clock).
+func TestWriter_Interval(t *testing.T) {
+	s := MustOpenStore(t) // the file is opened outside the bubble
+	id := mustCreateRun(t, s)
+	synctest.Test(t, func(t *testing.T) {
+		w := s.NewWriter(id, storage.WriterConfig{Interval: 200 * time.Millisecond})
+		in := w.NewQueue()
+		var wg sync.WaitGroup
+		wg.Go(func() {
+			if err := w.Run(t.Context(), in); err != nil {
+				t.Error(err)
+			}
+		})
+		time.Sleep(time.Second)
+		synctest.Wait()
+		if c := w.Commits(); c != 0 {
+			t.Fatalf("idle writer committed %d times", c)
+		}
+		for i := range 3 {
+			in <- storage.Item{Block: testBlock("bal", uint64(i), 10, "n")}
+			time.Sleep(50 * time.Millisecond) // items at 0, 50, 100 ms
+		}
+		time.Sleep(49 * time.Millisecond) // 199 ms after the first item
+		synctest.Wait()
+		if c := w.Commits(); c != 0 {
+			t.Fatalf("committed %d times before the interval", c)
+		}
+		time.Sleep(time.Millisecond)
+		synctest.Wait()
+		if c := w.Commits(); c != 1 {
+			t.Fatalf("commits = %d at the interval, want 1", c)
+		}
+		if b, _ := w.Committed(); b != 3 {
+			t.Fatalf("committed %d blocks, want 3", b)
+		}
+		// The next item starts a new interval.
+		in <- storage.Item{Block: testBlock("bal", 3, 10, "n")}
+		time.Sleep(199 * time.Millisecond)
+		synctest.Wait()
+		if c := w.Commits(); c != 1 {
+			t.Fatalf("commits = %d, want still 1", c)
+		}
+		time.Sleep(time.Millisecond)
+		synctest.Wait()
+		if c := w.Commits(); c != 2 {
+			t.Fatalf("commits = %d, want 2", c)
+		}
+		close(in)
+		wg.Wait()
+	})
+}
+
+// Ensure that Offer never blocks, drops the oldest item when the queue is
+// full, and counts every drop.
+func TestOffer_DropsOldest(t *testing.T) {
+	ch := make(chan storage.Item, 3)
+	var dropped atomic.Uint64
+	for i := range 5 {
+		if !storage.Offer(ch, storage.Item{Block: testBlock("bal", uint64(i), 1, "n")}, &dropped) {
+			t.Fatalf("Offer %d refused with no competing producer", i)
+		}
+	}
+	if d := dropped.Load(); d != 2 {
+		t.Errorf("dropped = %d, want 2", d)
+	}
+	var seqs []uint64
+	for len(ch) > 0 {
+		seqs = append(seqs, (<-ch).Block.Seq)
+	}
+	if len(seqs) != 3 || seqs[0] != 2 || seqs[1] != 3 || seqs[2] != 4 {
+		t.Errorf("queue holds seqs %v, want the newest [2 3 4]", seqs)
+	}
+	// A nil counter is allowed.
+	ch <- storage.Item{}
+	ch <- storage.Item{}
+	ch <- storage.Item{}
+	if !storage.Offer(ch, storage.Item{}, nil) {
+		t.Error("Offer with nil counter failed")
+	}
+}
+
+// Ensure that with many producers racing on a full queue, every item is
+// either received or counted as dropped: none vanishes uncounted.
+func TestOffer_ConcurrentAccounting(t *testing.T) {
+	ch := make(chan storage.Item, 8)
+	var dropped atomic.Uint64
+	var received atomic.Uint64
+	done := make(chan struct{})
+	go func() {
+		defer close(done)
+		for range ch {
+			received.Add(1)
+		}
+	}()
+	var wg sync.WaitGroup
+	const producers, each = 8, 2000
+	for range producers {
+		wg.Go(func() {
+			for range each {
+				storage.Offer(ch, storage.Item{}, &dropped)
+			}
+		})
+	}
+	wg.Wait()
+	close(ch)
+	<-done
+	if got := received.Load() + dropped.Load(); got != producers*each {
+		t.Errorf("received %d + dropped %d = %d, want %d", received.Load(), dropped.Load(), got, producers*each)
+	}
+}
