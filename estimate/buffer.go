@@ -29,6 +29,20 @@ func (b *sampleBuf) appendBuf(o *sampleBuf) {
 	b.spinRadPerS = append(b.spinRadPerS, o.spinRadPerS...)
 }
 
+// truncate keeps the first n samples.
+func (b *sampleBuf) truncate(n int) {
+	if n < 0 || n >= b.len() {
+		return
+	}
+	b.tUs = b.tUs[:n]
+	b.normalN = b.normalN[:n]
+	b.axialN = b.axialN[:n]
+	b.qPa = b.qPa[:n]
+	b.alphaRad = b.alphaRad[:n]
+	b.tempK = b.tempK[:n]
+	b.spinRadPerS = b.spinRadPerS[:n]
+}
+
 // reset empties the buffer and keeps its storage, so a segment's memory is
 // reused by the next one (bounded by the segment cap).
 func (b *sampleBuf) reset() {

@@ -46,12 +46,14 @@ type Estimator struct {
 	nextTUs int64 // device time expected for the next primary sample
 	started bool
 
-	ring ring        // live window
-	tick sampleBuf   // samples of the tick being filled
-	seg  sampleBuf   // samples of the open segment
-	det  detector    //
-	capN int         // max samples per segment
-	uB   typeBInputs // latest Type B inputs
+	ring ring      // live window
+	tick sampleBuf // samples of the tick being filled
+	seg  sampleBuf // samples of the open segment
+	// lastJoinN is the sample count of the last tick that joined seg.
+	lastJoinN int
+	det       detector    //
+	capN      int         // max samples per segment
+	uB        typeBInputs // latest Type B inputs
 
 	segments  int
 	ignored   int // blocks ignored as unusable
@@ -296,13 +298,19 @@ func (e *Estimator) endTick(out []Segment) []Segment {
 	a, q := nanMean(e.tick.alphaRad), nanMean(e.tick.qPa)
 	closeSeg, join := e.det.step(a, q)
 	if closeSeg {
+		// The tick that left the bands shows the rig already moving, so the
+		// tick before it straddles the start of the move: drop it too
+		// (a 4°/s angle ramp stays inside a ±0.25° band for 60 ms).
+		e.seg.truncate(e.seg.len() - e.lastJoinN)
 		out = e.closeSegment(out)
 	}
+	e.lastJoinN = 0
 	if join {
 		if e.seg.len()+e.tick.len() > e.capN {
 			out = e.closeSegment(out)
 		}
 		e.seg.appendBuf(&e.tick)
+		e.lastJoinN = e.tick.len()
 	}
 	e.tick.reset()
 	return out

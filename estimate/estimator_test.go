@@ -8,6 +8,7 @@ import (
 	"testing"
 	"time"
 
+	"liftyard/acquire/sim"
 	"liftyard/calibrate"
 	"liftyard/estimate"
 	"liftyard/rig"
@@ -344,4 +345,64 @@ func BenchmarkEstimatorAdd(b *testing.B) {
 		round++
 	}
 	b.ReportMetric(float64(samples)/b.Elapsed().Seconds(), "samples/s")
+}
+
+// Ensure that a segment holds only samples of a held step: the tick that
+// straddles the start of the next move is left out, so the ramp does not
+// leak into C_L and N_eff stays near N for white residual noise.
+func TestEstimator_SegmentsStayInsideHolds(t *testing.T) {
+	r := simRig()
+	s, err := sim.New(r, sim.Config{QPa: 2000, Seed: 5, StepsDeg: []float64{0, 4, 8},
+		Hold: 2050 * time.Millisecond, Move: 500 * time.Millisecond, TurbulenceIntensity: 0.02}, 999.1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	cal, err := calibrate.NewCalibrator(r)
+	if err != nil {
+		t.Fatal(err)
+	}
+	est, err := estimate.NewEstimator(r, estimate.Config{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var segs []estimate.Segment
+	for range 75 { // 75 blocks × 0.1 s = 7.5 s: three holds and moves
+		b := s.Next()
+		cb := cal.Apply(&b)
+		segs = append(segs, est.Add(&cb)...)
+	}
+	if len(segs) < 2 {
+		t.Fatalf("got %d segments, want at least 2", len(segs))
+	}
+	for _, sg := range segs {
+		start := float64(sg.TStart.UnixMicro()) / 1e6
+		end := float64(sg.TEnd.UnixMicro()) / 1e6
+		for _, tS := range []float64{start, end} {
+			if _, holding := s.AngleAt(tS); !holding {
+				t.Errorf("segment %d (%.3f–%.3f s) has a sample at %.3f s while the rig moves", sg.Index, start, end, tS)
+			}
+		}
+		if sg.NEff < 0.5*float64(sg.N) {
+			t.Errorf("segment %d: N_eff %.1f of N %d: the residual is not white, a trend leaked in", sg.Index, sg.NEff, sg.N)
+		}
+	}
+}
+
+// simRig is an invented foil rig whose channels read counts, like the
+// simulator's amplifiers.
+func simRig() *rig.Rig {
+	force := rig.Calibration{Poly: []float64{-12.5, 0.0025}, U: 0.1}
+	return &rig.Rig{
+		Name: "sim foil", Kind: rig.KindFoil, Fluid: rig.FluidFreshWater,
+		Conditions: rig.Conditions{TempK: 288.15, PressurePa: 101325},
+		Reference:  rig.Reference{AreaM2: 0.09, LengthM: 0.15, SpanM: 0.6},
+		Sources:    []rig.Source{{Name: "carriage", Type: rig.SourceMQTT}},
+		Channels: []rig.Channel{
+			{Name: "n_fore", Quantity: rig.QuantityForce, ToSI: rig.Affine{Scale: 1}, CapacitySI: 500, Calibration: force},
+			{Name: "n_aft", Quantity: rig.QuantityForce, ToSI: rig.Affine{Scale: 1}, CapacitySI: 500, Calibration: force},
+			{Name: "pitot", Quantity: rig.QuantityPressure, ToSI: rig.Affine{Scale: 1}, CapacitySI: 5000, Calibration: rig.Calibration{Poly: []float64{0, 0.001}, U: 2}},
+			{Name: "alpha", Quantity: rig.QuantityAngle, ToSI: rig.Affine{Scale: math.Pi / 180}, Calibration: rig.Calibration{Poly: []float64{0, 0.01}, U: 0.02}},
+		},
+		Lift: rig.Lift{Normal: []string{"n_fore", "n_aft"}, AngleChannel: "alpha", DynamicPressure: "pitot", PitotCoeff: 1},
+	}
 }
