@@ -344,10 +344,12 @@ func (w *Writer) commit(b *batch) (err error) {
 
 // Offer puts it on ch without ever blocking (the recorder → storage edge
 // policy: acquisition never waits for the disk). When ch is full it drops
-// the oldest queued item to make room and adds 1 to dropped (if not nil)
-// for each item discarded. It returns true when it was queued, and false
-// when, with other producers racing for the room, it gave up and dropped it
-// itself (also counted). dropped counts items, whatever they hold.
+// the oldest queued raw block to make room and adds 1 to dropped (if not
+// nil) for each item discarded. Results and events are never the ones
+// dropped: one found at the head goes back to the tail. It returns true when
+// it was queued, and false when, with other producers racing for the room
+// (or a queue full of results), it gave up and dropped it itself (also
+// counted). dropped counts items, whatever they hold.
 func Offer(ch chan Item, it Item, dropped *atomic.Uint64) bool {
 	count := func() {
 		if dropped != nil {
@@ -361,7 +363,15 @@ func Offer(ch chan Item, it Item, dropped *atomic.Uint64) bool {
 		default:
 		}
 		select {
-		case <-ch:
+		case old := <-ch:
+			if old.Block == nil && (old.Segment != nil || old.Event != nil) {
+				select {
+				case ch <- old:
+				default:
+					count() // a racing producer took the room back
+				}
+				continue
+			}
 			count()
 		default:
 		}

@@ -8,6 +8,7 @@ import (
 	"testing/synctest"
 	"time"
 
+	"liftyard/estimate"
 	"liftyard/storage"
 )
 
@@ -169,11 +170,32 @@ func TestOffer_DropsOldest(t *testing.T) {
 		t.Errorf("queue holds seqs %v, want the newest [2 3 4]", seqs)
 	}
 	// A nil counter is allowed.
-	ch <- storage.Item{}
-	ch <- storage.Item{}
-	ch <- storage.Item{}
-	if !storage.Offer(ch, storage.Item{}, nil) {
+	if !storage.Offer(ch, storage.Item{Block: testBlock("bal", 9, 1, "n")}, nil) {
 		t.Error("Offer with nil counter failed")
+	}
+}
+
+// Ensure that a full queue gives up raw blocks, never results: a segment at
+// the head of the queue survives any number of offers.
+func TestOffer_NeverDropsResults(t *testing.T) {
+	ch := make(chan storage.Item, 3)
+	var dropped atomic.Uint64
+	seg := &estimate.Segment{Index: 7}
+	ch <- storage.Item{Segment: seg}
+	for i := range 10 {
+		storage.Offer(ch, storage.Item{Block: testBlock("bal", uint64(i), 1, "n")}, &dropped)
+	}
+	found := false
+	for len(ch) > 0 {
+		if it := <-ch; it.Segment == seg {
+			found = true
+		}
+	}
+	if !found {
+		t.Fatal("the segment result was dropped from a full queue")
+	}
+	if d := dropped.Load(); d != 8 {
+		t.Errorf("dropped = %d, want 8 blocks", d)
 	}
 }
 
