@@ -112,7 +112,7 @@ func TestLivePage_Browser(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if !strings.Contains(health, "balance: 6000 frames, 2 rejected, 0 samples dropped, 1 gaps, 0 reconnects") {
+	if !strings.Contains(health, "balance: 6000 blocks, 2 rejected, 0 blocks + 0 samples dropped, 1 gaps, 0 reconnects") {
 		t.Errorf("health line %q", health)
 	}
 

@@ -165,9 +165,12 @@
     if (!list.length) { el.textContent = "No sources reporting."; el.className = "health muted"; return; }
     let bad = false;
     el.textContent = list.map((h) => {
-      if (h.rejected || h.samples_dropped || h.gaps) bad = true;
-      return h.name + ": " + h.frames + " frames, " + h.rejected + " rejected, " + h.samples_dropped +
-        " samples dropped, " + h.gaps + " gaps, " + h.reconnects + " reconnects";
+      const dropped = (h.blocks_dropped || 0) + " blocks + " + (h.samples_dropped || 0) + " samples dropped";
+      if (h.rejected || h.samples_dropped || h.blocks_dropped || h.gaps) bad = true;
+      // The "store" line is the recorder → store queue: only drops apply.
+      if (h.name === "store") return "store queue: " + dropped;
+      return h.name + ": " + h.frames + " blocks, " + h.rejected + " rejected, " + dropped + ", " +
+        h.gaps + " gaps, " + h.reconnects + " reconnects";
     }).join(" · ");
     el.className = "health" + (bad ? " bad" : "");
   }
