@@ -42,9 +42,21 @@ func Format(r *Rig) []byte {
 		w("\n[[source]]\nname = %s\ntype = %s\n", quote(s.Name), quote(string(s.Type)))
 		switch s.Type {
 		case SourceSerial:
-			w("port = %s\nbaud = %d\nformat = %s\n", quote(s.Port), s.Baud, quote(s.Format))
+			w("port = %s\nbaud = %d\ndata_bits = %d\nparity = %s\nstop_bits = %d\nformat = %s\n",
+				quote(s.Port), s.Baud, s.DataBits, quote(s.Parity), s.StopBits, quote(s.Format))
+			if s.Format == "delimited" {
+				w("delimiter = %s\n", quote(s.Delimiter))
+			}
+			if s.Columns != nil {
+				w("columns = %s\n", strList(s.Columns))
+			}
 		case SourceMQTT:
 			w("broker = %s\ntopic = %s\n", quote(s.Broker), quote(s.Topic))
+			for _, kv := range [][2]string{{"client_id", s.ClientID}, {"username", s.Username}, {"password_env", s.PasswordEnv}, {"ca_file", s.CAFile}} {
+				if kv[1] != "" {
+					w("%s = %s\n", kv[0], quote(kv[1]))
+				}
+			}
 		case SourceSimulated:
 			w("rate_hz = %s\n", num(s.RateHz))
 		}
@@ -57,6 +69,9 @@ func Format(r *Rig) []byte {
 		w("\n[[channel]]\nname = %s\nquantity = %s\nunit = %s\n", quote(ch.Name), quote(string(ch.Quantity)), quote(ch.Unit))
 		if ch.CapacitySI != 0 {
 			w("capacity = %s\n", quote(num(ch.CapacitySI)+" "+ch.Quantity.SIUnit()))
+		}
+		if ch.RawMin != 0 || ch.RawMax != 0 {
+			w("raw_range = [%s, %s]\n", num(ch.RawMin), num(ch.RawMax))
 		}
 		cal := ch.Calibration
 		switch {
@@ -106,6 +121,14 @@ func Format(r *Rig) []byte {
 		}
 		if r.Internal.HasCp {
 			w("cp = %s\n", num(r.Internal.Cp))
+		}
+	}
+	if p := r.Publish; p != nil {
+		w("\n[publish]\nbroker = %s\ntopic_prefix = %s\n", quote(p.Broker), quote(p.TopicPrefix))
+		for _, kv := range [][2]string{{"client_id", p.ClientID}, {"username", p.Username}, {"password_env", p.PasswordEnv}, {"ca_file", p.CAFile}} {
+			if kv[1] != "" {
+				w("%s = %s\n", kv[0], quote(kv[1]))
+			}
 		}
 	}
 	return []byte(b.String())

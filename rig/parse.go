@@ -279,6 +279,24 @@ func (t *table) strList(key string) []string {
 	return nil
 }
 
+// numList reads an array of numbers; a problem with any element is reported
+// and gives nil.
+func (t *table) numList(key string) []float64 {
+	arr, isArr := t.m[key].([]any)
+	if !isArr {
+		return nil
+	}
+	out := make([]float64, 0, len(arr))
+	for k, e := range arr {
+		f, ok := t.toNum(indexKey(key, k), fmt.Sprintf("%s[%d]", key, k), e)
+		if !ok {
+			return nil
+		}
+		out = append(out, f)
+	}
+	return out
+}
+
 func subjectPrefix(s string) string {
 	if s == "" {
 		return ""
@@ -351,15 +369,17 @@ var (
 	fluidWords  = []string{string(FluidAir), string(FluidFreshWater), string(FluidSeaWater)}
 	sourceWords = []string{string(SourceSerial), string(SourceMQTT), string(SourceSimulated)}
 	formatWords = []string{"frame", "delimited"}
+	parityWords = []string{"none", "even", "odd"}
 )
 
 // The keys of each table.
 var (
-	topKeys        = []string{"name", "kind", "fluid", "conditions", "reference", "source", "channel", "lift", "tap", "zone", "internal"}
+	topKeys        = []string{"name", "kind", "fluid", "conditions", "reference", "source", "channel", "lift", "tap", "zone", "internal", "publish"}
 	conditionsKeys = []string{"temperature_c", "temperature", "pressure_pa", "pressure", "humidity_pct", "salinity_g_per_kg"}
 	referenceKeys  = []string{"area_m2", "area_u_m2", "area_kind", "length_m", "span_m", "radius_m"}
-	sourceKeys     = []string{"name", "type", "port", "baud", "format", "channels", "broker", "topic", "rate_hz"}
-	channelKeys    = []string{"name", "quantity", "unit", "capacity", "calibration"}
+	sourceKeys     = []string{"name", "type", "port", "baud", "data_bits", "parity", "stop_bits", "format", "channels", "delimiter", "columns", "broker", "topic", "client_id", "username", "password_env", "ca_file", "rate_hz"}
+	channelKeys    = []string{"name", "quantity", "unit", "capacity", "calibration", "raw_range"}
+	publishKeys    = []string{"broker", "topic_prefix", "client_id", "username", "password_env", "ca_file"}
 	calKeys        = []string{"poly", "u", "id"}
 	liftKeys       = []string{"normal", "axial", "moment", "angle", "angle_u_deg", "dynamic_pressure", "pitot_coefficient", "speed", "spin", "direction", "temperature", "design"}
 	tapKeys        = []string{"name", "channel", "area_m2", "zone", "x_m", "y_m"}
@@ -393,8 +413,31 @@ func (d *decoder) rig(doc map[string]any) *Rig {
 		r.Zones = append(r.Zones, d.zone(i, m))
 	}
 	r.Internal = d.internal(top.sub("internal", internalKeys...))
+	r.Publish = d.publish(top.sub("publish", publishKeys...))
 	top.unknown()
 	return r
+}
+
+func (d *decoder) publish(t *table) *Publish {
+	if t == nil {
+		return nil
+	}
+	t.subject = "publish"
+	p := &Publish{}
+	p.Broker, _ = t.str("broker")
+	p.TopicPrefix, _ = t.str("topic_prefix")
+	p.ClientID, _ = t.str("client_id")
+	p.Username, _ = t.str("username")
+	p.PasswordEnv, _ = t.str("password_env")
+	p.CAFile, _ = t.str("ca_file")
+	if p.Broker == "" && !t.has("broker") {
+		t.errf("broker", ErrMissing, "broker missing (add broker = \"tcp://host:1883\", the site's MQTT broker)")
+	}
+	if p.TopicPrefix == "" && !t.has("topic_prefix") {
+		t.errf("topic_prefix", ErrMissing, "topic_prefix missing (add topic_prefix = \"yard/rig1\")")
+	}
+	t.unknown()
+	return p
 }
 
 func (d *decoder) conditions(t *table, fluid Fluid) Conditions {
@@ -513,18 +556,44 @@ func (d *decoder) source(i int, m map[string]any) Source {
 			s.Baud = int(v)
 		}
 	}
+	if v, ok := t.num("data_bits"); ok {
+		if v != math.Trunc(v) || v < 5 || v > 8 {
+			t.errf("data_bits", ErrValue, "data_bits must be 5, 6, 7 or 8, not %v", v)
+		} else {
+			s.DataBits = int(v)
+		}
+	}
+	if w, ok := t.word("parity", parityWords); ok {
+		s.Parity = w
+	}
+	if v, ok := t.num("stop_bits"); ok {
+		if v != 1 && v != 2 {
+			t.errf("stop_bits", ErrValue, "stop_bits must be 1 or 2, not %v", v)
+		} else {
+			s.StopBits = int(v)
+		}
+	}
 	if w, ok := t.word("format", formatWords); ok {
 		s.Format = w
 	}
 	s.Channels = t.strList("channels")
+	s.Delimiter, _ = t.str("delimiter")
+	s.Columns = t.strList("columns")
 	s.Broker, _ = t.str("broker")
 	s.Topic, _ = t.str("topic")
+	s.ClientID, _ = t.str("client_id")
+	s.Username, _ = t.str("username")
+	s.PasswordEnv, _ = t.str("password_env")
+	s.CAFile, _ = t.str("ca_file")
 	s.RateHz, _ = t.num("rate_hz")
 	// Keys that belong to another source type are a mistake, not a default.
 	for _, k := range []struct {
 		key string
 		typ SourceType
-	}{{"port", SourceSerial}, {"baud", SourceSerial}, {"format", SourceSerial}, {"broker", SourceMQTT}, {"topic", SourceMQTT}, {"rate_hz", SourceSimulated}} {
+	}{{"port", SourceSerial}, {"baud", SourceSerial}, {"data_bits", SourceSerial}, {"parity", SourceSerial}, {"stop_bits", SourceSerial},
+		{"format", SourceSerial}, {"delimiter", SourceSerial}, {"columns", SourceSerial},
+		{"broker", SourceMQTT}, {"topic", SourceMQTT}, {"client_id", SourceMQTT}, {"username", SourceMQTT}, {"password_env", SourceMQTT}, {"ca_file", SourceMQTT},
+		{"rate_hz", SourceSimulated}} {
 		if s.Type != "" && s.Type != k.typ && t.has(k.key) {
 			t.errf(k.key, ErrValue, "%s applies to %s sources only (remove it, or set type = %q)", k.key, k.typ, k.typ)
 		}
@@ -536,6 +605,24 @@ func (d *decoder) source(i int, m map[string]any) Source {
 		}
 		if s.Format == "" && !t.has("format") {
 			s.Format = DefaultSerialFormat
+		}
+		if s.DataBits == 0 && !t.has("data_bits") {
+			s.DataBits = 8
+		}
+		if s.Parity == "" && !t.has("parity") {
+			s.Parity = "none"
+		}
+		if s.StopBits == 0 && !t.has("stop_bits") {
+			s.StopBits = 1
+		}
+		if s.Format == "delimited" && s.Delimiter == "" && !t.has("delimiter") {
+			s.Delimiter = ","
+		}
+		if s.Format == "delimited" && t.has("channels") {
+			t.errf("channels", ErrValue, "a delimited source names its fields in columns (a channel name, \"_\" to skip, or t_us/t_ms/t_s), not channels")
+		}
+		if s.Format == "frame" && t.has("columns") {
+			t.errf("columns", ErrValue, "a frame source names its values in channels, in frame order; columns is for format = \"delimited\"")
 		}
 	case SourceSimulated:
 		if !t.has("rate_hz") {
@@ -591,6 +678,13 @@ func (d *decoder) channel(i int, m map[string]any) Channel {
 					c.CapacitySI = c.ToSI.Apply(f)
 				}
 			}
+		}
+	}
+	if t.has("raw_range") {
+		if lim := t.numList("raw_range"); len(lim) == 2 && lim[0] < lim[1] {
+			c.RawMin, c.RawMax = lim[0], lim[1]
+		} else {
+			t.errf("raw_range", ErrValue, "raw_range must be [min, max] of the raw reading with min < max, e.g. [-8388608, 8388607] for a 24-bit converter")
 		}
 	}
 	if v, present := t.m["calibration"]; present {

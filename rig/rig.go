@@ -56,6 +56,7 @@ type Rig struct {
 	Taps       []Tap
 	Zones      []Zone
 	Internal   Internal
+	Publish    *Publish // nil: results are not published
 }
 
 // Conditions are the fixed fluid conditions used when no channel gives them.
@@ -102,13 +103,39 @@ const (
 type Source struct {
 	Name     string
 	Type     SourceType
-	Port     string   // serial device path
+	Port     string   // serial device path (prefer /dev/serial/by-id/... links: stable across re-plugs)
 	Baud     int      // serial baud rate (default 115200)
+	DataBits int      // serial data bits, 5–8 (default 8)
+	Parity   string   // serial parity: "none" (default), "even" or "odd"
+	StopBits int      // serial stop bits, 1 (default) or 2
 	Format   string   // serial: "frame" (our CRC frame) or "delimited"
-	Channels []string // serial: channel names in frame order
-	Broker   string   // mqtt: broker URL, e.g. tcp://127.0.0.1:1883
-	Topic    string   // mqtt: topic carrying JSON blocks
-	RateHz   float64  // simulated: sample rate, Hz (default 200)
+	Channels []string // serial frame: channel names in frame order
+	// Delimiter separates the fields of a delimited line (default ",").
+	Delimiter string
+	// Columns names the fields of a delimited line in order: a channel name,
+	// "_" to skip the field, or one of "t_us", "t_ms", "t_s" for a device
+	// time column. Without a time column the host receive time is used.
+	Columns  []string
+	Broker   string  // mqtt: broker URL, e.g. tcp://127.0.0.1:1883 (ssl:// or tls:// for TLS)
+	Topic    string  // mqtt: topic carrying JSON blocks
+	ClientID string  // mqtt: stable client id (default "liftyard-<source name>")
+	Username string  // mqtt: user name (optional)
+	// PasswordEnv names the environment variable that holds the MQTT
+	// password; the password itself never appears in a rig file or a log.
+	PasswordEnv string
+	CAFile      string  // mqtt: PEM file of the CA that signed the broker's certificate (TLS)
+	RateHz      float64 // simulated: sample rate, Hz (default 200)
+}
+
+// Publish says where live results go for other consumers on a site (DESIGN
+// §7): an existing MQTT broker, under a topic prefix.
+type Publish struct {
+	Broker      string // broker URL, tcp://host:port (ssl:// or tls:// for TLS)
+	TopicPrefix string // results go to <prefix>/live and <prefix>/segments
+	ClientID    string // stable client id (default "liftyard-publish-<rig name>")
+	Username    string
+	PasswordEnv string // environment variable holding the password
+	CAFile      string // PEM CA bundle for TLS
 }
 
 // Channel is one measured quantity.
@@ -121,7 +148,11 @@ type Channel struct {
 	// ToSI converts a value in Unit to SI: si = Scale·v + Offset.
 	ToSI Affine
 	// CapacitySI is the rated capacity in SI units (N, Pa, ...); 0 = not rated.
-	CapacitySI  float64
+	CapacitySI float64
+	// RawMin and RawMax are the limits of the raw reading (an ADC's full
+	// scale, e.g. −8388608 and 8388607 for 24 bits): a reading at either
+	// limit is saturated. Both zero: not known.
+	RawMin, RawMax float64
 	Calibration Calibration
 }
 

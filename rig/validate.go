@@ -35,6 +35,18 @@ func validate(r *Rig, d *decoder) {
 	v.sources()
 	v.lift()
 	v.roof()
+	v.publish()
+}
+
+// publish checks the [publish] table's broker URL.
+func (v *validator) publish() {
+	p := v.r.Publish
+	if p == nil || p.Broker == "" {
+		return
+	}
+	if !validBroker(p.Broker) {
+		v.add("publish.broker", ErrValue, `publish: broker %q needs a scheme, host and port, like "tcp://site-broker:1883"`, p.Broker)
+	}
 }
 
 type validator struct {
@@ -245,7 +257,9 @@ func (v *validator) sources() {
 			} else {
 				ports[s.Port] = i
 			}
-			if len(s.Channels) == 0 {
+			if s.Format == "delimited" {
+				v.columns(i, p, subj, s, readBy)
+			} else if len(s.Channels) == 0 {
 				v.add(p+".channels", ErrMissing, `%s: channels missing (add channels = ["a", "b"], the channel names in frame order)`, subj)
 			}
 			if s.Baud <= 0 {
@@ -286,6 +300,45 @@ func (v *validator) sources() {
 				readBy[name] = s.Name
 			}
 		}
+	}
+}
+
+// TimeColumns are the column names of a delimited line that carry the
+// device time, with their factor to microseconds.
+var TimeColumns = map[string]float64{"t_us": 1, "t_ms": 1e3, "t_s": 1e6}
+
+// columns checks a delimited source's column list: channel names that exist
+// and are read by no other source, "_" to skip a field, at most one time column.
+func (v *validator) columns(i int, p, subj string, s Source, readBy map[string]string) {
+	if len(s.Columns) == 0 {
+		v.add(p+".columns", ErrMissing, `%s: columns missing (add columns = ["t_ms", "n_fore", "_", "pitot"]: a channel name per field, "_" to skip one, t_us/t_ms/t_s for a device time)`, subj)
+		return
+	}
+	if s.Delimiter == "" {
+		v.add(p+".delimiter", ErrValue, `%s: delimiter must not be empty (e.g. ",", ";" or "\t")`, subj)
+	}
+	times, chans := 0, 0
+	for k, name := range s.Columns {
+		cp := fmt.Sprintf("%s.columns[%d]", p, k)
+		if name == "_" {
+			continue
+		}
+		if _, isTime := TimeColumns[name]; isTime {
+			if times++; times > 1 {
+				v.add(cp, ErrDuplicate, "%s: more than one time column (keep one of t_us, t_ms, t_s)", subj)
+			}
+			continue
+		}
+		chans++
+		v.ref(cp, subj, "columns", name, "")
+		if other, dup := readBy[name]; dup {
+			v.add(cp, ErrDuplicate, "%s: channel %q is already read by source %q; a channel has one source", subj, name, other)
+		} else {
+			readBy[name] = s.Name
+		}
+	}
+	if chans == 0 {
+		v.add(p+".columns", ErrValue, "%s: columns name no channel; at least one field must be a channel", subj)
 	}
 }
 
