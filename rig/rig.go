@@ -116,10 +116,10 @@ type Source struct {
 	// "_" to skip the field, or one of "t_us", "t_ms", "t_s" for a device
 	// time column. Without a time column the host receive time is used.
 	Columns  []string
-	Broker   string  // mqtt: broker URL, e.g. tcp://127.0.0.1:1883 (ssl:// or tls:// for TLS)
-	Topic    string  // mqtt: topic carrying JSON blocks
-	ClientID string  // mqtt: stable client id (default "liftyard-<source name>")
-	Username string  // mqtt: user name (optional)
+	Broker   string // mqtt: broker URL, e.g. tcp://127.0.0.1:1883 (ssl:// or tls:// for TLS)
+	Topic    string // mqtt: topic carrying JSON blocks
+	ClientID string // mqtt: stable client id (default "liftyard-<source name>")
+	Username string // mqtt: user name (optional)
 	// PasswordEnv names the environment variable that holds the MQTT
 	// password; the password itself never appears in a rig file or a log.
 	PasswordEnv string
@@ -153,7 +153,7 @@ type Channel struct {
 	// scale, e.g. −8388608 and 8388607 for 24 bits): a reading at either
 	// limit is saturated. Both zero: not known.
 	RawMin, RawMax float64
-	Calibration Calibration
+	Calibration    Calibration
 }
 
 // Affine is a linear unit conversion si = Scale·v + Offset.
