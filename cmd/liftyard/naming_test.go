@@ -30,6 +30,8 @@ var dimensionless = map[string]bool{
 	// statistics: X and U take the unit of the field that holds the Value;
 	// a budget line's U and UY take the unit of its input and result.
 	"X": true, "U": true, "Dof": true, "NEff": true, "Sensitivity": true, "UY": true,
+	// raw readings are in the instrument's own units (counts, mV)
+	"RawMin": true, "RawMax": true,
 	// unit conversion factors
 	"Scale": true, "Offset": true,
 }
