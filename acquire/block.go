@@ -16,7 +16,11 @@ type Block struct {
 	T0Us     int64     // device clock at sample 0, µs
 	DtUs     int64     // sample spacing on the device clock, µs (> 0)
 	Received time.Time // host clock when the block arrived
-	Series   []Series  // one per channel, all of the same length
+	// AlignedT0Us is T0Us mapped onto the host clock (µs since the Unix
+	// epoch) by the source's Clock, so that blocks of several sources share
+	// one timeline; 0 until an Aligner has seen the block.
+	AlignedT0Us int64
+	Series      []Series // one per channel, all of the same length
 }
 
 // Series is one channel's raw readings in a Block. NaN marks "no sample".

@@ -8,7 +8,10 @@ type Block struct {
 	Seq    uint64
 	T0Us   int64 // device clock at sample 0, µs
 	DtUs   int64 // sample spacing, µs
-	Series []Series
+	// AlignedT0Us is sample 0 on the shared host timeline (see
+	// acquire.Aligner); 0 when not aligned.
+	AlignedT0Us int64
+	Series      []Series
 }
 
 // Series is one channel's calibrated values. U is the standard uncertainty of

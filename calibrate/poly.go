@@ -57,7 +57,7 @@ func NewCalibrator(r *rig.Rig) (*Calibrator, error) {
 // Apply calibrates one block. Series of channels the rig does not declare are
 // dropped (the raw record keeps them). NaN readings stay NaN.
 func (c *Calibrator) Apply(b *acquire.Block) Block {
-	out := Block{Source: b.Source, Seq: b.Seq, T0Us: b.T0Us, DtUs: b.DtUs, Series: make([]Series, 0, len(b.Series))}
+	out := Block{Source: b.Source, Seq: b.Seq, T0Us: b.T0Us, DtUs: b.DtUs, AlignedT0Us: b.AlignedT0Us, Series: make([]Series, 0, len(b.Series))}
 	for _, s := range b.Series {
 		cal, ok := c.channels[s.Channel]
 		if !ok {

@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"sort"
 	"time"
 
 	"liftyard/calibrate"
@@ -41,10 +42,15 @@ type Estimator struct {
 	roles roles
 
 	primary string               // source whose blocks carry the timeline
-	held    map[string]heldValue // latest value of channels from other sources
-	dtUs    int64
-	nextTUs int64 // device time expected for the next primary sample
-	started bool
+	held    map[string]heldValue // latest value (and calibration u) of channels from other sources
+	hist    map[string]*history  // recent samples of channels from other sources, on the shared timeline
+	marks   map[string]int64     // newest timeline time delivered by each other source
+	pending []*calibrate.Block   // timeline blocks waiting for other sources
+	// primaryMark is the newest timeline time of the timeline source.
+	primaryMark int64
+	dtUs        int64
+	nextTUs     int64 // device time expected for the next primary sample
+	started     bool
 
 	ring ring      // live window
 	tick sampleBuf // samples of the tick being filled
@@ -176,14 +182,18 @@ func NewEstimator(r *rig.Rig, cfg Config) (*Estimator, error) {
 // Add feeds one calibrated block and returns the segments it completed
 // (usually none), numbered from 0 in the order they complete.
 //
-// # Joining sources (skeleton timebase)
+// # Joining sources
 //
-// The block's source that first carries a normal-force channel sets the
-// timeline: sample i of its blocks is at device time T0Us + i·DtUs. Role
-// channels found in the same block are read sample by sample; role channels
-// that come from other sources are held at their latest finite value (zero
-// order hold) and joined onto this timeline. Clocks of different sources
-// are not aligned; a later issue refines the timebase.
+// The source that first carries a normal-force channel sets the timeline:
+// sample i of its blocks is at T0Us + i·DtUs. Role channels found in the
+// same block are read sample by sample. Role channels that come from other
+// sources are joined by time: each is kept as a short history on the shared
+// host timeline (AlignedT0Us, set by acquire.Aligner; the device clock when
+// blocks are not aligned) and read at each timeline sample by linear
+// interpolation, or held at the newest value past its end. A timeline block
+// waits until every other source has delivered data up to its last sample,
+// or until the timeline has run JoinWait ahead of it, so a source that
+// arrives late is still joined at the right instant.
 //
 // Bad input never panics: a nil or empty block, a block without a positive
 // DtUs, or series of unequal length (missing samples read as NaN) give fewer
@@ -202,13 +212,61 @@ func (e *Estimator) Add(b *calibrate.Block) []Segment {
 		}
 	}
 	if b.Source != e.primary {
-		e.holdLatest(b)
-		return nil
+		e.recordOther(b)
+		return e.drain(false)
 	}
-	if b.DtUs <= 0 {
+	if b.DtUs <= 0 || b.Len() == 0 {
 		e.ignored++
 		return nil
 	}
+	e.pending = append(e.pending, b)
+	if end := alignedEnd(b); end > e.primaryMark {
+		e.primaryMark = end
+	}
+	return e.drain(false)
+}
+
+// JoinWait is how long a timeline block waits for late sources: longer
+// than a Wi-Fi node's usual delay, short enough for a live display.
+const JoinWait = 500 * time.Millisecond
+
+// drain processes the pending timeline blocks whose other sources have
+// caught up (all of them when force is set).
+func (e *Estimator) drain(force bool) []Segment {
+	var out []Segment
+	for len(e.pending) > 0 {
+		b := e.pending[0]
+		end := alignedEnd(b)
+		if !force && e.primaryMark-end < int64(JoinWait/time.Microsecond) {
+			for _, mark := range e.marks {
+				if mark < end {
+					return out
+				}
+			}
+		}
+		e.pending[0] = nil
+		e.pending = e.pending[1:]
+		out = append(out, e.addPrimary(b)...)
+	}
+	return out
+}
+
+// alignedStart returns sample 0 of b on the shared timeline.
+func alignedStart(b *calibrate.Block) int64 {
+	if b.AlignedT0Us != 0 {
+		return b.AlignedT0Us
+	}
+	return b.T0Us
+}
+
+// alignedEnd returns the last sample of b on the shared timeline.
+func alignedEnd(b *calibrate.Block) int64 {
+	return alignedStart(b) + int64(max(b.Len()-1, 0))*b.DtUs
+}
+
+// addPrimary runs one timeline block through the join, the live window and
+// the steady test.
+func (e *Estimator) addPrimary(b *calibrate.Block) []Segment {
 	n := 0
 	for _, s := range b.Series {
 		n = max(n, len(s.Values))
@@ -253,22 +311,24 @@ func (e *Estimator) Add(b *calibrate.Block) []Segment {
 	}
 	qv, av, tv, sv := pick(e.roles.q), pick(e.roles.angle), pick(e.roles.temp), pick(e.roles.spin)
 	tickN := max(1, int(int64(tickDuration/time.Microsecond)/e.dtUs))
+	at0 := alignedStart(b)
 	for i := range n {
 		sm := sample{tUs: b.T0Us + int64(i)*b.DtUs}
-		sm.normalN = e.sum(e.roles.normal, normal, i)
+		at := at0 + int64(i)*b.DtUs
+		sm.normalN = e.sum(e.roles.normal, normal, i, at)
 		sm.axialN = 0
 		if len(e.roles.axial) > 0 {
-			sm.axialN = e.sum(e.roles.axial, axial, i)
+			sm.axialN = e.sum(e.roles.axial, axial, i, at)
 		}
-		sm.tempK = e.value(e.roles.temp, tv, i, e.rig.Conditions.TempK)
-		q := e.value(e.roles.q, qv, i, math.NaN())
+		sm.tempK = e.value(e.roles.temp, tv, i, at, e.rig.Conditions.TempK)
+		q := e.value(e.roles.q, qv, i, at, math.NaN())
 		if e.roles.qIsSpeed {
 			sm.qPa = DynamicPressure(e.rhoAt(sm.tempK), q)
 		} else {
 			sm.qPa = DynamicPressureFromPitot(q, e.roles.pitotC)
 		}
-		sm.alphaRad = e.value(e.roles.angle, av, i, e.roles.angleFixedRad)
-		sm.spinRadPerS = e.value(e.roles.spin, sv, i, math.NaN())
+		sm.alphaRad = e.value(e.roles.angle, av, i, at, e.roles.angleFixedRad)
+		sm.spinRadPerS = e.value(e.roles.spin, sv, i, at, math.NaN())
 		e.ring.push(sm)
 		e.tick.push(sm)
 		e.lastTUs = sm.tUs
@@ -283,7 +343,7 @@ func (e *Estimator) Add(b *calibrate.Block) []Segment {
 // Flush ends the run: the partial tick is judged and the open segment is
 // closed and returned when it is long enough.
 func (e *Estimator) Flush() []Segment {
-	var out []Segment
+	out := e.drain(true)
 	if e.tick.len() > 0 {
 		out = e.endTick(out)
 	}
@@ -449,22 +509,79 @@ func (e *Estimator) rhoAt(tK float64) float64 {
 	return f.RhoKgPerM3
 }
 
-// holdLatest keeps the last finite value of every series of a block from a
-// source other than the timeline's.
-func (e *Estimator) holdLatest(b *calibrate.Block) {
+// historyLen bounds the joined history of each channel from another
+// source: 4096 samples is 4 s at 1 kHz, far longer than JoinWait.
+const historyLen = 4096
+
+// history is one channel's recent samples on the shared timeline.
+type history struct {
+	tUs []int64
+	v   []float64
+}
+
+func (h *history) push(tUs int64, v float64) {
+	if n := len(h.tUs); n > 0 && tUs <= h.tUs[n-1] {
+		return // out of order or repeated: keep the timeline monotonic
+	}
+	if len(h.tUs) == historyLen {
+		copy(h.tUs, h.tUs[historyLen/2:])
+		copy(h.v, h.v[historyLen/2:])
+		h.tUs, h.v = h.tUs[:historyLen/2], h.v[:historyLen/2]
+	}
+	h.tUs = append(h.tUs, tUs)
+	h.v = append(h.v, v)
+}
+
+// at interpolates linearly at tUs; past the newest sample it holds the
+// newest value; before the oldest it gives NaN.
+func (h *history) at(tUs int64) float64 {
+	n := len(h.tUs)
+	if n == 0 || tUs < h.tUs[0] {
+		return math.NaN()
+	}
+	if tUs >= h.tUs[n-1] {
+		return h.v[n-1]
+	}
+	i := sort.Search(n, func(i int) bool { return h.tUs[i] > tUs }) // h.tUs[i-1] ≤ t < h.tUs[i]
+	t0, t1 := h.tUs[i-1], h.tUs[i]
+	f := float64(tUs-t0) / float64(t1-t0)
+	return h.v[i-1] + f*(h.v[i]-h.v[i-1])
+}
+
+// recordOther keeps the samples of a block from a source other than the
+// timeline's, for joining by time, and its calibration uncertainties.
+func (e *Estimator) recordOther(b *calibrate.Block) {
+	if b.DtUs <= 0 || b.Len() == 0 {
+		e.ignored++
+		return
+	}
+	if e.hist == nil {
+		e.hist = map[string]*history{}
+		e.marks = map[string]int64{}
+	}
+	at0 := alignedStart(b)
 	for _, s := range b.Series {
-		for i := len(s.Values) - 1; i >= 0; i-- {
-			if finite(s.Values[i]) {
-				e.held[s.Channel] = heldValue{v: s.Values[i], u: s.U, dof: s.Dof}
-				break
+		h := e.hist[s.Channel]
+		if h == nil {
+			h = &history{}
+			e.hist[s.Channel] = h
+		}
+		for i, v := range s.Values {
+			if finite(v) {
+				h.push(at0+int64(i)*b.DtUs, v)
+				e.held[s.Channel] = heldValue{v: v, u: s.U, dof: s.Dof}
 			}
 		}
 	}
+	if end := alignedEnd(b); end > e.marks[b.Source] {
+		e.marks[b.Source] = end
+	}
 }
 
-// value reads channel name at sample i from vals (this block) or from the
-// held values; def applies when the role has no channel.
-func (e *Estimator) value(name string, vals []float64, i int, def float64) float64 {
+// value reads channel name at sample i from vals (this block) or, at
+// timeline time atUs, from the history of another source; def applies when
+// the role has no channel.
+func (e *Estimator) value(name string, vals []float64, i int, atUs int64, def float64) float64 {
 	if name == "" {
 		return def
 	}
@@ -474,18 +591,18 @@ func (e *Estimator) value(name string, vals []float64, i int, def float64) float
 		}
 		return math.NaN()
 	}
-	if h, ok := e.held[name]; ok {
-		return h.v
+	if h := e.hist[name]; h != nil {
+		return h.at(atUs)
 	}
 	return math.NaN()
 }
 
 // sum adds the channels of one force role at sample i; any missing channel
 // makes the sum NaN.
-func (e *Estimator) sum(names []string, vals [][]float64, i int) float64 {
+func (e *Estimator) sum(names []string, vals [][]float64, i int, atUs int64) float64 {
 	s := 0.0
 	for j, name := range names {
-		s += e.value(name, vals[j], i, math.NaN())
+		s += e.value(name, vals[j], i, atUs, math.NaN())
 	}
 	return s
 }

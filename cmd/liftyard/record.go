@@ -197,9 +197,12 @@ func (m *Main) Run(ctx context.Context) error {
 	}
 	log.Info("recording", "run", runID, "rig", m.Rig.Name, "db", m.DBPath)
 
-	// The recorder loop: the only goroutine that touches the estimator.
+	// The recorder loop: the only goroutine that touches the aligner and
+	// the estimator.
 	var lastLive time.Time
+	var aligner acquire.Aligner
 	for b := range raw {
+		aligner.Align(&b)
 		storeDropped.offer(items, storage.Item{Block: &b})
 		cb := cal.Apply(&b)
 		for _, seg := range est.Add(&cb) {
