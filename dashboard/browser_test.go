@@ -13,6 +13,7 @@ import (
 	"github.com/chromedp/chromedp"
 
 	"liftyard/acquire"
+	"liftyard/calibrate"
 	"liftyard/dashboard"
 	"liftyard/internal/browsertest"
 	"liftyard/storage"
@@ -45,7 +46,14 @@ func TestLivePage_Browser(t *testing.T) {
 
 	s.SetRun(storage.Run{ID: 7, Rig: hostileRig, Kind: "foil", Fluid: "fresh_water", AreaM2: 0.12,
 		AreaKind: "planform", Started: epoch, Status: storage.StatusRecording})
-	s.PublishHealth([]acquire.HealthSnapshot{{Source: "balance", Frames: 6000, Samples: 600000, Rejected: 2, Gaps: 1}})
+	s.PublishHealth(dashboard.Health{
+		Sources: []acquire.HealthSnapshot{{Source: "balance", Frames: 6000, Samples: 600000, Rejected: 2, Gaps: 1}},
+		Channels: []acquire.ChannelHealth{
+			{Channel: "n_fore", Source: "balance", RateHz: 200, Samples: 600000},
+			{Channel: "pitot", Source: "balance", RateHz: 200, Samples: 600000, Saturated: 3},
+		},
+		Loads: []calibrate.LoadHealth{{Channel: "n_fore", CapacitySI: 500, Unit: "N", PeakFrac: 1.04, MaxFrac: 1.04, Alarms: 12, State: calibrate.LoadAlarm}},
+	})
 
 	if err := chromedp.Do(ctx, chromedp.Navigate(url)); err != nil {
 		t.Fatalf("open %s: %v", url, err)
@@ -114,6 +122,22 @@ func TestLivePage_Browser(t *testing.T) {
 	}
 	if !strings.Contains(health, "balance: 6000 blocks, 2 rejected, 0 blocks + 0 samples dropped, 1 gaps, 0 reconnects") {
 		t.Errorf("health line %q", health)
+	}
+
+	// The overload alarm is shown as a banner and on the channel's row.
+	alarm, err := chromedp.Run(ctx, chromedp.Text(chromedp.ID("load-alarms")))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(alarm, "OVERLOAD: n_fore at 104 % of its rated 500 N") {
+		t.Errorf("load alarm banner %q", alarm)
+	}
+	rows, err := chromedp.Run(ctx, chromedp.Evaluate[[]string](`[...document.querySelectorAll("#channels tbody tr")].map(r => r.className + "|" + r.textContent)`))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(rows) != 2 || !strings.HasPrefix(rows[0], "alarm|n_fore") || !strings.Contains(rows[0], "OVERLOAD") || !strings.Contains(rows[1], "saturated") {
+		t.Errorf("channel rows %q", rows)
 	}
 
 	png, err := chromedp.Run(ctx, chromedp.FullScreenshot(100))

@@ -42,6 +42,7 @@ func (s *Server) routes() http.Handler {
 	mux.HandleFunc("GET /runs/{id}/polar.svg", s.polarSVG)
 	mux.HandleFunc("POST /logout", s.logout)
 	mux.HandleFunc("GET /api/v1/live", s.apiLive)
+	mux.HandleFunc("GET /api/v1/health", s.apiHealth)
 	mux.HandleFunc("GET /api/v1/stream", s.stream)
 	mux.HandleFunc("GET /api/v1/runs", s.apiRuns)
 	mux.HandleFunc("GET /api/v1/runs/{id}", s.apiRun)
@@ -159,6 +160,15 @@ func (s *Server) apiLive(w http.ResponseWriter, r *http.Request) {
 	b := s.hub.latestLive()
 	if b == nil {
 		writeJSONStatus(w, http.StatusServiceUnavailable, map[string]string{"error": "no live estimate yet: no run is recording, or the first window is not full"})
+		return
+	}
+	writeJSONBytes(w, b)
+}
+
+func (s *Server) apiHealth(w http.ResponseWriter, r *http.Request) {
+	b := s.hub.latestHealth()
+	if b == nil {
+		writeJSONStatus(w, http.StatusServiceUnavailable, map[string]string{"error": "no health report yet: no run is recording"})
 		return
 	}
 	writeJSONBytes(w, b)

@@ -159,6 +159,16 @@ func (h *hub) latestLive() []byte {
 	return h.live.data
 }
 
+// latestHealth returns the JSON of the latest health report, or nil.
+func (h *hub) latestHealth() []byte {
+	h.mu.Lock()
+	defer h.mu.Unlock()
+	if h.health == nil {
+		return nil
+	}
+	return h.health.data
+}
+
 // keptSegments returns the JSON of the kept segments of the current run.
 func (h *hub) keptSegments() [][]byte {
 	h.mu.Lock()

@@ -223,3 +223,14 @@ func toRunJSON(r storage.Run, now time.Time) runJSON {
 	}
 	return runJSON{Run: r, DurationS: num(runDuration(r, now).Seconds())}
 }
+
+// EncodeLive returns a live estimate as the JSON of GET /api/v1/live, the
+// one public form of live results (also published to a site broker).
+func EncodeLive(l estimate.Live) []byte { return mustJSON(toLiveJSON(l)) }
+
+// EncodeSegment returns a segment result of run as the JSON of the API's
+// segment rows.
+func EncodeSegment(run uint64, s estimate.Segment) []byte { return mustJSON(toSegmentJSON(run, s)) }
+
+// EncodeHealth returns a health report as the JSON of GET /api/v1/health.
+func EncodeHealth(h Health) []byte { return mustJSON(h) }

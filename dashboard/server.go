@@ -13,6 +13,7 @@ import (
 	"time"
 
 	"liftyard/acquire"
+	"liftyard/calibrate"
 	"liftyard/estimate"
 	"liftyard/storage"
 )
@@ -214,11 +215,26 @@ func (s *Server) PublishSegment(seg estimate.Segment) {
 	s.hub.publish("segment", mustJSON(toSegmentJSON(id, seg)))
 }
 
-// PublishHealth sends the sources' counters to every live client. It never
-// blocks.
-func (s *Server) PublishHealth(h []acquire.HealthSnapshot) {
-	if h == nil {
-		h = []acquire.HealthSnapshot{}
+// Health is what the recorder knows about its inputs: each source's
+// counters, each channel's rate, gaps and saturation, and each rated
+// channel's load against its capacity.
+type Health struct {
+	Sources  []acquire.HealthSnapshot `json:"sources"`
+	Channels []acquire.ChannelHealth  `json:"channels"`
+	Loads    []calibrate.LoadHealth   `json:"loads"`
+}
+
+// PublishHealth sends the health of the inputs to every live client and
+// keeps it for GET /api/v1/health. It never blocks.
+func (s *Server) PublishHealth(h Health) {
+	if h.Sources == nil {
+		h.Sources = []acquire.HealthSnapshot{}
+	}
+	if h.Channels == nil {
+		h.Channels = []acquire.ChannelHealth{}
+	}
+	if h.Loads == nil {
+		h.Loads = []calibrate.LoadHealth{}
 	}
 	s.hub.publish("health", mustJSON(h))
 }

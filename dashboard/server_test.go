@@ -551,7 +551,7 @@ func TestStream_SnapshotAndOrder(t *testing.T) {
 	s, _ := newServer(t, dashboard.Config{Addr: "127.0.0.1:0"}) // port unknown: httptest picks one
 	ts := loopbackServer(t, s)
 	s.SetRun(storage.Run{ID: 5, Rig: "strut-b", Kind: "foil", Status: storage.StatusRecording})
-	s.PublishHealth([]acquire.HealthSnapshot{{Source: "balance", Frames: 10}})
+	s.PublishHealth(dashboard.Health{Sources: []acquire.HealthSnapshot{{Source: "balance", Frames: 10}}})
 	s.PublishSegment(segment(0, 0, 0.02))
 	s.PublishSegment(segment(1, 4, 0.43))
 	s.PublishLive(liveSample(1, 0.4))

@@ -4,6 +4,7 @@ import (
 	"time"
 
 	"liftyard/acquire"
+	"liftyard/calibrate"
 )
 
 // Status is where a run stands.
@@ -31,5 +32,7 @@ type Run struct {
 	Samples  uint64                   `json:"samples"`  // sample times stored
 	Segments int                      `json:"segments"` // result rows stored
 	Sources  []acquire.HealthSnapshot `json:"sources"`
+	Channels []acquire.ChannelHealth  `json:"channels,omitempty"` // per-channel rate, gaps, saturation (at the end of the run)
+	Loads    []calibrate.LoadHealth   `json:"loads,omitempty"`    // per rated channel: largest load against capacity
 	Note     string                   `json:"note,omitempty"`
 }

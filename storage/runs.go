@@ -12,6 +12,7 @@ import (
 	bolt "go.etcd.io/bbolt"
 
 	"liftyard/acquire"
+	"liftyard/calibrate"
 )
 
 // runRecord is how a Run is stored: Run's own JSON plus the rig file, which
@@ -107,6 +108,24 @@ func (s *Store) FinishRun(id uint64, ended time.Time, status Status, sources []a
 	})
 	if err != nil {
 		return writeError(fmt.Sprintf("finish run %d", id), err)
+	}
+	return nil
+}
+
+// SetRunChannels stores the channels' health and loads at the end of a run
+// (rates, missing and saturated samples, the largest load against capacity),
+// so a finished run still shows how its inputs behaved.
+func (s *Store) SetRunChannels(id uint64, channels []acquire.ChannelHealth, loads []calibrate.LoadHealth) error {
+	err := s.db.Update(func(tx *bolt.Tx) error {
+		r, err := getRun(tx, id)
+		if err != nil {
+			return err
+		}
+		r.Channels, r.Loads = channels, loads
+		return putRun(tx, r)
+	})
+	if err != nil {
+		return writeError(fmt.Sprintf("store channel health of run %d", id), err)
 	}
 	return nil
 }

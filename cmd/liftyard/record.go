@@ -50,7 +50,23 @@ type Main struct {
 	// exists, with the dashboard URL and the run id.
 	OnReady func(url string, runID uint64)
 
-	runID uint64
+	runID  uint64
+	events chan acquire.Event // from the sources' goroutines to the recorder loop
+}
+
+// eventQueue bounds the events waiting for the recorder loop; sources never
+// wait on it (an event that does not fit is logged and dropped).
+const eventQueue = 256
+
+// onEvent is the acquire.EventFunc given to sources.
+func (m *Main) onEvent(ev acquire.Event) {
+	select {
+	case m.events <- ev:
+	default:
+		if m.Logger != nil {
+			m.Logger.Warn("event queue full: event dropped", "source", ev.Source, "event", ev.Kind, "message", ev.Message)
+		}
+	}
 }
 
 // Source is a named acquire.Source with its health counters.
@@ -61,12 +77,16 @@ type Source struct {
 }
 
 // buildSources makes the sources a rig file declares.
-func buildSources(r *rig.Rig, logger *slog.Logger, rhoKgPerM3 float64) ([]Source, error) {
+func buildSources(r *rig.Rig, logger *slog.Logger, rhoKgPerM3 float64, onEvent acquire.EventFunc) ([]Source, error) {
 	var out []Source
 	for _, s := range r.Sources {
 		switch s.Type {
 		case rig.SourceMQTT:
-			src := &mqtt.Source{Name: s.Name, Broker: s.Broker, Topic: s.Topic, Logger: logger}
+			src, err := mqtt.FromRig(s, r.Name, os.Getenv)
+			if err != nil {
+				return nil, err
+			}
+			src.Logger, src.OnEvent = logger, onEvent
 			out = append(out, Source{Name: s.Name, Src: src, Health: &src.Health})
 		case rig.SourceSimulated:
 			q := estimate.DynamicPressure(rhoKgPerM3, defaultSpeed(r.Fluid))
@@ -106,8 +126,9 @@ func (m *Main) Run(ctx context.Context) error {
 	if err != nil {
 		return err
 	}
+	m.events = make(chan acquire.Event, eventQueue)
 	if m.Sources == nil {
-		if m.Sources, err = buildSources(m.Rig, log, fluid.RhoKgPerM3); err != nil {
+		if m.Sources, err = buildSources(m.Rig, log, fluid.RhoKgPerM3, m.onEvent); err != nil {
 			return err
 		}
 	}
@@ -147,7 +168,6 @@ func (m *Main) Run(ctx context.Context) error {
 
 	ctx, cancel := context.WithCancelCause(ctx)
 	defer cancel(nil)
-	var wg sync.WaitGroup
 	dashErr := make(chan error, 1)
 	dashCtx, stopDash := context.WithCancel(context.WithoutCancel(ctx))
 	defer stopDash()
@@ -171,7 +191,7 @@ func (m *Main) Run(ctx context.Context) error {
 	// The writer outlives ctx: it commits until items is closed.
 	go func() { writerErr <- writer.Run(context.WithoutCancel(ctx), items) }()
 
-	health := func() []acquire.HealthSnapshot {
+	sources := func() []acquire.HealthSnapshot {
 		hs := make([]acquire.HealthSnapshot, 0, len(m.Sources)+1)
 		for _, s := range m.Sources {
 			hs = append(hs, s.Health.Snapshot(s.Name))
@@ -179,48 +199,104 @@ func (m *Main) Run(ctx context.Context) error {
 		hs = append(hs, acquire.HealthSnapshot{Source: "store", BlocksDropped: storeDropped.blocks.Load()})
 		return hs
 	}
-	wg.Go(func() {
-		t := time.NewTicker(time.Second)
-		defer t.Stop()
-		for {
-			select {
-			case <-ctx.Done():
-				return
-			case <-t.C:
-				dash.PublishHealth(health())
-			}
+
+	// Live results for other consumers on the site (DESIGN §7): a bounded
+	// outbox that never makes the recorder wait.
+	var outbox *mqtt.Outbox
+	var outboxDone chan error
+	publish := func(string, []byte) {}
+	if p := m.Rig.Publish; p != nil {
+		if outbox, err = mqtt.OutboxFromRig(*p, m.Rig.Name, os.Getenv); err != nil {
+			return err
 		}
-	})
+		outbox.Logger = log
+		outboxDone = make(chan error, 1)
+		go func() {
+			err := outbox.Run(ctx)
+			if err != nil {
+				log.Error("publishing live results stopped", "broker", p.Broker, "err", err)
+			}
+			outboxDone <- err
+		}()
+		publish = func(what string, payload []byte) { outbox.Offer(p.TopicPrefix+"/"+what, payload) }
+	}
 
 	if m.OnReady != nil {
 		m.OnReady("http://"+ln.Addr().String(), runID)
 	}
 	log.Info("recording", "run", runID, "rig", m.Rig.Name, "db", m.DBPath)
 
-	// The recorder loop: the only goroutine that touches the aligner and
-	// the estimator.
-	var lastLive time.Time
-	var aligner acquire.Aligner
-	for b := range raw {
-		aligner.Align(&b)
-		storeDropped.offer(items, storage.Item{Block: &b})
-		cb := cal.Apply(&b)
-		for _, seg := range est.Add(&cb) {
-			m.segment(items, dash, seg)
+	// The recorder loop: the only goroutine that touches the aligner, the
+	// monitors and the estimator. Sources report events through m.events.
+	var (
+		lastLive time.Time
+		aligner  acquire.Aligner
+		chans    = acquire.NewMonitor(m.Rig)
+		loads    = calibrate.NewLoadMonitor(m.Rig)
+		tick     = time.NewTicker(time.Second)
+	)
+	defer tick.Stop()
+	record := func(ev acquire.Event) {
+		if ev.T.IsZero() {
+			ev.T = time.Now()
 		}
-		if now := time.Now(); now.Sub(lastLive) >= livePeriod {
-			if l, ok := est.Live(); ok {
-				dash.PublishLive(l)
+		msg := ev.Message
+		if ev.Duration > 0 {
+			msg = fmt.Sprintf("%s (%s)", msg, ev.Duration.Round(time.Millisecond))
+		}
+		storage.Offer(items, storage.Item{Event: &storage.Event{T: ev.T, Kind: string(ev.Kind), Source: ev.Source, Message: msg}}, &storeDropped.blocks)
+		log.Warn(msg, "source", ev.Source, "event", ev.Kind)
+	}
+	health := func() dashboard.Health {
+		return dashboard.Health{Sources: sources(), Channels: chans.Snapshot(time.Now()), Loads: loads.Snapshot()}
+	}
+loop:
+	for {
+		select {
+		case ev := <-m.events:
+			record(ev)
+		case <-tick.C:
+			h := health()
+			dash.PublishHealth(h)
+			publish("health", dashboard.EncodeHealth(h))
+		case b, ok := <-raw:
+			if !ok {
+				break loop
 			}
-			lastLive = now
+			aligner.Align(&b)
+			for _, ev := range chans.Observe(&b) {
+				record(ev)
+			}
+			storeDropped.offer(items, storage.Item{Block: &b})
+			cb := cal.Apply(&b)
+			for _, l := range loads.Observe(&cb) {
+				record(acquire.Event{T: b.Received, Source: b.Source, Kind: "overload",
+					Message: fmt.Sprintf("channel %s at %.0f %% of its rated %g %s (%s)", l.Channel, 100*l.PeakFrac, l.CapacitySI, l.Unit, l.State)})
+			}
+			for _, seg := range est.Add(&cb) {
+				m.segment(items, dash, seg)
+				publish("segments", dashboard.EncodeSegment(runID, seg))
+			}
+			if now := time.Now(); now.Sub(lastLive) >= livePeriod {
+				if l, ok := est.Live(); ok {
+					dash.PublishLive(l)
+					publish("live", dashboard.EncodeLive(l))
+				}
+				lastLive = now
+			}
 		}
 	}
 	for _, seg := range est.Flush() {
 		m.segment(items, dash, seg)
+		publish("segments", dashboard.EncodeSegment(runID, seg))
 	}
+	for len(m.events) > 0 {
+		record(<-m.events)
+	}
+	final := health()
+	dash.PublishHealth(final)
 	close(items)
 	werr := <-writerErr
-	wg.Wait()
 	status := storage.StatusComplete
 	runErr := context.Cause(ctx)
 	if errors.Is(runErr, context.Canceled) || errors.Is(runErr, context.DeadlineExceeded) {
@@ -229,12 +305,16 @@ func (m *Main) Run(ctx context.Context) error {
 	if runErr != nil || werr != nil {
 		status = storage.StatusInterrupted
 	}
-	ferr := store.FinishRun(runID, time.Now(), status, health())
+	ferr := errors.Join(store.FinishRun(runID, time.Now(), status, final.Sources),
+		store.SetRunChannels(runID, final.Channels, final.Loads))
 	if run, err := store.Run(runID); err == nil {
 		dash.SetRun(run)
 	}
 	stopDash()
 	derr := <-dashErr
+	if outboxDone != nil {
+		<-outboxDone // ctx is done: the outbox stops
+	}
 	return errors.Join(runErr, werr, ferr, derr)
 }
 

@@ -160,19 +160,51 @@
     set("v-segments", String(Math.max(Number($("v-segments").textContent) || 0, segRows.size)));
   }
 
-  function onHealth(list) {
+  function onHealth(h) {
+    const list = h.sources || [];
     const el = $("health");
-    if (!list.length) { el.textContent = "No sources reporting."; el.className = "health muted"; return; }
-    let bad = false;
-    el.textContent = list.map((h) => {
-      const dropped = (h.blocks_dropped || 0) + " blocks + " + (h.samples_dropped || 0) + " samples dropped";
-      if (h.rejected || h.samples_dropped || h.blocks_dropped || h.gaps) bad = true;
-      // The "store" line is the recorder → store queue: only drops apply.
-      if (h.name === "store") return "store queue: " + dropped;
-      return h.name + ": " + h.frames + " blocks, " + h.rejected + " rejected, " + dropped + ", " +
-        h.gaps + " gaps, " + h.reconnects + " reconnects";
-    }).join(" · ");
-    el.className = "health" + (bad ? " bad" : "");
+    if (!list.length) { el.textContent = "No sources reporting."; el.className = "health muted"; }
+    else {
+      let bad = false;
+      el.textContent = list.map((s) => {
+        const dropped = (s.blocks_dropped || 0) + " blocks + " + (s.samples_dropped || 0) + " samples dropped";
+        if (s.rejected || s.samples_dropped || s.blocks_dropped || s.gaps) bad = true;
+        // The "store" line is the recorder → store queue: only drops apply.
+        if (s.name === "store") return "store queue: " + dropped;
+        return s.name + ": " + s.frames + " blocks, " + s.rejected + " rejected, " + dropped + ", " +
+          s.gaps + " gaps, " + s.reconnects + " reconnects";
+      }).join(" · ");
+      el.className = "health" + (bad ? " bad" : "");
+    }
+    onChannels(h.channels || [], h.loads || []);
+  }
+
+  // onChannels fills the channel table and the load alarm banner.
+  function onChannels(chans, loads) {
+    const load = {};
+    loads.forEach((l) => { load[l.channel] = l; });
+    const tb = $("channels").tBodies[0];
+    while (tb.rows.length > chans.length) tb.deleteRow(-1);
+    chans.forEach((c, i) => {
+      const tr = tb.rows[i] || tb.insertRow();
+      while (tr.cells.length < 8) tr.insertCell();
+      const l = load[c.channel];
+      let state = c.stale ? "stale" : (c.saturated ? "saturated" : "ok");
+      if (l && l.state !== "ok") state = l.state === "alarm" ? "OVERLOAD" : "near capacity";
+      const cells = [c.channel, c.source, fix(c.rate_hz, 0), String(c.missing), String(c.saturated),
+        l ? fix(100 * l.peak_frac, 0) + " %" : "—", l ? fix(100 * l.max_frac, 0) + " %" : "—", state];
+      cells.forEach((text, k) => { if (tr.cells[k].textContent !== text) tr.cells[k].textContent = text; });
+      tr.className = state === "OVERLOAD" ? "alarm" : (state === "ok" ? "" : "warn");
+    });
+    const ul = $("load-alarms");
+    const lines = loads.filter((l) => l.state !== "ok").map((l) =>
+      (l.state === "alarm" ? "OVERLOAD: " : "Near capacity: ") + l.channel + " at " + fix(100 * l.peak_frac, 0) +
+      " % of its rated " + fix(l.capacity_si, 0) + " " + l.unit + (l.state === "alarm" ? ": unload the rig" : ""));
+    while (ul.children.length > lines.length) ul.removeChild(ul.lastChild);
+    lines.forEach((text, i) => {
+      const li = ul.children[i] || ul.appendChild(document.createElement("li"));
+      if (li.textContent !== text) li.textContent = text;
+    });
   }
 
   function handler(fn) {

@@ -1,0 +1,59 @@
+package acquire_test
+
+import (
+	"math"
+	"testing"
+	"time"
+
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+
+	"liftyard/acquire"
+	"liftyard/rig"
+)
+
+// Ensure that the channel monitor counts samples, missing samples and
+// saturation against the raw range exactly, measures the sample rate from
+// host arrival times, reports staleness, and raises one saturation event per
+// episode (issue 4: channel health).
+func TestMonitor_ChannelHealth(t *testing.T) {
+	r := &rig.Rig{Channels: []rig.Channel{{Name: "n", RawMin: -100, RawMax: 100}, {Name: "q"}}}
+	m := acquire.NewMonitor(r)
+	t0 := time.Date(2026, 12, 1, 10, 0, 0, 0, time.UTC)
+	var events []acquire.Event
+	for k := range 30 { // 3 s of 100 ms blocks, 20 samples each: 200 Hz
+		n := make([]float64, 20)
+		q := make([]float64, 20)
+		for i := range n {
+			n[i], q[i] = 10, 5
+		}
+		if k == 10 || k == 11 { // a two-block saturation episode
+			n[3], n[4] = 100, -120
+		}
+		if k == 20 {
+			n[7] = 100 // a second episode
+		}
+		q[0] = math.NaN()
+		b := acquire.Block{Source: "amp", DtUs: 5000, Received: t0.Add(time.Duration(k) * 100 * time.Millisecond),
+			Series: []acquire.Series{{Channel: "n", Raw: n}, {Channel: "q", Raw: q}}}
+		events = append(events, m.Observe(&b)...)
+	}
+	snap := m.Snapshot(t0.Add(2950 * time.Millisecond))
+	require.Len(t, snap, 2)
+	n, q := snap[0], snap[1]
+	assert.Equal(t, "n", n.Channel)
+	assert.Equal(t, uint64(600), n.Samples)
+	assert.Equal(t, uint64(5), n.Saturated)
+	assert.Equal(t, uint64(30), q.Missing)
+	assert.Equal(t, uint64(570), q.Samples)
+	assert.InDelta(t, 200, n.RateHz, 1)
+	assert.InDelta(t, 190, q.RateHz, 1, "19 finite samples per 100 ms block")
+	assert.False(t, n.Stale)
+	require.Len(t, events, 2, "one event per saturation episode")
+	assert.Equal(t, acquire.EventSaturated, events[0].Kind)
+	assert.Equal(t, t0.Add(time.Second), events[0].T)
+
+	later := m.Snapshot(t0.Add(5 * time.Second))
+	assert.True(t, later[0].Stale, "no sample for over a second")
+	assert.Zero(t, later[0].RateHz)
+}
