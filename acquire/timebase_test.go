@@ -42,7 +42,7 @@ func TestAligner_TwoSourcesWithinOneSample(t *testing.T) {
 	}
 	rng := rand.New(rand.NewPCG(4, 2))
 	var al acquire.Aligner
-	const blockN = 20 // 100 ms blocks
+	const blockN = 20          // 100 ms blocks
 	for k := 0; k < 600; k++ { // 60 s
 		for _, name := range []string{"balance", "pitot"} {
 			d := devs[name]
