@@ -224,6 +224,16 @@ func New(r *rig.Rig, cfg Config, rhoKgPerM3 float64) (*Rig, error) {
 	return s, nil
 }
 
+// Preview returns the shape of the blocks Next makes (channel names in
+// order, no readings) without advancing the simulation.
+func (s *Rig) Preview() acquire.Block {
+	b := acquire.Block{Source: s.source, Series: make([]acquire.Series, len(s.channels))}
+	for i, name := range s.channels {
+		b.Series[i] = acquire.Series{Channel: name}
+	}
+	return b
+}
+
 // Source returns the name of the rig source the blocks are labelled with.
 func (s *Rig) Source() string { return s.source }
 

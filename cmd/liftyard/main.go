@@ -51,7 +51,7 @@ func verbs() []verb {
 		{"import", "ingest a raw CSV recorded elsewhere as a new run (not built yet: issue 6)", notYet("import", 6)},
 		{"calibrate", "fit, store and print a channel calibration (not built yet: issue 5)", notYet("calibrate", 5)},
 		{"fluid", "print density and viscosity of air or water (not built yet: issue 6)", notYet("fluid", 6)},
-		{"simulate", "emit synthetic sensor traffic for dry runs (not built yet: issue 4)", notYet("simulate", 4)},
+		{"simulate", "emit synthetic sensor traffic (MQTT blocks or serial frames) for dry runs", runSimulate},
 		{"serve", "serve the dashboard for a stored database (not built yet)", notYet("serve", 0)},
 		{"report", "write an HTML report of a run (not built yet)", notYet("report", 0)},
 		{"reprocess", "re-process a run from its stored raw samples (not built yet)", notYet("reprocess", 0)},

@@ -13,6 +13,7 @@ import (
 
 	"liftyard/acquire"
 	"liftyard/acquire/mqtt"
+	"liftyard/acquire/serial"
 	"liftyard/acquire/sim"
 	"liftyard/calibrate"
 	"liftyard/dashboard"
@@ -95,8 +96,15 @@ func buildSources(r *rig.Rig, logger *slog.Logger, rhoKgPerM3 float64, onEvent a
 				return nil, fmt.Errorf("source %q: %w", s.Name, err)
 			}
 			out = append(out, Source{Name: s.Name, Src: sr, Health: &sr.Health})
+		case rig.SourceSerial:
+			src, err := serial.FromRig(s, r)
+			if err != nil {
+				return nil, err
+			}
+			src.Logger, src.OnEvent = logger, onEvent
+			out = append(out, Source{Name: s.Name, Src: src, Health: &src.Health})
 		default:
-			return nil, fmt.Errorf("source %q: %s sources are not built yet (planned in issue 4); use mqtt or simulated", s.Name, s.Type)
+			return nil, fmt.Errorf("source %q: unknown source type %q", s.Name, s.Type)
 		}
 	}
 	if len(out) == 0 {
