@@ -2,6 +2,7 @@ package mqtt
 
 import (
 	"context"
+	"crypto/tls"
 	"fmt"
 	"log/slog"
 	"sync/atomic"
@@ -19,6 +20,9 @@ type Publisher struct {
 	Broker   string
 	Topic    string
 	ClientID string // stable client id; default "liftyard-pub"
+	Username string
+	Password string      // never logged
+	TLS      *tls.Config // for ssl:// brokers; nil means the system roots
 	Logger   *slog.Logger
 
 	Published atomic.Uint64 // payloads handed to paho
@@ -38,22 +42,29 @@ func (p *Publisher) Run(ctx context.Context, in <-chan acquire.Block) error {
 	if id == "" {
 		id = "liftyard-pub"
 	}
-	opts := paho.NewClientOptions().
-		AddBroker(p.Broker).SetClientID(id).
-		SetCleanSession(false).
-		SetStore(paho.NewOrderedMemoryStore()).
-		SetConnectRetry(true).SetConnectRetryInterval(time.Second).
-		SetAutoReconnect(true).SetMaxReconnectInterval(5 * time.Second).
-		SetKeepAlive(10 * time.Second).SetPingTimeout(5 * time.Second).
-		SetConnectTimeout(5 * time.Second)
+	broker, isTLS, err := BrokerURL(p.Broker)
+	if err != nil {
+		return fmt.Errorf("publisher: %w", err)
+	}
+	l := link{broker: broker, clientID: id, username: p.Username, password: p.Password, tls: p.TLS}
+	if isTLS && l.tls == nil {
+		l.tls = &tls.Config{MinVersion: tls.VersionTLS12}
+	}
+	fatal := make(chan error, 1)
+	var up atomic.Bool
+	opts := l.options()
+	opts.SetOnConnectHandler(func(paho.Client) { up.Store(true) })
+	opts.SetConnectionNotificationHandler(refusalWatch(broker, fatal, log, up.Load))
 	client := paho.NewClient(opts)
 	tok := client.Connect()
 	defer client.Disconnect(250)
 	select {
 	case <-tok.Done():
 		if err := tok.Error(); err != nil {
-			return fmt.Errorf("publisher connect to %s: %w", p.Broker, err)
+			return fmt.Errorf("publisher connect to %s: %w", broker, err)
 		}
+	case err := <-fatal:
+		return fmt.Errorf("publisher: %w", err)
 	case <-ctx.Done():
 		return nil
 	}

@@ -2,10 +2,12 @@ package mqtt
 
 import (
 	"context"
+	"crypto/tls"
 	"errors"
 	"fmt"
 	"log/slog"
 	"sync"
+	"sync/atomic"
 	"time"
 
 	paho "github.com/eclipse/paho.mqtt.golang"
@@ -19,28 +21,60 @@ import (
 const QueueSize = 256
 
 // Source subscribes to a topic and turns each JSON block payload into an
-// acquire.Block. Its Health may be read while it runs.
+// acquire.Block. Its Health may be read while it runs. Build one with
+// FromRig, or fill the fields; a Source runs once.
+//
+// # Seq accounting
+//
+// Every payload carries the sender's seq. The Source remembers the last
+// SeqWindow seqs below the highest one seen:
+//
+//   - a seq seen already (same seq, same t_us) is dropped and counted in
+//     Health.Duplicates;
+//   - a jump ahead counts the skipped seqs in Health.Gaps and emits an
+//     EventGap, whose Duration is skipped × the block's length when known;
+//   - a seq below the highest that was not seen yet arrives late: it is
+//     delivered and counted in Late. Health.Gaps only increases (the
+//     acquire.Health contract), so the blocks missing now are
+//     Gaps − Late (see Missing);
+//   - a seq more than SeqWindow below the highest, or a seen seq with a
+//     different t_us, means the sender restarted its counter: the block is
+//     delivered, the window starts over from it, and an EventGap says so.
+//
+// Blocks reach out in arrival order, so a late block comes after blocks
+// with higher seqs; its T0Us places it on the timeline.
 type Source struct {
-	Name     string // rig source name; labels the blocks
-	Broker   string // broker URL, tcp://host:port
-	Topic    string // topic with block payloads
-	ClientID string // stable client id (persistent session); default "liftyard-" + Name
-	Username string
-	Password string // never logged
+	Name     string      // rig source name; labels the blocks
+	Broker   string      // broker URL: tcp://host:port, or ssl:// (tls://, mqtts://) with TLS
+	Topic    string      // topic with block payloads
+	ClientID string      // stable client id (persistent session); default "liftyard-" + Name
+	Username string      //
+	Password string      // never logged
+	TLS      *tls.Config // for ssl:// brokers; nil means the system roots
 	Logger   *slog.Logger
 	Now      func() time.Time // host clock; default time.Now
+	// OnEvent, when set, receives disconnects, reconnects (Duration is the
+	// outage), seq gaps and restarts, and the first rejected payload of each
+	// reason. It is called from paho's and Run's goroutines; it must not block.
+	OnEvent acquire.EventFunc
 
 	Health acquire.Health
+	Late   atomic.Uint64 // blocks that arrived after a higher seq and filled a counted gap
 
 	readyOnce sync.Once
 	ready     chan struct{}
+	subs      atomic.Uint64 // subscriptions established (first one and after each reconnect)
 
-	mu      sync.Mutex
-	queue   []received // bounded FIFO, guarded by mu
-	wake    chan struct{}
-	lastSeq uint64
-	haveSeq bool
-	seen    map[uint64]struct{} // recent seqs, for duplicate detection
+	mu    sync.Mutex
+	queue []received // bounded FIFO, guarded by mu
+	wake  chan struct{}
+
+	link       sync.Mutex // guards the fields below (paho calls back from several goroutines)
+	everUp     bool       // connected at least once
+	downSince  time.Time  // start of the current outage; zero while connected
+	downReason string
+
+	seq seqTracker // used by Run's goroutine only
 }
 
 type received struct {
@@ -48,16 +82,35 @@ type received struct {
 	payload []byte
 }
 
-// seenWindow is how many recent seq values are remembered to spot duplicates:
-// QoS 1 redelivers within the in-flight window, which is far smaller.
-const seenWindow = 4096
+// Missing returns the blocks currently missing: counted in gaps and not
+// (yet) arrived late.
+func (s *Source) Missing() uint64 {
+	g, l := s.Health.Gaps.Load(), s.Late.Load()
+	if l > g {
+		return 0
+	}
+	return g - l
+}
+
+func (s *Source) emit(now time.Time, kind acquire.EventKind, d time.Duration, msg string) {
+	if s.OnEvent != nil {
+		s.OnEvent(acquire.Event{T: now, Source: s.Name, Kind: kind, Duration: d, Message: msg})
+	}
+}
 
 // Run connects (retrying until the broker answers), subscribes at QoS 1 and
-// sends decoded blocks on out until ctx is done. A malformed payload is
-// counted by reason and skipped. Run returns nil when ctx is cancelled.
+// sends decoded blocks on out until ctx is done; it returns nil then. It
+// reconnects and re-subscribes by itself when the link drops. Before the
+// first connection, a refusal that retrying cannot fix (bad credentials, an
+// untrusted certificate) ends Run with an error wrapping ErrRefused.
+// A malformed payload is counted by reason and skipped.
 func (s *Source) Run(ctx context.Context, out chan<- acquire.Block) error {
 	if s.Broker == "" || s.Topic == "" {
 		return fmt.Errorf("mqtt source %q: broker and topic are required", s.Name)
+	}
+	broker, isTLS, err := BrokerURL(s.Broker)
+	if err != nil {
+		return fmt.Errorf("mqtt source %q: %w", s.Name, err)
 	}
 	log := s.Logger
 	if log == nil {
@@ -68,7 +121,6 @@ func (s *Source) Run(ctx context.Context, out chan<- acquire.Block) error {
 		now = time.Now
 	}
 	s.wake = make(chan struct{}, 1)
-	s.seen = make(map[uint64]struct{}, seenWindow)
 	id := s.ClientID
 	if id == "" {
 		id = "liftyard-" + s.Name
@@ -88,50 +140,94 @@ func (s *Source) Run(ctx context.Context, out chan<- acquire.Block) error {
 		default:
 		}
 	}
-	var connects sync.Mutex
-	connected := 0
-	opts := paho.NewClientOptions().
-		AddBroker(s.Broker).SetClientID(id).
-		SetUsername(s.Username).SetPassword(s.Password).
-		SetCleanSession(false).SetOrderMatters(true).
-		SetStore(paho.NewOrderedMemoryStore()).
-		SetConnectRetry(true).SetConnectRetryInterval(time.Second).
-		SetAutoReconnect(true).SetMaxReconnectInterval(5 * time.Second).
-		SetKeepAlive(10 * time.Second).SetPingTimeout(5 * time.Second).
-		SetConnectTimeout(5 * time.Second)
-	opts.SetDefaultPublishHandler(handler)
+	fatal := make(chan error, 1)
+	l := link{broker: broker, clientID: id, username: s.Username, password: s.Password, tls: s.TLS}
+	if isTLS && l.tls == nil {
+		l.tls = &tls.Config{MinVersion: tls.VersionTLS12}
+	}
+	opts := l.options()
+	opts.SetDefaultPublishHandler(handler) // the session backlog arrives before OnConnect re-subscribes
 	opts.SetOnConnectHandler(func(c paho.Client) {
-		connects.Lock()
-		connected++
-		if connected > 1 {
+		t := now()
+		s.link.Lock()
+		again, down, why := s.everUp, s.downSince, s.downReason
+		s.everUp, s.downSince, s.downReason = true, time.Time{}, ""
+		s.link.Unlock()
+		if again {
 			s.Health.Reconnects.Add(1)
+			var d time.Duration
+			if !down.IsZero() {
+				d = t.Sub(down)
+			}
+			log.Info("broker connection back", "source", s.Name, "outage", d)
+			s.emit(t, acquire.EventReconnected, d, fmt.Sprintf("connected to %s again after %s (%s)", broker, d.Round(time.Millisecond), why))
 		}
-		connects.Unlock()
-		t := c.Subscribe(s.Topic, 1, handler)
-		if err := paho.WaitTokenTimeout(t, 5*time.Second); err != nil {
+		tok := c.Subscribe(s.Topic, 1, handler)
+		if err := paho.WaitTokenTimeout(tok, 5*time.Second); err != nil {
 			log.Error("subscribe failed", "source", s.Name, "topic", s.Topic, "err", err)
 			return
 		}
+		if st, ok := tok.(*paho.SubscribeToken); ok {
+			if qos := st.Result()[s.Topic]; qos == 0x80 {
+				log.Error("broker refused the subscription", "source", s.Name, "topic", s.Topic)
+				return
+			}
+		}
+		s.subs.Add(1)
 		s.readyOnce.Do(func() { close(s.readyChan()) })
 	})
-	opts.SetConnectionLostHandler(func(_ paho.Client, err error) {
-		log.Warn("broker connection lost", "source", s.Name, "err", err)
+	// markDown starts an outage at t unless one is running. It returns the
+	// start of the outage and whether this call started it.
+	markDown := func(t time.Time, why string) (time.Time, bool) {
+		s.link.Lock()
+		defer s.link.Unlock()
+		if !s.downSince.IsZero() {
+			if why != "" && s.downReason == "" {
+				s.downReason = why
+			}
+			return s.downSince, false
+		}
+		s.downSince, s.downReason = t, why
+		return t, true
+	}
+	opts.SetReconnectingHandler(func(paho.Client, *paho.ClientOptions) {
+		// Runs before every reconnect attempt, always before OnConnect:
+		// it makes sure the outage has a start even if the lost handler
+		// has not run yet.
+		markDown(now(), "")
 	})
+	opts.SetConnectionLostHandler(func(c paho.Client, err error) {
+		why := "connection lost"
+		if err != nil {
+			why = err.Error()
+		}
+		at := now()
+		if !c.IsConnectionOpen() {
+			// paho runs this handler in its own goroutine, so on a very
+			// quick reconnect it can come after OnConnect: then the outage
+			// is over and must not be restarted.
+			at, _ = markDown(at, why)
+		}
+		log.Warn("broker connection lost", "source", s.Name, "err", why)
+		s.emit(at, acquire.EventDisconnected, 0, fmt.Sprintf("lost %s: %s; reconnecting", broker, why))
+	})
+	opts.SetConnectionNotificationHandler(refusalWatch(broker, fatal, log, func() bool {
+		s.link.Lock()
+		defer s.link.Unlock()
+		return s.everUp
+	}))
 	client := paho.NewClient(opts)
 	client.AddRoute(s.Topic, handler)
-	tok := client.Connect()
+	client.Connect()
 	defer client.Disconnect(250)
-	go func() {
-		<-tok.Done()
-		if err := tok.Error(); err != nil && ctx.Err() == nil {
-			log.Error("broker connect failed", "source", s.Name, "broker", s.Broker, "err", err)
-		}
-	}()
 
 	for {
 		select {
 		case <-ctx.Done():
 			return nil
+		case err := <-fatal:
+			log.Error("broker refused", "source", s.Name, "err", err)
+			return fmt.Errorf("mqtt source %q: %w", s.Name, err)
 		case <-s.wake:
 		}
 		for {
@@ -141,6 +237,7 @@ func (s *Source) Run(ctx context.Context, out chan<- acquire.Block) error {
 				break
 			}
 			r := s.queue[0]
+			s.queue[0] = received{}
 			s.queue = s.queue[1:]
 			s.mu.Unlock()
 			b, ok := s.accept(r, log)
@@ -155,6 +252,11 @@ func (s *Source) Run(ctx context.Context, out chan<- acquire.Block) error {
 		}
 	}
 }
+
+// Subscriptions returns how often the subscription was established: 1 after
+// the first connect, and one more after each reconnect. Blocks published
+// after it went up reach this source.
+func (s *Source) Subscriptions() uint64 { return s.subs.Load() }
 
 // Ready returns a channel that is closed once the first subscription is in
 // place: blocks published after that reach this source.
@@ -180,23 +282,26 @@ func (s *Source) accept(r received, log *slog.Logger) (acquire.Block, bool) {
 		}
 		if s.Health.Rejected(reason) == 0 {
 			log.Warn("rejected payload", "source", s.Name, "reason", reason, "err", err)
+			s.emit(r.at, acquire.EventRejected, 0, fmt.Sprintf("first payload rejected for %s: %v (later ones are counted)", reason, err))
 		}
 		s.Health.Reject(reason)
 		return b, false
 	}
-	if _, dup := s.seen[b.Seq]; dup {
+	v, missing := s.seq.observe(b.Seq, b.T0Us)
+	switch v {
+	case seqDuplicate:
 		s.Health.Duplicates.Add(1)
 		return b, false
-	}
-	if len(s.seen) >= seenWindow {
-		clear(s.seen)
-	}
-	s.seen[b.Seq] = struct{}{}
-	if s.haveSeq && b.Seq > s.lastSeq+1 {
-		s.Health.Gaps.Add(b.Seq - s.lastSeq - 1)
-	}
-	if !s.haveSeq || b.Seq > s.lastSeq {
-		s.lastSeq, s.haveSeq = b.Seq, true
+	case seqJump:
+		s.Health.Gaps.Add(missing)
+		blockLen := time.Duration(int64(b.Len())*b.DtUs) * time.Microsecond
+		d := time.Duration(missing) * blockLen
+		s.emit(r.at, acquire.EventGap, d, fmt.Sprintf("%d block(s) missing before seq %d (about %s of data)", missing, b.Seq, d))
+	case seqLate:
+		s.Late.Add(1)
+	case seqRestart:
+		log.Warn("sender restarted its seq counter", "source", s.Name, "seq", b.Seq)
+		s.emit(r.at, acquire.EventGap, 0, fmt.Sprintf("seq went back to %d: the sender restarted its counter; counting starts over", b.Seq))
 	}
 	b.Received = r.at
 	s.Health.Frames.Add(1)

@@ -1,0 +1,108 @@
+package mqtt
+
+import (
+	"math/rand/v2"
+	"testing"
+)
+
+// Ensure that the seq window classifies arrivals as documented on Source.
+func TestSeqTracker(t *testing.T) {
+	type step struct {
+		seq     uint64
+		t0      int64
+		want    seqVerdict
+		missing uint64
+	}
+	t0 := func(seq uint64) int64 { return int64(seq) * 1000 }
+	s := func(seq uint64, want seqVerdict, missing uint64) step { return step{seq, t0(seq), want, missing} }
+	tests := []struct {
+		name  string
+		steps []step
+	}{
+		{"in order", []step{s(7, seqNext, 0), s(8, seqNext, 0), s(9, seqNext, 0)}},
+		{"duplicate and reorder", []step{
+			s(0, seqNext, 0), s(1, seqNext, 0), s(2, seqNext, 0), s(2, seqDuplicate, 0),
+			s(4, seqJump, 1), s(3, seqLate, 0), s(5, seqNext, 0), s(5, seqDuplicate, 0), s(3, seqDuplicate, 0),
+		}},
+		{"big jump", []step{s(10, seqNext, 0), s(10+SeqWindow+5, seqJump, SeqWindow+4), s(11, seqRestart, 0)}},
+		{"late at the window edge", []step{
+			s(100, seqNext, 0), s(100+SeqWindow-1, seqJump, SeqWindow-2), s(101, seqLate, 0), s(101, seqDuplicate, 0),
+		}},
+		{"far below restarts", []step{s(5000, seqNext, 0), s(0, seqRestart, 0), s(1, seqNext, 0), s(5000, seqJump, 4998)}},
+		{"same seq other time is a restart", []step{
+			s(0, seqNext, 0), s(1, seqNext, 0), s(2, seqNext, 0), {0, 99, seqRestart, 0}, {1, 100, seqNext, 0}, {1, 100, seqDuplicate, 0},
+		}},
+		{"below the first seq is early, not late", []step{s(10, seqNext, 0), s(12, seqJump, 1), s(8, seqEarly, 0), s(8, seqDuplicate, 0), s(11, seqLate, 0)}},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			var w seqTracker
+			for i, st := range tt.steps {
+				v, missing := w.observe(st.seq, st.t0)
+				if v != st.want || missing != st.missing {
+					t.Fatalf("step %d (seq %d): got verdict %d missing %d, want %d missing %d", i, st.seq, v, missing, st.want, st.missing)
+				}
+			}
+		})
+	}
+}
+
+// Ensure that whatever the order and repetition of arrivals within the
+// window, each seq is accepted exactly once and the gaps counted minus the
+// late arrivals equal the seqs never seen.
+func TestSeqTracker_ShuffledWithRepeats(t *testing.T) {
+	rng := rand.New(rand.NewPCG(1, 2))
+	for trial := range 50 {
+		const n = 500
+		var arrivals []uint64
+		for seq := range uint64(n) {
+			if rng.IntN(10) == 0 {
+				continue // lost
+			}
+			for range 1 + rng.IntN(3) { // up to 3 copies
+				arrivals = append(arrivals, seq)
+			}
+		}
+		// Local disorder: swap neighbours within 40 places.
+		for i := range arrivals {
+			j := i + rng.IntN(40)
+			if j < len(arrivals) {
+				arrivals[i], arrivals[j] = arrivals[j], arrivals[i]
+			}
+		}
+		var w seqTracker
+		accepted := map[uint64]int{}
+		var gaps, late uint64
+		hi := arrivals[0]
+		for _, seq := range arrivals {
+			v, missing := w.observe(seq, int64(seq))
+			switch v {
+			case seqDuplicate:
+				continue
+			case seqRestart:
+				t.Fatalf("trial %d: restart at seq %d inside the window", trial, seq)
+			case seqJump:
+				gaps += missing
+			case seqLate:
+				late++
+			}
+			accepted[seq]++
+			hi = max(hi, seq)
+		}
+		for seq, k := range accepted {
+			if k != 1 {
+				t.Fatalf("trial %d: seq %d accepted %d times", trial, seq, k)
+			}
+		}
+		// Never seen between the first arrival and the highest seq.
+		var never uint64
+		for seq := arrivals[0]; seq <= hi; seq++ {
+			if accepted[seq] == 0 {
+				never++
+			}
+		}
+		if gaps-late != never {
+			t.Fatalf("trial %d: gaps %d − late %d = %d, want %d never seen", trial, gaps, late, gaps-late, never)
+		}
+	}
+}
