@@ -468,3 +468,22 @@ func TestSource_FullQueueDropsOldest(t *testing.T) {
 	cancel()
 	assert.NoError(t, <-done)
 }
+
+// Ensure that a wild seq jump is counted in full but gives no nonsense
+// duration, and that a counter restart is reported and recording goes on.
+func TestSource_WildJumpAndRestart(t *testing.T) {
+	br := brokerKinds[0].start(t)
+	ctx, cancel := context.WithTimeout(t.Context(), 15*time.Second)
+	defer cancel()
+	r := runSource(t, ctx, &mqtt.Source{Name: "s", Broker: br.URL(), Topic: "wild/raw", ClientID: "wild-sub"})
+	c := rawClient(t, br.URL(), "wild-pub")
+	const far = 1 << 62
+	publishRaw(t, c, "wild/raw", 0, far, 1, 2)
+	assert.Equal(t, []uint64{0, far, 1, 2}, r.next(t, ctx, 4))
+	assert.Equal(t, uint64(far-1), r.src.Health.Gaps.Load())
+	gaps := r.ev.of(acquire.EventGap)
+	require.Len(t, gaps, 2)
+	assert.Zero(t, gaps[0].Duration, "a jump too long for a Duration has an unknown duration")
+	assert.Contains(t, gaps[1].Message, "restarted its counter")
+	assert.Zero(t, r.src.Health.Duplicates.Load())
+}

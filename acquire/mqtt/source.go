@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"log/slog"
+	"math"
 	"sync"
 	"sync/atomic"
 	"time"
@@ -294,8 +295,13 @@ func (s *Source) accept(r received, log *slog.Logger) (acquire.Block, bool) {
 		return b, false
 	case seqJump:
 		s.Health.Gaps.Add(missing)
-		blockLen := time.Duration(int64(b.Len())*b.DtUs) * time.Microsecond
-		d := time.Duration(missing) * blockLen
+		// Duration: missing × this block's length, 0 (unknown) if that
+		// does not fit in a Duration (a wild jump).
+		var d time.Duration
+		if blockUs := int64(b.Len()) * b.DtUs; blockUs > 0 && b.DtUs < math.MaxInt64/int64(b.Len()) &&
+			missing < uint64(math.MaxInt64/blockUs/int64(time.Microsecond)) {
+			d = time.Duration(missing) * time.Duration(blockUs) * time.Microsecond
+		}
 		s.emit(r.at, acquire.EventGap, d, fmt.Sprintf("%d block(s) missing before seq %d (about %s of data)", missing, b.Seq, d))
 	case seqLate:
 		s.Late.Add(1)
