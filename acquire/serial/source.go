@@ -234,9 +234,13 @@ func (s *Source) Run(ctx context.Context, out chan<- acquire.Block) error {
 		q.max = DefaultQueueBlocks
 	}
 	r.queue = q
+	// The forwarder outlives the read loop: it stops only after the loop's
+	// last flush, so the block being filled when ctx ends is still sent.
+	fctx, stopForward := context.WithCancel(context.WithoutCancel(ctx))
 	var wg sync.WaitGroup
-	wg.Go(func() { q.forward(ctx, out) })
+	wg.Go(func() { q.forward(fctx, out) })
 	defer wg.Wait()
+	defer stopForward()
 	defer cancel()
 
 	minWait, maxWait := s.BackoffMin, s.BackoffMax
@@ -402,10 +406,15 @@ func (q *blockQueue) drain(out chan<- acquire.Block) {
 	}
 }
 
+// tryHand sends one of the last blocks at shutdown. The consumer reads until
+// every source has returned, so a short wait suffices; past it the block is
+// dropped and counted rather than hanging the shutdown.
 func (q *blockQueue) tryHand(out chan<- acquire.Block, b acquire.Block) {
+	t := time.NewTimer(time.Second)
+	defer t.Stop()
 	select {
 	case out <- b:
-	default:
+	case <-t.C:
 		q.health.SamplesDropped.Add(uint64(b.Len()))
 	}
 }
