@@ -32,7 +32,8 @@ type Health struct {
 	SamplesDropped atomic.Uint64 // sample times dropped because a queue was full
 	BlocksDropped  atomic.Uint64 // whole messages dropped undecoded because a queue was full
 	Duplicates     atomic.Uint64 // blocks dropped as duplicates (same seq seen)
-	Gaps           atomic.Uint64 // jumps in seq (missing blocks)
+	Gaps           atomic.Uint64 // blocks found missing at jumps in seq (only increases)
+	Late           atomic.Uint64 // missing blocks that arrived later and filled a counted gap
 	Reconnects     atomic.Uint64 // re-established connections
 	rejected       [numReasons]atomic.Uint64
 }
@@ -63,6 +64,7 @@ type HealthSnapshot struct {
 	BlocksDropped  uint64            `json:"blocks_dropped"`
 	Duplicates     uint64            `json:"duplicates"`
 	Gaps           uint64            `json:"gaps"`
+	Late           uint64            `json:"late"`
 	Reconnects     uint64            `json:"reconnects"`
 }
 
@@ -76,6 +78,7 @@ func (h *Health) Snapshot(source string) HealthSnapshot {
 		BlocksDropped:  h.BlocksDropped.Load(),
 		Duplicates:     h.Duplicates.Load(),
 		Gaps:           h.Gaps.Load(),
+		Late:           h.Late.Load(),
 		Reconnects:     h.Reconnects.Load(),
 	}
 	for r := Reason(0); r < numReasons; r++ {

@@ -9,7 +9,7 @@
 // the broker queues blocks while we are away. QoS 1 means at least once:
 // duplicates are normal and are dropped by the payload's seq; jumps in seq are
 // counted as gaps, and late blocks that fill a gap are counted in
-// Source.Late (the Source doc has the rules). The paho message handler never
+// Health.Late (the Source doc has the rules). The paho message handler never
 // blocks: it copies the payload into a bounded queue and, when that is full,
 // drops the oldest entry and counts it in Health.BlocksDropped (the reader
 // must keep reading the socket or the broker link dies).

@@ -348,7 +348,7 @@ func TestDuplicatesAndOutOfOrder(t *testing.T) {
 			assert.Equal(t, uint64(7), h.Frames)
 			assert.Equal(t, uint64(2), h.Duplicates)
 			assert.Equal(t, uint64(1), h.Gaps, "gap counted at the jump 2→4")
-			assert.Equal(t, uint64(1), r.src.Late.Load(), "seq 3 came late")
+			assert.Equal(t, uint64(1), r.src.Health.Late.Load(), "seq 3 came late")
 			assert.Zero(t, r.src.Missing())
 			assert.Equal(t, uint64(2), h.Rejected)
 			assert.Equal(t, map[string]uint64{"parse": 2}, h.RejectedBy)

@@ -60,7 +60,6 @@ type Source struct {
 	OnEvent acquire.EventFunc
 
 	Health acquire.Health
-	Late   atomic.Uint64 // blocks that arrived after a higher seq and filled a counted gap
 
 	readyOnce sync.Once
 	ready     chan struct{}
@@ -86,7 +85,7 @@ type received struct {
 // Missing returns the blocks currently missing: counted in gaps and not
 // (yet) arrived late.
 func (s *Source) Missing() uint64 {
-	g, l := s.Health.Gaps.Load(), s.Late.Load()
+	g, l := s.Health.Gaps.Load(), s.Health.Late.Load()
 	if l > g {
 		return 0
 	}
@@ -304,7 +303,7 @@ func (s *Source) accept(r received, log *slog.Logger) (acquire.Block, bool) {
 		}
 		s.emit(r.at, acquire.EventGap, d, fmt.Sprintf("%d block(s) missing before seq %d (about %s of data)", missing, b.Seq, d))
 	case seqLate:
-		s.Late.Add(1)
+		s.Health.Late.Add(1)
 	case seqRestart:
 		log.Warn("sender restarted its seq counter", "source", s.Name, "seq", b.Seq)
 		s.emit(r.at, acquire.EventGap, 0, fmt.Sprintf("seq went back to %d: the sender restarted its counter; counting starts over", b.Seq))
