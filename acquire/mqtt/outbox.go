@@ -42,7 +42,9 @@ type Outbox struct {
 	init sync.Once
 	mu   sync.Mutex
 	q    []outMsg // FIFO, guarded by mu
-	wake chan struct{}
+	// sending is set while a message taken from q awaits its ack (guarded by mu).
+	sending bool
+	wake    chan struct{}
 }
 
 type outMsg struct {
@@ -84,11 +86,16 @@ func (o *Outbox) Offer(topic string, payload []byte) bool {
 	return ok
 }
 
-// Pending returns the number of messages waiting in the queue.
+// Pending returns the number of messages waiting in the queue, plus the one
+// being published until the broker has acknowledged it.
 func (o *Outbox) Pending() int {
 	o.mu.Lock()
 	defer o.mu.Unlock()
-	return len(o.q)
+	n := len(o.q)
+	if o.sending {
+		n++
+	}
+	return n
 }
 
 // Run connects (retrying until the broker answers, and reconnecting when
@@ -152,6 +159,7 @@ func (o *Outbox) Run(ctx context.Context) error {
 			m = o.q[0]
 			o.q[0] = outMsg{}
 			o.q = o.q[1:]
+			o.sending = true
 		}
 		o.mu.Unlock()
 		if !have {
@@ -164,8 +172,10 @@ func (o *Outbox) Run(ctx context.Context) error {
 			continue
 		}
 		t := client.Publish(m.topic, 1, false, m.payload)
+		done := func() { o.mu.Lock(); o.sending = false; o.mu.Unlock() }
 		select {
 		case <-t.Done():
+			done()
 			if err := t.Error(); err != nil {
 				o.Failed.Add(1)
 				log.Error("outbox publish failed", "topic", m.topic, "err", err)
@@ -173,6 +183,7 @@ func (o *Outbox) Run(ctx context.Context) error {
 			}
 			o.Published.Add(1)
 		case <-time.After(publishWait):
+			done()
 			// Still in paho's ordered store: it goes out after a reconnect.
 			log.Warn("outbox: no ack yet; paho resends after a reconnect", "topic", m.topic)
 		case <-ctx.Done():

@@ -32,6 +32,10 @@ const rawQueue = 64
 // on an SD card before the oldest blocks are dropped (and counted).
 const storeQueue = 1024
 
+// outboxGrace is how long a finished recording waits for its last results
+// to reach the site broker before giving up on them.
+const outboxGrace = 2 * time.Second
+
 // livePeriod is how often the dashboard gets a new live estimate: 5 Hz is
 // smooth to watch and costs little.
 const livePeriod = 200 * time.Millisecond
@@ -212,6 +216,7 @@ func (m *Main) Run(ctx context.Context) error {
 	// outbox that never makes the recorder wait.
 	var outbox *mqtt.Outbox
 	var outboxDone chan error
+	stopOut := func() {}
 	publish := func(string, []byte) {}
 	if p := m.Rig.Publish; p != nil {
 		if outbox, err = mqtt.OutboxFromRig(*p, m.Rig.Name, os.Getenv); err != nil {
@@ -219,8 +224,13 @@ func (m *Main) Run(ctx context.Context) error {
 		}
 		outbox.Logger = log
 		outboxDone = make(chan error, 1)
+		// The outbox outlives the recording briefly, to send the last
+		// segment and health (see outboxGrace).
+		outCtx, stopOutbox := context.WithCancel(context.WithoutCancel(ctx))
+		defer stopOutbox()
+		stopOut = stopOutbox
 		go func() {
-			err := outbox.Run(ctx)
+			err := outbox.Run(outCtx)
 			if err != nil {
 				log.Error("publishing live results stopped", "broker", p.Broker, "err", err)
 			}
@@ -303,6 +313,15 @@ loop:
 	}
 	final := health()
 	dash.PublishHealth(final)
+	publish("health", dashboard.EncodeHealth(final))
+	if outbox != nil {
+		// Give the site broker a moment to take the last results.
+		deadline := time.Now().Add(outboxGrace)
+		for outbox.Pending() > 0 && time.Now().Before(deadline) {
+			time.Sleep(20 * time.Millisecond)
+		}
+		stopOut()
+	}
 	close(items)
 	werr := <-writerErr
 	status := storage.StatusComplete
@@ -321,7 +340,7 @@ loop:
 	stopDash()
 	derr := <-dashErr
 	if outboxDone != nil {
-		<-outboxDone // ctx is done: the outbox stops
+		<-outboxDone
 	}
 	return errors.Join(runErr, werr, ferr, derr)
 }
