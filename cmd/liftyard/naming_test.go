@@ -32,6 +32,9 @@ var dimensionless = map[string]bool{
 	"X": true, "U": true, "Dof": true, "NEff": true, "Sensitivity": true, "UY": true,
 	// raw readings are in the instrument's own units (counts, mV)
 	"RawMin": true, "RawMax": true,
+	// calibration records carry the unit in their Unit field (as the rig
+	// file's channel does): values "in Unit"
+	"Applied": true, "Reading": true, "ReferenceU": true, "ResidualSD": true,
 	// unit conversion factors
 	"Scale": true, "Offset": true,
 }
@@ -106,7 +109,7 @@ func isQuantityType(e ast.Expr) bool {
 // dimensionlessSuffixes end names of dimensionless quantities: degrees of
 // freedom, fractions, coefficients. "SI" ends a value in the SI unit of its
 // channel's quantity (N for a force channel, Pa for a pressure channel).
-var dimensionlessSuffixes = []string{"Dof", "Frac", "Coeff", "SI"}
+var dimensionlessSuffixes = []string{"Dof", "Frac", "Coeff", "SI", "PctFS"}
 
 func hasUnit(name string) bool {
 	if dimensionless[name] {
