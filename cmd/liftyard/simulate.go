@@ -42,6 +42,9 @@ func runSimulate(ctx context.Context, args []string, stdout, stderr io.Writer) e
 	if err != nil {
 		return err
 	}
+	if r.Kind == rig.KindRoof {
+		return fmt.Errorf("simulate %q: roof rigs (pressure taps) are not simulated yet; the simulator drives rigs with a force balance (foil, body)", r.Name)
+	}
 	fluid, err := estimate.Properties(r.Fluid, r.Conditions)
 	if err != nil {
 		return err
