@@ -26,7 +26,16 @@ type Config struct {
 	Foil                Foil          // true foil model (defaults: see Foil)
 	NoiseFrac           float64       // load-cell noise as a fraction of capacity, default 2e-4
 	Seed                uint64        // random seed (0 is a valid seed)
-	Start               time.Time     // device clock at the first sample (default: Now at Run, or the Unix epoch for Next)
+	// FlowOffBefore is a flow-off stretch (carriage at rest, q = 0) before
+	// the sweep starts, for a flow-off zero. 0: the flow is on from the start.
+	FlowOffBefore time.Duration
+	// Sweeps is the number of up-and-down sweeps after which the flow goes
+	// off for good (for a flow-off zero at the end). 0: sweep for ever.
+	Sweeps int
+	// ZeroDriftNPerS makes every load cell's zero drift linearly, N/s, as a
+	// warming bridge does: the flow-off zeros before and after show it.
+	ZeroDriftNPerS float64
+	Start          time.Time // device clock at the first sample (default: Now at Run, or the Unix epoch for Next)
 }
 
 // Foil is the simulator's true foil. Invented numbers: they describe no real
@@ -94,11 +103,10 @@ type Rig struct {
 	pitotC   float64
 	channels []string
 
-	n      int64   // samples generated so far
-	seq    uint64  // blocks generated so far
-	turb   float64 // AR(1) state of u′/U
-	t0Us   int64
-	sweepS float64 // length of one sweep, s
+	n    int64   // samples generated so far
+	seq  uint64  // blocks generated so far
+	turb float64 // AR(1) state of u′/U
+	t0Us int64
 }
 
 type chanInv struct {
@@ -220,7 +228,6 @@ func New(r *rig.Rig, cfg Config, rhoKgPerM3 float64) (*Rig, error) {
 	if s.temp, err = look(r.Lift.Temperature); err != nil {
 		return nil, err
 	}
-	s.sweepS = float64(len(cfg.StepsDeg)) * (cfg.Hold + cfg.Move).Seconds()
 	return s, nil
 }
 
@@ -243,8 +250,18 @@ func (s *Rig) Foil() Foil { return s.cfg.Foil }
 // Config returns the configuration with defaults filled in.
 func (s *Rig) Config() Config { return s.cfg }
 
+// SweepS returns the length of one up-and-down sweep, s.
+func (s *Rig) SweepS() float64 {
+	n := len(s.cfg.StepsDeg)
+	if n > 1 {
+		n = 2*n - 2
+	}
+	return float64(n) * (s.cfg.Hold + s.cfg.Move).Seconds()
+}
+
 // AngleAt returns the commanded angle of attack at time t (seconds since the
-// first sample) and whether the rig is holding a step (not moving).
+// sweep started: the first sample, unless FlowOffBefore delays it) and
+// whether the rig is holding a step (not moving).
 // The sweep runs up through the steps and back down, and repeats.
 func (s *Rig) AngleAt(tS float64) (alphaRad float64, holding bool) {
 	steps := s.cfg.StepsDeg
@@ -302,7 +319,13 @@ func (s *Rig) Next() acquire.Block {
 		tS := float64(s.n) * dtS
 		s.turb = phi*s.turb + innov*s.rng.NormFloat64()
 		q := s.cfg.QPa * (1 + s.turb) * (1 + s.turb)
-		alpha, _ := s.AngleAt(tS)
+		sweepT := tS - s.cfg.FlowOffBefore.Seconds()
+		if sweepT < 0 || (s.cfg.Sweeps > 0 && sweepT >= float64(s.cfg.Sweeps)*s.SweepS()) {
+			q = 0 // flow off: carriage at rest
+			sweepT = max(sweepT, 0)
+		}
+		alpha, _ := s.AngleAt(sweepT)
+		zero := s.cfg.ZeroDriftNPerS * tS
 		cl, cd := s.cfg.Foil.Truth(alpha)
 		lift, drag := cl*q*s.areaM2, cd*q*s.areaM2
 		normal := lift*math.Cos(alpha) + drag*math.Sin(alpha)
@@ -313,10 +336,10 @@ func (s *Rig) Next() acquire.Block {
 			col++
 		}
 		for k := range s.normal {
-			put(&s.normal[k], normal*s.shares[k])
+			put(&s.normal[k], normal*s.shares[k]+zero)
 		}
 		for k := range s.axial {
-			put(&s.axial[k], axial/float64(len(s.axial)))
+			put(&s.axial[k], axial/float64(len(s.axial))+zero)
 		}
 		if s.pitot != nil {
 			put(s.pitot, q/(s.pitotC*s.pitotC)) // the probe reads Δp = q/C²

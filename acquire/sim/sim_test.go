@@ -131,3 +131,33 @@ func TestRig_SweepAndClock(t *testing.T) {
 	assert.Equal(t, b0.T0Us+20*5000, b1.T0Us)
 	assert.Equal(t, uint64(1), b1.Seq)
 }
+
+// Ensure that the flow is off before the sweep and after the last sweep
+// (q = 0, loads at their zero), and that the load cells' zero drifts at the
+// configured rate: the inputs a flow-off zero and drift correction need.
+func TestRig_FlowOffAndZeroDrift(t *testing.T) {
+	r := testRig()
+	s, err := sim.New(r, sim.Config{QPa: 2000, StepsDeg: []float64{0, 4}, Hold: time.Second, Move: time.Second,
+		FlowOffBefore: time.Second, Sweeps: 1, ZeroDriftNPerS: 0.25, NoiseFrac: 1e-9, TurbulenceIntensity: 1e-9}, 0)
+	require.NoError(t, err)
+	cal, err := calibrate.NewCalibrator(r)
+	require.NoError(t, err)
+	// One sweep of 2 steps is 2 × (1 s + 1 s) = 4 s; then the flow is off.
+	require.InDelta(t, 4.0, s.SweepS(), 1e-12)
+	var qs, ns []float64
+	for range 70 { // 7 s
+		raw := s.Next()
+		b := cal.Apply(&raw)
+		qs = append(qs, b.Find("pitot").Values...)
+		for i := range b.Len() {
+			ns = append(ns, b.Find("n_fore").Values[i]+b.Find("n_aft").Values[i])
+		}
+	}
+	sample := func(tS float64) int { return int(tS * 200) }
+	assert.InDelta(t, 0, qs[sample(0.5)], 1e-3, "flow off before the sweep")
+	assert.InDelta(t, 2000, qs[sample(1.5)], 1, "flow on during the sweep")
+	assert.InDelta(t, 0, qs[sample(6.5)], 1e-3, "flow off after the last sweep")
+	// With the flow off the normal load is just the two drifted zeros.
+	assert.InDelta(t, 2*0.25*0.5, ns[sample(0.5)], 0.01)
+	assert.InDelta(t, 2*0.25*6.5, ns[sample(6.5)], 0.01)
+}
