@@ -24,6 +24,10 @@ type Config struct {
 	// Now gives the host clock; Live uses it to warn when no block has
 	// arrived for a while (default time.Now).
 	Now func() time.Time
+	// Design, when set, is the design lift curve: each segment gets its
+	// DesignCL and En (DesignAt). The caller loads it (estimate does no
+	// I/O): a DesignCurve from the rig's [lift] design CSV, or ThinAirfoil.
+	Design Design
 }
 
 // ErrRig is returned by NewEstimator when the rig lacks what the estimator
@@ -410,7 +414,20 @@ func (e *Estimator) reduceBuf(buf *sampleBuf) (Segment, bool) {
 	if omega := nanMean(buf.spinRadPerS); !math.IsNaN(omega) && e.rig.Reference.RadiusM > 0 && p.SpeedMPerS.X != 0 {
 		seg.SpinRatio = omega * e.rig.Reference.RadiusM / math.Abs(p.SpeedMPerS.X)
 	}
+	seg.Fn = e.froude(p.SpeedMPerS.X)
+	if dv, en, ok := DesignAt(e.cfg.Design, seg.AlphaRad, seg.CL); ok {
+		seg.DesignCL, seg.En = dv, en
+	}
 	return seg, true
+}
+
+// froude is the Froude number on the reference length for water rigs (a
+// body near a free surface); 0 for air rigs or without a length.
+func (e *Estimator) froude(speedMPerS float64) float64 {
+	if e.rig.Fluid == rig.FluidAir || !(e.rig.Reference.LengthM > 0) || !finite(speedMPerS) {
+		return 0
+	}
+	return Froude(speedMPerS, e.rig.Reference.LengthM)
 }
 
 // window builds the Reduce input from a sample buffer.
@@ -451,7 +468,7 @@ func (e *Estimator) Live() (lv Live, ok bool) {
 	lv = Live{
 		T: time.UnixMicro(e.lastTUs).UTC(), Window: e.cfg.Window, N: p.N,
 		AlphaRad: p.AlphaRad, QPa: p.QPa, SpeedMPerS: p.SpeedMPerS, RhoKgPerM3: fl.RhoKgPerM3,
-		Re: p.Re, LiftN: p.LiftN, DragN: p.DragN, CL: p.CL, CD: p.CD,
+		Re: p.Re, Fn: e.froude(p.SpeedMPerS.X), LiftN: p.LiftN, DragN: p.DragN, CL: p.CL, CD: p.CD,
 		Steady: e.det.state == stSteady && e.seg.len() > 0, Segments: e.segments,
 	}
 	if flErr != nil {

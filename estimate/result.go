@@ -31,6 +31,7 @@ type Segment struct {
 	RhoKgPerM3 float64
 	MuPaS      float64
 	Re         float64 // Reynolds number on Reference.LengthM
+	Fn         float64 // Froude number V/√(g·L) on Reference.LengthM, water rigs only; 0 otherwise
 	LiftN      calibrate.Value
 	DragN      calibrate.Value
 	CL         calibrate.Value
@@ -53,6 +54,7 @@ type Live struct {
 	SpeedMPerS calibrate.Value
 	RhoKgPerM3 float64
 	Re         float64
+	Fn         float64 // Froude number V/√(g·L), water rigs only; 0 otherwise
 	LiftN      calibrate.Value
 	DragN      calibrate.Value
 	CL         calibrate.Value

@@ -1,0 +1,408 @@
+package estimate
+
+import (
+	"encoding/csv"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"sort"
+	"strconv"
+	"strings"
+
+	"liftyard/calibrate"
+)
+
+// Design gives the design (predicted) lift coefficient of a body at an angle
+// of attack. Implementations are immutable and safe for concurrent use.
+type Design interface {
+	// At returns the design C_L at α (rad) as a Value holding its standard
+	// uncertainty, the local design slope dC_L/dα per rad, and ok = false
+	// when the design has no value at α (outside a curve's range).
+	At(alphaRad float64) (cl calibrate.Value, slopePerRad float64, ok bool)
+	// Describe says in a few words what the design is, for reports.
+	Describe() string
+}
+
+// ErrDesignCurve is returned (wrapped in a *DesignCurveError) when a design
+// curve CSV cannot be read.
+var ErrDesignCurve = errors.New("bad design curve")
+
+// DesignCurveError is a positioned error in a design curve CSV, printed as
+// `foil.csv:4: column "cl": "x" is not a number`.
+type DesignCurveError struct {
+	Name   string // file name as given to ParseDesignCurve
+	Line   int    // 1-based line; 0 for the whole file
+	Column string // column name, when one is at fault
+	Msg    string
+}
+
+func (e *DesignCurveError) Error() string {
+	var b strings.Builder
+	b.WriteString(e.Name)
+	if e.Line > 0 {
+		fmt.Fprintf(&b, ":%d", e.Line)
+	}
+	b.WriteString(": ")
+	if e.Column != "" {
+		fmt.Fprintf(&b, "column %q: ", e.Column)
+	}
+	b.WriteString(e.Msg)
+	return b.String()
+}
+
+func (e *DesignCurveError) Unwrap() error { return ErrDesignCurve }
+
+// DesignCurve is a design lift curve given as points, interpolated linearly
+// in α. It gives no value outside its first and last angle: a design is not
+// extrapolated.
+type DesignCurve struct {
+	Name     string    // where the curve came from (file name)
+	AlphaRad []float64 // strictly increasing
+	CL       []float64
+	CLU95    []float64 // expanded (95 %) uncertainty of each C_L; zeros when the file has none
+}
+
+// ParseDesignCurve reads a design curve CSV:
+//
+//	alpha_deg,cl[,cl_u95]
+//	-4,-0.21,0.02
+//	0,0.16,0.02
+//
+// A header row is required; its columns may come in any order and other
+// columns are ignored. Rows may come in any order and are sorted by angle;
+// two rows at the same angle, a non-number, a negative cl_u95 or fewer than
+// two rows is an error that names the line (and column). name labels
+// errors, e.g. the file name.
+func ParseDesignCurve(r io.Reader, name string) (*DesignCurve, error) {
+	cr := csv.NewReader(r)
+	cr.FieldsPerRecord = -1
+	cr.TrimLeadingSpace = true
+	cr.Comment = '#'
+	fail := func(line int, col, format string, args ...any) error {
+		return &DesignCurveError{Name: name, Line: line, Column: col, Msg: fmt.Sprintf(format, args...)}
+	}
+	header, err := cr.Read()
+	if err == io.EOF {
+		return nil, fail(0, "", "empty file: want a header alpha_deg,cl[,cl_u95] and at least two rows")
+	}
+	if err != nil {
+		return nil, csvFail(name, err)
+	}
+	iA, iC, iU := -1, -1, -1
+	for i, h := range header {
+		switch strings.ToLower(strings.TrimSpace(strings.TrimPrefix(h, "\ufeff"))) {
+		case "alpha_deg":
+			iA = i
+		case "cl":
+			iC = i
+		case "cl_u95":
+			iU = i
+		}
+	}
+	line, _ := cr.FieldPos(0)
+	if iA < 0 || iC < 0 {
+		return nil, fail(line, "", "header %q lacks alpha_deg and cl (want alpha_deg,cl[,cl_u95])", strings.Join(header, ","))
+	}
+	type row struct {
+		a, c, u float64
+		line    int
+	}
+	var rows []row
+	for {
+		rec, err := cr.Read()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			return nil, csvFail(name, err)
+		}
+		line, _ := cr.FieldPos(0)
+		num := func(i int, col string) (float64, error) {
+			if i >= len(rec) {
+				return 0, fail(line, col, "missing (the row has %d fields)", len(rec))
+			}
+			s := strings.TrimSpace(rec[i])
+			v, err := strconv.ParseFloat(s, 64)
+			if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+				return 0, fail(line, col, "%q is not a number", s)
+			}
+			return v, nil
+		}
+		var rw row
+		rw.line = line
+		if rw.a, err = num(iA, "alpha_deg"); err != nil {
+			return nil, err
+		}
+		if rw.c, err = num(iC, "cl"); err != nil {
+			return nil, err
+		}
+		if iU >= 0 {
+			if rw.u, err = num(iU, "cl_u95"); err != nil {
+				return nil, err
+			}
+			if rw.u < 0 {
+				return nil, fail(line, "cl_u95", "%g is negative (an expanded uncertainty is ≥ 0)", rw.u)
+			}
+		}
+		rows = append(rows, rw)
+	}
+	if len(rows) < 2 {
+		return nil, fail(0, "", "%d data rows: a design curve needs at least two", len(rows))
+	}
+	sort.SliceStable(rows, func(i, j int) bool { return rows[i].a < rows[j].a })
+	d := &DesignCurve{Name: name}
+	for i, rw := range rows {
+		if i > 0 && rw.a == rows[i-1].a {
+			return nil, fail(rw.line, "alpha_deg", "angle %g° is given twice (also on line %d)", rw.a, rows[i-1].line)
+		}
+		d.AlphaRad = append(d.AlphaRad, rw.a*math.Pi/180)
+		d.CL = append(d.CL, rw.c)
+		d.CLU95 = append(d.CLU95, rw.u)
+	}
+	return d, nil
+}
+
+func csvFail(name string, err error) error {
+	var pe *csv.ParseError
+	if errors.As(err, &pe) {
+		return &DesignCurveError{Name: name, Line: pe.Line, Msg: pe.Err.Error()}
+	}
+	return &DesignCurveError{Name: name, Msg: err.Error()}
+}
+
+// At interpolates linearly between the two rows around α; outside the
+// curve it returns ok = false. The uncertainty is interpolated the same
+// way and returned as a standard uncertainty (U95/1.96, ν = +Inf).
+func (d *DesignCurve) At(alphaRad float64) (calibrate.Value, float64, bool) {
+	n := len(d.AlphaRad)
+	if n < 2 || !(alphaRad >= d.AlphaRad[0] && alphaRad <= d.AlphaRad[n-1]) {
+		return calibrate.Value{}, 0, false
+	}
+	i := sort.SearchFloat64s(d.AlphaRad, alphaRad) // AlphaRad[i-1] < α ≤ AlphaRad[i]
+	if i == 0 {
+		i = 1
+	}
+	a0, a1 := d.AlphaRad[i-1], d.AlphaRad[i]
+	f := (alphaRad - a0) / (a1 - a0)
+	slope := (d.CL[i] - d.CL[i-1]) / (a1 - a0)
+	cl := d.CL[i-1] + f*(d.CL[i]-d.CL[i-1])
+	u95 := d.CLU95[i-1] + f*(d.CLU95[i]-d.CLU95[i-1])
+	return calibrate.Value{X: cl, U: u95 / calibrate.K95(math.Inf(1)), Dof: math.Inf(1)}, slope, true
+}
+
+// Describe implements Design.
+func (d *DesignCurve) Describe() string {
+	n := len(d.AlphaRad)
+	if n == 0 {
+		return "design curve (empty)"
+	}
+	return fmt.Sprintf("design curve %s (%d points, %.1f° to %.1f°)", d.Name, n, deg(d.AlphaRad[0]), deg(d.AlphaRad[n-1]))
+}
+
+// HelmboldBelowAspectRatio is where ThinAirfoil switches from Prandtl's
+// lifting line to Helmbold's formula. Lifting-line theory assumes a long
+// wing and overstates the slope of short ones; Helmbold's formula was made
+// for low aspect ratios and joins the lifting-line value as AR grows (at
+// AR = 4 with a0 = 2π the two differ by 3 %). The switch at 4 is common
+// practice (the "AR below about 4" limit of lifting-line theory in
+// Anderson, Fundamentals of Aerodynamics, ch. 5: from memory).
+const HelmboldBelowAspectRatio = 4.0
+
+// ThinAirfoil is a design lift curve from theory: the section slope of
+// thin-airfoil theory, 2π per radian, corrected for finite span by
+// Prandtl's lifting line (elliptic loading) or, below aspect ratio
+// HelmboldBelowAspectRatio, by Helmbold's formula; C_L = a·(α − α_L0). It
+// has no stall: above the stall the measurement leaves it, and Compare says
+// so. AspectRatio 0 (or less) means a two-dimensional section (no span
+// correction).
+type ThinAirfoil struct {
+	AspectRatio  float64
+	AlphaZeroRad float64 // zero-lift angle (0 for a symmetric section)
+}
+
+// SlopePerRad returns the design lift-curve slope.
+func (t ThinAirfoil) SlopePerRad() float64 {
+	switch {
+	case !(t.AspectRatio > 0):
+		return ThinAirfoilSlopePerRad
+	case t.AspectRatio < HelmboldBelowAspectRatio:
+		return HelmboldSlope(ThinAirfoilSlopePerRad, t.AspectRatio)
+	default:
+		return LiftingLineSlope(ThinAirfoilSlopePerRad, t.AspectRatio)
+	}
+}
+
+// At implements Design: a value at every angle, exact (U = 0).
+func (t ThinAirfoil) At(alphaRad float64) (calibrate.Value, float64, bool) {
+	a := t.SlopePerRad()
+	return calibrate.Value{X: a * (alphaRad - t.AlphaZeroRad), U: 0, Dof: math.Inf(1)}, a, true
+}
+
+// Describe implements Design.
+func (t ThinAirfoil) Describe() string {
+	switch {
+	case !(t.AspectRatio > 0):
+		return fmt.Sprintf("thin-airfoil theory, 2π/rad, α_L0 = %.2f°", deg(t.AlphaZeroRad))
+	case t.AspectRatio < HelmboldBelowAspectRatio:
+		return fmt.Sprintf("thin-airfoil 2π/rad with Helmbold's correction for AR %.2f: %.3f/rad, α_L0 = %.2f°", t.AspectRatio, t.SlopePerRad(), deg(t.AlphaZeroRad))
+	}
+	return fmt.Sprintf("thin-airfoil 2π/rad with lifting-line correction for AR %.2f: %.3f/rad, α_L0 = %.2f°", t.AspectRatio, t.SlopePerRad(), deg(t.AlphaZeroRad))
+}
+
+// DesignAt returns the design value at a measured point and the normalised
+// error of the measurement against it,
+//
+//	En = (C_L,m − C_L,d)/√(U_m² + U_d²)   (DESIGN §4)
+//
+// where U_d also carries the angle's uncertainty through the design slope:
+// U_d² = U95(C_L,d)² + (dC_L,d/dα · U95(α))², because the design is read at
+// a measured angle. design is the design's own value (without the angle
+// term). ok is false when d has no value at α. The estimator and Compare
+// both use it.
+func DesignAt(d Design, alpha, cl calibrate.Value) (design calibrate.Value, en float64, ok bool) {
+	if d == nil || !finite(alpha.X) {
+		return calibrate.Value{}, math.NaN(), false
+	}
+	dv, slope, ok := d.At(alpha.X)
+	if !ok {
+		return calibrate.Value{}, math.NaN(), false
+	}
+	ua := slope * alpha.U95()
+	ud := math.Hypot(dv.U95(), ua)
+	um := cl.U95()
+	return dv, (cl.X - dv.X) / math.Hypot(um, ud), true
+}
+
+// ComparisonPoint is one measured point against the design.
+type ComparisonPoint struct {
+	Segment  int // Segment.Index
+	AlphaRad float64
+	CL       calibrate.Value
+	DesignCL calibrate.Value // zero Value when InDesign is false
+	En       float64         // NaN when InDesign is false
+	InDesign bool            // the design has a value at this angle
+	Agrees   bool            // |En| ≤ 1
+}
+
+// Comparison is the summary of a run against its design.
+type Comparison struct {
+	Design   string // Design.Describe()
+	Points   []ComparisonPoint
+	Agree    int // points with |En| ≤ 1
+	Disagree int // points with |En| > 1
+	Outside  int // points where the design has no value
+	Verdict  string
+	Reasons  []string // what a test engineer can act on
+}
+
+// Verdicts of a Comparison.
+const (
+	VerdictAgrees    = "agrees"
+	VerdictDisagrees = "disagrees"
+	VerdictNone      = "no comparison"
+)
+
+// Compare compares every segment with finite C_L against the design (En per
+// point, DesignAt) and sums up. The verdict is "agrees" when every compared
+// point has |En| ≤ 1, "disagrees" when any has not, and "no comparison"
+// when the design covers none of them. The reasons look for patterns among
+// the points that disagree: all above (or below) some angle with the
+// measured lift below the design (a stall the design does not model), all on
+// one side of the design at every angle (an offset or scale error: area,
+// zero, q), or opposite signs at the two ends (a different slope: angle
+// scale, span correction).
+func Compare(segs []Segment, d Design) Comparison {
+	c := Comparison{Verdict: VerdictNone}
+	if d != nil {
+		c.Design = d.Describe()
+	}
+	for _, s := range segs {
+		if !finite(s.CL.X) || !finite(s.AlphaRad.X) {
+			continue
+		}
+		pt := ComparisonPoint{Segment: s.Index, AlphaRad: s.AlphaRad.X, CL: s.CL, En: math.NaN()}
+		if dv, en, ok := DesignAt(d, s.AlphaRad, s.CL); ok {
+			pt.DesignCL, pt.En, pt.InDesign = dv, en, true
+			pt.Agrees = math.Abs(en) <= 1
+			if pt.Agrees {
+				c.Agree++
+			} else {
+				c.Disagree++
+			}
+		} else {
+			c.Outside++
+		}
+		c.Points = append(c.Points, pt)
+	}
+	sort.SliceStable(c.Points, func(i, j int) bool { return c.Points[i].AlphaRad < c.Points[j].AlphaRad })
+	compared := c.Agree + c.Disagree
+	switch {
+	case compared == 0:
+		c.Verdict = VerdictNone
+		if len(c.Points) == 0 {
+			c.Reasons = append(c.Reasons, "no steady points to compare")
+		}
+	case c.Disagree == 0:
+		c.Verdict = VerdictAgrees
+		c.Reasons = append(c.Reasons, fmt.Sprintf("all %d compared points agree with the design within their uncertainties (|En| ≤ 1)", compared))
+	default:
+		c.Verdict = VerdictDisagrees
+		c.Reasons = append(c.Reasons, c.disagreeReasons(compared)...)
+	}
+	if c.Outside > 0 {
+		c.Reasons = append(c.Reasons, fmt.Sprintf("%d points lie outside the design's angle range: no design value there (a design curve is not extrapolated)", c.Outside))
+	}
+	return c
+}
+
+// disagreeReasons describes the pattern of the disagreeing points.
+func (c *Comparison) disagreeReasons(compared int) []string {
+	var bad []ComparisonPoint
+	var firstAgree, lastAgree = math.Inf(1), math.Inf(-1)
+	for _, p := range c.Points {
+		if !p.InDesign {
+			continue
+		}
+		if p.Agrees {
+			firstAgree = math.Min(firstAgree, p.AlphaRad)
+			lastAgree = math.Max(lastAgree, p.AlphaRad)
+		} else {
+			bad = append(bad, p)
+		}
+	}
+	out := []string{fmt.Sprintf("%d of %d points disagree (|En| > 1)", len(bad), compared)}
+	allBelow, allAbove := true, true
+	lo, hi := math.Inf(1), math.Inf(-1)
+	for _, p := range bad {
+		allBelow = allBelow && p.En < 0
+		allAbove = allAbove && p.En > 0
+		lo, hi = math.Min(lo, p.AlphaRad), math.Max(hi, p.AlphaRad)
+	}
+	hasAgree := c.Agree > 0
+	switch {
+	case hasAgree && allBelow && lo > lastAgree:
+		out = append(out, fmt.Sprintf("all at or above %.1f°, with the measured lift below the design: stall (or separation) that the design does not model; compare over the attached range only, or give a design curve that includes the stall", deg(lo)))
+	case hasAgree && allBelow && hi < firstAgree:
+		out = append(out, fmt.Sprintf("all at or below %.1f°, with the measured lift above the design (less negative): negative stall that the design does not model", deg(hi)))
+	case hasAgree && allAbove && lo > lastAgree:
+		out = append(out, fmt.Sprintf("all at or above %.1f°, with the measured lift above the design: check the design curve at high angles and the angle calibration", deg(lo)))
+	case allAbove && (!hasAgree || (lo <= firstAgree && hi >= lastAgree)):
+		out = append(out, "the measured C_L is above the design wherever they disagree: an offset or scale error is likely; check the reference area, the normal-force zero (tare), the pitot coefficient and the angle zero")
+	case allBelow && (!hasAgree || (lo <= firstAgree && hi >= lastAgree)):
+		out = append(out, "the measured C_L is below the design wherever they disagree: an offset or scale error is likely; check the reference area, the normal-force zero (tare), the pitot coefficient (q too high?) and the angle zero")
+	default:
+		// Opposite signs: compare the ends.
+		first, last := bad[0], bad[len(bad)-1]
+		if first.En < 0 && last.En > 0 || first.En > 0 && last.En < 0 {
+			steeper := "steeper"
+			if first.En > 0 {
+				steeper = "shallower"
+			}
+			out = append(out, fmt.Sprintf("the measured lift curve is %s than the design (disagreeing points of both signs from %.1f° to %.1f°): check the angle calibration's scale and the aspect-ratio (span) correction of the design", steeper, deg(lo), deg(hi)))
+		} else {
+			out = append(out, fmt.Sprintf("disagreeing points of both signs between %.1f° and %.1f°: look at the points one by one (unsteady flow, a bad step)", deg(lo), deg(hi)))
+		}
+	}
+	return out
+}

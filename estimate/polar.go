@@ -1,0 +1,522 @@
+package estimate
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"sort"
+
+	"gonum.org/v1/gonum/mat"
+	"gonum.org/v1/gonum/stat/distuv"
+
+	"liftyard/calibrate"
+)
+
+// ErrPolar is returned by FitPolar when the points cannot give a lift-curve
+// fit (too few usable points, all at one angle, an ill-conditioned fit).
+var ErrPolar = errors.New("cannot fit the polar")
+
+// PolarOptions sets FitPolar. A zero PolarOptions chooses the linear range
+// automatically.
+type PolarOptions struct {
+	// AlphaMinRad and AlphaMaxRad, when not both zero, fix the linear range:
+	// every usable point with AlphaMinRad ≤ α ≤ AlphaMaxRad is fitted.
+	AlphaMinRad, AlphaMaxRad float64
+	// MinPoints is the fewest points a lift-curve fit uses (default 3).
+	MinPoints int
+}
+
+// Polar is the lift curve and drag polar of one run: a weighted
+// least-squares line C_L = a·(α − α_L0) over the linear range, the stall and
+// C_L,max, and a parabolic drag polar. Every Value holds its standard
+// uncertainty and degrees of freedom (U95() gives the expanded one).
+type Polar struct {
+	Points       int     // usable points (finite C_L with a positive uncertainty)
+	Linear       []int   // indices into the input segments fitted as the linear range, by α
+	LinearMinRad float64 // smallest α of the linear range
+	LinearMaxRad float64 // largest α of the linear range
+
+	SlopePerRad   calibrate.Value // lift-curve slope a = dC_L/dα, per rad
+	AlphaZeroRad  calibrate.Value // zero-lift angle α_L0
+	CLAtZeroAlpha calibrate.Value // intercept C_L(α = 0)
+	ChiSq         float64         // Σ (residual/u)² of the lift fit
+	FitDof        int             // points − 2
+	Scaled        bool            // the covariance was scaled by χ²/ν (scatter beyond the stated u)
+
+	// Stalled is true when a point above the linear range falls below the
+	// line by more than its U95 after C_L has stopped rising. StallRad is
+	// then the α of C_L,max, the last angle before the lift falls.
+	Stalled       bool
+	StallRad      float64         // NaN when no stall was seen
+	CLMax         calibrate.Value // largest measured C_L (a lower bound when not Stalled)
+	AlphaCLMaxRad float64
+
+	// Drag polar C_D = C_D0 + K·(C_L − C_L,minD)², fitted over the linear
+	// range; DragFitted is false when there are too few points or the
+	// parabola does not open upwards.
+	DragFitted bool
+	CD0        calibrate.Value // minimum drag coefficient
+	K          calibrate.Value // drag-due-to-lift factor
+	CLMinD     calibrate.Value // C_L at minimum drag
+
+	Warnings []string // what a test engineer should know before using the numbers
+}
+
+// SlopePerDeg returns the lift-curve slope per degree (display only).
+func (p Polar) SlopePerDeg() float64 { return p.SlopePerRad.X * math.Pi / 180 }
+
+// polarPoint is one usable segment, sorted by α.
+type polarPoint struct {
+	idx            int
+	alpha, uAlpha  float64
+	cl, uCL, dofCL float64
+	cd, uCD, dofCD float64
+	hasCD          bool
+	u95CL          float64
+	effU           float64 // u of C_L including the angle's u through the slope
+	effDof         float64
+}
+
+// FitPolar fits the lift curve and drag polar of steady segments.
+//
+// # Lift curve
+//
+// Weighted least squares of C_L on α, weights 1/u², where u² = u(C_L)² +
+// (a·u(α))² (the "effective variance" that carries the angle's uncertainty
+// into C_L through the slope; a from a first fit). The fit is solved by QR
+// (gonum mat) and the parameter covariance is (RᵀR)⁻¹. The estimates are
+// linear in the C_L values, β = Σ_i c_i·C_L,i, so the degrees of freedom
+// follow from Welch–Satterthwaite over the points (JCGM 100 G.4). When the
+// scatter exceeds the stated uncertainties (χ²/ν above its 95 % quantile)
+// the covariance is scaled by χ²/ν (the Birge ratio, common practice) with
+// ν = n − 2, and Scaled is set.
+//
+// α_L0 = −C_L(0)/a; its uncertainty comes from the covariance of the two
+// parameters (first-order propagation, JCGM 100 eq. 13).
+//
+// # Linear range
+//
+// Unless the options fix it, the range starts from the three points around
+// the C_L closest to zero and grows one point at a time, on whichever side
+// is nearer in α, while the next point lies within its U95 of the line
+// fitted so far (the combined standard uncertainty of the point and the
+// line's prediction there, times k95 of the point). A point outside is
+// still taken when the point after it is inside again (one noisy point is
+// not a bend); a side stops at two points outside in a row, or at one
+// outside at its end.
+//
+// # Stall
+//
+// Above the linear range, the first point that falls below the line by more
+// than its U95 while C_L no longer rises (C_L ≤ the largest C_L before it)
+// marks the stall; StallRad and C_L,max are taken at the largest C_L up to
+// there. Stall on the negative side is not looked for.
+//
+// # Drag polar
+//
+// C_D = b0 + b1·C_L + b2·C_L² by weighted least squares (weights 1/u(C_D)²)
+// over the linear range, reported as C_D0 = b0 − b1²/(4b2), K = b2 and
+// C_L,minD = −b1/(2b2) with first-order uncertainties. The uncertainty of
+// C_L in this fit is not carried (C_L is far better known than C_D on a
+// balance; a warning says so when it is not).
+//
+// The inputs are not changed. Points with a non-finite C_L or α, or no
+// positive u(C_L), are skipped.
+func FitPolar(segs []Segment, opts PolarOptions) (Polar, error) {
+	p := Polar{StallRad: math.NaN(), AlphaCLMaxRad: math.NaN()}
+	minPts := opts.MinPoints
+	if minPts < 3 {
+		minPts = 3
+	}
+	var pts []polarPoint
+	for i, s := range segs {
+		if !finite(s.CL.X) || !finite(s.AlphaRad.X) || !(s.CL.U > 0) || !finite(s.CL.U) {
+			continue
+		}
+		pp := polarPoint{idx: i, alpha: s.AlphaRad.X, uAlpha: s.AlphaRad.U, cl: s.CL.X, uCL: s.CL.U,
+			dofCL: dofOrInf(s.CL.Dof), u95CL: s.CL.U95()}
+		if finite(s.CD.X) && s.CD.U > 0 && finite(s.CD.U) {
+			pp.cd, pp.uCD, pp.dofCD, pp.hasCD = s.CD.X, s.CD.U, dofOrInf(s.CD.Dof), true
+		}
+		if !finite(pp.uAlpha) {
+			pp.uAlpha = 0
+		}
+		pts = append(pts, pp)
+	}
+	p.Points = len(pts)
+	if len(pts) < minPts {
+		return p, fmt.Errorf("%d usable points, need at least %d: %w", len(pts), minPts, ErrPolar)
+	}
+	sort.SliceStable(pts, func(i, j int) bool { return pts[i].alpha < pts[j].alpha })
+	if pts[len(pts)-1].alpha-pts[0].alpha <= 0 {
+		return p, fmt.Errorf("every point is at the same angle: %w", ErrPolar)
+	}
+	for i := range pts {
+		pts[i].effU, pts[i].effDof = pts[i].uCL, pts[i].dofCL
+	}
+
+	var lo, hi int // the linear range pts[lo..hi]
+	if opts.AlphaMinRad != 0 || opts.AlphaMaxRad != 0 {
+		lo, hi = -1, -1
+		for i, pt := range pts {
+			if pt.alpha >= opts.AlphaMinRad && pt.alpha <= opts.AlphaMaxRad {
+				if lo < 0 {
+					lo = i
+				}
+				hi = i
+			}
+		}
+		if lo < 0 || hi-lo+1 < minPts {
+			return p, fmt.Errorf("%d points in the given range %.2f°…%.2f°, need at least %d: %w",
+				max(0, hi-lo+1), deg(opts.AlphaMinRad), deg(opts.AlphaMaxRad), minPts, ErrPolar)
+		}
+	} else {
+		var err error
+		if lo, hi, err = growLinear(pts, minPts); err != nil {
+			return p, err
+		}
+	}
+
+	// Fit twice: the second pass carries u(α) through the first slope.
+	lf, err := fitLine(pts[lo : hi+1])
+	if err != nil {
+		return p, err
+	}
+	for i := range pts {
+		ua := lf.b * pts[i].uAlpha
+		pts[i].effU = math.Hypot(pts[i].uCL, ua)
+		pts[i].effDof = WelchSatterthwaite([]Contribution{{UY: pts[i].uCL, Dof: pts[i].dofCL}, {UY: ua, Dof: math.Inf(1)}})
+	}
+	if lf, err = fitLine(pts[lo : hi+1]); err != nil {
+		return p, err
+	}
+	for i := lo; i <= hi; i++ {
+		p.Linear = append(p.Linear, pts[i].idx)
+	}
+	p.LinearMinRad, p.LinearMaxRad = pts[lo].alpha, pts[hi].alpha
+	p.SlopePerRad = calibrate.Value{X: lf.b, U: math.Sqrt(lf.varB), Dof: lf.dofB}
+	p.CLAtZeroAlpha = calibrate.Value{X: lf.a, U: math.Sqrt(lf.varA), Dof: lf.dofA}
+	p.AlphaZeroRad = lf.alphaZero()
+	p.ChiSq, p.FitDof, p.Scaled = lf.chi2, hi-lo+1-2, lf.scaled
+	if lf.scaled {
+		p.Warnings = append(p.Warnings, fmt.Sprintf("scatter about the lift line exceeds the stated uncertainties (χ²/ν = %.1f): the fit's uncertainties are scaled up; look for unsteady points or a wrong calibration u", lf.chi2/float64(p.FitDof)))
+	}
+	if hi-lo+1 == minPts && opts.AlphaMinRad == 0 && opts.AlphaMaxRad == 0 {
+		p.Warnings = append(p.Warnings, fmt.Sprintf("the linear range holds only %d points: add angle steps between %.1f° and %.1f°", minPts, deg(p.LinearMinRad), deg(p.LinearMaxRad)))
+	}
+
+	// Stall and C_L,max.
+	best := 0
+	for i := range pts {
+		if pts[i].cl > pts[best].cl {
+			best = i
+		}
+	}
+	runMax := hi
+	for j := hi + 1; j < len(pts); j++ {
+		below := lf.predict(pts[j].alpha) - pts[j].cl
+		if below > pts[j].u95CL && pts[j].cl <= pts[runMax].cl {
+			p.Stalled = true
+			break
+		}
+		if pts[j].cl > pts[runMax].cl {
+			runMax = j
+		}
+	}
+	if p.Stalled {
+		best = runMax
+		p.StallRad = pts[best].alpha
+	} else if len(pts) > 0 {
+		p.Warnings = append(p.Warnings, "no stall in the measured range: C_L,max is the largest measured C_L, a lower bound")
+	}
+	bp := pts[best]
+	p.CLMax = calibrate.Value{X: bp.cl, U: bp.uCL, Dof: bp.dofCL}
+	p.AlphaCLMaxRad = bp.alpha
+
+	p.fitDrag(pts[lo : hi+1])
+	return p, nil
+}
+
+// growLinear picks the automatic linear range (see FitPolar).
+func growLinear(pts []polarPoint, minPts int) (lo, hi int, err error) {
+	c := 0
+	for i := range pts {
+		if math.Abs(pts[i].cl) < math.Abs(pts[c].cl) {
+			c = i
+		}
+	}
+	lo, hi = c-(minPts-1)/2, c+minPts/2
+	if lo < 0 {
+		hi -= lo
+		lo = 0
+	}
+	if hi > len(pts)-1 {
+		lo -= hi - (len(pts) - 1)
+		hi = len(pts) - 1
+	}
+	if lo < 0 {
+		return 0, 0, fmt.Errorf("%d points: %w", len(pts), ErrPolar)
+	}
+	downOK, upOK := lo > 0, hi < len(pts)-1
+	for downOK || upOK {
+		lf, ferr := fitLine(pts[lo : hi+1])
+		if ferr != nil {
+			return 0, 0, ferr
+		}
+		inside := func(j int) bool {
+			k := calibrate.K95(pts[j].dofCL)
+			u := math.Hypot(pts[j].uCL, lf.predictU(pts[j].alpha))
+			return math.Abs(pts[j].cl-lf.predict(pts[j].alpha)) <= k*u
+		}
+		// Try the side nearer in α first. A point outside is taken with
+		// the next one when that one is inside again: noise, not a bend.
+		down := downOK && (!upOK || pts[lo].alpha-pts[lo-1].alpha <= pts[hi+1].alpha-pts[hi].alpha)
+		if down {
+			switch {
+			case inside(lo - 1):
+				lo--
+			case lo >= 2 && inside(lo-2):
+				lo -= 2
+			default:
+				downOK = false
+			}
+			downOK = downOK && lo > 0
+			continue
+		}
+		switch {
+		case inside(hi + 1):
+			hi++
+		case hi+2 < len(pts) && inside(hi+2):
+			hi += 2
+		default:
+			upOK = false
+		}
+		upOK = upOK && hi < len(pts)-1
+	}
+	return lo, hi, nil
+}
+
+// line is a weighted straight-line fit y = a + b·x with its covariance.
+type line struct {
+	a, b            float64
+	varA, varB, cov float64
+	dofA, dofB      float64
+	chi2            float64
+	scaled          bool
+	wa, wb          []float64 // a = Σ wa_i y_i, b = Σ wb_i y_i
+	us, dofs        []float64 // the u and ν of each y
+}
+
+func (l line) predict(x float64) float64 { return l.a + l.b*x }
+
+// predictU is the standard uncertainty of the line at x.
+func (l line) predictU(x float64) float64 {
+	v := l.varA + x*x*l.varB + 2*x*l.cov
+	return math.Sqrt(math.Max(v, 0))
+}
+
+// alphaZero returns x where the line crosses zero, −a/b, with its
+// uncertainty from the covariance and its Welch–Satterthwaite dof.
+func (l line) alphaZero() calibrate.Value {
+	x0 := -l.a / l.b
+	// ∂x0/∂a = −1/b, ∂x0/∂b = a/b² = −x0/b.
+	v := (l.varA + x0*x0*l.varB + 2*x0*l.cov) / (l.b * l.b)
+	cs := make([]Contribution, len(l.wa))
+	for i := range l.wa {
+		ci := -(l.wa[i] + x0*l.wb[i]) / l.b
+		cs[i] = Contribution{UY: math.Abs(ci) * l.us[i], Dof: l.dofs[i]}
+	}
+	dof := WelchSatterthwaite(cs)
+	if l.scaled {
+		dof = float64(len(l.wa) - 2)
+	}
+	return calibrate.Value{X: x0, U: math.Sqrt(math.Max(v, 0)), Dof: dof}
+}
+
+// fitLine fits C_L on α over pts with weights 1/effU².
+func fitLine(pts []polarPoint) (line, error) {
+	n := len(pts)
+	xs := make([]float64, n)
+	ys := make([]float64, n)
+	us := make([]float64, n)
+	dofs := make([]float64, n)
+	for i, pt := range pts {
+		xs[i], ys[i], us[i], dofs[i] = pt.alpha, pt.cl, pt.effU, pt.effDof
+	}
+	beta, cov, w, chi2, err := wls([][]float64{ones(n), xs}, ys, us)
+	if err != nil {
+		return line{}, err
+	}
+	l := line{a: beta[0], b: beta[1], varA: cov.At(0, 0), varB: cov.At(1, 1), cov: cov.At(0, 1),
+		chi2: chi2, wa: w[0], wb: w[1], us: us, dofs: dofs}
+	if !(l.b != 0) {
+		return line{}, fmt.Errorf("the lift line is flat: %w", ErrPolar)
+	}
+	l.dofA, l.dofB = linearDof(w[0], us, dofs), linearDof(w[1], us, dofs)
+	if nu := n - 2; nu > 0 && chi2/float64(nu) > chiSq95(nu)/float64(nu) {
+		s := chi2 / float64(nu)
+		l.varA, l.varB, l.cov = s*l.varA, s*l.varB, s*l.cov
+		l.dofA, l.dofB = float64(nu), float64(nu)
+		l.scaled = true
+	}
+	return l, nil
+}
+
+// chiSq95 is the 95 % quantile of χ² with ν degrees of freedom.
+func chiSq95(nu int) float64 { return distuv.ChiSquared{K: float64(nu)}.Quantile(0.95) }
+
+// linearDof is the Welch–Satterthwaite dof of Σ w_i y_i with u(y_i), ν_i.
+func linearDof(w, us, dofs []float64) float64 {
+	cs := make([]Contribution, len(w))
+	for i := range w {
+		cs[i] = Contribution{UY: math.Abs(w[i]) * us[i], Dof: dofs[i]}
+	}
+	return WelchSatterthwaite(cs)
+}
+
+func ones(n int) []float64 {
+	o := make([]float64, n)
+	for i := range o {
+		o[i] = 1
+	}
+	return o
+}
+
+// wls solves the weighted least-squares problem y ≈ Σ_k β_k·cols[k] with
+// standard uncertainties us by QR (rows scaled by 1/u_i). It returns β, the
+// covariance (RᵀR)⁻¹, the linear weights W (β_k = Σ_i W[k][i]·y_i) and χ².
+// A near-singular design gives an error wrapping ErrPolar.
+func wls(cols [][]float64, ys, us []float64) (beta []float64, cov *mat.Dense, w [][]float64, chi2 float64, err error) {
+	n, m := len(ys), len(cols)
+	if n < m {
+		return nil, nil, nil, 0, fmt.Errorf("%d points for %d parameters: %w", n, m, ErrPolar)
+	}
+	a := mat.NewDense(n, m, nil)
+	b := mat.NewVecDense(n, nil)
+	for i := range n {
+		for k := range m {
+			a.Set(i, k, cols[k][i]/us[i])
+		}
+		b.SetVec(i, ys[i]/us[i])
+	}
+	var qr mat.QR
+	qr.Factorize(a)
+	if c := qr.Cond(); c > 1e12 || math.IsNaN(c) {
+		return nil, nil, nil, 0, fmt.Errorf("fit ill-conditioned (condition number %.3g): %w", c, ErrPolar)
+	}
+	var x mat.VecDense
+	if err := qr.SolveVecTo(&x, false, b); err != nil {
+		return nil, nil, nil, 0, fmt.Errorf("least squares: %v: %w", err, ErrPolar)
+	}
+	var r mat.Dense
+	qr.RTo(&r)
+	rs := r.Slice(0, m, 0, m)
+	var rinv mat.Dense
+	if err := rinv.Inverse(rs); err != nil {
+		return nil, nil, nil, 0, fmt.Errorf("covariance: %v: %w", err, ErrPolar)
+	}
+	cov = mat.NewDense(m, m, nil)
+	cov.Mul(&rinv, rinv.T())
+	// W = cov·Aᵀ·diag(1/u²) in the unscaled variables: W = cov·(A_s)ᵀ·diag(1/u).
+	var wm mat.Dense
+	wm.Mul(cov, a.T())
+	w = make([][]float64, m)
+	for k := range m {
+		w[k] = make([]float64, n)
+		for i := range n {
+			w[k][i] = wm.At(k, i) / us[i]
+		}
+	}
+	beta = make([]float64, m)
+	for k := range m {
+		beta[k] = x.AtVec(k)
+	}
+	for i := range n {
+		pred := 0.0
+		for k := range m {
+			pred += beta[k] * cols[k][i]
+		}
+		d := (ys[i] - pred) / us[i]
+		chi2 += d * d
+	}
+	return beta, cov, w, chi2, nil
+}
+
+// fitDrag fits the parabolic drag polar over the linear range.
+func (p *Polar) fitDrag(pts []polarPoint) {
+	var cl, cd, ucd, dofs, ucl []float64
+	for _, pt := range pts {
+		if pt.hasCD {
+			cl = append(cl, pt.cl)
+			cd = append(cd, pt.cd)
+			ucd = append(ucd, pt.uCD)
+			dofs = append(dofs, pt.dofCD)
+			ucl = append(ucl, pt.uCL)
+		}
+	}
+	if len(cl) < 4 {
+		p.Warnings = append(p.Warnings, fmt.Sprintf("drag polar not fitted: %d points with C_D in the linear range, need 4", len(cl)))
+		return
+	}
+	sq := make([]float64, len(cl))
+	for i, c := range cl {
+		sq[i] = c * c
+	}
+	beta, cov, w, chi2, err := wls([][]float64{ones(len(cl)), cl, sq}, cd, ucd)
+	if err != nil {
+		p.Warnings = append(p.Warnings, "drag polar not fitted: "+err.Error())
+		return
+	}
+	b0, b1, b2 := beta[0], beta[1], beta[2]
+	if !(b2 > 0) {
+		p.Warnings = append(p.Warnings, "drag polar not fitted: C_D does not rise on both sides of its minimum over the linear range")
+		return
+	}
+	scale, scaled := 1.0, false
+	if nu := len(cl) - 3; nu > 0 && chi2 > chiSq95(nu) {
+		scale, scaled = chi2/float64(nu), true
+	}
+	// Gradients of (C_D0, K, C_L,minD) with respect to (b0, b1, b2).
+	grads := [3][3]float64{
+		{1, -b1 / (2 * b2), b1 * b1 / (4 * b2 * b2)},
+		{0, 0, 1},
+		{0, -1 / (2 * b2), b1 / (2 * b2 * b2)},
+	}
+	xs := [3]float64{b0 - b1*b1/(4*b2), b2, -b1 / (2 * b2)}
+	var out [3]calibrate.Value
+	for q := range 3 {
+		v := 0.0
+		for i := range 3 {
+			for j := range 3 {
+				v += grads[q][i] * grads[q][j] * cov.At(i, j)
+			}
+		}
+		cs := make([]Contribution, len(cl))
+		for i := range cl {
+			ci := 0.0
+			for k := range 3 {
+				ci += grads[q][k] * w[k][i]
+			}
+			cs[i] = Contribution{UY: math.Abs(ci) * ucd[i], Dof: dofs[i]}
+		}
+		dof := WelchSatterthwaite(cs)
+		if scaled {
+			dof = float64(len(cl) - 3)
+		}
+		out[q] = calibrate.Value{X: xs[q], U: math.Sqrt(math.Max(scale*v, 0)), Dof: dof}
+	}
+	p.CD0, p.K, p.CLMinD = out[0], out[1], out[2]
+	p.DragFitted = true
+	if scaled {
+		p.Warnings = append(p.Warnings, fmt.Sprintf("drag polar: scatter exceeds the stated uncertainties (χ²/ν = %.1f): uncertainties scaled up", scale))
+	}
+	// C_L's uncertainty moves the points sideways; ignored when small.
+	for i := range cl {
+		if slope := math.Abs(b1 + 2*b2*cl[i]); slope*ucl[i] > 0.5*ucd[i] {
+			p.Warnings = append(p.Warnings, "drag polar: the uncertainty of C_L is not small next to that of C_D, and the fit does not carry it")
+			break
+		}
+	}
+}
+
+func deg(rad float64) float64 { return rad * 180 / math.Pi }
