@@ -39,8 +39,13 @@ func Load(path string) (*Rig, error) {
 	return Parse(path, data)
 }
 
+// DesignThinAirfoil is the [lift] design value that asks for the theory
+// curve (thin-airfoil 2π per radian with the finite-span correction on the
+// rig's aspect ratio) instead of a design-curve CSV.
+const DesignThinAirfoil = "thin-airfoil"
+
 // Parse reads a rig file. filename is used in error messages and to resolve
-// a relative [lift] design path. On any problem it returns a nil Rig and
+// a relative [lift] design path (design = "thin-airfoil" is kept as is). On any problem it returns a nil Rig and
 // Errors: every problem found, sorted by line, each an *Error wrapping one
 // of the sentinels. The returned Rig holds SI values only, with defaults
 // filled in; it has passed Validate.
@@ -59,13 +64,13 @@ func Parse(filename string, data []byte) (*Rig, error) {
 	}
 	d.idx = buildIndex(string(data))
 	r := d.rig(doc)
-	if r.Lift.Design != "" && !filepath.IsAbs(r.Lift.Design) && filename != "" {
-		r.Lift.Design = filepath.Join(filepath.Dir(filename), r.Lift.Design)
-	}
 	validate(r, d)
 	if len(d.errs) > 0 {
 		d.sort()
 		return nil, d.errs
+	}
+	if r.Lift.Design != "" && r.Lift.Design != DesignThinAirfoil && !filepath.IsAbs(r.Lift.Design) && filename != "" {
+		r.Lift.Design = filepath.Join(filepath.Dir(filename), r.Lift.Design)
 	}
 	return r, nil
 }

@@ -3,6 +3,7 @@ package rig
 import (
 	"fmt"
 	"math"
+	"path/filepath"
 	"regexp"
 	"slices"
 	"strings"
@@ -400,6 +401,9 @@ func (v *validator) lift() {
 	}
 	if !finite(l.PitotCoeff) || l.PitotCoeff <= 0 {
 		v.add("lift.pitot_coefficient", ErrValue, "lift: pitot_coefficient must be > 0 (1 for a standard pitot-static tube)")
+	}
+	if d := l.Design; d != "" && d != DesignThinAirfoil && !strings.EqualFold(filepath.Ext(d), ".csv") {
+		v.add("lift.design", ErrValue, `lift: design %q: want a design-curve CSV file (columns alpha_deg,cl[,cl_u95]) or "thin-airfoil"`, d)
 	}
 	needQ := func() {
 		if l.DynamicPressure == "" && l.Speed == "" {
