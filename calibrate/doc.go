@@ -14,6 +14,30 @@
 // series as a Type B input: it is systematic within a run, so averaging
 // many samples does not reduce it.
 //
+// # Fits
+//
+// FitPoly fits a calibration polynomial (order 1–3) from Points, each a
+// reference value applied to the channel and the mean raw reading it gave.
+// It solves least squares by Householder QR on the centred and scaled
+// reading, never by the normal equations, and maps the coefficients and
+// their covariance back to powers of the raw reading exactly, so 24-bit
+// counts in the millions keep their digits (tested on NIST StRD Norris and
+// Pontius). The Fit carries the covariance, the residual SD, non-linearity
+// and hysteresis in % of the loading reading span (DESIGN §3.1), and
+// warnings, among them an extra-sum-of-squares F-test on the highest-order
+// term. Fit.ValueU and Record.Apply give the standard uncertainty of a
+// calibrated value: the fitted curve's, combined with the reference
+// standard's; the scatter of new readings is left to the run's own Type A
+// evaluation.
+//
+// FitBalance fits the interaction matrix of a multi-component balance from
+// combined loadings (linear, optionally with second-order products).
+// CaptureZero, Drift and FitTare handle the flow-off zero, its linear drift
+// over a run and the weight tare of a model that pitches.
+//
+// Bad points, loads or sweeps give an error wrapping ErrPoints that says
+// what to change; no input panics.
+//
 // # Concurrency
 //
 // A Calibrator is immutable after NewCalibrator and may be shared.
@@ -22,4 +46,7 @@
 //
 // JCGM 100:2008, Evaluation of measurement data — Guide to the expression of
 // uncertainty in measurement (GUM), Annex G.
+//
+// NIST/ITL Statistical Reference Datasets, linear least squares: Norris and
+// Pontius, certified values.
 package calibrate
