@@ -1,0 +1,268 @@
+package acquire
+
+import (
+	"encoding/csv"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"strconv"
+	"strings"
+)
+
+// ErrRawCSV is returned (wrapped in a *RawCSVError) when a raw CSV file
+// cannot be imported.
+var ErrRawCSV = errors.New("bad raw CSV")
+
+// RawCSVError is a positioned problem in a raw CSV file, printed as
+// `raw.csv:12: column "pitot": "1.2.3" is not a number`.
+type RawCSVError struct {
+	Name   string // file name, as given to ReadRawCSV
+	Line   int    // 1-based line; 0 for the whole file
+	Column string // column at fault, or ""
+	Msg    string
+}
+
+func (e *RawCSVError) Error() string {
+	var b strings.Builder
+	b.WriteString(e.Name)
+	if e.Line > 0 {
+		fmt.Fprintf(&b, ":%d", e.Line)
+	}
+	b.WriteString(": ")
+	if e.Column != "" {
+		fmt.Fprintf(&b, "column %q: ", e.Column)
+	}
+	b.WriteString(e.Msg)
+	return b.String()
+}
+
+func (e *RawCSVError) Unwrap() error { return ErrRawCSV }
+
+// DefaultRawCSVBlock is the block length ReadRawCSV uses when asked for
+// none: 100 samples, 0.1 s at 1 kHz, the size of a live block.
+const DefaultRawCSVBlock = 100
+
+// ReadRawCSV reads a raw CSV record (DESIGN §3.3) and hands it on as Blocks
+// of source, as a live source would:
+//
+//	t_s,n_fore,n_aft,pitot
+//	1733061000.000000,812.1,790.4,201.4
+//	1733061000.005000,813.0,,201.9
+//
+// The header's first column is t_s, the device time in seconds (read to the
+// microsecond exactly from its decimal digits); the others are channel
+// names, each once. Each row is one sample time with raw readings; a blank
+// cell (or NaN) means no sample. Rows must be in increasing time order.
+//
+// Samples go into blocks of at most blockSamples (≤ 0: DefaultRawCSVBlock)
+// that share one spacing: a change of spacing, such as a gap or a new rate,
+// starts a new block, whose second sample sets its spacing. A block that
+// follows a full one at the same spacing keeps it. A block of one sample
+// (the last row, after a change) takes the spacing of the block before it;
+// a file with one sample time cannot tell its spacing and is refused.
+//
+// Bad input never panics: every problem is a *RawCSVError (wrapping
+// ErrRawCSV) with the line and column, e.g. `raw.csv:12: column "pitot":
+// "1.2.3" is not a number`. Blocks before the bad line have already been
+// emitted. An error from emit stops the read and is returned as is. emit
+// owns each Block.
+func ReadRawCSV(r io.Reader, source string, blockSamples int, emit func(Block) error) error {
+	if blockSamples <= 0 {
+		blockSamples = DefaultRawCSVBlock
+	}
+	fail := func(line int, col, format string, args ...any) error {
+		return &RawCSVError{Name: source, Line: line, Column: col, Msg: fmt.Sprintf(format, args...)}
+	}
+	cr := csv.NewReader(r)
+	cr.ReuseRecord = true
+	header, err := cr.Read()
+	if err == io.EOF {
+		return fail(0, "", "empty file: want a header t_s,<channel>,... and rows of readings")
+	}
+	if err != nil {
+		return rawCSVParseError(source, err)
+	}
+	if len(header) < 2 || strings.TrimSpace(strings.TrimPrefix(header[0], "\ufeff")) != "t_s" {
+		return fail(1, "", "header %q: want t_s followed by channel names", strings.Join(header, ","))
+	}
+	names := make([]string, len(header)-1)
+	seen := map[string]bool{}
+	for i, h := range header[1:] {
+		h = strings.TrimSpace(h)
+		switch {
+		case h == "":
+			return fail(1, "", "header column %d has no channel name", i+2)
+		case seen[h]:
+			return fail(1, h, "channel named twice in the header")
+		}
+		seen[h] = true
+		names[i] = h
+	}
+
+	var (
+		seq    uint64
+		cur    *Block
+		lastDt int64 // spacing of the last block emitted
+		prevT  int64
+		prevLn int
+		rows   int
+	)
+	newBlock := func(t0 int64) {
+		cur = &Block{Source: source, Seq: seq, T0Us: t0, Series: make([]Series, len(names))}
+		for i, n := range names {
+			cur.Series[i] = Series{Channel: n, Raw: make([]float64, 0, blockSamples)}
+		}
+		seq++
+	}
+	flush := func() error {
+		if cur == nil || cur.Len() == 0 {
+			return nil
+		}
+		if cur.DtUs <= 0 {
+			cur.DtUs = lastDt
+		}
+		if cur.DtUs <= 0 {
+			return fail(0, "", "one sample time only: the sample spacing cannot be told")
+		}
+		lastDt = cur.DtUs
+		b := *cur
+		cur = nil
+		return emit(b)
+	}
+	for {
+		rec, err := cr.Read()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			return rawCSVParseError(source, err)
+		}
+		line, _ := cr.FieldPos(0)
+		tUs, ok := parseSecondsUs(strings.TrimSpace(rec[0]))
+		if !ok {
+			return fail(line, "t_s", "%q is not a time in seconds", rec[0])
+		}
+		if rows > 0 && tUs <= prevT {
+			return fail(line, "t_s", "%s s is not after %s s on line %d (rows must be in time order)",
+				strings.TrimSpace(rec[0]), formatUs(prevT), prevLn)
+		}
+		vals := make([]float64, len(names))
+		for i := range names {
+			s := strings.TrimSpace(rec[i+1])
+			if s == "" {
+				vals[i] = math.NaN()
+				continue
+			}
+			v, err := strconv.ParseFloat(s, 64)
+			if err != nil || math.IsInf(v, 0) {
+				return fail(line, names[i], "%q is not a number", s)
+			}
+			vals[i] = v
+		}
+		// Does this row continue the current block?
+		var nextDt int64 // spacing of a new block that continues the stream
+		if cur != nil {
+			dt := tUs - prevT
+			switch {
+			case cur.DtUs == 0 && cur.Len() < blockSamples:
+				cur.DtUs = dt // the second sample sets the spacing
+			case dt == cur.DtUs && cur.Len() < blockSamples:
+			default:
+				if cur.DtUs == 0 || dt == cur.DtUs {
+					cur.DtUs, nextDt = dt, dt // full: the stream goes on
+				}
+				if err := flush(); err != nil {
+					return err
+				}
+			}
+		}
+		if cur == nil {
+			newBlock(tUs)
+			cur.DtUs = nextDt
+		}
+		for i, v := range vals {
+			cur.Series[i].Raw = append(cur.Series[i].Raw, v)
+		}
+		prevT, prevLn = tUs, line
+		rows++
+	}
+	if rows == 0 {
+		return fail(0, "", "no rows after the header")
+	}
+	return flush()
+}
+
+// rawCSVParseError turns an encoding/csv error into a positioned one.
+func rawCSVParseError(name string, err error) error {
+	var pe *csv.ParseError
+	if errors.As(err, &pe) {
+		msg := pe.Err.Error()
+		if errors.Is(pe.Err, csv.ErrFieldCount) {
+			msg = "wrong number of fields (every row has one cell per header column; leave a cell blank for no sample)"
+		}
+		return &RawCSVError{Name: name, Line: pe.Line, Msg: msg}
+	}
+	return &RawCSVError{Name: name, Msg: err.Error()}
+}
+
+// parseSecondsUs reads a time in seconds as whole microseconds. Plain
+// decimals ("1733061000.000125") are read exactly, digit by digit, and
+// rounded to the microsecond past six decimals; other forms ("1.7e9") go
+// through ParseFloat.
+func parseSecondsUs(s string) (int64, bool) {
+	if s == "" {
+		return 0, false
+	}
+	neg := false
+	body := s
+	if body[0] == '-' || body[0] == '+' {
+		neg = body[0] == '-'
+		body = body[1:]
+	}
+	intPart, frac, hasDot := strings.Cut(body, ".")
+	plain := intPart != "" || (hasDot && frac != "")
+	for _, c := range intPart + frac {
+		if c < '0' || c > '9' {
+			plain = false
+			break
+		}
+	}
+	if plain && len(intPart) <= 12 {
+		var whole int64
+		for _, c := range intPart {
+			whole = whole*10 + int64(c-'0')
+		}
+		var us int64
+		for i := range 6 {
+			us *= 10
+			if i < len(frac) {
+				us += int64(frac[i] - '0')
+			}
+		}
+		if len(frac) > 6 && frac[6] >= '5' {
+			us++
+		}
+		t := whole*1_000_000 + us
+		if neg {
+			t = -t
+		}
+		return t, true
+	}
+	v, err := strconv.ParseFloat(s, 64)
+	if err != nil || math.IsNaN(v) || math.Abs(v) > 9e12 {
+		return 0, false
+	}
+	return int64(math.Round(v * 1e6)), true
+}
+
+// formatUs writes µs as seconds with six decimals.
+func formatUs(tUs int64) string {
+	sign := ""
+	u := uint64(tUs)
+	if tUs < 0 {
+		sign = "-"
+		u = -u
+	}
+	return fmt.Sprintf("%s%d.%06d", sign, u/1e6, u%1e6)
+}
