@@ -34,5 +34,6 @@ type Run struct {
 	Sources  []acquire.HealthSnapshot `json:"sources"`
 	Channels []acquire.ChannelHealth  `json:"channels,omitempty"` // per-channel rate, gaps, saturation (at the end of the run)
 	Loads    []calibrate.LoadHealth   `json:"loads,omitempty"`    // per rated channel: largest load against capacity
+	Drift    []calibrate.DriftLine    `json:"drift,omitempty"`    // zero drift between the flow-off zeros before and after the run
 	Note     string                   `json:"note,omitempty"`
 }

@@ -185,3 +185,55 @@ func (s *Store) Segments(id uint64) (segs []estimate.Segment, err error) {
 	})
 	return segs, err
 }
+
+// CorrectRun replaces the segment results of run id with segs (a corrected
+// result set: a zero drift removed, a calibration mended), records why in
+// the run's note and, when given, the zero drift found, and adds an event,
+// all in one transaction. The raw blocks are untouched.
+func (s *Store) CorrectRun(id uint64, segs []estimate.Segment, why string, drift []calibrate.DriftLine) error {
+	enc := make([][]byte, len(segs))
+	for i := range segs {
+		data, err := encodeSegment(&segs[i])
+		if err != nil {
+			return fmt.Errorf("correct run %d: segment %d: %w", id, segs[i].Index, err)
+		}
+		enc[i] = data
+	}
+	err := s.db.Update(func(tx *bolt.Tx) error {
+		r, err := getRun(tx, id)
+		if err != nil {
+			return err
+		}
+		res := tx.Bucket(bucketResults)
+		if res.Bucket(u64(id)) != nil {
+			if err := res.DeleteBucket(u64(id)); err != nil {
+				return err
+			}
+		}
+		sb, err := res.CreateBucket(u64(id))
+		if err != nil {
+			return err
+		}
+		for i, data := range enc {
+			if err := sb.Put(segmentKey(segs[i].Index), data); err != nil {
+				return err
+			}
+		}
+		r.Segments = len(segs)
+		if drift != nil {
+			r.Drift = drift
+		}
+		if r.Note != "" {
+			r.Note += "; "
+		}
+		r.Note += why
+		if err := putEvent(tx, id, Event{T: s.now(), Kind: "corrected", Message: why}); err != nil {
+			return err
+		}
+		return putRun(tx, r)
+	})
+	if err != nil {
+		return writeError(fmt.Sprintf("correct run %d", id), err)
+	}
+	return nil
+}

@@ -118,10 +118,13 @@ func runDemo(ctx context.Context, args []string, stdout, stderr io.Writer) error
 		fmt.Fprintf(stdout, "liftyard demo: simulated foil on a water tow rig, via an embedded MQTT broker\n")
 		fmt.Fprintf(stdout, "liftyard demo: dashboard on %s (run %d, store %s; Ctrl-C to stop)\n", url, id, *db)
 	}
-	if _, err := runDemoSession(ctx, m, sim.Config{Seed: *seed}); err != nil {
+	// The simulated carriage waits 2 s at rest first: the recorder takes
+	// its flow-off zero there.
+	if _, err := runDemoSession(ctx, m, sim.Config{Seed: *seed, FlowOffBefore: 2 * time.Second}); err != nil {
 		return err
 	}
 	fmt.Fprintf(stdout, "liftyard demo: run %d stored in %s after %s\n", m.RunID(), *db, time.Since(start).Round(time.Second))
+	printDrift(stdout, m)
 	fmt.Fprintf(stdout, "  liftyard runs --db %s\n  liftyard export --db %s --run latest --what segments --format json\n", *db, *db)
 	return nil
 }

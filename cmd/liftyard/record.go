@@ -55,6 +55,12 @@ type Main struct {
 	// exists, with the dashboard URL and the run id.
 	OnReady func(url string, runID uint64)
 
+	// Drift is the zero drift found between the flow-off zeros before and
+	// after the run (empty when there were not both); ZeroNote says what
+	// was done about it.
+	Drift    []calibrate.DriftLine
+	ZeroNote string
+
 	runID  uint64
 	events chan acquire.Event // from the sources' goroutines to the recorder loop
 }
@@ -144,10 +150,6 @@ func (m *Main) Run(ctx context.Context) error {
 			return err
 		}
 	}
-	cal, err := calibrate.NewCalibrator(m.Rig)
-	if err != nil {
-		return err
-	}
 	est, err := estimate.NewEstimator(m.Rig, estimate.Config{})
 	if err != nil {
 		return err
@@ -157,6 +159,11 @@ func (m *Main) Run(ctx context.Context) error {
 		return err
 	}
 	defer store.Close()
+	// Stored calibrations (calibration = { id = "…" }) come from this store.
+	cal, err := calibrate.NewCalibratorFrom(m.Rig, store.Calibration)
+	if err != nil {
+		return err
+	}
 	started := time.Now()
 	runID, err := store.CreateRun(storage.Run{
 		Rig: m.Rig.Name, Kind: string(m.Rig.Kind), Fluid: string(m.Rig.Fluid), RigTOML: m.RigTOML,
@@ -166,6 +173,9 @@ func (m *Main) Run(ctx context.Context) error {
 		return err
 	}
 	m.runID = runID
+	if err := storeRunCalibrations(store, runID, cal); err != nil {
+		return err
+	}
 	dash, err := dashboard.New(dashboard.Config{Addr: m.Addr, Token: m.Token, Store: store, Logger: log})
 	if err != nil {
 		return err
@@ -251,6 +261,7 @@ func (m *Main) Run(ctx context.Context) error {
 		aligner  acquire.Aligner
 		chans    = acquire.NewMonitor(m.Rig)
 		loads    = calibrate.NewLoadMonitor(m.Rig)
+		zeros    = newZeroWatch(m.Rig)
 		tick     = time.NewTicker(time.Second)
 	)
 	defer tick.Stop()
@@ -264,6 +275,9 @@ func (m *Main) Run(ctx context.Context) error {
 		}
 		storage.Offer(items, storage.Item{Event: &storage.Event{T: ev.T, Kind: string(ev.Kind), Source: ev.Source, Message: msg}}, &storeDropped.blocks)
 		log.Warn(msg, "source", ev.Source, "event", ev.Kind)
+	}
+	for _, ev := range expiredCalibrations(cal, time.Now()) {
+		record(ev)
 	}
 	health := func() dashboard.Health {
 		return dashboard.Health{Sources: sources(), Channels: chans.Snapshot(time.Now()), Loads: loads.Snapshot()}
@@ -287,6 +301,12 @@ loop:
 			}
 			storeDropped.offer(items, storage.Item{Block: &b})
 			cb := cal.Apply(&b)
+			if zeros != nil {
+				zeros.observe(&cb)
+				if zeros.live != nil {
+					zeros.live.Correct(&cb) // the flow-off zero taken before the run
+				}
+			}
 			for _, l := range loads.Observe(&cb) {
 				record(acquire.Event{T: b.Received, Source: b.Source, Kind: "overload",
 					Message: fmt.Sprintf("channel %s at %.0f %% of its rated %g %s (%s)", l.Channel, 100*l.PeakFrac, l.CapacitySI, l.Unit, l.State)})
@@ -334,6 +354,9 @@ loop:
 	}
 	ferr := errors.Join(store.FinishRun(runID, time.Now(), status, final.Sources),
 		store.SetRunChannels(runID, final.Channels, final.Loads))
+	if zeros != nil && ferr == nil && werr == nil {
+		ferr = m.correctZeroDrift(store, runID, cal, zeros, log)
+	}
 	if run, err := store.Run(runID); err == nil {
 		dash.SetRun(run)
 	}
@@ -350,6 +373,25 @@ loop:
 func (m *Main) segment(items chan<- storage.Item, dash *dashboard.Server, seg estimate.Segment) {
 	items <- storage.Item{Segment: &seg}
 	dash.PublishSegment(seg)
+}
+
+// correctZeroDrift applies the flow-off zeros before and after the run: the
+// segments are recomputed from the stored raw blocks with the zero drift
+// removed, and the drift is stored and reported (DESIGN §4).
+func (m *Main) correctZeroDrift(store *storage.Store, runID uint64, cal *calibrate.Calibrator, z *zeroWatch, log *slog.Logger) error {
+	d, err := z.drift()
+	if err != nil {
+		m.ZeroNote = "no zero-drift correction: " + err.Error()
+		log.Info(m.ZeroNote, "run", runID)
+		return nil
+	}
+	segs, err := correctDrift(store, runID, m.Rig, cal, d)
+	if err != nil {
+		return fmt.Errorf("zero-drift correction of run %d: %w", runID, err)
+	}
+	m.Drift = d.Report()
+	m.ZeroNote = "segments corrected for the zero drift between the flow-off zeros before and after the run"
+	return store.CorrectRun(runID, segs, m.ZeroNote, m.Drift)
 }
 
 // RunID returns the id of the run being recorded (0 before Run creates it).
@@ -392,7 +434,19 @@ func runRecord(ctx context.Context, args []string, stdout, stderr io.Writer) err
 		return err
 	}
 	fmt.Fprintf(stdout, "liftyard record: run %d stored in %s\n", m.RunID(), *db)
+	printDrift(stdout, m)
 	return nil
+}
+
+// printDrift reports the zero drift of a finished run.
+func printDrift(w io.Writer, m *Main) {
+	if m.ZeroNote != "" {
+		fmt.Fprintf(w, "  %s\n", m.ZeroNote)
+	}
+	for _, d := range m.Drift {
+		ch, _ := m.Rig.Channel(d.Channel)
+		fmt.Fprintf(w, "  zero drift %s: %+.4g %s (%.4g → %.4g)\n", d.Channel, d.ChangeSI, ch.Quantity.SIUnit(), d.StartSI, d.EndSI)
+	}
 }
 
 func newLogger(w io.Writer, verbose bool) *slog.Logger {
