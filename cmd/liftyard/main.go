@@ -49,7 +49,7 @@ func verbs() []verb {
 		{"runs", "list the runs in a store", runRuns},
 		{"export", "export a run's segment results or raw samples (json, csv)", runExport},
 		{"import", "ingest a raw CSV recorded elsewhere as a new run (not built yet: issue 6)", notYet("import", 6)},
-		{"calibrate", "fit, store and print a channel calibration (not built yet: issue 5)", notYet("calibrate", 5)},
+		{"calibrate", calibrateSummary, runCalibrate},
 		{"fluid", "print density and viscosity of air or water (not built yet: issue 6)", notYet("fluid", 6)},
 		{"simulate", "emit synthetic sensor traffic (MQTT blocks or serial frames) for dry runs", runSimulate},
 		{"serve", "serve the dashboard for a stored database (not built yet)", notYet("serve", 0)},
