@@ -47,6 +47,13 @@ func (s *Server) routes() http.Handler {
 	mux.HandleFunc("GET /api/v1/runs", s.apiRuns)
 	mux.HandleFunc("GET /api/v1/runs/{id}", s.apiRun)
 	mux.HandleFunc("GET /api/v1/runs/{id}/segments", s.apiSegments)
+	// Calibration records (calibration.go).
+	mux.HandleFunc("GET /calibrations", s.calibrationsPage)
+	mux.HandleFunc("GET /calibrations/{id}", s.calibrationPage)
+	mux.HandleFunc("GET /calibrations/{id}/fit.svg", s.calibrationFitSVG)
+	mux.HandleFunc("GET /calibrations/{id}/residuals.svg", s.calibrationResidualSVG)
+	mux.HandleFunc("GET /api/v1/calibrations", s.apiCalibrations)
+	mux.HandleFunc("GET /api/v1/calibrations/{id}", s.apiCalibration)
 	return s.secure(mux)
 }
 

@@ -21,11 +21,12 @@ var webFS embed.FS
 // pages holds the parsed templates, one set per page, parsed once by New.
 type pages struct {
 	live, runs, run *template.Template
+	cal             *template.Template // calibration list and detail (calibration.go)
 }
 
 func parsePages() (*pages, error) {
 	parse := func(page string) (*template.Template, error) {
-		t, err := template.New(page).Funcs(funcs).ParseFS(webFS, "web/templates/base.html", "web/templates/"+page)
+		t, err := template.New(page).Funcs(funcs).Funcs(calFuncs).ParseFS(webFS, "web/templates/base.html", "web/templates/"+page)
 		if err != nil {
 			return nil, fmt.Errorf("dashboard template %s: %w", page, err)
 		}
@@ -40,6 +41,9 @@ func parsePages() (*pages, error) {
 		return nil, err
 	}
 	if p.run, err = parse("run.html"); err != nil {
+		return nil, err
+	}
+	if p.cal, err = parse("calibration.html"); err != nil {
 		return nil, err
 	}
 	return &p, nil

@@ -58,6 +58,11 @@ type Config struct {
 	// and the current run only.
 	Store RunStore
 
+	// Calibrations reads stored calibration records for the calibration
+	// pages and API. Nil: the pages say no store is attached, and every
+	// record is 404.
+	Calibrations CalibrationStore
+
 	// Logger receives request errors (the detail that a 500 response does
 	// not show) and dropped stream clients. Nil means slog.Default().
 	Logger *slog.Logger
@@ -80,6 +85,7 @@ type Stats struct {
 type Server struct {
 	token    string
 	store    RunStore
+	cals     CalibrationStore
 	log      *slog.Logger
 	now      func() time.Time
 	hub      *hub
@@ -127,6 +133,7 @@ func New(cfg Config) (*Server, error) {
 	s := &Server{
 		token:  cfg.Token,
 		store:  cfg.Store,
+		cals:   cfg.Calibrations,
 		log:    cfg.Logger.With("component", "dashboard"),
 		now:    cfg.Now,
 		hub:    newHub(strconv.FormatInt(cfg.Now().UnixNano(), 36)),
