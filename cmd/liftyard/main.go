@@ -48,13 +48,13 @@ func verbs() []verb {
 		{"check", "validate a rig file and list every problem with its line", runCheck},
 		{"runs", "list the runs in a store", runRuns},
 		{"export", "export a run's segment results or raw samples (json, csv)", runExport},
-		{"import", "ingest a raw CSV recorded elsewhere as a new run (not built yet: issue 6)", notYet("import", 6)},
+		{"import", "ingest a raw CSV recorded elsewhere as a new run, processed as a live run", runImport},
 		{"calibrate", calibrateSummary, runCalibrate},
-		{"fluid", "print density and viscosity of air or water (not built yet: issue 6)", notYet("fluid", 6)},
+		{"fluid", "print density and viscosity of air or water at given conditions", runFluid},
 		{"simulate", "emit synthetic sensor traffic (MQTT blocks or serial frames) for dry runs", runSimulate},
 		{"serve", "serve the dashboard for a stored database (not built yet)", notYet("serve", 0)},
 		{"report", "write an HTML report of a run (not built yet)", notYet("report", 0)},
-		{"reprocess", "re-process a run from its stored raw samples (not built yet)", notYet("reprocess", 0)},
+		{"reprocess", "re-process a run from its stored raw samples as a new run (e.g. with a corrected rig file)", runReprocess},
 	}
 }
 

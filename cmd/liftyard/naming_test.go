@@ -25,6 +25,8 @@ var dimensionless = map[string]bool{
 	"CL": true, "CD": true, "CM": true, "Cp": true, "Re": true, "Fn": true, "En": true,
 	"SpinRatio": true, "DesignCL": true, "DesignCp": true, "DesignU": true, "PitotCoeff": true,
 	"CD0": true, "K": true, "Mach": true,
+	"CLMax": true, "CLMinD": true, "CLAtZeroAlpha": true, "AspectRatio": true,
+	"ChiSq": true, // a fit's weighted sum of squared residuals
 	// ratios and fractions
 	"RelHumidity": true, "TurbulenceIntensity": true, "NoiseFrac": true, "QTolFrac": true,
 	// statistics: X and U take the unit of the field that holds the Value;

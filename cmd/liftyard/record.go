@@ -61,6 +61,16 @@ type Main struct {
 	Drift    []calibrate.DriftLine
 	ZeroNote string
 
+	// Store, when set, is used instead of opening DBPath; the caller owns
+	// it (reprocess replays raw blocks from the same store).
+	Store *storage.Store
+	// Replay marks sources that are not live (a file, a stored run): raw
+	// blocks wait for the store instead of being dropped when it falls
+	// behind, since waiting loses nothing upstream.
+	Replay bool
+	// Note is stored with the run, e.g. "imported from raw.csv".
+	Note string
+
 	runID  uint64
 	events chan acquire.Event // from the sources' goroutines to the recorder loop
 }
@@ -150,15 +160,21 @@ func (m *Main) Run(ctx context.Context) error {
 			return err
 		}
 	}
-	est, err := estimate.NewEstimator(m.Rig, estimate.Config{})
+	estCfg, err := estimatorConfig(m.Rig)
 	if err != nil {
 		return err
 	}
-	store, err := storage.Open(m.DBPath, storage.Options{})
+	est, err := estimate.NewEstimator(m.Rig, estCfg)
 	if err != nil {
 		return err
 	}
-	defer store.Close()
+	store := m.Store
+	if store == nil {
+		if store, err = storage.Open(m.DBPath, storage.Options{}); err != nil {
+			return err
+		}
+		defer store.Close()
+	}
 	// Stored calibrations (calibration = { id = "…" }) come from this store.
 	cal, err := calibrate.NewCalibratorFrom(m.Rig, store.Calibration)
 	if err != nil {
@@ -167,7 +183,7 @@ func (m *Main) Run(ctx context.Context) error {
 	started := time.Now()
 	runID, err := store.CreateRun(storage.Run{
 		Rig: m.Rig.Name, Kind: string(m.Rig.Kind), Fluid: string(m.Rig.Fluid), RigTOML: m.RigTOML,
-		AreaM2: m.Rig.Reference.AreaM2, AreaKind: m.Rig.Reference.AreaKind, Started: started,
+		AreaM2: m.Rig.Reference.AreaM2, AreaKind: m.Rig.Reference.AreaKind, Started: started, Note: m.Note,
 	})
 	if err != nil {
 		return err
@@ -299,7 +315,11 @@ loop:
 			for _, ev := range chans.Observe(&b) {
 				record(ev)
 			}
-			storeDropped.offer(items, storage.Item{Block: &b})
+			if m.Replay {
+				items <- storage.Item{Block: &b} // not live: wait for the store
+			} else {
+				storeDropped.offer(items, storage.Item{Block: &b})
+			}
 			cb := cal.Apply(&b)
 			if zeros != nil {
 				zeros.observe(&cb)

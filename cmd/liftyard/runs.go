@@ -9,6 +9,8 @@ import (
 	"text/tabwriter"
 	"time"
 
+	"liftyard/calibrate"
+	"liftyard/rig"
 	"liftyard/storage"
 )
 
@@ -59,13 +61,13 @@ func runRuns(_ context.Context, args []string, stdout, _ io.Writer) error {
 	return tw.Flush()
 }
 
-// runExport is `liftyard export --db FILE --run ID|latest --what raw|segments [--format csv|json] [--out FILE]`.
+// runExport is `liftyard export --db FILE --run ID|latest --what raw|values|segments [--format csv|json] [--out FILE]`.
 func runExport(_ context.Context, args []string, stdout, _ io.Writer) error {
-	fs := newFlags("export", "--db FILE --run ID|latest --what raw|segments [--format csv|json] [--out FILE]",
-		"export a run's segment results or raw samples", stdout)
+	fs := newFlags("export", "--db FILE --run ID|latest --what raw|values|segments [--format csv|json] [--out FILE]",
+		"export a run's segment results, raw samples or calibrated values", stdout)
 	db := fs.String("db", "liftyard.db", "bbolt store file")
 	ref := fs.String("run", "latest", "run id, or latest")
-	what := fs.String("what", "segments", "segments (one row per steady segment) or raw (raw readings, CSV)")
+	what := fs.String("what", "segments", "segments (one row per steady segment), raw (raw readings, CSV) or values (calibrated values in SI units, CSV; no zero or drift correction)")
 	format := fs.String("format", "json", "json or csv (raw is always csv)")
 	outPath := fs.String("out", "", "output file (default: standard output)")
 	if _, err := parseFlags(fs, args); err != nil {
@@ -81,9 +83,11 @@ func runExport(_ context.Context, args []string, stdout, _ io.Writer) error {
 			return usagef("--format %q: want csv", *format)
 		}
 	case "values":
-		return fmt.Errorf("--what values is not built yet (planned with issue 6); use segments or raw")
+		if *format != "csv" && *format != "json" {
+			return usagef("--format %q: want csv", *format)
+		}
 	default:
-		return usagef("--what %q: want segments or raw", *what)
+		return usagef("--what %q: want segments, raw or values", *what)
 	}
 	store, err := openStore(*db)
 	if err != nil {
@@ -110,6 +114,8 @@ func runExport(_ context.Context, args []string, stdout, _ io.Writer) error {
 	switch *what {
 	case "raw":
 		err = store.ExportRaw(w, id)
+	case "values":
+		err = exportValues(store, w, run)
 	default:
 		segs, serr := store.Segments(id)
 		if serr != nil {
@@ -124,4 +130,22 @@ func runExport(_ context.Context, args []string, stdout, _ io.Writer) error {
 		return f.Close()
 	}
 	return nil
+}
+
+// exportValues writes the calibrated values of run through the calibrations
+// of the rig file stored with it (stored calibration ids resolved in the
+// same store).
+func exportValues(store *storage.Store, w io.Writer, run storage.Run) error {
+	if run.RigTOML == "" {
+		return fmt.Errorf("run %d has no stored rig file: its calibrations are unknown", run.ID)
+	}
+	r, err := rig.Parse("", []byte(run.RigTOML))
+	if err != nil {
+		return fmt.Errorf("rig file stored with run %d: %w", run.ID, err)
+	}
+	cal, err := calibrate.NewCalibratorFrom(r, store.Calibration)
+	if err != nil {
+		return fmt.Errorf("run %d: %w", run.ID, err)
+	}
+	return store.ExportValues(w, run.ID, r, cal)
 }

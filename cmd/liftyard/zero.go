@@ -159,7 +159,11 @@ func (z *zeroWatch) drift() (calibrate.Drift, error) {
 // corrected segments. The replay feeds blocks in arrival order and aligns
 // them again, so the join sees what the live run saw.
 func correctDrift(store *storage.Store, runID uint64, r *rig.Rig, cal *calibrate.Calibrator, d calibrate.Drift) ([]estimate.Segment, error) {
-	est, err := estimate.NewEstimator(r, estimate.Config{})
+	estCfg, err := estimatorConfig(r)
+	if err != nil {
+		return nil, err
+	}
+	est, err := estimate.NewEstimator(r, estCfg)
 	if err != nil {
 		return nil, err
 	}
