@@ -192,7 +192,7 @@ func (m *Main) Run(ctx context.Context) error {
 	if err := storeRunCalibrations(store, runID, cal); err != nil {
 		return err
 	}
-	dash, err := dashboard.New(dashboard.Config{Addr: m.Addr, Token: m.Token, Store: store, Logger: log})
+	dash, err := dashboard.New(dashboard.Config{Addr: m.Addr, Token: m.Token, Store: store, Calibrations: store, Logger: log})
 	if err != nil {
 		return err
 	}
