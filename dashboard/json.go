@@ -70,6 +70,15 @@ func u95(v calibrate.Value) num {
 // deg converts an angle for display; NaN passes through.
 func deg(n num) num { return num(rig.Deg(float64(n))) }
 
+// froude shows the Froude number, which estimate leaves at 0 where it does
+// not apply (air rigs), as null.
+func froude(fn float64) num {
+	if fn == 0 {
+		return num(math.NaN())
+	}
+	return num(fn)
+}
+
 // liveJSON is the wire form of an estimate.Live: Go field names in
 // snake_case with the unit suffix, angles in degrees, uncertainties expanded
 // to 95 % coverage.
@@ -88,6 +97,7 @@ type liveJSON struct {
 	CD          num       `json:"cd"`
 	CDU95       num       `json:"cd_u95"`
 	Re          num       `json:"re"`
+	Fn          num       `json:"fn"` // Froude number, water rigs; null otherwise
 	RhoKgM3     num       `json:"rho_kg_m3"`
 	LiftN       num       `json:"lift_n"`
 	LiftU95N    num       `json:"lift_u95_n"`
@@ -118,6 +128,7 @@ func toLiveJSON(l estimate.Live) liveJSON {
 		CD:          x(l.CD),
 		CDU95:       u95(l.CD),
 		Re:          num(l.Re),
+		Fn:          froude(l.Fn),
 		RhoKgM3:     num(l.RhoKgPerM3),
 		LiftN:       x(l.LiftN),
 		LiftU95N:    u95(l.LiftN),
@@ -147,6 +158,7 @@ type segmentJSON struct {
 	RhoKgM3     num       `json:"rho_kg_m3"`
 	MuPaS       num       `json:"mu_pa_s"`
 	Re          num       `json:"re"`
+	Fn          num       `json:"fn"` // Froude number, water rigs; null otherwise
 	LiftN       num       `json:"lift_n"`
 	LiftU95N    num       `json:"lift_u95_n"`
 	DragN       num       `json:"drag_n"`
@@ -178,6 +190,7 @@ func toSegmentJSON(run uint64, s estimate.Segment) segmentJSON {
 		RhoKgM3:     num(s.RhoKgPerM3),
 		MuPaS:       num(s.MuPaS),
 		Re:          num(s.Re),
+		Fn:          froude(s.Fn),
 		LiftN:       x(s.LiftN),
 		LiftU95N:    u95(s.LiftN),
 		DragN:       x(s.DragN),
