@@ -27,8 +27,11 @@
 // In: *calibrate.Block values in SI units, the *rig.Rig. Out: Segment and
 // Live (result.go), Point from Reduce, and the plain functions for fluids
 // (Properties, AirDensityCIPM2007, ISA, SutherlandMuPaS, water tables),
-// flow (DynamicPressureFromPitot, SpeedFromQ, Reynolds) and design curves
-// (LiftingLineSlope, HelmboldSlope, En). The package does no I/O.
+// flow (DynamicPressureFromPitot, SpeedFromQ, Reynolds, Froude), polars
+// (FitPolar: lift slope, zero-lift angle, stall, C_L,max, drag polar) and
+// design comparison (DesignCurve from a CSV the caller opens, ThinAirfoil,
+// LiftingLineSlope, HelmboldSlope, DesignAt, En, Compare). The package does
+// no I/O: ParseDesignCurve reads from an io.Reader its caller hands it.
 //
 // # Concurrency
 //
