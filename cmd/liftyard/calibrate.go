@@ -732,3 +732,18 @@ func expiredCalibrations(cal *calibrate.Calibrator, now time.Time) []acquire.Eve
 	}
 	return evs
 }
+
+// withCalibrationWarnings returns the live warnings followed by the
+// expired-calibration messages, in a new slice (the estimator's is left
+// alone).
+func withCalibrationWarnings(ws []string, expired []acquire.Event) []string {
+	if len(expired) == 0 {
+		return ws
+	}
+	out := make([]string, 0, len(ws)+len(expired))
+	out = append(out, ws...)
+	for _, ev := range expired {
+		out = append(out, ev.Message)
+	}
+	return out
+}

@@ -7,6 +7,7 @@ import (
 	"io"
 	"math"
 	"math/rand/v2"
+	"net/http"
 	"os"
 	"path/filepath"
 	"regexp"
@@ -353,11 +354,35 @@ func TestRecord_StoredCalibrationExpired(t *testing.T) {
 	s, err := sim.New(inline, sim.Config{QPa: estimate.DynamicPressure(fluid.RhoKgPerM3, 2), Seed: 3}, fluid.RhoKgPerM3)
 	require.NoError(t, err)
 	var logs bytes.Buffer
+	ctx, cancel := context.WithTimeout(t.Context(), 6*time.Second)
+	defer cancel()
+	liveWarned := make(chan bool, 1)
 	m := &Main{Rig: r, RigTOML: toml, DBPath: db, Addr: "127.0.0.1:0", Logger: newLogger(&logs, false),
 		Sources: []Source{{Name: "carriage", Src: s, Health: &s.Health}}}
-	ctx, cancel := context.WithTimeout(t.Context(), 1500*time.Millisecond)
-	defer cancel()
+	m.OnReady = func(url string, _ uint64) {
+		// The live estimate on the dashboard carries the warning too.
+		go func() {
+			defer cancel()
+			for ctx.Err() == nil {
+				resp, err := http.Get(url + "/api/v1/live")
+				if err == nil {
+					var l struct {
+						Warnings []string `json:"warnings"`
+					}
+					ok := resp.StatusCode == 200 && json.NewDecoder(resp.Body).Decode(&l) == nil
+					resp.Body.Close()
+					if ok {
+						liveWarned <- strings.Contains(strings.Join(l.Warnings, "\n"), "calibration n_fore-cert-4711 expired")
+						return
+					}
+				}
+				time.Sleep(50 * time.Millisecond)
+			}
+			liveWarned <- false
+		}()
+	}
 	require.NoError(t, m.Run(ctx))
+	assert.True(t, <-liveWarned, "the live estimate warns about the expired calibration")
 
 	st, err = storage.Open(db, storage.Options{ReadOnly: true})
 	require.NoError(t, err)

@@ -292,7 +292,8 @@ func (m *Main) Run(ctx context.Context) error {
 		storage.Offer(items, storage.Item{Event: &storage.Event{T: ev.T, Kind: string(ev.Kind), Source: ev.Source, Message: msg}}, &storeDropped.blocks)
 		log.Warn(msg, "source", ev.Source, "event", ev.Kind)
 	}
-	for _, ev := range expiredCalibrations(cal, time.Now()) {
+	expired := expiredCalibrations(cal, time.Now())
+	for _, ev := range expired {
 		record(ev)
 	}
 	health := func() dashboard.Health {
@@ -337,6 +338,7 @@ loop:
 			}
 			if now := time.Now(); now.Sub(lastLive) >= livePeriod {
 				if l, ok := est.Live(); ok {
+					l.Warnings = withCalibrationWarnings(l.Warnings, expired)
 					dash.PublishLive(l)
 					publish("live", dashboard.EncodeLive(l))
 				}
