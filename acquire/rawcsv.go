@@ -130,6 +130,7 @@ func ReadRawCSV(r io.Reader, source string, blockSamples int, emit func(Block) e
 		cur = nil
 		return emit(b)
 	}
+	vals := make([]float64, len(names))
 	for {
 		rec, err := cr.Read()
 		if err == io.EOF {
@@ -147,7 +148,6 @@ func ReadRawCSV(r io.Reader, source string, blockSamples int, emit func(Block) e
 			return fail(line, "t_s", "%s s is not after %s s on line %d (rows must be in time order)",
 				strings.TrimSpace(rec[0]), formatUs(prevT), prevLn)
 		}
-		vals := make([]float64, len(names))
 		for i := range names {
 			s := strings.TrimSpace(rec[i+1])
 			if s == "" {
