@@ -135,7 +135,8 @@ func TestCLI_ExitStatus(t *testing.T) {
 		{"check missing file", []string{"check", "/nonexistent.toml"}, 2, "", "no such file"},
 		{"runs missing db", []string{"runs", "--db", "/nonexistent.db"}, 2, "", "no such file"},
 		{"export bad what", []string{"export", "--what", "everything"}, 2, "", `--what "everything"`},
-		{"not built yet", []string{"calibrate"}, 1, "", "issue 5"},
+		{"not built yet", []string{"report"}, 1, "", "liftyard report is not built yet"},
+		{"calibrate without channel", []string{"calibrate"}, 2, "", "--channel is required"},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
