@@ -90,6 +90,7 @@ type segmentRec struct {
 	RhoKgPerM3 jfloat            `json:"rho_kg_m3"`
 	MuPaS      jfloat            `json:"mu_pa_s"`
 	Re         jfloat            `json:"re"`
+	Fn         jfloat            `json:"fn,omitempty"`
 	LiftN      valueRec          `json:"lift_n"`
 	DragN      valueRec          `json:"drag_n"`
 	CL         valueRec          `json:"cl"`
@@ -131,7 +132,7 @@ func encodeSegment(sg *estimate.Segment) ([]byte, error) {
 	rec := segmentRec{
 		Index: sg.Index, TStart: sg.TStart, TEnd: sg.TEnd, N: sg.N, NEff: jfloat(sg.NEff),
 		AlphaRad: toValueRec(sg.AlphaRad), QPa: toValueRec(sg.QPa), SpeedMPerS: toValueRec(sg.SpeedMPerS),
-		RhoKgPerM3: jfloat(sg.RhoKgPerM3), MuPaS: jfloat(sg.MuPaS), Re: jfloat(sg.Re),
+		RhoKgPerM3: jfloat(sg.RhoKgPerM3), MuPaS: jfloat(sg.MuPaS), Re: jfloat(sg.Re), Fn: jfloat(sg.Fn),
 		LiftN: toValueRec(sg.LiftN), DragN: toValueRec(sg.DragN), CL: toValueRec(sg.CL), CD: toValueRec(sg.CD),
 		SpinRatio: jfloat(sg.SpinRatio), DesignCL: toValueRec(sg.DesignCL), En: jfloat(sg.En),
 		CLBudget: budgetRec(sg.CLBudget), CDBudget: budgetRec(sg.CDBudget),
@@ -151,7 +152,7 @@ func decodeSegment(data []byte) (estimate.Segment, error) {
 	return estimate.Segment{
 		Index: rec.Index, TStart: rec.TStart, TEnd: rec.TEnd, N: rec.N, NEff: float64(rec.NEff),
 		AlphaRad: rec.AlphaRad.value(), QPa: rec.QPa.value(), SpeedMPerS: rec.SpeedMPerS.value(),
-		RhoKgPerM3: float64(rec.RhoKgPerM3), MuPaS: float64(rec.MuPaS), Re: float64(rec.Re),
+		RhoKgPerM3: float64(rec.RhoKgPerM3), MuPaS: float64(rec.MuPaS), Re: float64(rec.Re), Fn: float64(rec.Fn),
 		LiftN: rec.LiftN.value(), DragN: rec.DragN.value(), CL: rec.CL.value(), CD: rec.CD.value(),
 		SpinRatio: float64(rec.SpinRatio), DesignCL: rec.DesignCL.value(), En: float64(rec.En),
 		CLBudget: budget(rec.CLBudget), CDBudget: budget(rec.CDBudget),
