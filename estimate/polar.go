@@ -212,16 +212,22 @@ func FitPolar(segs []Segment, opts PolarOptions) (Polar, error) {
 			best = i
 		}
 	}
-	runMax := hi
+	runMax, bend := hi, -1
 	for j := hi + 1; j < len(pts); j++ {
 		below := lf.predict(pts[j].alpha) - pts[j].cl
 		if below > pts[j].u95CL && pts[j].cl <= pts[runMax].cl {
 			p.Stalled = true
 			break
 		}
+		if below > pts[j].u95CL && bend < 0 {
+			bend = j
+		}
 		if pts[j].cl > pts[runMax].cl {
 			runMax = j
 		}
+	}
+	if !p.Stalled && bend >= 0 {
+		p.Warnings = append(p.Warnings, fmt.Sprintf("C_L falls below the lift line from %.1f° while still rising: onset of stall; measure higher angles to find C_L,max", deg(pts[bend].alpha)))
 	}
 	if p.Stalled {
 		best = runMax

@@ -4,6 +4,7 @@ import (
 	"errors"
 	"math"
 	"math/rand/v2"
+	"strings"
 	"testing"
 
 	"liftyard/calibrate"
@@ -218,6 +219,9 @@ func TestFitPolar_Options(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	if !p.Stalled || math.Abs(p.StallRad-rig.Rad(10)) > 1e-12 || strings.Contains(strings.Join(p.Warnings, "\n"), "onset") {
+		t.Errorf("stalled %v at %g°, warnings %q; want the stall at 10°", p.Stalled, p.StallRad*180/math.Pi, p.Warnings)
+	}
 	if len(p.Linear) != 4 || p.Points != 10 {
 		t.Errorf("linear %v of %d points, want 4 of 10", p.Linear, p.Points)
 	}
@@ -247,5 +251,31 @@ func TestFitPolar_Errors(t *testing.T) {
 				t.Errorf("err = %v, want ErrPolar", err)
 			}
 		})
+	}
+}
+
+// Ensure that a lift curve that bends below its line at the last angle but
+// still rises is not called stalled: C_L,max is then a lower bound and the
+// warnings say the stall has begun.
+func TestFitPolar_OnsetOfStall(t *testing.T) {
+	alphas := []float64{-4, 0, 4, 8, 12}
+	segs := polarSegs(alphas, func(a float64) float64 {
+		if a > rig.Rad(11) {
+			return 4.2*rig.Rad(12.5) - 10.5*(a-rig.Rad(11))
+		}
+		return 4.2 * (a - rig.Rad(-1.5))
+	}, parabola(0.01, 0.05, 0.1), 0.005, 0.001, nil)
+	p, err := estimate.FitPolar(segs, estimate.PolarOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if p.Stalled || !math.IsNaN(p.StallRad) {
+		t.Errorf("stalled %v at %g; want no stall", p.Stalled, p.StallRad)
+	}
+	if w := strings.Join(p.Warnings, "\n"); !strings.Contains(w, "onset of stall") || !strings.Contains(w, "lower bound") {
+		t.Errorf("warnings %q", p.Warnings)
+	}
+	if math.Abs(p.AlphaCLMaxRad-rig.Rad(12)) > 1e-12 {
+		t.Errorf("C_L,max at %g°, want the 12° point", p.AlphaCLMaxRad*180/math.Pi)
 	}
 }

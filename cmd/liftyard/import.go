@@ -13,6 +13,7 @@ import (
 	"liftyard/acquire"
 	"liftyard/estimate"
 	"liftyard/rig"
+	"liftyard/storage"
 )
 
 // estimatorConfig is the estimator set-up that every path shares (live
@@ -180,6 +181,9 @@ func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	fmt.Fprintf(stderr, "liftyard import: %d sample times of %d channels (%s) from %s as run %d in %s\n",
 		samples, len(channels), strings.Join(channels, ", "), pos[0], m.RunID(), *db)
 	printDrift(stderr, m)
+	if err := printSummary(stderr, *db, nil, m.RunID(), m.Rig); err != nil {
+		return err
+	}
 	fmt.Fprintln(stdout, m.RunID())
 	return nil
 }
@@ -192,4 +196,46 @@ func offlineMain(r *rig.Rig, rigTOML, db, note string, log *slog.Logger) *Main {
 	rc := *r
 	rc.Publish = nil
 	return &Main{Rig: &rc, RigTOML: rigTOML, DBPath: db, Addr: "127.0.0.1:0", Logger: log, Replay: true, Note: note}
+}
+
+// printSummary prints what a test engineer looks at first after a run is
+// processed: the lift curve (FitPolar) and the verdict against the design.
+// store may be nil (the file at db is opened read-only).
+func printSummary(w io.Writer, db string, store *storage.Store, runID uint64, r *rig.Rig) error {
+	if store == nil {
+		st, err := storage.Open(db, storage.Options{ReadOnly: true})
+		if err != nil {
+			return err
+		}
+		defer st.Close()
+		store = st
+	}
+	segs, err := store.Segments(runID)
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(w, "  %d steady segments\n", len(segs))
+	if p, err := estimate.FitPolar(segs, estimate.PolarOptions{}); err == nil {
+		fmt.Fprintf(w, "  lift slope %.4f ± %.4f /rad (%.5f /deg), zero-lift angle %.2f ± %.2f° (95 %%), linear %.1f° to %.1f°\n",
+			p.SlopePerRad.X, p.SlopePerRad.U95(), p.SlopePerDeg(), rig.Deg(p.AlphaZeroRad.X), rig.Deg(p.AlphaZeroRad.U95()),
+			rig.Deg(p.LinearMinRad), rig.Deg(p.LinearMaxRad))
+		if p.Stalled {
+			fmt.Fprintf(w, "  stall at %.1f°, C_L,max %.3f\n", rig.Deg(p.StallRad), p.CLMax.X)
+		}
+		for _, warn := range p.Warnings {
+			fmt.Fprintf(w, "  note: %s\n", warn)
+		}
+	} else {
+		fmt.Fprintf(w, "  no lift-curve fit: %v\n", err)
+	}
+	d, err := loadDesign(r)
+	if err != nil || d == nil {
+		return nil
+	}
+	c := estimate.Compare(segs, d)
+	fmt.Fprintf(w, "  design (%s): %s\n", c.Design, c.Verdict)
+	for _, reason := range c.Reasons {
+		fmt.Fprintf(w, "    %s\n", reason)
+	}
+	return nil
 }

@@ -144,6 +144,11 @@ func TestImport_DesignComparison(t *testing.T) {
 	db := filepath.Join(t.TempDir(), "import.db")
 	code, _, errOut := runCLI(t, "import", "--rig", rigFile, "--db", db, importCSV)
 	require.Equal(t, 0, code, errOut)
+	t.Log(errOut)
+	require.Contains(t, errOut, "lift slope")
+	require.Contains(t, errOut, "design (design curve")
+	require.Contains(t, errOut, ": disagrees\n    1 of 5 points disagree")
+	require.Contains(t, errOut, "all at or above 12.0°, with the measured lift below the design: stall")
 	rows := exportRows(t, db, "latest")
 	require.Len(t, rows, len(importStep))
 	for i, row := range rows {

@@ -119,6 +119,9 @@ func runReprocess(ctx context.Context, args []string, stdout, stderr io.Writer) 
 	}
 	fmt.Fprintf(stderr, "liftyard reprocess: run %d re-processed as run %d\n", id, m.RunID())
 	printDrift(stderr, m)
+	if err := printSummary(stderr, *db, store, m.RunID(), m.Rig); err != nil {
+		return err
+	}
 	fmt.Fprintln(stdout, m.RunID())
 	return nil
 }
