@@ -382,11 +382,21 @@ func TestPersistentSession_OfflineBacklog(t *testing.T) {
 	publishRaw(t, c, "sess/raw", seqRange(3, 23)...) // nobody connected now
 
 	r2 := runSource(t, ctx, newSource())
-	assert.Equal(t, seqRange(3, 23), r2.next(t, ctx, 20), "offline backlog")
+	got := r2.next(t, ctx, 20)
+	redelivered := uint64(0)
+	if got[0] == 2 {
+		// QoS 1 is at least once: seq 2's ack may have been in flight when
+		// the first source left, so the broker delivers it again. A new
+		// source instance cannot know it was seen (one recorder keeps its
+		// window across reconnects).
+		redelivered = 1
+		got = append(got[1:], r2.next(t, ctx, 1)...)
+	}
+	assert.Equal(t, seqRange(3, 23), got, "offline backlog")
 	publishRaw(t, c, "sess/raw", 23)
 	assert.Equal(t, []uint64{23}, r2.next(t, ctx, 1))
 	h := r2.src.Health.Snapshot("s")
-	assert.Equal(t, uint64(21), h.Frames)
+	assert.Equal(t, 21+redelivered, h.Frames)
 	assert.Zero(t, h.Gaps+h.Duplicates)
 }
 
