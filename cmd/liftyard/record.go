@@ -277,7 +277,7 @@ func (m *Main) Run(ctx context.Context) error {
 		aligner  acquire.Aligner
 		chans    = acquire.NewMonitor(m.Rig)
 		loads    = calibrate.NewLoadMonitor(m.Rig)
-		zeros    = newZeroWatch(m.Rig)
+		zeros    = calibrate.NewZeroWatch(m.Rig)
 		tick     = time.NewTicker(time.Second)
 	)
 	defer tick.Stop()
@@ -323,9 +323,9 @@ loop:
 			}
 			cb := cal.Apply(&b)
 			if zeros != nil {
-				zeros.observe(&cb)
-				if zeros.live != nil {
-					zeros.live.Correct(&cb) // the flow-off zero taken before the run
+				zeros.Observe(&cb)
+				if z := zeros.Live(); z != nil {
+					z.Correct(&cb) // the flow-off zero taken before the run
 				}
 			}
 			for _, l := range loads.Observe(&cb) {
@@ -400,8 +400,8 @@ func (m *Main) segment(items chan<- storage.Item, dash *dashboard.Server, seg es
 // correctZeroDrift applies the flow-off zeros before and after the run: the
 // segments are recomputed from the stored raw blocks with the zero drift
 // removed, and the drift is stored and reported (DESIGN §4).
-func (m *Main) correctZeroDrift(store *storage.Store, runID uint64, cal *calibrate.Calibrator, z *zeroWatch, log *slog.Logger) error {
-	d, err := z.drift()
+func (m *Main) correctZeroDrift(store *storage.Store, runID uint64, cal *calibrate.Calibrator, z *calibrate.ZeroWatch, log *slog.Logger) error {
+	d, err := z.Drift()
 	if err != nil {
 		m.ZeroNote = "no zero-drift correction: " + err.Error()
 		log.Info(m.ZeroNote, "run", runID)
