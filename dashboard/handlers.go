@@ -54,6 +54,12 @@ func (s *Server) routes() http.Handler {
 	mux.HandleFunc("GET /calibrations/{id}/residuals.svg", s.calibrationResidualSVG)
 	mux.HandleFunc("GET /api/v1/calibrations", s.apiCalibrations)
 	mux.HandleFunc("GET /api/v1/calibrations/{id}", s.apiCalibration)
+	// User marks (marks.go): state changes only with a MarkStore.
+	mux.HandleFunc("GET /api/v1/runs/{id}/marks", s.apiMarks)
+	mux.HandleFunc("POST /api/v1/runs/{id}/marks", s.addMark)
+	mux.HandleFunc("POST /api/v1/runs/{id}/marks/{n}/delete", s.deleteMark)
+	mux.HandleFunc("POST /api/v1/runs/{id}/marks/clear", s.clearMarks)
+	mux.HandleFunc("POST /api/v1/runs/{id}/marks/apply", s.applyMarks)
 	return s.secure(mux)
 }
 

@@ -28,6 +28,16 @@ type Config struct {
 	// DesignCL and En (DesignAt). The caller loads it (estimate does no
 	// I/O): a DesignCurve from the rig's [lift] design CSV, or ThinAirfoil.
 	Design Design
+	// Marks, when not empty, are steady segments set by hand ("user marks
+	// override", DESIGN §4): the estimator makes exactly one segment per
+	// mark from the samples inside it (both ends included, on the clock of
+	// Segment.TStart/TEnd) instead of running the automatic steady test,
+	// in mark order. A mark is not split by a gap, and MinDuration does not
+	// apply; a mark holding fewer than two samples gives no segment
+	// (UnusedMarks lists it). The live window is unchanged. Marks must be
+	// in time order without overlap and no longer than MaxSegment
+	// (CheckMarks); NewEstimator refuses them otherwise.
+	Marks []Mark
 }
 
 // ErrRig is returned by NewEstimator when the rig lacks what the estimator
@@ -71,6 +81,9 @@ type Estimator struct {
 	lastTUs   int64
 
 	rhoCacheTK, rhoCache float64 // density at the last temperature asked (speed rigs)
+
+	spans   []markSpan // Config.Marks on the device clock; nil: automatic segments
+	markIdx int        // the mark being filled
 }
 
 // roles are the channel names the lift roles use.
@@ -177,7 +190,14 @@ func NewEstimator(r *rig.Rig, cfg Config) (*Estimator, error) {
 		cfg.Now = time.Now
 	}
 	cfg.Steady = cfg.Steady.withDefaults()
+	if err := CheckMarks(cfg.Marks, cfg.MaxSegment); err != nil {
+		return nil, err
+	}
 	e := &Estimator{rig: r, cfg: cfg, roles: ro, held: map[string]heldValue{}, det: newDetector(cfg.Steady)}
+	if len(cfg.Marks) > 0 {
+		e.cfg.Marks = append([]Mark(nil), cfg.Marks...)
+		e.spans = newMarkSpans(cfg.Marks)
+	}
 	e.uB.alphaU = ro.angleURad
 	e.uB.alphaDof = math.Inf(1)
 	return e, nil
@@ -282,7 +302,9 @@ func (e *Estimator) addPrimary(b *calibrate.Block) []Segment {
 	// A change of spacing, a clock step backwards or a gap longer than a
 	// tick ends the open segment.
 	if e.started && (b.DtUs != e.dtUs || b.T0Us < e.nextTUs || b.T0Us-e.nextTUs > int64(tickDuration/time.Microsecond)) {
-		out = e.closeSegment(out)
+		if !e.marked() { // a mark is not split by a gap
+			out = e.closeSegment(out)
+		}
 		e.tick.reset()
 		e.det.reset()
 		if b.DtUs != e.dtUs || b.T0Us < e.nextTUs {
@@ -335,6 +357,9 @@ func (e *Estimator) addPrimary(b *calibrate.Block) []Segment {
 		sm.spinRadPerS = e.value(e.roles.spin, sv, i, at, math.NaN())
 		e.ring.push(sm)
 		e.tick.push(sm)
+		if e.marked() {
+			out = e.markSample(sm, out)
+		}
 		e.lastTUs = sm.tUs
 		if e.tick.len() >= tickN {
 			out = e.endTick(out)
@@ -351,7 +376,11 @@ func (e *Estimator) Flush() []Segment {
 	if e.tick.len() > 0 {
 		out = e.endTick(out)
 	}
-	out = e.closeSegment(out)
+	if e.marked() {
+		out = e.flushMarks(out)
+	} else {
+		out = e.closeSegment(out)
+	}
 	e.det.reset()
 	return out
 }
@@ -361,6 +390,12 @@ func (e *Estimator) Flush() []Segment {
 func (e *Estimator) endTick(out []Segment) []Segment {
 	a, q := nanMean(e.tick.alphaRad), nanMean(e.tick.qPa)
 	closeSeg, join := e.det.step(a, q)
+	if e.marked() {
+		// The steady test still runs for the live display; marks set the
+		// segments (markSample).
+		e.tick.reset()
+		return out
+	}
 	if closeSeg {
 		// The tick that left the bands shows the rig already moving, so the
 		// tick before it straddles the start of the move: drop it too

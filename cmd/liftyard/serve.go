@@ -1,0 +1,105 @@
+package main
+
+import (
+	"context"
+	"fmt"
+	"io"
+	"net"
+	"os"
+	"sync"
+	"time"
+
+	"liftyard/dashboard"
+	"liftyard/storage"
+)
+
+// serveStore is the store behind `liftyard serve`: the runs, calibrations
+// and marks of a stored database, and the re-processing that applies marks
+// (dashboard.MarkStore).
+type serveStore struct {
+	*storage.Store
+	mu     sync.Mutex
+	starts map[uint64]time.Time // first sample of each run, read once
+}
+
+// RunStart implements dashboard.MarkStore. A run's raw samples never change
+// once it has ended, so the answer is kept.
+func (s *serveStore) RunStart(id uint64) (time.Time, error) {
+	s.mu.Lock()
+	t, ok := s.starts[id]
+	s.mu.Unlock()
+	if ok {
+		return t, nil
+	}
+	t, err := runStart(s.Store, id)
+	if err != nil {
+		return time.Time{}, err
+	}
+	s.mu.Lock()
+	s.starts[id] = t
+	s.mu.Unlock()
+	return t, nil
+}
+
+// ApplyMarks implements dashboard.MarkStore.
+func (s *serveStore) ApplyMarks(ctx context.Context, id uint64) (dashboard.MarksApplied, error) {
+	return applyMarks(ctx, s.Store, id)
+}
+
+// serveOptions are the flags of `liftyard serve`.
+type serveOptions struct {
+	db, addr, token string
+	verbose         bool
+	// onReady, when set, gets the dashboard URL once it listens.
+	onReady func(url string)
+}
+
+// runServe is `liftyard serve --db FILE [--addr 127.0.0.1:8470] [--token T]`.
+func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) error {
+	fs := newFlags("serve", "--db FILE [--addr 127.0.0.1:8470] [--token T]",
+		"serve the dashboard for a stored database (runs, calibrations, marks), without recording", stdout)
+	var o serveOptions
+	fs.StringVar(&o.db, "db", "liftyard.db", "bbolt store file")
+	fs.StringVar(&o.addr, "addr", dashboard.DefaultAddr, "dashboard listen address")
+	fs.StringVar(&o.token, "token", "", "dashboard access token (required when --addr is not loopback)")
+	fs.BoolVar(&o.verbose, "v", false, "log requests that fail to stderr")
+	pos, err := parseFlags(fs, args)
+	if err != nil {
+		return err
+	}
+	if len(pos) > 0 {
+		return usagef("unexpected argument %q (see liftyard serve --help)", pos[0])
+	}
+	o.onReady = func(url string) {
+		fmt.Fprintf(stdout, "liftyard serve: dashboard for %s on %s (Ctrl-C to stop)\n", o.db, url)
+	}
+	return serve(ctx, o, stderr)
+}
+
+// serve holds the store read-write (so marks can be saved; a recorder on
+// the same file then fails fast with the "in use" message) and serves the
+// dashboard until ctx is done.
+func serve(ctx context.Context, o serveOptions, stderr io.Writer) error {
+	if _, err := os.Stat(o.db); err != nil {
+		return usagef("store %s: %v", o.db, err)
+	}
+	store, err := storage.Open(o.db, storage.Options{})
+	if err != nil {
+		return err
+	}
+	defer store.Close()
+	ss := &serveStore{Store: store, starts: map[uint64]time.Time{}}
+	dash, err := dashboard.New(dashboard.Config{Addr: o.addr, Token: o.token, Store: ss, Calibrations: store,
+		Logger: newLogger(stderr, o.verbose)})
+	if err != nil {
+		return usagef("%v", err)
+	}
+	ln, err := net.Listen("tcp", o.addr)
+	if err != nil {
+		return fmt.Errorf("dashboard listen on %s: %w", o.addr, err)
+	}
+	if o.onReady != nil {
+		o.onReady("http://" + ln.Addr().String() + "/")
+	}
+	return dash.Serve(ctx, ln)
+}
