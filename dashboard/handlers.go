@@ -40,6 +40,7 @@ func (s *Server) routes() http.Handler {
 	mux.HandleFunc("GET /runs", s.runsPage)
 	mux.HandleFunc("GET /runs/{id}", s.runPage)
 	mux.HandleFunc("GET /runs/{id}/polar.svg", s.polarSVG)
+	mux.HandleFunc("GET /runs/{id}/report", s.runReport) // printable report (report.go)
 	mux.HandleFunc("POST /logout", s.logout)
 	mux.HandleFunc("GET /api/v1/live", s.apiLive)
 	mux.HandleFunc("GET /api/v1/health", s.apiHealth)

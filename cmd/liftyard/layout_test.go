@@ -18,9 +18,10 @@ var allowed = map[string][]string{
 	"calibrate": {"rig", "acquire"},
 	"estimate":  {"rig", "acquire", "calibrate"},
 	"storage":   {"rig", "acquire", "calibrate", "estimate"},
-	"dashboard": {"rig", "acquire", "calibrate", "estimate", "storage"},
-	"cmd":       {"rig", "acquire", "calibrate", "estimate", "storage", "dashboard"},
-	"internal":  {"rig", "acquire", "calibrate", "estimate", "storage", "dashboard", "internal"},
+	"report":    {"rig", "acquire", "calibrate", "estimate", "storage"},
+	"dashboard": {"rig", "acquire", "calibrate", "estimate", "storage", "report"},
+	"cmd":       {"rig", "acquire", "calibrate", "estimate", "storage", "report", "dashboard"},
+	"internal":  {"rig", "acquire", "calibrate", "estimate", "storage", "report", "dashboard", "internal"},
 }
 
 // forbiddenStd lists standard-library packages a stage must not use.

@@ -135,7 +135,7 @@ func TestCLI_ExitStatus(t *testing.T) {
 		{"check missing file", []string{"check", "/nonexistent.toml"}, 2, "", "no such file"},
 		{"runs missing db", []string{"runs", "--db", "/nonexistent.db"}, 2, "", "no such file"},
 		{"export bad what", []string{"export", "--what", "everything"}, 2, "", `--what "everything"`},
-		{"not built yet", []string{"report"}, 1, "", "liftyard report is not built yet"},
+		{"report without run", []string{"report"}, 2, "", "--run missing"},
 		{"calibrate without channel", []string{"calibrate"}, 2, "", "--channel is required"},
 	}
 	for _, tt := range tests {

@@ -1,0 +1,94 @@
+package main
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+
+	"liftyard/report"
+	"liftyard/storage"
+)
+
+// version is the liftyard version printed in reports.
+const version = "dev"
+
+// runReport is `liftyard report --db FILE --run ID|latest --out FILE.html
+// [--rig-dir DIR]`: it writes the printable HTML report of one run and
+// prints the file's path.
+func runReport(_ context.Context, args []string, stdout, _ io.Writer) error {
+	fs := newFlags("report", "--db FILE --run ID|latest --out FILE.html [--rig-dir DIR]",
+		"write a printable HTML report of a run (plots, segments, uncertainty budgets, record quality)", stdout)
+	db := fs.String("db", "liftyard.db", "bbolt store file")
+	ref := fs.String("run", "", "run id, or latest")
+	out := fs.String("out", "", "HTML file to write")
+	rigDir := fs.String("rig-dir", "", "folder a relative [lift] design curve path is read from (default: the current directory)")
+	pos, err := parseFlags(fs, args)
+	if err != nil {
+		return err
+	}
+	if len(pos) > 0 {
+		return usagef("unexpected argument %q (see liftyard report --help)", pos[0])
+	}
+	if *ref == "" {
+		return usagef("--run missing: give a run id or latest (liftyard runs --db %s lists them)", *db)
+	}
+	if *out == "" {
+		return usagef("--out missing: give the HTML file to write, e.g. --out run-%s.html", *ref)
+	}
+	store, err := openStore(*db)
+	if err != nil {
+		return err
+	}
+	defer store.Close()
+	id, err := store.ResolveRun(*ref)
+	if err != nil {
+		if errors.Is(err, storage.ErrNotFound) {
+			return usagef("run %s: no such run in %s (liftyard runs --db %s lists them)", *ref, *db, *db)
+		}
+		return usagef("%v", err)
+	}
+	rep, err := report.Build(store, id, report.Options{RigDir: *rigDir, Version: version})
+	if err != nil {
+		return err
+	}
+	if err := writeFileAtomic(*out, rep.WriteHTML); err != nil {
+		return fmt.Errorf("write report: %w", err)
+	}
+	abs, err := filepath.Abs(*out)
+	if err != nil {
+		abs = *out
+	}
+	fmt.Fprintln(stdout, abs)
+	return nil
+}
+
+// writeFileAtomic writes through a temporary file in the same folder and
+// renames it, so a failed report never leaves half a file under the name.
+func writeFileAtomic(path string, write func(io.Writer) error) error {
+	f, err := os.CreateTemp(filepath.Dir(path), ".liftyard-report-*")
+	if err != nil {
+		return err
+	}
+	tmp := f.Name()
+	if err := write(f); err != nil {
+		f.Close()
+		os.Remove(tmp)
+		return err
+	}
+	if err := f.Close(); err != nil {
+		os.Remove(tmp)
+		return err
+	}
+	if err := os.Chmod(tmp, 0o644); err != nil {
+		os.Remove(tmp)
+		return err
+	}
+	if err := os.Rename(tmp, path); err != nil {
+		os.Remove(tmp)
+		return err
+	}
+	return nil
+}

@@ -1,0 +1,427 @@
+package report
+
+import (
+	"bytes"
+	_ "embed"
+	"fmt"
+	"html/template"
+	"io"
+	"maps"
+	"math"
+	"slices"
+	"sort"
+	"strconv"
+	"strings"
+
+	"liftyard/calibrate"
+	"liftyard/estimate"
+	"liftyard/rig"
+)
+
+//go:embed report.html.tmpl
+var pageTmpl string
+
+// tmpl is parsed once; a broken template is a bug that every test catches.
+var tmpl = template.Must(template.New("report").Funcs(template.FuncMap{
+	// svg marks a plot rendered by this package as safe HTML. Plots carry
+	// only our own labels and numbers (newPlot), never a user string.
+	"svg": func(s string) template.HTML { return template.HTML(s) },
+}).Parse(pageTmpl))
+
+// maxEventRows bounds the event table; a run with thousands of gaps lists
+// the first ones and counts the rest by kind.
+const maxEventRows = 200
+
+// row is one table row of label and value.
+type row struct{ K, V string }
+
+type segRow struct {
+	Index, Alpha, Q, V, Re, Fn, Spin, CL, CD, N, NEff, Design, En string
+	Linear, Disagree                                              bool
+}
+
+type budgetRow struct{ Input, U, C, UY, Share, Dof string }
+
+type budgetView struct {
+	Title                    string
+	Rows                     []budgetRow
+	UC, DofEff, K, U95, Note string
+}
+
+type healthRow struct {
+	Source, Frames, Samples, Rejected, RejectedBy, Dropped, Duplicates, Gaps, Late, Reconnects string
+}
+
+type chanRow struct{ Channel, Source, Samples, Missing, Saturated, Stale string }
+
+type loadRow struct {
+	Channel, Capacity, Max, Warnings, Alarms string
+	Warn, Alarm                              bool
+}
+
+type driftRow struct{ Channel, Start, End, Change, Unit string }
+
+type calRow struct {
+	ID, Channel, Created, ValidUntil, State string
+	Bad                                     bool
+}
+
+type eventRow struct{ T, Kind, Source, Message string }
+
+// view is the template's data: every number already rounded to text.
+type view struct {
+	Title     string
+	RunID     uint64
+	Rig       string
+	Generated string
+	Version   string
+
+	Summary []string
+	Facts   []row
+
+	Figures []*figure
+
+	Water, Rotor bool
+	Segments     []segRow
+
+	PolarRows     []row
+	PolarWarnings []string
+	PolarProblem  string
+
+	DesignDesc    string
+	Verdict       string
+	VerdictClass  string
+	Reasons       []string
+	DesignProblem string
+
+	Budgets []budgetView
+
+	Health      []healthRow
+	Channels    []chanRow
+	Loads       []loadRow
+	Drift       []driftRow
+	Cals        []calRow
+	Events      []eventRow
+	EventsMore  string
+	EventCounts string
+
+	Notes []string
+}
+
+// WriteHTML writes the report as one self-contained HTML page (inline CSS
+// and SVG, no scripts or external files). It is deterministic for the same
+// Report.
+func (r *Report) WriteHTML(w io.Writer) error {
+	v, err := r.view()
+	if err != nil {
+		return err
+	}
+	var buf bytes.Buffer
+	if err := tmpl.Execute(&buf, v); err != nil {
+		return fmt.Errorf("render report of run %d: %w", r.Run.ID, err)
+	}
+	_, err = buf.WriteTo(w)
+	return err
+}
+
+func (r *Report) view() (*view, error) {
+	v := &view{
+		Title:     fmt.Sprintf("Run %d: %s", r.Run.ID, r.Run.Rig),
+		RunID:     r.Run.ID,
+		Rig:       r.Run.Rig,
+		Generated: when(r.Generated),
+		Version:   r.Version,
+		Summary:   r.Summary(),
+		Water:     r.Run.Fluid == string(rig.FluidFreshWater) || r.Run.Fluid == string(rig.FluidSeaWater),
+		Rotor:     r.isRotor(),
+		Notes:     r.Notes,
+	}
+	v.Facts = r.facts()
+	for _, f := range []func() (*figure, error){r.liftPlot, r.dragPlot, r.enPlot, r.qPlot} {
+		fig, err := f()
+		if err != nil {
+			return nil, fmt.Errorf("report of run %d: %w", r.Run.ID, err)
+		}
+		if fig != nil {
+			v.Figures = append(v.Figures, fig)
+		}
+	}
+	linear := map[int]bool{}
+	if r.Polar != nil {
+		for _, i := range r.Polar.Linear {
+			linear[i] = true
+		}
+	}
+	compared := map[int]estimate.ComparisonPoint{}
+	if r.Comparison != nil {
+		for _, pt := range r.Comparison.Points {
+			compared[pt.Segment] = pt
+		}
+	}
+	for i, s := range r.Segments {
+		// The design column shows the comparison this report states (the
+		// same estimate.DesignAt the recorder used), else what was stored.
+		if pt, ok := compared[s.Index]; ok {
+			s.DesignCL, s.En = pt.DesignCL, pt.En
+		}
+		v.Segments = append(v.Segments, r.segRow(s, linear[i]))
+		if b := budgetOf(s); b != nil {
+			v.Budgets = append(v.Budgets, *b)
+		}
+	}
+	r.polarView(v)
+	r.designView(v)
+	r.recordView(v)
+	return v, nil
+}
+
+func (r *Report) facts() []row {
+	run := r.Run
+	f := []row{
+		{"Run", strconv.FormatUint(run.ID, 10)},
+		{"Rig", run.Rig},
+		{"Kind, fluid", run.Kind + ", " + strings.ReplaceAll(run.Fluid, "_", " ")},
+		{"Reference area S [m²]", fmt.Sprintf("%s (%s)", sig(run.AreaM2, 4), orDash(run.AreaKind))},
+	}
+	if g := r.Rig; g != nil {
+		ref := g.Reference
+		if ref.AreaUM2 > 0 {
+			f = append(f, row{"u(S) [m²]", sig(ref.AreaUM2, 2)})
+		}
+		if ref.LengthM > 0 {
+			f = append(f, row{"Reference length (chord) [m]", sig(ref.LengthM, 4)})
+		}
+		if ref.SpanM > 0 {
+			f = append(f, row{"Span [m]", sig(ref.SpanM, 4)}, row{"Aspect ratio b²/S", fix(ref.AspectRatio(), 2)})
+		}
+		if ref.RadiusM > 0 {
+			f = append(f, row{"Rotor radius [m]", sig(ref.RadiusM, 4)})
+		}
+		c := g.Conditions
+		cond := fmt.Sprintf("%s °C", fix(c.TempK-273.15, 1))
+		if g.Fluid == rig.FluidAir {
+			cond += fmt.Sprintf(", %s Pa, RH %s %%", fix(c.PressurePa, 0), fix(100*c.RelHumidity, 0))
+		}
+		if g.Fluid == rig.FluidSeaWater {
+			cond += fmt.Sprintf(", salinity %s g/kg", fix(1000*c.SalinityKgPerKg, 2))
+		}
+		if g.Lift.Temperature != "" {
+			cond += " (temperature measured by channel " + g.Lift.Temperature + "; the fixed value applies when it does not read)"
+		}
+		f = append(f, row{"Fixed conditions", cond})
+		d := g.Lift.Design
+		if d == "" {
+			d = "none"
+		}
+		f = append(f, row{"Design ([lift] design)", d})
+	}
+	f = append(f,
+		row{"Started", when(run.Started)},
+		row{"Ended", when(run.Ended)},
+		row{"Duration", dur(r.Duration)},
+		row{"Status", string(run.Status)},
+		row{"Samples stored, segments", fmt.Sprintf("%d, %d", run.Samples, len(r.Segments))},
+	)
+	if run.Note != "" {
+		f = append(f, row{"Note", run.Note})
+	}
+	return f
+}
+
+func orDash(s string) string {
+	if s == "" {
+		return "kind not recorded"
+	}
+	return s
+}
+
+func (r *Report) segRow(s estimate.Segment, linear bool) segRow {
+	sr := segRow{
+		Index:  strconv.Itoa(s.Index),
+		Alpha:  pm(rig.Deg(s.AlphaRad.X), rig.Deg(u95Of(s.AlphaRad)), 2),
+		Q:      pm(s.QPa.X, u95Of(s.QPa), 1),
+		V:      pm(s.SpeedMPerS.X, u95Of(s.SpeedMPerS), 3),
+		Re:     sig(s.Re, 2),
+		Fn:     fix(s.Fn, 3),
+		Spin:   fix(s.SpinRatio, 3),
+		CL:     pm(s.CL.X, u95Of(s.CL), 3),
+		CD:     pm(s.CD.X, u95Of(s.CD), 4),
+		N:      strconv.Itoa(s.N),
+		NEff:   fix(s.NEff, 0),
+		Design: dash,
+		En:     dash,
+		Linear: linear,
+	}
+	if !measured(s.AlphaRad) {
+		sr.Alpha = dash
+	}
+	if !measured(s.QPa) {
+		sr.Q = dash
+	}
+	if !measured(s.SpeedMPerS) {
+		sr.V = dash
+	}
+	if !measured(s.CL) {
+		sr.CL = dash
+	}
+	if !measured(s.CD) {
+		sr.CD = dash
+	}
+	if s.DesignCL != (calibrate.Value{}) {
+		sr.Design = pm(s.DesignCL.X, s.DesignCL.U95(), 3)
+		sr.En = fix(s.En, 2)
+		sr.Disagree = finite(s.En) && math.Abs(s.En) > 1
+	}
+	return sr
+}
+
+// budgetOf is the C_L budget of one segment (JCGM 100 §8).
+func budgetOf(s estimate.Segment) *budgetView {
+	if len(s.CLBudget) == 0 {
+		return nil
+	}
+	b := &budgetView{Title: fmt.Sprintf("Segment %d at α = %s°: C_L = %s", s.Index, fix(rig.Deg(s.AlphaRad.X), 2), pm(s.CL.X, u95Of(s.CL), 3))}
+	var sum2 float64
+	for _, c := range s.CLBudget {
+		if finite(c.UY) {
+			sum2 += c.UY * c.UY
+		}
+	}
+	for _, c := range s.CLBudget {
+		share := dash
+		if sum2 > 0 && finite(c.UY) {
+			share = fix(100*c.UY*c.UY/sum2, 1) + " %"
+		}
+		b.Rows = append(b.Rows, budgetRow{Input: c.Input, U: sig(c.U, 2), C: sig(c.Sensitivity, 3), UY: sig(c.UY, 2), Share: share, Dof: dof(c.Dof)})
+	}
+	b.UC = sig(s.CL.U, 2)
+	b.DofEff = dof(s.CL.Dof)
+	b.K = fix(calibrate.K95(s.CL.Dof), 2)
+	b.U95 = sig(s.CL.U95(), 2)
+	if math.Abs(math.Sqrt(sum2)-s.CL.U) > 0.02*s.CL.U {
+		b.Note = "The listed contributions do not add up in quadrature to u_c: inputs are correlated or a term is carried elsewhere (see the methods)."
+	}
+	return b
+}
+
+func (r *Report) polarView(v *view) {
+	p := r.Polar
+	if p == nil {
+		v.PolarProblem = r.PolarProblem
+		if r.isRotor() {
+			v.PolarProblem = "A rotor's lift is reported against the spin ratio; no lift curve in α is fitted."
+		}
+		return
+	}
+	perDeg := math.Pi / 180
+	v.PolarRows = []row{
+		{"Lift-curve slope a [1/rad]", pm(p.SlopePerRad.X, p.SlopePerRad.U95(), 3)},
+		{"Lift-curve slope a [1/°]", pm(p.SlopePerRad.X*perDeg, p.SlopePerRad.U95()*perDeg, 4)},
+		{"Zero-lift angle α_L0 [°]", pm(rig.Deg(p.AlphaZeroRad.X), rig.Deg(p.AlphaZeroRad.U95()), 2)},
+		{"C_L at α = 0", pm(p.CLAtZeroAlpha.X, p.CLAtZeroAlpha.U95(), 3)},
+		{"Linear range [°]", fix(rig.Deg(p.LinearMinRad), 1) + " to " + fix(rig.Deg(p.LinearMaxRad), 1) + " (" + plural(len(p.Linear), "point", "points") + ")"},
+		{"χ² of the lift fit, ν", fix(p.ChiSq, 2) + ", " + strconv.Itoa(p.FitDof) + scaledNote(p.Scaled)},
+	}
+	if p.Stalled {
+		v.PolarRows = append(v.PolarRows, row{"Stall angle [°]", fix(rig.Deg(p.StallRad), 1)})
+	} else {
+		v.PolarRows = append(v.PolarRows, row{"Stall", "not reached in the measured range"})
+	}
+	v.PolarRows = append(v.PolarRows, row{"C_L,max (at " + fix(rig.Deg(p.AlphaCLMaxRad), 1) + "°)", pm(p.CLMax.X, p.CLMax.U95(), 3) + lowerBound(p.Stalled)})
+	if p.DragFitted {
+		v.PolarRows = append(v.PolarRows,
+			row{"Minimum drag C_D0", pm(p.CD0.X, p.CD0.U95(), 4)},
+			row{"Drag-due-to-lift factor K", pm(p.K.X, p.K.U95(), 3)},
+			row{"C_L at minimum drag", pm(p.CLMinD.X, p.CLMinD.U95(), 3)})
+	}
+	v.PolarWarnings = p.Warnings
+}
+
+func scaledNote(scaled bool) string {
+	if scaled {
+		return " (uncertainties scaled by χ²/ν)"
+	}
+	return ""
+}
+
+func lowerBound(stalled bool) string {
+	if stalled {
+		return ""
+	}
+	return " (a lower bound)"
+}
+
+func (r *Report) designView(v *view) {
+	v.DesignProblem = r.DesignProblem
+	c := r.Comparison
+	if c == nil {
+		return
+	}
+	v.DesignDesc = c.Design
+	v.Verdict = fmt.Sprintf("%s (%d points agree, %d disagree, %d outside the design's range)", verdictWord(c), c.Agree, c.Disagree, c.Outside)
+	v.VerdictClass = strings.ReplaceAll(c.Verdict, " ", "-")
+	v.Reasons = c.Reasons
+}
+
+func (r *Report) recordView(v *view) {
+	for _, h := range r.Sources {
+		hr := healthRow{Source: h.Source, Frames: u(h.Frames), Samples: u(h.Samples), Rejected: u(h.Rejected),
+			Dropped: u(h.SamplesDropped) + " samples, " + u(h.BlocksDropped) + " blocks", Duplicates: u(h.Duplicates),
+			Gaps: u(h.Gaps), Late: u(h.Late), Reconnects: u(h.Reconnects)}
+		var by []string
+		for _, k := range slices.Sorted(maps.Keys(h.RejectedBy)) {
+			by = append(by, k+" "+u(h.RejectedBy[k]))
+		}
+		hr.RejectedBy = strings.Join(by, ", ")
+		v.Health = append(v.Health, hr)
+	}
+	for _, c := range r.Channels {
+		st := "no"
+		if c.Stale {
+			st = "yes"
+		}
+		v.Channels = append(v.Channels, chanRow{c.Channel, c.Source, u(c.Samples), u(c.Missing), u(c.Saturated), st})
+	}
+	for _, l := range r.Loads {
+		v.Loads = append(v.Loads, loadRow{Channel: l.Channel, Capacity: sig(l.CapacitySI, 3) + " " + l.Unit, Max: pct(l.MaxFrac),
+			Warnings: u(l.Warnings), Alarms: u(l.Alarms), Warn: l.MaxFrac >= 0.8, Alarm: l.MaxFrac >= 1 || l.Alarms > 0})
+	}
+	for _, d := range r.Drift {
+		unit := r.DriftUnit(d.Channel)
+		v.Drift = append(v.Drift, driftRow{d.Channel, sig(d.StartSI, 4), sig(d.EndSI, 4), sig(d.ChangeSI, 2), unit})
+	}
+	for _, c := range r.Calibrations {
+		cr := calRow{ID: c.ID, Channel: c.Channel, Created: day(c.Created), ValidUntil: day(c.ValidUntil), State: "valid at the run"}
+		switch {
+		case c.Missing != "":
+			cr.State, cr.Bad = c.Missing, true
+		case c.Expired:
+			cr.State, cr.Bad = "EXPIRED before the run started", true
+		case c.ValidUntil.IsZero():
+			cr.State = "no end of validity stated"
+		}
+		v.Cals = append(v.Cals, cr)
+	}
+	counts := map[string]int{}
+	for i, e := range r.Events {
+		counts[e.Kind]++
+		if i < maxEventRows {
+			v.Events = append(v.Events, eventRow{when(e.T), e.Kind, e.Source, e.Message})
+		}
+	}
+	if n := len(r.Events) - maxEventRows; n > 0 {
+		v.EventsMore = fmt.Sprintf("… and %d more events (liftyard export has them all).", n)
+	}
+	kinds := make([]string, 0, len(counts))
+	for k := range counts {
+		kinds = append(kinds, k)
+	}
+	sort.Strings(kinds)
+	var parts []string
+	for _, k := range kinds {
+		parts = append(parts, fmt.Sprintf("%s %d", k, counts[k]))
+	}
+	v.EventCounts = strings.Join(parts, ", ")
+}
+
+func u(n uint64) string { return strconv.FormatUint(n, 10) }
