@@ -47,7 +47,7 @@ func verbs() []verb {
 		{"record", "record from the sources of a rig file, with the live dashboard", runRecord},
 		{"check", "validate a rig file and list every problem with its line", runCheck},
 		{"runs", "list the runs in a store", runRuns},
-		{"export", "export a run's segment results or raw samples (json, csv)", runExport},
+		{"export", "export a run's segment results, calibrated values or raw samples (json, csv)", runExport},
 		{"import", "ingest a raw CSV recorded elsewhere as a new run, processed as a live run", runImport},
 		{"calibrate", calibrateSummary, runCalibrate},
 		{"fluid", "print density and viscosity of air or water at given conditions", runFluid},
@@ -56,15 +56,6 @@ func verbs() []verb {
 		{"marks", "set steady segments of a run by hand and recompute its segments with them", runMarks},
 		{"report", "write a printable HTML report of a run: plots, segments, uncertainty budgets, record quality", runReport},
 		{"reprocess", "re-process a run from its stored raw samples as a new run (e.g. with a corrected rig file)", runReprocess},
-	}
-}
-
-func notYet(name string, issue int) func(context.Context, []string, io.Writer, io.Writer) error {
-	return func(context.Context, []string, io.Writer, io.Writer) error {
-		if issue > 0 {
-			return fmt.Errorf("liftyard %s is not built yet (planned in issue %d)", name, issue)
-		}
-		return fmt.Errorf("liftyard %s is not built yet", name)
 	}
 }
 
