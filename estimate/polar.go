@@ -3,8 +3,11 @@ package estimate
 import (
 	"errors"
 	"fmt"
+	"maps"
 	"math"
+	"slices"
 	"sort"
+	"strings"
 
 	"gonum.org/v1/gonum/mat"
 	"gonum.org/v1/gonum/stat/distuv"
@@ -36,7 +39,11 @@ type Polar struct {
 	LinearMinRad float64 // smallest α of the linear range
 	LinearMaxRad float64 // largest α of the linear range
 
-	SlopePerRad   calibrate.Value // lift-curve slope a = dC_L/dα, per rad
+	SlopePerRad calibrate.Value // lift-curve slope a = dC_L/dα, per rad
+	// SlopeBudget is the slope's uncertainty budget: the scatter of the
+	// points about the line, and each input common to all points (reference
+	// area, calibrations), which no number of points averages away.
+	SlopeBudget   []Contribution
 	AlphaZeroRad  calibrate.Value // zero-lift angle α_L0
 	CLAtZeroAlpha calibrate.Value // intercept C_L(α = 0)
 	ChiSq         float64         // Σ (residual/u)² of the lift fit
@@ -75,6 +82,82 @@ type polarPoint struct {
 	u95CL          float64
 	effU           float64 // u of C_L including the angle's u through the slope
 	effDof         float64
+	// shared holds the signed contributions c·u to C_L of inputs whose
+	// error is common to every point of a run (reference area, the
+	// calibrations); uCL then holds only the independent part.
+	shared map[string]sharedContribution
+}
+
+// splitShared separates a segment's C_L budget into the independent part
+// (the scatter of the segment, Type A: its "scatter" lines) and the shared
+// inputs (every other line: calibrations, reference area, angle
+// calibration — one error common to all the points of a run). Without a
+// budget the whole u(C_L) counts as independent.
+func splitShared(pp *polarPoint, budget []Contribution) {
+	if len(budget) == 0 {
+		return
+	}
+	var ind []Contribution
+	for _, c := range budget {
+		if strings.Contains(c.Input, "scatter") {
+			ind = append(ind, c)
+			continue
+		}
+		if pp.shared == nil {
+			pp.shared = map[string]sharedContribution{}
+		}
+		pp.shared[c.Input] = sharedContribution{d: c.Sensitivity * c.U, dof: dofOrInf(c.Dof)}
+	}
+	if len(ind) == 0 {
+		return
+	}
+	v := Combine(ind)
+	if v.U > 0 {
+		pp.uCL, pp.dofCL = v.U, dofOrInf(v.Dof)
+	}
+}
+
+// addShared adds the shared inputs to the line's covariance. The fitted
+// parameters are linear in the C_L values (a = Σ wa_i·C_L,i), so an error
+// common to every point moves them by Σ wa_i·δ_i: fully correlated inputs
+// add (Σ wa_i·δ_i)² to var(a) — not Σ (wa_i·δ_i)², which would shrink with
+// the number of points (JCGM 100 §5.2, correlated input quantities).
+// It returns the slope's budget: the fit's own scatter and each shared
+// input.
+func (l *line) addShared(pts []polarPoint) []Contribution {
+	budget := []Contribution{{Input: "scatter of the points about the line", U: math.Sqrt(l.varB), Sensitivity: 1, UY: math.Sqrt(l.varB), Dof: l.dofB}}
+	names := map[string]bool{}
+	for _, pt := range pts {
+		for n := range pt.shared {
+			names[n] = true
+		}
+	}
+	csA := []Contribution{{UY: math.Sqrt(l.varA), Dof: l.dofA}}
+	csB := []Contribution{{UY: math.Sqrt(l.varB), Dof: l.dofB}}
+	for _, n := range slices.Sorted(maps.Keys(names)) {
+		var da, db float64
+		dof := math.Inf(1)
+		for i, pt := range pts {
+			c := pt.shared[n]
+			da += l.wa[i] * c.d
+			db += l.wb[i] * c.d
+			dof = math.Min(dof, c.dof)
+		}
+		l.varA += da * da
+		l.varB += db * db
+		l.cov += da * db
+		csA = append(csA, Contribution{UY: math.Abs(da), Dof: dof})
+		csB = append(csB, Contribution{UY: math.Abs(db), Dof: dof})
+		budget = append(budget, Contribution{Input: n + " (common to all points)", U: math.Abs(db), Sensitivity: 1, UY: math.Abs(db), Dof: dof})
+	}
+	l.dofA, l.dofB = WelchSatterthwaite(csA), WelchSatterthwaite(csB)
+	return budget
+}
+
+// sharedContribution is one shared input's signed effect on a point's C_L.
+type sharedContribution struct {
+	d   float64 // c_i·u(x_i), signed
+	dof float64
 }
 
 // FitPolar fits the lift curve and drag polar of steady segments.
@@ -90,6 +173,12 @@ type polarPoint struct {
 // scatter exceeds the stated uncertainties (χ²/ν above its 95 % quantile)
 // the covariance is scaled by χ²/ν (the Birge ratio, common practice) with
 // ν = n − 2, and Scaled is set.
+//
+// The weights and χ² use only the independent part of each point's u(C_L)
+// (its scatter); inputs common to every point (reference area,
+// calibrations: all budget lines other than the scatter) are added after
+// the fit as fully correlated errors, since averaging over points does not
+// reduce them (see SlopeBudget).
 //
 // α_L0 = −C_L(0)/a; its uncertainty comes from the covariance of the two
 // parameters (first-order propagation, JCGM 100 eq. 13).
@@ -141,6 +230,7 @@ func FitPolar(segs []Segment, opts PolarOptions) (Polar, error) {
 		if !finite(pp.uAlpha) {
 			pp.uAlpha = 0
 		}
+		splitShared(&pp, s.CLBudget)
 		pts = append(pts, pp)
 	}
 	p.Points = len(pts)
@@ -194,6 +284,7 @@ func FitPolar(segs []Segment, opts PolarOptions) (Polar, error) {
 		p.Linear = append(p.Linear, pts[i].idx)
 	}
 	p.LinearMinRad, p.LinearMaxRad = pts[lo].alpha, pts[hi].alpha
+	p.SlopeBudget = lf.addShared(pts[lo : hi+1])
 	p.SlopePerRad = calibrate.Value{X: lf.b, U: math.Sqrt(lf.varB), Dof: lf.dofB}
 	p.CLAtZeroAlpha = calibrate.Value{X: lf.a, U: math.Sqrt(lf.varA), Dof: lf.dofA}
 	p.AlphaZeroRad = lf.alphaZero()

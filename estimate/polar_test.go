@@ -279,3 +279,81 @@ func TestFitPolar_OnsetOfStall(t *testing.T) {
 		t.Errorf("C_L,max at %g°, want the 12° point", p.AlphaCLMaxRad*180/math.Pi)
 	}
 }
+
+// Ensure that an error common to every point of a run — here the reference
+// area, off by a random 2 % (1 σ) per run and the same for all its points —
+// is carried into the slope's uncertainty in full: the 95 % intervals cover
+// the true slope 90–99 % of the time over many runs, and are not inflated.
+// Treating the area's share of each point's u as independent (the plain
+// weighted fit) would shrink it by about √n and under-cover; the test shows
+// that too (JCGM 100 §5.2: correlated input quantities).
+func TestFitPolar_SharedAreaErrorCoverage(t *testing.T) {
+	const runs = 400
+	const slope, a0, uAreaRel, uScatter = 5.0, -1.0, 0.02, 0.004
+	alphas := []float64{-4, -2, 0, 2, 4, 6, 8}
+	covered, coveredNaive := 0, 0
+	var errs []float64
+	var sumU95 float64
+	for seed := range uint64(runs) {
+		r := rand.New(rand.NewPCG(seed, 77))
+		areaErr := uAreaRel * r.NormFloat64() // S_assumed = S_true·(1 + areaErr): every C_L comes out ÷(1 + areaErr)
+		segs := make([]estimate.Segment, len(alphas))
+		naive := make([]estimate.Segment, len(alphas))
+		for i, ad := range alphas {
+			a := rig.Rad(ad)
+			cl := slope*(a-rig.Rad(a0))/(1+areaErr) + uScatter*r.NormFloat64()
+			uArea := math.Abs(cl) * uAreaRel // u from the area: |∂C_L/∂S|·u(S) = C_L·u(S)/S
+			total := math.Hypot(uScatter, uArea)
+			segs[i] = estimate.Segment{
+				Index:    i,
+				AlphaRad: calibrate.Value{X: a, Dof: math.Inf(1)},
+				CL:       calibrate.Value{X: cl, U: total, Dof: math.Inf(1)},
+				CLBudget: []estimate.Contribution{
+					{Input: "lift scatter (loads and q together)", U: uScatter, Sensitivity: 1, UY: uScatter, Dof: math.Inf(1)},
+					{Input: "reference area", U: uAreaRel, Sensitivity: -cl, UY: uArea, Dof: math.Inf(1)},
+				},
+			}
+			naive[i] = segs[i]
+			naive[i].CLBudget = nil // no budget: the whole u counts as independent
+		}
+		p, err := estimate.FitPolar(segs, estimate.PolarOptions{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		e := p.SlopePerRad.X - slope
+		errs = append(errs, e)
+		sumU95 += p.SlopePerRad.U95()
+		if math.Abs(e) <= p.SlopePerRad.U95() {
+			covered++
+		}
+		pn, err := estimate.FitPolar(naive, estimate.PolarOptions{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if math.Abs(pn.SlopePerRad.X-slope) <= pn.SlopePerRad.U95() {
+			coveredNaive++
+		}
+		if seed == 0 {
+			names := []string{}
+			for _, c := range p.SlopeBudget {
+				names = append(names, c.Input)
+			}
+			if len(p.SlopeBudget) != 2 || !strings.Contains(names[1], "reference area") {
+				t.Errorf("slope budget %q, want the scatter and the reference area", names)
+			}
+		}
+	}
+	frac := float64(covered) / runs
+	ratio := sumU95 / runs / quantileAbs(errs, 0.95)
+	t.Logf("shared area error: coverage %.3f (independent treatment: %.3f), mean U95 / true 95 %% spread = %.2f",
+		frac, float64(coveredNaive)/runs, ratio)
+	if frac < 0.90 || frac > 0.99 {
+		t.Errorf("coverage %.3f outside 0.90–0.99", frac)
+	}
+	if ratio < 1/1.5 || ratio > 1.5 {
+		t.Errorf("mean U95 / true spread = %.2f, want within 1.5×", ratio)
+	}
+	if float64(coveredNaive)/runs > 0.85 {
+		t.Errorf("the independent treatment covers %.3f: the test does not tell the two apart", float64(coveredNaive)/runs)
+	}
+}
