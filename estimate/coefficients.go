@@ -234,7 +234,7 @@ func typeA(x []float64) (u, neff float64) {
 }
 
 func typeAContribution(name string, u, neff float64) Contribution {
-	return Contribution{Input: name + " (type A)", U: u, Sensitivity: 1, UY: u, Dof: math.Max(1, neff-1)}
+	return Contribution{Input: name + " (type A)", U: u, Sensitivity: 1, UY: u, Dof: math.Max(1, neff-1), TypeA: true}
 }
 
 func withX(x float64, v calibrate.Value) calibrate.Value {

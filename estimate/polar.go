@@ -7,7 +7,6 @@ import (
 	"math"
 	"slices"
 	"sort"
-	"strings"
 
 	"gonum.org/v1/gonum/mat"
 	"gonum.org/v1/gonum/stat/distuv"
@@ -89,17 +88,17 @@ type polarPoint struct {
 }
 
 // splitShared separates a segment's C_L budget into the independent part
-// (the scatter of the segment, Type A: its "scatter" lines) and the shared
-// inputs (every other line: calibrations, reference area, angle
-// calibration — one error common to all the points of a run). Without a
-// budget the whole u(C_L) counts as independent.
+// (the Type A lines, from the segment's own samples) and the shared inputs
+// (every other line: calibrations, reference area, angle calibration — one
+// error common to all the points of a run). Without a budget the whole
+// u(C_L) counts as independent.
 func splitShared(pp *polarPoint, budget []Contribution) {
 	if len(budget) == 0 {
 		return
 	}
 	var ind []Contribution
 	for _, c := range budget {
-		if strings.Contains(c.Input, "scatter") {
+		if c.TypeA {
 			ind = append(ind, c)
 			continue
 		}

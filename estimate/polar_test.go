@@ -309,7 +309,7 @@ func TestFitPolar_SharedAreaErrorCoverage(t *testing.T) {
 				AlphaRad: calibrate.Value{X: a, Dof: math.Inf(1)},
 				CL:       calibrate.Value{X: cl, U: total, Dof: math.Inf(1)},
 				CLBudget: []estimate.Contribution{
-					{Input: "lift scatter (loads and q together)", U: uScatter, Sensitivity: 1, UY: uScatter, Dof: math.Inf(1)},
+					{Input: "lift scatter (loads and q together) (type A)", U: uScatter, Sensitivity: 1, UY: uScatter, Dof: math.Inf(1), TypeA: true},
 					{Input: "reference area", U: uAreaRel, Sensitivity: -cl, UY: uArea, Dof: math.Inf(1)},
 				},
 			}

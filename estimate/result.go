@@ -14,6 +14,10 @@ type Contribution struct {
 	Sensitivity float64 // sensitivity coefficient c_i = ∂y/∂x_i
 	UY          float64 // |c_i|·u(x_i): contribution in the result's unit
 	Dof         float64 // degrees of freedom of u(x_i) (+Inf when exact)
+	// TypeA marks an input evaluated from the segment's own samples (JCGM
+	// 100 §4.2): independent from one segment to the next. The others
+	// (calibrations, reference area) are one error common to a whole run.
+	TypeA bool
 }
 
 // Segment is one steady segment of a run: one polar point (DESIGN §3.4).

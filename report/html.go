@@ -322,6 +322,11 @@ func (r *Report) polarView(v *view) {
 		{"Linear range [°]", fix(rig.Deg(p.LinearMinRad), 1) + " to " + fix(rig.Deg(p.LinearMaxRad), 1) + " (" + plural(len(p.Linear), "point", "points") + ")"},
 		{"χ² of the lift fit, ν", fix(p.ChiSq, 2) + ", " + strconv.Itoa(p.FitDof) + scaledNote(p.Scaled)},
 	}
+	// Where the slope's uncertainty comes from: the points' scatter, and
+	// the inputs common to every point that no number of points averages.
+	for _, c := range p.SlopeBudget {
+		v.PolarRows = append(v.PolarRows, row{"u(a) from " + c.Input + " [1/rad]", sig(c.UY, 2)})
+	}
 	if p.Stalled {
 		v.PolarRows = append(v.PolarRows, row{"Stall angle [°]", fix(rig.Deg(p.StallRad), 1)})
 	} else {

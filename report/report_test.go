@@ -98,9 +98,9 @@ func finSegments(t0 time.Time) []estimate.Segment {
 		cl := trueSlope*ar + offsets[i]
 		qPa := 2000.0 + float64(i%3)*6
 		budget := []estimate.Contribution{
-			{Input: "normal force (type A)", U: 2.0, Sensitivity: 1 / (qPa * finAreaM2), Dof: 30},
+			{Input: "normal force (type A)", U: 2.0, Sensitivity: 1 / (qPa * finAreaM2), Dof: 30, TypeA: true},
 			{Input: "normal force calibration", U: 0.15, Sensitivity: 1 / (qPa * finAreaM2), Dof: math.Inf(1)},
-			{Input: "dynamic pressure", U: 2.5, Sensitivity: -cl / qPa, Dof: 50},
+			{Input: "dynamic pressure (type A)", U: 2.5, Sensitivity: -cl / qPa, Dof: 50, TypeA: true},
 			{Input: "reference area", U: 0.0003, Sensitivity: -cl / finAreaM2, Dof: math.Inf(1)},
 		}
 		var sum2 float64

@@ -176,7 +176,7 @@ func testSegment(i int) estimate.Segment {
 		CL:       calibrate.Value{X: 0.2 * float64(i), U: 0.011, Dof: 95.3},
 		CD:       calibrate.Value{X: 0.0147, U: 0.0008, Dof: 60},
 		En:       math.NaN(),
-		CLBudget: []estimate.Contribution{{Input: "normal force (type A)", U: 0.4, Sensitivity: 0.0066, UY: 0.0026, Dof: 412}},
+		CLBudget: []estimate.Contribution{{Input: "normal force (type A)", U: 0.4, Sensitivity: 0.0066, UY: 0.0026, Dof: 412, TypeA: true}},
 	}
 }
 

@@ -74,6 +74,7 @@ type contributionRec struct {
 	Sensitivity jfloat `json:"sensitivity"`
 	UY          jfloat `json:"u_y"`
 	Dof         jfloat `json:"dof"`
+	TypeA       bool   `json:"type_a,omitempty"`
 }
 
 // segmentRec is an estimate.Segment as stored in results/<run>/<index>.
@@ -108,7 +109,7 @@ func budgetRec(in []estimate.Contribution) []contributionRec {
 	}
 	out := make([]contributionRec, len(in))
 	for i, c := range in {
-		out[i] = contributionRec{c.Input, jfloat(c.U), jfloat(c.Sensitivity), jfloat(c.UY), jfloat(c.Dof)}
+		out[i] = contributionRec{c.Input, jfloat(c.U), jfloat(c.Sensitivity), jfloat(c.UY), jfloat(c.Dof), c.TypeA}
 	}
 	return out
 }
@@ -120,7 +121,7 @@ func budget(in []contributionRec) []estimate.Contribution {
 	out := make([]estimate.Contribution, len(in))
 	for i, c := range in {
 		out[i] = estimate.Contribution{Input: c.Input, U: float64(c.U), Sensitivity: float64(c.Sensitivity),
-			UY: float64(c.UY), Dof: float64(c.Dof)}
+			UY: float64(c.UY), Dof: float64(c.Dof), TypeA: c.TypeA}
 	}
 	return out
 }
