@@ -45,6 +45,15 @@ type Segment struct {
 	En         float64         // normalised error vs design; NaN when no design value
 	CLBudget   []Contribution
 	CDBudget   []Contribution
+
+	// Roof rigs: one Segment is one zone in one block of time (DESIGN §4).
+	// Zone is empty for force-balance rigs.
+	Zone     string
+	CpMean   calibrate.Value // zone's area-weighted net pressure coefficient, mean over the block (negative = uplift)
+	CpRMS    float64         // standard deviation of the zone's net Cp over the block
+	CpPeak   float64         // expected extreme (most negative) net Cp of the block, from a Gumbel fit of epoch minima
+	UpliftN  calibrate.Value // mean net force on the zone, N (negative = upward)
+	DesignCp calibrate.Value // the zone's design net Cp (U from its expanded design_u); zero Value when none
 }
 
 // Live is the moving-window estimate shown on the dashboard. It is computed
@@ -66,4 +75,14 @@ type Live struct {
 	Steady     bool // the window lies inside a steady segment
 	Segments   int  // segments completed so far in this run
 	Warnings   []string
+	Zones      []ZoneLive // roof rigs: each zone's net Cp over the window
+}
+
+// ZoneLive is one roof zone's moving-window estimate.
+type ZoneLive struct {
+	Zone     string
+	CpMean   calibrate.Value // area-weighted net Cp over the window
+	CpMin    float64         // most negative net Cp sample in the window
+	DesignCp calibrate.Value
+	En       float64 // NaN without a design value
 }

@@ -22,7 +22,7 @@ var siSuffixes = []string{
 // numbers of the trade, ratios, counts and statistics.
 var dimensionless = map[string]bool{
 	// coefficients and numbers of the trade
-	"CL": true, "CD": true, "CM": true, "Cp": true, "Re": true, "Fn": true, "En": true,
+	"CL": true, "CD": true, "CM": true, "Cp": true, "CpMean": true, "CpPeak": true, "CpMin": true, "CpRMS": true, "Re": true, "Fn": true, "En": true,
 	"SpinRatio": true, "DesignCL": true, "DesignCp": true, "DesignU": true, "PitotCoeff": true,
 	"CD0": true, "K": true, "Mach": true,
 	"CLMax": true, "CLMinD": true, "CLAtZeroAlpha": true, "AspectRatio": true,
