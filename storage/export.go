@@ -28,6 +28,16 @@ var segmentColumns = []string{
 	"cl", "cl_u95", "cd", "cd_u95", "spin_ratio", "design_cl", "en",
 }
 
+// roofColumns follow segmentColumns for roof rows (DESIGN §3.4 "roof
+// fields where they apply"): one row is one zone in one block. cp_mean is
+// the zone's area-weighted net Cp (negative = uplift), cp_rms its standard
+// deviation over the block, cp_peak the expected extreme from the Gumbel
+// fit, uplift_n the mean net force on the zone (negative = upward) and
+// design_cp the zone's design net Cp; en compares cp_mean with design_cp.
+var roofColumns = []string{
+	"zone", "cp_mean", "cp_u95", "cp_rms", "cp_peak", "uplift_n", "uplift_u95_n", "design_cp",
+}
+
 // cell is one exported value: a JSON literal, or null (empty in CSV).
 type cell struct {
 	json string // JSON literal; "" means null
@@ -65,23 +75,61 @@ func isZeroValue(v calibrate.Value) bool { return v.X == 0 && v.U == 0 && v.Dof 
 // radToDeg converts an angle for display and export only (STYLE §2).
 func radToDeg(rad float64) float64 { return rad * 180 / math.Pi }
 
+// segmentCells gives the segmentColumns of one row. On a roof row (Zone
+// set) the balance fields that do not apply — alpha_deg, cl, cd, their
+// U95, spin_ratio, design_cl — are null, and en compares with design_cp.
 func segmentCells(run Run, sg *estimate.Segment) []cell {
+	roof := sg.Zone != ""
 	design := nullCell
-	if !isZeroValue(sg.DesignCL) {
+	if !roof && !isZeroValue(sg.DesignCL) {
 		design = floatCell(sg.DesignCL.X)
 	}
 	en := nullCell
-	if !isZeroValue(sg.DesignCL) {
+	if (!roof && !isZeroValue(sg.DesignCL)) || (roof && !isZeroValue(sg.DesignCp)) {
 		en = floatCell(sg.En) // NaN (no comparison made) is null as well
+	}
+	balance := func(v float64) cell {
+		if roof {
+			return nullCell
+		}
+		return floatCell(v)
 	}
 	return []cell{
 		intCell(int64(run.ID)), intCell(int64(sg.Index)), timeCell(sg.TStart), timeCell(sg.TEnd),
-		intCell(int64(sg.N)), floatCell(sg.NEff), floatCell(radToDeg(sg.AlphaRad.X)),
+		intCell(int64(sg.N)), floatCell(sg.NEff), balance(radToDeg(sg.AlphaRad.X)),
 		floatCell(sg.QPa.X), floatCell(sg.QPa.U95()), floatCell(sg.SpeedMPerS.X),
 		floatCell(sg.RhoKgPerM3), floatCell(sg.Re),
-		floatCell(sg.CL.X), floatCell(sg.CL.U95()), floatCell(sg.CD.X), floatCell(sg.CD.U95()),
-		floatCell(sg.SpinRatio), design, en,
+		balance(sg.CL.X), balance(sg.CL.U95()), balance(sg.CD.X), balance(sg.CD.U95()),
+		balance(sg.SpinRatio), design, en,
 	}
+}
+
+// roofCells gives the roofColumns of one row; all null on a row without a
+// zone (a force-balance segment in a CSV that also holds roof rows).
+func roofCells(sg *estimate.Segment) []cell {
+	out := make([]cell, len(roofColumns))
+	if sg.Zone == "" {
+		return out
+	}
+	s := strconv.Quote(sg.Zone)
+	out[0] = cell{s, sg.Zone}
+	out[1], out[2] = floatCell(sg.CpMean.X), floatCell(sg.CpMean.U95())
+	out[3], out[4] = floatCell(sg.CpRMS), floatCell(sg.CpPeak)
+	out[5], out[6] = floatCell(sg.UpliftN.X), floatCell(sg.UpliftN.U95())
+	if !isZeroValue(sg.DesignCp) {
+		out[7] = floatCell(sg.DesignCp.X)
+	}
+	return out
+}
+
+// hasRoof reports whether any segment is a roof row.
+func hasRoof(segs []estimate.Segment) bool {
+	for i := range segs {
+		if segs[i].Zone != "" {
+			return true
+		}
+	}
+	return false
 }
 
 // ExportSegments writes the result rows of run in format "json" (an array,
@@ -90,6 +138,11 @@ func segmentCells(run Run, sg *estimate.Segment) []cell {
 // an empty cell for null). design_cl and en are null when the segment has
 // no design value; t_start and t_end are RFC 3339 in UTC with microseconds;
 // alpha_deg is in degrees; *_u95 are expanded uncertainties at 95 %.
+//
+// Roof rows (Segment.Zone set) carry roofColumns after the common ones: in
+// JSON only on roof rows, in CSV as extra columns whenever the export
+// holds a roof row (empty cells on any other row). A force-balance export
+// is therefore unchanged by the roof fields.
 func ExportSegments(w io.Writer, run Run, segs []estimate.Segment, format string) error {
 	switch format {
 	case "json":
@@ -109,11 +162,16 @@ func exportSegmentsJSON(w io.Writer, run Run, segs []estimate.Segment) error {
 	bw.WriteString("[\n")
 	for i := range segs {
 		bw.WriteString("  {")
-		for j, c := range segmentCells(run, &segs[i]) {
+		names, cells := segmentColumns, segmentCells(run, &segs[i])
+		if segs[i].Zone != "" {
+			names = append(append([]string(nil), segmentColumns...), roofColumns...)
+			cells = append(cells, roofCells(&segs[i])...)
+		}
+		for j, c := range cells {
 			if j > 0 {
 				bw.WriteString(", ")
 			}
-			bw.WriteString(strconv.Quote(segmentColumns[j]))
+			bw.WriteString(strconv.Quote(names[j]))
 			bw.WriteString(": ")
 			if c.json == "" {
 				bw.WriteString("null")
@@ -133,12 +191,20 @@ func exportSegmentsJSON(w io.Writer, run Run, segs []estimate.Segment) error {
 
 func exportSegmentsCSV(w io.Writer, run Run, segs []estimate.Segment) error {
 	cw := csv.NewWriter(w)
-	if err := cw.Write(segmentColumns); err != nil {
+	header, roof := segmentColumns, hasRoof(segs)
+	if roof {
+		header = append(append([]string(nil), segmentColumns...), roofColumns...)
+	}
+	if err := cw.Write(header); err != nil {
 		return err
 	}
-	row := make([]string, len(segmentColumns))
+	row := make([]string, len(header))
 	for i := range segs {
-		for j, c := range segmentCells(run, &segs[i]) {
+		cells := segmentCells(run, &segs[i])
+		if roof {
+			cells = append(cells, roofCells(&segs[i])...)
+		}
+		for j, c := range cells {
 			row[j] = c.csv
 		}
 		if err := cw.Write(row); err != nil {

@@ -101,6 +101,14 @@ type segmentRec struct {
 	En         jfloat            `json:"en"`
 	CLBudget   []contributionRec `json:"cl_budget,omitempty"`
 	CDBudget   []contributionRec `json:"cd_budget,omitempty"`
+
+	// Roof rows only (Zone set); absent on force-balance rows.
+	Zone     string    `json:"zone,omitempty"`
+	CpMean   *valueRec `json:"cp_mean,omitempty"`
+	CpRMS    jfloat    `json:"cp_rms,omitempty"`
+	CpPeak   jfloat    `json:"cp_peak,omitempty"`
+	UpliftN  *valueRec `json:"uplift_n,omitempty"`
+	DesignCp *valueRec `json:"design_cp,omitempty"`
 }
 
 func budgetRec(in []estimate.Contribution) []contributionRec {
@@ -138,6 +146,11 @@ func encodeSegment(sg *estimate.Segment) ([]byte, error) {
 		SpinRatio: jfloat(sg.SpinRatio), DesignCL: toValueRec(sg.DesignCL), En: jfloat(sg.En),
 		CLBudget: budgetRec(sg.CLBudget), CDBudget: budgetRec(sg.CDBudget),
 	}
+	if sg.Zone != "" {
+		cp, up, d := toValueRec(sg.CpMean), toValueRec(sg.UpliftN), toValueRec(sg.DesignCp)
+		rec.Zone, rec.CpMean, rec.CpRMS, rec.CpPeak, rec.UpliftN, rec.DesignCp =
+			sg.Zone, &cp, jfloat(sg.CpRMS), jfloat(sg.CpPeak), &up, &d
+	}
 	data, err := json.Marshal(rec)
 	if err != nil {
 		return nil, fmt.Errorf("segment %d: %w: %w", sg.Index, ErrBadRecord, err)
@@ -150,14 +163,24 @@ func decodeSegment(data []byte) (estimate.Segment, error) {
 	if err := json.Unmarshal(data, &rec); err != nil {
 		return estimate.Segment{}, fmt.Errorf("%w: %w", ErrCorrupt, err)
 	}
-	return estimate.Segment{
+	sg := estimate.Segment{
 		Index: rec.Index, TStart: rec.TStart, TEnd: rec.TEnd, N: rec.N, NEff: float64(rec.NEff),
 		AlphaRad: rec.AlphaRad.value(), QPa: rec.QPa.value(), SpeedMPerS: rec.SpeedMPerS.value(),
 		RhoKgPerM3: float64(rec.RhoKgPerM3), MuPaS: float64(rec.MuPaS), Re: float64(rec.Re), Fn: float64(rec.Fn),
 		LiftN: rec.LiftN.value(), DragN: rec.DragN.value(), CL: rec.CL.value(), CD: rec.CD.value(),
 		SpinRatio: float64(rec.SpinRatio), DesignCL: rec.DesignCL.value(), En: float64(rec.En),
 		CLBudget: budget(rec.CLBudget), CDBudget: budget(rec.CDBudget),
-	}, nil
+		Zone: rec.Zone, CpRMS: float64(rec.CpRMS), CpPeak: float64(rec.CpPeak),
+	}
+	for _, f := range []struct {
+		rec *valueRec
+		to  *calibrate.Value
+	}{{rec.CpMean, &sg.CpMean}, {rec.UpliftN, &sg.UpliftN}, {rec.DesignCp, &sg.DesignCp}} {
+		if f.rec != nil {
+			*f.to = f.rec.value()
+		}
+	}
+	return sg, nil
 }
 
 func segmentKey(index int) []byte {

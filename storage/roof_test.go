@@ -1,0 +1,174 @@
+package storage_test
+
+import (
+	"bytes"
+	"encoding/csv"
+	"encoding/json"
+	"math"
+	"reflect"
+	"strings"
+	"testing"
+	"time"
+
+	"liftyard/calibrate"
+	"liftyard/estimate"
+	"liftyard/storage"
+)
+
+// roofSegment is one zone in one 10-minute block of an invented roof
+// mock-up (values made up for the test; a design value on "corner" only).
+func roofSegment(i int, zone string) estimate.Segment {
+	t0 := time.Date(2025, 9, 2, 11, 0, 0, 0, time.UTC).Add(time.Duration(i/3) * 10 * time.Minute)
+	sg := estimate.Segment{
+		Index: i, TStart: t0, TEnd: t0.Add(10*time.Minute - time.Millisecond), N: 60000, NEff: 850,
+		QPa:        calibrate.Value{X: 96.4, U: 0.9, Dof: 300},
+		SpeedMPerS: calibrate.Value{X: 12.5, U: 0.06, Dof: 300},
+		RhoKgPerM3: 1.232, MuPaS: 1.77e-5,
+		En:         math.NaN(),
+		Zone:       zone,
+		CpMean:     calibrate.Value{X: -1.31 - 0.01*float64(i), U: 0.045, Dof: 210},
+		CpRMS:      0.28,
+		CpPeak:     -2.74,
+		UpliftN:    calibrate.Value{X: -252.6, U: 9.3, Dof: 210},
+	}
+	if zone == "corner" {
+		sg.DesignCp = calibrate.Value{X: -2.2, U: 0.125, Dof: math.Inf(1)}
+		sg.En = 6.1
+	}
+	return sg
+}
+
+func roofSegments() (storage.Run, []estimate.Segment) {
+	return storage.Run{ID: 7, Rig: "roof-yard", Kind: "roof"},
+		[]estimate.Segment{roofSegment(0, "corner"), roofSegment(1, "edge"), roofSegment(2, "field")}
+}
+
+// Ensure that the roof fields of a segment survive the store, +Inf
+// degrees of freedom and NaN En included, and that a force-balance segment
+// comes back without them.
+func TestSegments_RoofRoundTrip(t *testing.T) {
+	s := MustOpenStore(t)
+	id := mustCreateRun(t, s)
+	_, segs := roofSegments()
+	foil := testSegment(3)
+	writeItems(t, s, id, storage.Item{Segment: &segs[0]}, storage.Item{Segment: &segs[1]},
+		storage.Item{Segment: &segs[2]}, storage.Item{Segment: &foil})
+	got, err := s.Segments(id)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(got) != 4 {
+		t.Fatalf("%d segments", len(got))
+	}
+	for i, want := range append(segs, foil) {
+		g := got[i]
+		if math.IsNaN(want.En) != math.IsNaN(g.En) || !math.IsNaN(want.En) && g.En != want.En {
+			t.Errorf("segment %d En = %v, want %v", i, g.En, want.En)
+		}
+		g.En, want.En = 0, 0
+		if !g.TStart.Equal(want.TStart) || !g.TEnd.Equal(want.TEnd) {
+			t.Errorf("segment %d times %v–%v, want %v–%v", i, g.TStart, g.TEnd, want.TStart, want.TEnd)
+		}
+		g.TStart, want.TStart, g.TEnd, want.TEnd = time.Time{}, time.Time{}, time.Time{}, time.Time{}
+		if !reflect.DeepEqual(g, want) {
+			t.Errorf("segment %d:\n got %+v\nwant %+v", i, g, want)
+		}
+	}
+	if !math.IsInf(got[0].DesignCp.Dof, 1) || got[1].DesignCp != (calibrate.Value{}) {
+		t.Errorf("design_cp: corner %+v, edge %+v", got[0].DesignCp, got[1].DesignCp)
+	}
+}
+
+// Ensure that a roof export matches its golden files in both formats.
+func TestExportSegments_RoofGolden(t *testing.T) {
+	run, segs := roofSegments()
+	for _, format := range []string{"json", "csv"} {
+		var buf bytes.Buffer
+		if err := storage.ExportSegments(&buf, run, segs, format); err != nil {
+			t.Fatal(err)
+		}
+		golden(t, "roof-segments."+format, buf.Bytes())
+	}
+}
+
+// Ensure that roof rows carry the roof fields (DESIGN §3.4: zone, cp_mean,
+// cp_peak, cp_u95), null the balance fields that do not apply, compare En
+// with design_cp, and that U95 = k·u with k from Student t.
+func TestExportSegments_RoofJSON(t *testing.T) {
+	run, segs := roofSegments()
+	var buf bytes.Buffer
+	if err := storage.ExportSegments(&buf, run, segs, "json"); err != nil {
+		t.Fatal(err)
+	}
+	var rows []map[string]any
+	if err := json.Unmarshal(buf.Bytes(), &rows); err != nil {
+		t.Fatalf("export is not JSON: %v", err)
+	}
+	if len(rows) != 3 {
+		t.Fatalf("%d rows", len(rows))
+	}
+	want := "run segment t_start t_end n n_eff alpha_deg q_pa q_u95_pa speed_m_s rho_kg_m3 re cl cl_u95 cd cd_u95 spin_ratio design_cl en " +
+		"zone cp_mean cp_u95 cp_rms cp_peak uplift_n uplift_u95_n design_cp"
+	for i, row := range rows {
+		if len(row) != len(strings.Fields(want)) {
+			t.Errorf("row %d has %d fields, want %d", i, len(row), len(strings.Fields(want)))
+		}
+		for _, k := range strings.Fields(want) {
+			if _, ok := row[k]; !ok {
+				t.Errorf("row %d lacks %q", i, k)
+			}
+		}
+		for _, k := range []string{"alpha_deg", "cl", "cl_u95", "cd", "cd_u95", "spin_ratio", "design_cl"} {
+			if row[k] != nil {
+				t.Errorf("row %d %s = %v on a roof row, want null", i, k, row[k])
+			}
+		}
+	}
+	if rows[0]["zone"] != "corner" || rows[0]["design_cp"] != -2.2 || rows[0]["en"] != 6.1 {
+		t.Errorf("row 0 zone %v design_cp %v en %v", rows[0]["zone"], rows[0]["design_cp"], rows[0]["en"])
+	}
+	if rows[1]["design_cp"] != nil || rows[1]["en"] != nil {
+		t.Errorf("row 1 without design: design_cp %v en %v", rows[1]["design_cp"], rows[1]["en"])
+	}
+	if rows[2]["cp_mean"] != -1.33 || rows[2]["cp_peak"] != -2.74 || rows[2]["uplift_n"] != -252.6 {
+		t.Errorf("row 2 cp_mean %v cp_peak %v uplift_n %v", rows[2]["cp_mean"], rows[2]["cp_peak"], rows[2]["uplift_n"])
+	}
+	// ν = 210: t_0.975 lies between t(200) = 1.972 and t(100) = 1.984
+	// (Student t table, NIST/SEMATECH e-Handbook §1.3.6.7.2).
+	if k := rows[0]["cp_u95"].(float64) / 0.045; k < 1.971 || k > 1.973 {
+		t.Errorf("cp coverage factor %v, want about 1.971–1.972", k)
+	}
+	if k := rows[0]["uplift_u95_n"].(float64) / 9.3; k < 1.971 || k > 1.973 {
+		t.Errorf("uplift coverage factor %v", k)
+	}
+}
+
+// Ensure that a CSV with roof rows adds the roof columns, and that a
+// force-balance row in the same export leaves them empty, while a
+// force-balance-only CSV keeps its columns (the foil golden).
+func TestExportSegments_RoofCSV(t *testing.T) {
+	run, segs := roofSegments()
+	segs = append(segs, testSegment(3))
+	var buf bytes.Buffer
+	if err := storage.ExportSegments(&buf, run, segs, "csv"); err != nil {
+		t.Fatal(err)
+	}
+	recs, err := csv.NewReader(&buf).ReadAll()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(recs) != 5 || len(recs[0]) != 27 || recs[0][19] != "zone" || recs[0][26] != "design_cp" {
+		t.Fatalf("csv header %q (%d rows)", recs[0], len(recs))
+	}
+	if recs[1][19] != "corner" || recs[1][20] != "-1.31" || recs[1][12] != "" || recs[1][18] != "6.1" {
+		t.Errorf("roof row %q", recs[1])
+	}
+	for j := 19; j < 27; j++ {
+		if recs[4][j] != "" {
+			t.Errorf("force-balance row column %s = %q, want empty", recs[0][j], recs[4][j])
+		}
+	}
+	if recs[4][12] == "" {
+		t.Errorf("force-balance row lost its cl")
+	}
+}
