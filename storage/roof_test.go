@@ -24,12 +24,12 @@ func roofSegment(i int, zone string) estimate.Segment {
 		QPa:        calibrate.Value{X: 96.4, U: 0.9, Dof: 300},
 		SpeedMPerS: calibrate.Value{X: 12.5, U: 0.06, Dof: 300},
 		RhoKgPerM3: 1.232, MuPaS: 1.77e-5,
-		En:         math.NaN(),
-		Zone:       zone,
-		CpMean:     calibrate.Value{X: -1.31 - 0.01*float64(i), U: 0.045, Dof: 210},
-		CpRMS:      0.28,
-		CpPeak:     -2.74,
-		UpliftN:    calibrate.Value{X: -252.6, U: 9.3, Dof: 210},
+		En:      math.NaN(),
+		Zone:    zone,
+		CpMean:  calibrate.Value{X: -1.31 - 0.01*float64(i), U: 0.045, Dof: 210},
+		CpRMS:   0.28,
+		CpPeak:  -2.74,
+		UpliftN: calibrate.Value{X: -252.6, U: 9.3, Dof: 210},
 	}
 	if zone == "corner" {
 		sg.DesignCp = calibrate.Value{X: -2.2, U: 0.125, Dof: math.Inf(1)}
