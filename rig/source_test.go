@@ -2,6 +2,7 @@ package rig_test
 
 import (
 	"errors"
+	"os"
 	"strings"
 	"testing"
 
@@ -146,5 +147,32 @@ func TestParse_SourceSettingsErrors(t *testing.T) {
 				t.Errorf("no %v error containing %q in:\n%v", tt.sentinel, tt.msg, err)
 			}
 		})
+	}
+}
+
+// Ensure that a roof zone without taps, and a zone named like the
+// whole-roof result, are refused at their line (a zone with no taps would
+// give no result; "roof" is the whole-roof row).
+func TestParse_RoofZones(t *testing.T) {
+	data, err := os.ReadFile("../testdata/rigs/roof-yard.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	src := string(data) + "\n[[zone]]\nname = \"ridge\"\ndesign_cp = -1.0\ndesign_u = 0.2\n\n[[zone]]\nname = \"roof\"\ndesign_cp = -1.0\ndesign_u = 0.2\n"
+	_, err = rig.Parse("roof.toml", []byte(src))
+	var errs rig.Errors
+	if !errors.As(err, &errs) {
+		t.Fatalf("want rig.Errors, got %v", err)
+	}
+	text := err.Error()
+	for _, want := range []string{`zone "ridge": no tap lies in this zone`, `zone "roof": the name "roof" is kept for the whole-roof result`} {
+		if !strings.Contains(text, want) {
+			t.Errorf("missing %q in:\n%s", want, text)
+		}
+	}
+	for _, e := range errs {
+		if e.Line == 0 {
+			t.Errorf("problem without a line: %v", e)
+		}
 	}
 }

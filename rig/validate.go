@@ -433,6 +433,10 @@ func (v *validator) lift() {
 	}
 }
 
+// RoofZoneWhole is the zone name of a roof's whole-roof result; a rig file
+// may not use it for a zone of its own.
+const RoofZoneWhole = "roof"
+
 func (v *validator) roof() {
 	r := v.r
 	isRoof := r.Kind == KindRoof
@@ -507,6 +511,19 @@ func (v *validator) roof() {
 		}
 		if in.Channel == "" && !in.HasCp {
 			v.add("internal", ErrMissing, `a roof needs its internal pressure (add [internal] with cp = 0.0 for a sealed mock-up, or channel = "<pressure channel>")`)
+		}
+		used := map[string]bool{}
+		for _, t := range r.Taps {
+			used[t.Zone] = true
+		}
+		for i, z := range r.Zones {
+			p := indexPath("zone", i)
+			switch {
+			case z.Name == RoofZoneWhole:
+				v.add(p+".name", ErrValue, "%s: the name %q is kept for the whole-roof result; choose another", itemName("zone", i, z.Name), RoofZoneWhole)
+			case z.Name != "" && !used[z.Name]:
+				v.add(p+".name", ErrValue, "%s: no tap lies in this zone (set zone = %q on its [[tap]] tables, or remove the zone)", itemName("zone", i, z.Name), z.Name)
+			}
 		}
 		return
 	}
