@@ -106,6 +106,51 @@ type liveJSON struct {
 	Steady      bool      `json:"steady"`
 	Segments    int       `json:"segments"`
 	Warnings    []string  `json:"warnings"`
+	// Zones is each roof zone over the window (roof rigs only; absent
+	// otherwise).
+	Zones []zoneLiveJSON `json:"zones,omitempty"`
+}
+
+// zoneLiveJSON is the wire form of an estimate.ZoneLive: the zone's net
+// pressure coefficient over the live window (negative = uplift), its most
+// negative sample, the design value and the normalised error. Agrees is
+// |En| ≤ 1, null without a design value.
+type zoneLiveJSON struct {
+	Zone        string `json:"zone"`
+	CpMean      num    `json:"cp_mean"`
+	CpU95       num    `json:"cp_u95"`
+	CpMin       num    `json:"cp_min"`
+	DesignCp    num    `json:"design_cp"`
+	DesignCpU95 num    `json:"design_cp_u95"`
+	En          num    `json:"en"`
+	Agrees      *bool  `json:"agrees"`
+}
+
+// agrees is |en| ≤ 1 (DESIGN §4 "Comparison"), nil when en is not a number.
+func agrees(en float64) *bool {
+	if math.IsNaN(en) || math.IsInf(en, 0) {
+		return nil
+	}
+	ok := math.Abs(en) <= 1
+	return &ok
+}
+
+func toZonesJSON(zs []estimate.ZoneLive) []zoneLiveJSON {
+	if len(zs) == 0 {
+		return nil
+	}
+	out := make([]zoneLiveJSON, len(zs))
+	for i, z := range zs {
+		en := z.En
+		if !measured(z.DesignCp) {
+			en = math.NaN()
+		}
+		out[i] = zoneLiveJSON{
+			Zone: z.Zone, CpMean: x(z.CpMean), CpU95: u95(z.CpMean), CpMin: num(z.CpMin),
+			DesignCp: x(z.DesignCp), DesignCpU95: u95(z.DesignCp), En: num(en), Agrees: agrees(en),
+		}
+	}
+	return out
 }
 
 func toLiveJSON(l estimate.Live) liveJSON {
@@ -137,6 +182,7 @@ func toLiveJSON(l estimate.Live) liveJSON {
 		Steady:      l.Steady,
 		Segments:    l.Segments,
 		Warnings:    w,
+		Zones:       toZonesJSON(l.Zones),
 	}
 }
 
@@ -171,9 +217,45 @@ type segmentJSON struct {
 	DesignCL    num       `json:"design_cl"`
 	DesignCLU95 num       `json:"design_cl_u95"`
 	En          num       `json:"en"`
+	// Roof rows only (one zone in one block); absent on other rows.
+	*roofSegmentJSON
+}
+
+// roofSegmentJSON is the roof part of a segment row, named as in the
+// segment export: the zone's net Cp mean with U95, its rms over the block,
+// the Gumbel peak, the mean net force (negative = upward) and the design
+// value. En in the row compares cp_mean with design_cp.
+type roofSegmentJSON struct {
+	Zone        string `json:"zone"`
+	CpMean      num    `json:"cp_mean"`
+	CpU95       num    `json:"cp_u95"`
+	CpRMS       num    `json:"cp_rms"`
+	CpPeak      num    `json:"cp_peak"`
+	UpliftN     num    `json:"uplift_n"`
+	UpliftU95N  num    `json:"uplift_u95_n"`
+	DesignCp    num    `json:"design_cp"`
+	DesignCpU95 num    `json:"design_cp_u95"`
+	Agrees      *bool  `json:"agrees"`
 }
 
 func toSegmentJSON(run uint64, s estimate.Segment) segmentJSON {
+	j := toBalanceSegmentJSON(run, s)
+	if s.Zone != "" {
+		en := s.En
+		if !measured(s.DesignCp) {
+			en = math.NaN()
+		}
+		j.En = num(en)
+		j.roofSegmentJSON = &roofSegmentJSON{
+			Zone: s.Zone, CpMean: x(s.CpMean), CpU95: u95(s.CpMean), CpRMS: num(s.CpRMS), CpPeak: num(s.CpPeak),
+			UpliftN: x(s.UpliftN), UpliftU95N: u95(s.UpliftN), DesignCp: x(s.DesignCp), DesignCpU95: u95(s.DesignCp),
+			Agrees: agrees(en),
+		}
+	}
+	return j
+}
+
+func toBalanceSegmentJSON(run uint64, s estimate.Segment) segmentJSON {
 	return segmentJSON{
 		Run:         run,
 		Segment:     s.Index,

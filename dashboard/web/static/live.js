@@ -45,9 +45,50 @@
   function resetRun() {
     for (const k in trends) { trends[k].pts = []; draw(trends[k]); }
     segRows.clear();
-    const tb = $("segments").tBodies[0];
-    while (tb.firstChild) tb.removeChild(tb.firstChild);
+    for (const id of ["segments", "roof-blocks", "zones"]) {
+      const tb = $(id).tBodies[0];
+      while (tb.firstChild) tb.removeChild(tb.firstChild);
+    }
     $("no-segments").hidden = false;
+  }
+
+  // setRoof shows the zone tables (and hides the force-balance tiles) for
+  // a roof rig.
+  function setRoof(on) { $("live").classList.toggle("roof", on); }
+
+  function agreesText(a) { return a === true ? "yes" : (a === false ? "no" : "—"); }
+
+  // onZones fills the live zone table (roof rigs).
+  function onZones(zs) {
+    const tb = $("zones").tBodies[0];
+    while (tb.rows.length > zs.length) tb.deleteRow(-1);
+    zs.forEach((z, i) => {
+      const tr = tb.rows[i] || tb.insertRow();
+      while (tr.cells.length < 6) { const td = tr.insertCell(); if (tr.cells.length > 1) td.className = "num"; }
+      const cells = [z.zone, pm(z.cp_mean, z.cp_u95, 2), fix(z.cp_min, 2), pm(z.design_cp, z.design_cp_u95, 2),
+        fix(z.en, 2), agreesText(z.agrees)];
+      cells.forEach((text, k) => { if (tr.cells[k].textContent !== text) tr.cells[k].textContent = text; });
+      tr.className = z.agrees === false ? "disagree" : "";
+    });
+  }
+
+  // onRoofSegment adds one zone-in-a-block row (roof rigs).
+  function onRoofSegment(s) {
+    const tb = $("roof-blocks").tBodies[0];
+    let tr = segRows.get(s.segment);
+    if (!tr) {
+      tr = document.createElement("tr");
+      tr.dataset.segment = String(s.segment);
+      for (let i = 0; i < 7; i++) { const td = document.createElement("td"); if (i > 1) td.className = "num"; tr.appendChild(td); }
+      segRows.set(s.segment, tr);
+      let before = null;
+      for (const row of tb.rows) { if (Number(row.dataset.segment) > s.segment) { before = row; break; } }
+      tb.insertBefore(tr, before);
+    }
+    const cells = [String(s.segment), s.zone, pm(s.cp_mean, s.cp_u95, 2), fix(s.cp_peak, 2),
+      pm(s.design_cp, s.design_cp_u95, 2), fix(s.en, 2), pm(s.q_pa, s.q_u95_pa, 1)];
+    cells.forEach((text, i) => { tr.cells[i].textContent = text; });
+    tr.className = s.agrees === false ? "disagree" : "";
   }
 
   function onRun(r) {
@@ -57,6 +98,7 @@
     set("run-rig", r.rig);
     set("run-kind", r.kind + ", " + r.fluid);
     set("run-area", fix(r.area_m2, 4) + " m² " + r.area_kind);
+    setRoof(r.kind === "roof");
   }
 
   function onLive(l) {
@@ -87,6 +129,7 @@
     if (!isFinite(t)) t = Date.now();
     push(trends.q, t, l.q_pa);
     push(trends.cl, t, l.cl);
+    if (l.zones && l.zones.length) { setRoof(true); onZones(l.zones); }
   }
 
   function push(tr, t, v) {
@@ -143,6 +186,11 @@
 
   function onSegment(s) {
     if (runID !== null && s.run !== runID) return;
+    if (typeof s.zone === "string") {
+      onRoofSegment(s);
+      set("v-segments", String(Math.max(Number($("v-segments").textContent) || 0, segRows.size)));
+      return;
+    }
     let tr = segRows.get(s.segment);
     if (!tr) {
       tr = document.createElement("tr");
