@@ -84,6 +84,10 @@ type view struct {
 	Water, Rotor bool
 	Segments     []segRow
 
+	// Roof runs show RoofRows (zones × blocks) instead of the polar.
+	Roof     bool
+	RoofRows []roofRow
+
 	PolarRows     []row
 	PolarWarnings []string
 	PolarProblem  string
@@ -137,7 +141,11 @@ func (r *Report) view() (*view, error) {
 		Notes:     r.Notes,
 	}
 	v.Facts = r.facts()
-	for _, f := range []func() (*figure, error){r.liftPlot, r.dragPlot, r.enPlot, r.qPlot} {
+	plots := []func() (*figure, error){r.liftPlot, r.dragPlot, r.enPlot, r.qPlot}
+	if r.isRoof() {
+		plots = r.roofFigures()
+	}
+	for _, f := range plots {
 		fig, err := f()
 		if err != nil {
 			return nil, fmt.Errorf("report of run %d: %w", r.Run.ID, err)
@@ -157,6 +165,11 @@ func (r *Report) view() (*view, error) {
 		for _, pt := range r.Comparison.Points {
 			compared[pt.Segment] = pt
 		}
+	}
+	if r.isRoof() {
+		v.Roof, v.RoofRows = true, r.roofRows()
+		r.recordView(v)
+		return v, nil
 	}
 	for i, s := range r.Segments {
 		// The design column shows the comparison this report states (the

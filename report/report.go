@@ -176,6 +176,9 @@ func (r *Report) fitPolar(po estimate.PolarOptions) {
 	if r.isRotor() {
 		return // a lift curve in α does not apply; the plot uses the spin ratio
 	}
+	if r.isRoof() {
+		return // a roof's rows are zones in blocks: no lift curve (roof.go)
+	}
 	if len(r.Segments) == 0 {
 		r.PolarProblem = "no steady segments: no lift curve"
 		return

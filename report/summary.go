@@ -22,6 +22,8 @@ func (r *Report) Summary() []string {
 	}
 	lo, hi := r.AlphaRangeDeg()
 	switch {
+	case r.isRoof():
+		out = append(out, r.roofSummary()...)
 	case len(r.Segments) == 0:
 		out = append(out, "No steady segments were found in this run, so there are no coefficients to report.")
 	case r.isRotor():

@@ -1,0 +1,165 @@
+package report
+
+import (
+	"fmt"
+	"math"
+
+	"gonum.org/v1/plot/plotter"
+	"gonum.org/v1/plot/vg"
+	"gonum.org/v1/plot/vg/draw"
+	"liftyard/rig"
+)
+
+// isRoof reports whether the run is a roof mock-up: its rows are zones in
+// blocks of time (DESIGN §4 "Roofs"), not polar points.
+func (r *Report) isRoof() bool { return r.Run.Kind == string(rig.KindRoof) }
+
+// roofRow is one zone in one block, rounded to text.
+type roofRow struct {
+	Index, Zone, Start, Q, Cp, RMS, Peak, Uplift, Design, En, Agrees string
+	Disagree                                                         bool
+}
+
+// roofRows lists the roof segments in stored order (block by block, zone
+// by zone); rows without a zone are skipped.
+func (r *Report) roofRows() []roofRow {
+	var out []roofRow
+	for _, s := range r.Segments {
+		if s.Zone == "" {
+			continue
+		}
+		row := roofRow{
+			Index: fmt.Sprint(s.Index), Zone: s.Zone, Start: when(s.TStart),
+			Q:  pm(s.QPa.X, u95Of(s.QPa), 1),
+			Cp: pm(s.CpMean.X, u95Of(s.CpMean), 2), RMS: fix(s.CpRMS, 2), Peak: fix(s.CpPeak, 2),
+			Uplift: pm(s.UpliftN.X, u95Of(s.UpliftN), 0),
+			Design: "—", En: "—", Agrees: "—",
+		}
+		if !measured(s.CpMean) {
+			row.Cp = "—"
+		}
+		if measured(s.DesignCp) {
+			row.Design = pm(s.DesignCp.X, s.DesignCp.U95(), 2)
+			if finite(s.En) {
+				row.En = fix(s.En, 2)
+				row.Agrees = "yes"
+				if math.Abs(s.En) > 1 {
+					row.Agrees, row.Disagree = "no", true
+				}
+			}
+		}
+		out = append(out, row)
+	}
+	return out
+}
+
+// roofSummary is the roof part of the summary: how many blocks and zones,
+// and how many zone-blocks agree with their design values.
+func (r *Report) roofSummary() []string {
+	zones := map[string]bool{}
+	var rows, agree, compared int
+	worst, worstZone := math.Inf(1), ""
+	for _, s := range r.Segments {
+		if s.Zone == "" {
+			continue
+		}
+		rows++
+		zones[s.Zone] = true
+		if measured(s.DesignCp) && finite(s.En) {
+			compared++
+			if math.Abs(s.En) <= 1 {
+				agree++
+			}
+		}
+		if finite(s.CpPeak) && s.CpPeak < worst {
+			worst, worstZone = s.CpPeak, s.Zone
+		}
+	}
+	if rows == 0 {
+		return []string{"No complete block was recorded in this run, so there are no pressure coefficients to report."}
+	}
+	out := []string{fmt.Sprintf("%s over %s (net pressure coefficients; negative = uplift).",
+		plural(rows, "zone result", "zone results"), plural(len(zones), "zone", "zones"))}
+	if worstZone != "" {
+		out = append(out, fmt.Sprintf("The most negative expected block peak is %s, in zone %s.", fix(worst, 2), worstZone))
+	}
+	if compared > 0 {
+		out = append(out, fmt.Sprintf("Agrees with the design value at %d of %s.", agree, plural(compared, "compared zone result", "compared zone results")))
+	} else {
+		out = append(out, "No zone has a design value ([[zone]] design_cp): no design comparison.")
+	}
+	return out
+}
+
+// zonePlot draws each zone's net Cp mean per block with U95 bars (blocks
+// spread within the zone's column, not averaged: they share calibration
+// errors) and the zone's design value with its expanded uncertainty.
+func (r *Report) zonePlot() (*figure, error) {
+	var zones []string
+	col := map[string]int{}
+	count := map[string]int{}
+	var meas, design errPts
+	done := map[string]bool{}
+	for _, s := range r.Segments {
+		if s.Zone == "" || !measured(s.CpMean) {
+			continue
+		}
+		i, ok := col[s.Zone]
+		if !ok {
+			i = len(zones)
+			col[s.Zone] = i
+			zones = append(zones, s.Zone)
+		}
+		off := -0.25 + 0.05*float64(count[s.Zone]%11)
+		count[s.Zone]++
+		meas.add(float64(i)+off, s.CpMean.X, 0, u95Of(s.CpMean))
+		if !done[s.Zone] && measured(s.DesignCp) {
+			done[s.Zone] = true
+			design.add(float64(i)+0.35, s.DesignCp.X, 0, s.DesignCp.U95())
+		}
+	}
+	if len(zones) == 0 {
+		return nil, nil
+	}
+	p := newPlot("Net pressure coefficient per zone", "zone", "net Cp (negative = uplift)")
+	p.NominalX(zones...)
+	_, _, ymin, ymax := meas.bounds()
+	if len(design.XYs) > 0 {
+		_, _, dlo, dhi := design.bounds()
+		ymin, ymax = math.Min(ymin, dlo), math.Max(ymax, dhi)
+	}
+	p.X.Min, p.X.Max = -0.6, float64(len(zones))-0.4
+	p.Y.Min, p.Y.Max = padY(ymin, ymax)
+	if err := addPoints(p, &meas, false, "block mean ± U95"); err != nil {
+		return nil, fmt.Errorf("zone plot: %w", err)
+	}
+	if len(design.XYs) > 0 {
+		sc, err := plotter.NewScatter(design.XYs)
+		if err != nil {
+			return nil, fmt.Errorf("zone plot: %w", err)
+		}
+		sc.GlyphStyle.Color, sc.GlyphStyle.Shape, sc.GlyphStyle.Radius = colDesign, draw.BoxGlyph{}, vg.Points(3)
+		eb, err := plotter.NewYErrorBars(struct {
+			plotter.XYs
+			plotter.YErrors
+		}{design.XYs, design.YErrors})
+		if err != nil {
+			return nil, fmt.Errorf("zone plot: %w", err)
+		}
+		eb.LineStyle.Color = colDesign
+		p.Add(eb, sc)
+		p.Legend.Add("design value ± its expanded uncertainty", sc)
+	}
+	p.Legend.Top = false
+	svg, err := svgOf(p)
+	if err != nil {
+		return nil, fmt.Errorf("zone plot: %w", err)
+	}
+	return &figure{SVG: svg, Alt: "net pressure coefficient per roof zone, each block with U95 bars, beside the design value",
+		Caption: "Net Cp (external − internal, area-weighted over the zone's taps) of each block, bars ± U95, and the zone's design value (square) with its expanded uncertainty."}, nil
+}
+
+// roofFigures are the plots of a roof report.
+func (r *Report) roofFigures() []func() (*figure, error) {
+	return []func() (*figure, error){r.zonePlot, r.qPlot}
+}
