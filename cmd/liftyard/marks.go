@@ -86,16 +86,16 @@ func recomputeSegments(ctx context.Context, store *storage.Store, run storage.Ru
 	if err != nil {
 		return nil, nil, err
 	}
+	if r.Kind == rig.KindRoof {
+		// A roof run's segments are fixed blocks whose length the run
+		// does not store: recomputing could change them.
+		return nil, nil, fmt.Errorf("run %d is a roof run: its segments are fixed-length blocks, which user marks do not set", run.ID)
+	}
 	cal, err := calibrate.NewCalibratorFrom(r, store.Calibration)
 	if err != nil {
 		return nil, nil, err
 	}
-	cfg, err := estimatorConfig(r)
-	if err != nil {
-		return nil, nil, err
-	}
-	cfg.Marks = marks
-	est, err := estimate.NewEstimator(r, cfg)
+	est, err := newStage(r, estimate.RoofConfig{}, marks)
 	if err != nil {
 		return nil, nil, err
 	}
@@ -112,7 +112,7 @@ func recomputeSegments(ctx context.Context, store *storage.Store, run storage.Ru
 		})
 	}
 	var correct func(cb *calibrate.Block)
-	if zw := calibrate.NewZeroWatch(r); zw != nil && len(run.Drift) > 0 {
+	if zw := zeroWatch(r); zw != nil && len(run.Drift) > 0 {
 		// The stored drift lines lack the zeros' times: take the zeros
 		// again from the same raw blocks, as the recorder did.
 		if err := replay(zw.Observe); err != nil {
@@ -142,7 +142,11 @@ func recomputeSegments(ctx context.Context, store *storage.Store, run storage.Ru
 		return nil, nil, err
 	}
 	segs = append(segs, est.Flush()...)
-	return segs, est.UnusedMarks(), nil
+	var unused []estimate.Mark
+	if e, ok := est.(*estimate.Estimator); ok {
+		unused = e.UnusedMarks()
+	}
+	return segs, unused, nil
 }
 
 // applyMarks recomputes run id's segments with its stored marks (the

@@ -70,6 +70,10 @@ type Main struct {
 	Replay bool
 	// Note is stored with the run, e.g. "imported from raw.csv".
 	Note string
+	// Roof sets up the estimator of a roof rig (block length, epochs per
+	// block, live window); the zero value takes the estimate package's
+	// defaults. Force-balance rigs ignore it.
+	Roof estimate.RoofConfig
 
 	runID  uint64
 	events chan acquire.Event // from the sources' goroutines to the recorder loop
@@ -111,6 +115,14 @@ func buildSources(r *rig.Rig, logger *slog.Logger, rhoKgPerM3 float64, onEvent a
 			out = append(out, Source{Name: s.Name, Src: src, Health: &src.Health})
 		case rig.SourceSimulated:
 			q := estimate.DynamicPressure(rhoKgPerM3, defaultSpeed(r.Fluid))
+			if r.Kind == rig.KindRoof {
+				sr, err := sim.NewRoof(r, sim.RoofConfig{QPa: q, RateHz: s.RateHz})
+				if err != nil {
+					return nil, fmt.Errorf("source %q: %w", s.Name, err)
+				}
+				out = append(out, Source{Name: s.Name, Src: sr, Health: &sr.Health})
+				continue
+			}
 			sr, err := sim.New(r, sim.Config{QPa: q, RateHz: s.RateHz}, rhoKgPerM3)
 			if err != nil {
 				return nil, fmt.Errorf("source %q: %w", s.Name, err)
@@ -160,11 +172,7 @@ func (m *Main) Run(ctx context.Context) error {
 			return err
 		}
 	}
-	estCfg, err := estimatorConfig(m.Rig)
-	if err != nil {
-		return err
-	}
-	est, err := estimate.NewEstimator(m.Rig, estCfg)
+	est, err := newStage(m.Rig, m.Roof, nil)
 	if err != nil {
 		return err
 	}
@@ -277,7 +285,7 @@ func (m *Main) Run(ctx context.Context) error {
 		aligner  acquire.Aligner
 		chans    = acquire.NewMonitor(m.Rig)
 		loads    = calibrate.NewLoadMonitor(m.Rig)
-		zeros    = calibrate.NewZeroWatch(m.Rig)
+		zeros    = zeroWatch(m.Rig)
 		tick     = time.NewTicker(time.Second)
 	)
 	defer tick.Stop()
@@ -388,6 +396,51 @@ loop:
 		<-outboxDone
 	}
 	return errors.Join(runErr, werr, ferr, derr)
+}
+
+// stage is the estimator a recording feeds: the force-balance
+// estimate.Estimator or, for a roof rig, the estimate.RoofEstimator. The
+// recorder loop, the zero-drift replay and the marks replay all go through
+// it, so a stored run is re-processed by the same code that recorded it.
+type stage interface {
+	// Add takes one calibrated block and returns the segments it
+	// completed (a steady step; for a roof, one per zone per block).
+	Add(b *calibrate.Block) []estimate.Segment
+	// Live is the moving-window estimate for the dashboard; false until
+	// there is one.
+	Live() (estimate.Live, bool)
+	// Flush closes the open segment at the end of a run.
+	Flush() []estimate.Segment
+}
+
+// newStage builds the stage for r's kind. marks (user-set steady
+// segments) apply to force-balance rigs only: a roof's segments are its
+// fixed blocks, so marks on a roof are refused. roof is passed to the roof
+// estimator (zero value: the package defaults).
+func newStage(r *rig.Rig, roof estimate.RoofConfig, marks []estimate.Mark) (stage, error) {
+	if r.Kind == rig.KindRoof {
+		if len(marks) > 0 {
+			return nil, errors.New("user marks set steady segments of a force-balance rig; a roof rig's segments are its fixed-length blocks")
+		}
+		return estimate.NewRoofEstimator(r, roof)
+	}
+	cfg, err := estimatorConfig(r)
+	if err != nil {
+		return nil, err
+	}
+	cfg.Marks = marks
+	return estimate.NewEstimator(r, cfg)
+}
+
+// zeroWatch is the flow-off zero watch of a force-balance rig. A roof rig
+// gets none: the watch zeroes the balance channels and the pitot, and on a
+// roof it would zero the pitot alone while the taps kept their offsets, so
+// roof runs are recorded without zero-drift correction (docs/roof.md).
+func zeroWatch(r *rig.Rig) *calibrate.ZeroWatch {
+	if r.Kind == rig.KindRoof {
+		return nil
+	}
+	return calibrate.NewZeroWatch(r)
 }
 
 // segment hands a completed segment to the store (waiting if need be: a

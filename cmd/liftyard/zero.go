@@ -13,11 +13,7 @@ import (
 // corrected segments. The replay feeds blocks in arrival order and aligns
 // them again, so the join sees what the live run saw.
 func correctDrift(store *storage.Store, runID uint64, r *rig.Rig, cal *calibrate.Calibrator, d calibrate.Drift) ([]estimate.Segment, error) {
-	estCfg, err := estimatorConfig(r)
-	if err != nil {
-		return nil, err
-	}
-	est, err := estimate.NewEstimator(r, estCfg)
+	est, err := newStage(r, estimate.RoofConfig{}, nil)
 	if err != nil {
 		return nil, err
 	}

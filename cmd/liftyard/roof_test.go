@@ -1,0 +1,116 @@
+package main
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"math"
+	"os"
+	"path/filepath"
+	"regexp"
+	"testing"
+	"time"
+
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+
+	"liftyard/acquire/sim"
+	"liftyard/estimate"
+	"liftyard/rig"
+)
+
+// simRoofRig is the example roof rig with its serial tap scanner replaced
+// by a simulated source of the same name.
+func simRoofRig(t *testing.T) (*rig.Rig, string) {
+	t.Helper()
+	text, err := os.ReadFile("../../testdata/rigs/roof-yard.toml")
+	require.NoError(t, err)
+	src := "[[source]]\nname = \"scanner\"\ntype = \"simulated\"\n\n"
+	re := regexp.MustCompile(`(?s)\[\[source\]\].*?\n# Tap transducers`)
+	toml := re.ReplaceAllString(string(text), src+"# Tap transducers")
+	require.NotEqual(t, string(text), toml, "the source table was replaced")
+	r, err := rig.Parse("sim-roof.toml", []byte(toml))
+	require.NoError(t, err)
+	return r, toml
+}
+
+// Ensure that newStage picks the estimator by rig kind, refuses user marks
+// on a roof, and that a roof rig gets no flow-off zero watch.
+func TestNewStage_ByKind(t *testing.T) {
+	roof, _ := simRoofRig(t)
+	st, err := newStage(roof, estimate.RoofConfig{}, nil)
+	require.NoError(t, err)
+	assert.IsType(t, &estimate.RoofEstimator{}, st)
+	_, err = newStage(roof, estimate.RoofConfig{}, []estimate.Mark{{Start: time.Unix(0, 0), End: time.Unix(30, 0)}})
+	assert.ErrorContains(t, err, "roof")
+	assert.Nil(t, zeroWatch(roof), "roof runs get no zero-drift correction")
+
+	text, err := os.ReadFile("../../testdata/rigs/foil-towtank.toml")
+	require.NoError(t, err)
+	foil, err := rig.Parse("foil-towtank.toml", text)
+	require.NoError(t, err)
+	st, err = newStage(foil, estimate.RoofConfig{}, nil)
+	require.NoError(t, err)
+	assert.IsType(t, &estimate.Estimator{}, st)
+}
+
+// Ensure that a roof rig records end to end: the simulated tap scanner
+// through the recorder, the roof estimator and the store, then `export
+// --what segments --format json` gives one row per zone per block with the
+// roof fields of DESIGN §3.4, and each zone's net Cp mean lies within its
+// U95 of the simulator's true value.
+func TestRecord_RoofEndToEnd(t *testing.T) {
+	r, toml := simRoofRig(t)
+	fluid, err := estimate.Properties(r.Fluid, r.Conditions)
+	require.NoError(t, err)
+	q := estimate.DynamicPressure(fluid.RhoKgPerM3, 12) // a 12 m/s breeze at eave height (invented)
+	s, err := sim.NewRoof(r, sim.RoofConfig{QPa: q, Seed: 11})
+	require.NoError(t, err)
+
+	db := filepath.Join(t.TempDir(), "roof.db")
+	m := &Main{Rig: r, RigTOML: toml, DBPath: db, Addr: "127.0.0.1:0",
+		Sources: []Source{{Name: "scanner", Src: s, Health: &s.Health}},
+		Roof:    estimate.RoofConfig{Block: 2 * time.Second}}
+	ctx, cancel := context.WithTimeout(t.Context(), 5*time.Second)
+	defer cancel()
+	require.NoError(t, m.Run(ctx))
+	assert.Empty(t, m.Drift, "no zero-drift correction on a roof")
+
+	var out, errOut bytes.Buffer
+	code := run(t.Context(), []string{"export", "--db", db, "--run", "latest", "--what", "segments", "--format", "json"}, &out, &errOut)
+	require.Equal(t, 0, code, "export: %s", errOut.String())
+	var rows []map[string]any
+	require.NoError(t, json.Unmarshal(out.Bytes(), &rows), "export JSON: %s", out.String())
+	require.NotEmpty(t, rows)
+
+	perZone := map[string]int{}
+	for i, row := range rows {
+		zone, ok := row["zone"].(string)
+		require.True(t, ok, "row %d has no zone: %v", i, row)
+		for _, k := range []string{"cp_mean", "cp_peak", "cp_u95", "cp_rms", "uplift_n", "q_pa"} {
+			_, ok := row[k].(float64)
+			assert.True(t, ok, "row %d (%s): %s = %v, want a number", i, zone, k, row[k])
+		}
+		assert.Nil(t, row["cl"], "row %d: a roof row has no C_L", i)
+		cp, _ := row["cp_mean"].(float64)
+		u, _ := row["cp_u95"].(float64)
+		peak, _ := row["cp_peak"].(float64)
+		truth := s.TrueCp(zone)
+		require.False(t, math.IsNaN(truth), "zone %q unknown to the simulator", zone)
+		assert.LessOrEqual(t, math.Abs(cp-truth), u, "block %v zone %s: cp_mean %.4f ± %.4f vs true %.4f", row["segment"], zone, cp, u, truth)
+		assert.Less(t, peak, cp, "zone %s: the expected block extreme is more negative than the mean", zone)
+		perZone[zone]++
+	}
+	for _, z := range []string{"corner", "edge", "field"} {
+		assert.GreaterOrEqual(t, perZone[z], 1, "zone %s has a block", z)
+	}
+	// The corner has a design value, so it is compared (En not null).
+	for _, row := range rows {
+		if row["zone"] == "corner" {
+			assert.Equal(t, -2.2, row["design_cp"])
+			_, ok := row["en"].(float64)
+			assert.True(t, ok, "corner en = %v", row["en"])
+		}
+	}
+	t.Logf("%d roof rows, blocks per zone %v", len(rows), perZone)
+}
