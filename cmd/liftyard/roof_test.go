@@ -17,6 +17,7 @@ import (
 	"liftyard/acquire/sim"
 	"liftyard/estimate"
 	"liftyard/rig"
+	"liftyard/storage"
 )
 
 // simRoofRig is the example roof rig with its serial tap scanner replaced
@@ -44,6 +45,9 @@ func TestNewStage_ByKind(t *testing.T) {
 	_, err = newStage(roof, estimate.RoofConfig{}, []estimate.Mark{{Start: time.Unix(0, 0), End: time.Unix(30, 0)}})
 	assert.ErrorContains(t, err, "roof")
 	assert.Nil(t, zeroWatch(roof), "roof runs get no zero-drift correction")
+	_, toml := simRoofRig(t)
+	_, _, err = recomputeSegments(t.Context(), nil, storage.Run{ID: 3, Kind: "roof", RigTOML: toml}, nil)
+	assert.ErrorContains(t, err, "roof run", "applying marks to a roof run is refused before the store is read")
 
 	text, err := os.ReadFile("../../testdata/rigs/foil-towtank.toml")
 	require.NoError(t, err)
