@@ -37,6 +37,9 @@ var dimensionless = map[string]bool{
 	// calibration records carry the unit in their Unit field (as the rig
 	// file's channel does): values "in Unit"
 	"Applied": true, "Reading": true, "ReferenceU": true, "ResidualSD": true,
+	// the simulator's roof settings are coefficients and fractions of q;
+	// a Gumbel fit's mode and dispersion are in the unit of the data fitted
+	"InternalCp": true, "TapTurbulence": true, "ModeU": true, "ScaleInvA": true,
 	// unit conversion factors
 	"Scale": true, "Offset": true,
 }
