@@ -225,6 +225,16 @@ func (s *Roof) Config() RoofConfig { return s.cfg }
 // Next returns the next block of raw readings. The device clock starts at
 // Config.Start (the Unix epoch when zero) and advances by one sample period
 // per sample.
+// Preview returns the shape of the blocks Next makes (channel names in
+// order, no readings) without advancing the simulation.
+func (s *Roof) Preview() acquire.Block {
+	b := acquire.Block{Source: s.source, Series: make([]acquire.Series, len(s.channels))}
+	for i, name := range s.channels {
+		b.Series[i] = acquire.Series{Channel: name}
+	}
+	return b
+}
+
 func (s *Roof) Next() acquire.Block {
 	n := s.cfg.BlockSamples
 	dtS := 1 / s.cfg.RateHz

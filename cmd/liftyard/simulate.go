@@ -42,9 +42,6 @@ func runSimulate(ctx context.Context, args []string, stdout, stderr io.Writer) e
 	if err != nil {
 		return err
 	}
-	if r.Kind == rig.KindRoof {
-		return fmt.Errorf("simulate %q: roof rigs (pressure taps) are not simulated yet; the simulator drives rigs with a force balance (foil, body)", r.Name)
-	}
 	fluid, err := estimate.Properties(r.Fluid, r.Conditions)
 	if err != nil {
 		return err
@@ -53,7 +50,13 @@ func runSimulate(ctx context.Context, args []string, stdout, stderr io.Writer) e
 	if v <= 0 {
 		v = defaultSpeed(r.Fluid)
 	}
-	s, err := sim.New(r, sim.Config{QPa: estimate.DynamicPressure(fluid.RhoKgPerM3, v), Seed: *seed}, fluid.RhoKgPerM3)
+	q := estimate.DynamicPressure(fluid.RhoKgPerM3, v)
+	var s simRig
+	if r.Kind == rig.KindRoof {
+		s, err = sim.NewRoof(r, sim.RoofConfig{QPa: q, Seed: *seed})
+	} else {
+		s, err = sim.New(r, sim.Config{QPa: q, Seed: *seed}, fluid.RhoKgPerM3)
+	}
 	if err != nil {
 		return fmt.Errorf("simulate %q: %w", r.Name, err)
 	}
@@ -108,16 +111,29 @@ func runSimulate(ctx context.Context, args []string, stdout, stderr io.Writer) e
 		w = p
 	}
 	defer w.Close()
+	// A write blocks while nobody reads the port (a pty with no reader
+	// holds a few kilobytes): closing the device on Ctrl-C or --for ends it.
+	stopClose := context.AfterFunc(ctx, func() { w.Close() })
+	defer stopClose()
 	fmt.Fprintf(stdout, "liftyard simulate: %q writing frames seq,t_us,%s*CRC at %d baud (Ctrl-C to stop)\n",
 		r.Name, strings.Join(channels, ","), baud)
 	start := time.Now()
 	err = serial.WriteFrames(ctx, w, channels, blocks)
 	fmt.Fprintf(stdout, "liftyard simulate: stopped after %s\n", time.Since(start).Round(time.Second))
+	if ctx.Err() != nil {
+		return nil // stopped by Ctrl-C or --for; a write cut short by the close is expected
+	}
 	return err
 }
 
+// simRig is a simulated rig: the force-balance one or the roof one.
+type simRig interface {
+	Run(ctx context.Context, out chan<- acquire.Block) error
+	Preview() acquire.Block
+}
+
 // simChannels lists the channels the simulator produces, in its order.
-func simChannels(s *sim.Rig) []string {
+func simChannels(s simRig) []string {
 	b := s.Preview()
 	names := make([]string, len(b.Series))
 	for i, ser := range b.Series {
