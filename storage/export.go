@@ -230,37 +230,81 @@ func (s *Store) ExportRaw(w io.Writer, id uint64) error {
 	}
 	// Pass 1: the channel set, from every block (cheap next to pass 2, and a
 	// channel that appears late still gets its column).
+	names, err := s.channelsOf(id, sources)
+	if err != nil {
+		return fmt.Errorf("export raw run %d: %w", id, err)
+	}
 	col := map[string]int{}
-	var header []string
-	header = append(header, "t_s")
+	header := []string{"t_s"}
+	for _, n := range names {
+		col[n] = len(header)
+		header = append(header, n)
+	}
+	raw := func(b acquire.Block) sampleBlock {
+		sb := sampleBlock{t0Us: b.T0Us, dtUs: b.DtUs, n: b.Len()}
+		for _, sr := range b.Series {
+			sb.series = append(sb.series, sampleSeries{sr.Channel, sr.Raw})
+		}
+		return sb
+	}
+	if err := s.writeSampleCSV(w, id, sources, header, col, raw); err != nil {
+		return fmt.Errorf("export raw run %d: %w", id, err)
+	}
+	return nil
+}
+
+// sampleBlock is one block's series as the sample CSV exports write them.
+type sampleBlock struct {
+	t0Us, dtUs int64
+	n          int
+	series     []sampleSeries
+}
+
+type sampleSeries struct {
+	channel string
+	v       []float64
+}
+
+// channelsOf lists the channels of a run's blocks in the order they first
+// appear, source by source.
+func (s *Store) channelsOf(id uint64, sources []string) ([]string, error) {
+	seen := map[string]bool{}
+	var names []string
 	for _, src := range sources {
 		it := s.newBlockIter(id, src)
 		for {
 			b, ok, err := it.next()
 			if err != nil {
-				return fmt.Errorf("export raw run %d: %w", id, err)
+				return nil, err
 			}
 			if !ok {
 				break
 			}
 			for _, sr := range b.Series {
-				if _, seen := col[sr.Channel]; !seen {
-					col[sr.Channel] = len(header)
-					header = append(header, sr.Channel)
+				if !seen[sr.Channel] {
+					seen[sr.Channel] = true
+					names = append(names, sr.Channel)
 				}
 			}
 		}
 	}
+	return names, nil
+}
 
-	// Pass 2: merge the sources by sample time.
+// writeSampleCSV writes one CSV row per sample time, merging the sources'
+// blocks by their device time (T0Us + i·DtUs). conv turns each stored block
+// into the series to write (raw or calibrated); a series whose channel has
+// no column is left out, and a non-finite value is a blank cell. Blocks are
+// read in short chunks (blockIter), never in one long read transaction.
+func (s *Store) writeSampleCSV(w io.Writer, id uint64, sources []string, header []string, col map[string]int, conv func(acquire.Block) sampleBlock) error {
 	type cursor struct {
 		it  *blockIter
-		b   acquire.Block
+		b   sampleBlock
 		i   int // next sample in b
 		end bool
 	}
 	advance := func(c *cursor) error {
-		for !c.end && c.i >= c.b.Len() {
+		for !c.end && c.i >= c.b.n {
 			b, ok, err := c.it.next()
 			if err != nil {
 				return err
@@ -269,7 +313,7 @@ func (s *Store) ExportRaw(w io.Writer, id uint64) error {
 				c.end = true
 				return nil
 			}
-			c.b, c.i = b, 0
+			c.b, c.i = conv(b), 0
 		}
 		return nil
 	}
@@ -277,7 +321,7 @@ func (s *Store) ExportRaw(w io.Writer, id uint64) error {
 	for i, src := range sources {
 		curs[i] = &cursor{it: s.newBlockIter(id, src)}
 		if err := advance(curs[i]); err != nil {
-			return fmt.Errorf("export raw run %d: %w", id, err)
+			return err
 		}
 	}
 	bw := bufio.NewWriterSize(w, 64<<10)
@@ -287,15 +331,13 @@ func (s *Store) ExportRaw(w io.Writer, id uint64) error {
 	}
 	row := make([]string, len(header))
 	var buf []byte
+	at := func(c *cursor) int64 { return c.b.t0Us + int64(c.i)*c.b.dtUs }
 	for {
 		var tMin int64
 		found := false
 		for _, c := range curs {
-			if c.end {
-				continue
-			}
-			if t := c.b.T0Us + int64(c.i)*c.b.DtUs; !found || t < tMin {
-				tMin, found = t, true
+			if !c.end && (!found || at(c) < tMin) {
+				tMin, found = at(c), true
 			}
 		}
 		if !found {
@@ -304,18 +346,22 @@ func (s *Store) ExportRaw(w io.Writer, id uint64) error {
 		clear(row)
 		row[0] = formatMicros(tMin)
 		for _, c := range curs {
-			if c.end || c.b.T0Us+int64(c.i)*c.b.DtUs != tMin {
+			if c.end || at(c) != tMin {
 				continue
 			}
-			for _, sr := range c.b.Series {
-				if v := sr.Raw[c.i]; !math.IsNaN(v) {
+			for _, sr := range c.b.series {
+				j, ok := col[sr.channel]
+				if !ok || c.i >= len(sr.v) {
+					continue
+				}
+				if v := sr.v[c.i]; !math.IsNaN(v) && !math.IsInf(v, 0) {
 					buf = strconv.AppendFloat(buf[:0], v, 'g', -1, 64)
-					row[col[sr.Channel]] = string(buf)
+					row[j] = string(buf)
 				}
 			}
 			c.i++
 			if err := advance(c); err != nil {
-				return fmt.Errorf("export raw run %d: %w", id, err)
+				return err
 			}
 		}
 		if err := cw.Write(row); err != nil {

@@ -1,13 +1,11 @@
 package storage
 
 import (
-	"bufio"
-	"encoding/csv"
 	"fmt"
 	"io"
-	"math"
-	"strconv"
+	"slices"
 
+	"liftyard/acquire"
 	"liftyard/calibrate"
 	"liftyard/rig"
 )
@@ -51,105 +49,28 @@ func (s *Store) ExportValues(w io.Writer, id uint64, r *rig.Rig, cal *calibrate.
 	if err != nil {
 		return fmt.Errorf("export values run %d: %w", id, err)
 	}
-	carried := map[string]bool{}
-	for _, src := range sources {
-		it := s.newBlockIter(id, src)
-		for {
-			b, ok, err := it.next()
-			if err != nil {
-				return fmt.Errorf("export values run %d: %w", id, err)
-			}
-			if !ok {
-				break
-			}
-			for _, sr := range b.Series {
-				carried[sr.Channel] = true
-			}
-		}
+	names, err := s.channelsOf(id, sources)
+	if err != nil {
+		return fmt.Errorf("export values run %d: %w", id, err)
 	}
 	col := map[string]int{}
 	header := []string{"t_s"}
 	for _, ch := range r.Channels {
-		if carried[ch.Name] {
+		if slices.Contains(names, ch.Name) {
 			col[ch.Name] = len(header)
 			header = append(header, ValueColumn(ch))
 		}
 	}
-
-	type cursor struct {
-		it  *blockIter
-		b   calibrate.Block
-		i   int
-		end bool
-	}
-	advance := func(c *cursor) error {
-		for !c.end && c.i >= c.b.Len() {
-			b, ok, err := c.it.next()
-			if err != nil {
-				return err
-			}
-			if !ok {
-				c.end = true
-				return nil
-			}
-			c.b, c.i = cal.Apply(&b), 0
+	values := func(b acquire.Block) sampleBlock {
+		cb := cal.Apply(&b)
+		sb := sampleBlock{t0Us: cb.T0Us, dtUs: cb.DtUs, n: cb.Len()}
+		for _, sr := range cb.Series {
+			sb.series = append(sb.series, sampleSeries{sr.Channel, sr.Values})
 		}
-		return nil
+		return sb
 	}
-	curs := make([]*cursor, len(sources))
-	for i, src := range sources {
-		curs[i] = &cursor{it: s.newBlockIter(id, src)}
-		if err := advance(curs[i]); err != nil {
-			return fmt.Errorf("export values run %d: %w", id, err)
-		}
+	if err := s.writeSampleCSV(w, id, sources, header, col, values); err != nil {
+		return fmt.Errorf("export values run %d: %w", id, err)
 	}
-	bw := bufio.NewWriterSize(w, 64<<10)
-	cw := csv.NewWriter(bw)
-	if err := cw.Write(header); err != nil {
-		return err
-	}
-	row := make([]string, len(header))
-	var buf []byte
-	at := func(c *cursor) int64 { return c.b.T0Us + int64(c.i)*c.b.DtUs }
-	for {
-		var tMin int64
-		found := false
-		for _, c := range curs {
-			if !c.end && (!found || at(c) < tMin) {
-				tMin, found = at(c), true
-			}
-		}
-		if !found {
-			break
-		}
-		clear(row)
-		row[0] = formatMicros(tMin)
-		for _, c := range curs {
-			if c.end || at(c) != tMin {
-				continue
-			}
-			for _, sr := range c.b.Series {
-				j, ok := col[sr.Channel]
-				if !ok || c.i >= len(sr.Values) {
-					continue
-				}
-				if v := sr.Values[c.i]; !math.IsNaN(v) && !math.IsInf(v, 0) {
-					buf = strconv.AppendFloat(buf[:0], v, 'g', -1, 64)
-					row[j] = string(buf)
-				}
-			}
-			c.i++
-			if err := advance(c); err != nil {
-				return fmt.Errorf("export values run %d: %w", id, err)
-			}
-		}
-		if err := cw.Write(row); err != nil {
-			return err
-		}
-	}
-	cw.Flush()
-	if err := cw.Error(); err != nil {
-		return err
-	}
-	return bw.Flush()
+	return nil
 }
