@@ -3,7 +3,6 @@ package sim
 import (
 	"context"
 	"errors"
-	"fmt"
 	"math"
 	"math/rand/v2"
 	"time"
@@ -131,20 +130,17 @@ func NewRoof(r *rig.Rig, cfg RoofConfig) (*Roof, error) {
 		s.source = r.Sources[0].Name
 	}
 	look := func(name string) (*chanInv, error) {
-		ch, ok := r.Channel(name)
-		if !ok {
-			return nil, fmt.Errorf("sim: channel %q not in rig", name)
-		}
-		poly := ch.Calibration.Poly
-		if len(poly) == 0 {
-			poly = []float64{0, 1}
+		c, err := newChanInv(r, name)
+		if err != nil {
+			return nil, err
 		}
 		s.channels = append(s.channels, name)
 		if cfg.CalibrationErrors {
 			// The stated u is in the channel's unit; ToSI.Scale takes it to SI.
+			ch, _ := r.Channel(name)
 			s.calErr[name] = ch.Calibration.U * math.Abs(ch.ToSI.Scale) * s.rng.NormFloat64()
 		}
-		return &chanInv{name: name, poly: poly, toSI: ch.ToSI, capacity: ch.CapacitySI}, nil
+		return c, nil
 	}
 	s.intCp = cfg.InternalCp
 	if r.Internal.Channel == "" {
@@ -285,12 +281,7 @@ func (s *Roof) Next() acquire.Block {
 }
 
 // noise is white transducer noise, a fraction of the channel's capacity.
-func (s *Roof) noise(c *chanInv) float64 {
-	if c.capacity <= 0 {
-		return 0
-	}
-	return s.cfg.NoiseFrac * c.capacity * s.rng.NormFloat64()
-}
+func (s *Roof) noise(c *chanInv) float64 { return c.noise(s.cfg.NoiseFrac, s.rng) }
 
 // Run generates blocks in real time, one every BlockSamples/RateHz, stamped
 // with the wall clock, and sends them on out until ctx is done. It never

@@ -169,16 +169,11 @@ func New(r *rig.Rig, cfg Config, rhoKgPerM3 float64) (*Rig, error) {
 		if name == "" {
 			return nil, nil
 		}
-		ch, ok := r.Channel(name)
-		if !ok {
-			return nil, fmt.Errorf("sim: channel %q not in rig", name)
+		c, err := newChanInv(r, name)
+		if err == nil {
+			s.channels = append(s.channels, name)
 		}
-		poly := ch.Calibration.Poly
-		if len(poly) == 0 {
-			poly = []float64{0, 1}
-		}
-		s.channels = append(s.channels, name)
-		return &chanInv{name: name, poly: poly, toSI: ch.ToSI, capacity: ch.CapacitySI}, nil
+		return c, err
 	}
 	for i, name := range r.Lift.Normal {
 		c, err := look(name)
@@ -359,11 +354,29 @@ func (s *Rig) Next() acquire.Block {
 }
 
 // noise is white sensor noise, a fraction of the channel's capacity.
-func (s *Rig) noise(c *chanInv) float64 {
+func (s *Rig) noise(c *chanInv) float64 { return c.noise(s.cfg.NoiseFrac, s.rng) }
+
+// newChanInv looks up a rig channel and keeps what inverting its
+// calibration needs (an absent polynomial is the identity).
+func newChanInv(r *rig.Rig, name string) (*chanInv, error) {
+	ch, ok := r.Channel(name)
+	if !ok {
+		return nil, fmt.Errorf("sim: channel %q not in rig", name)
+	}
+	poly := ch.Calibration.Poly
+	if len(poly) == 0 {
+		poly = []float64{0, 1}
+	}
+	return &chanInv{name: name, poly: poly, toSI: ch.ToSI, capacity: ch.CapacitySI}, nil
+}
+
+// noise is white sensor noise of frac of the channel's capacity (none for
+// an unrated channel).
+func (c *chanInv) noise(frac float64, rng *rand.Rand) float64 {
 	if c.capacity <= 0 {
 		return 0
 	}
-	return s.cfg.NoiseFrac * c.capacity * s.rng.NormFloat64()
+	return frac * c.capacity * rng.NormFloat64()
 }
 
 // raw inverts the channel's unit conversion and calibration polynomial and
