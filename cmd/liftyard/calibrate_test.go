@@ -25,6 +25,7 @@ import (
 	"liftyard/acquire/sim"
 	"liftyard/calibrate"
 	"liftyard/estimate"
+	"liftyard/process"
 	"liftyard/rig"
 	"liftyard/storage"
 )
@@ -276,6 +277,14 @@ func TestCalibrate_InteractiveSerial(t *testing.T) {
 			case <-out.prompts:
 			}
 			appliedBits.Store(math.Float64bits(load))
+			// As a person would, wait a moment with the load on before
+			// pressing Enter, so frames read late on a busy machine were
+			// already taken at this load.
+			select {
+			case <-ctx.Done():
+				return
+			case <-time.After(250 * time.Millisecond):
+			}
 			if _, err := io.WriteString(stdinW, "\n"); err != nil {
 				return
 			}
@@ -394,7 +403,7 @@ func TestRecord_StoredCalibrationExpired(t *testing.T) {
 	require.NoError(t, err)
 	var found bool
 	for _, ev := range evs {
-		if ev.Kind == string(EventCalibrationExpired) {
+		if ev.Kind == string(process.EventCalibrationExpired) {
 			found = true
 			assert.Contains(t, ev.Message, "calibration n_fore-cert-4711 expired on "+made.AddDate(1, 0, 0).Format("2006-01-02"))
 		}

@@ -124,7 +124,7 @@ func runDemo(ctx context.Context, args []string, stdout, stderr io.Writer) error
 		return err
 	}
 	fmt.Fprintf(stdout, "liftyard demo: run %d stored in %s after %s\n", m.RunID(), *db, time.Since(start).Round(time.Second))
-	printDrift(stdout, m)
+	printDrift(stdout, m.Rig, m.Finished)
 	fmt.Fprintf(stdout, "  liftyard runs --db %s\n  liftyard export --db %s --run latest --what segments --format json\n", *db, *db)
 	return nil
 }

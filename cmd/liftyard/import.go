@@ -12,77 +12,10 @@ import (
 
 	"liftyard/acquire"
 	"liftyard/estimate"
+	"liftyard/process"
 	"liftyard/rig"
 	"liftyard/storage"
 )
-
-// estimatorConfig is the estimator set-up that every path shares (live
-// recording, import, reprocess, the zero-drift recomputation): the rig's
-// design curve, loaded here because estimate does no I/O.
-func estimatorConfig(r *rig.Rig) (estimate.Config, error) {
-	d, err := loadDesign(r)
-	if err != nil {
-		return estimate.Config{}, err
-	}
-	return estimate.Config{Design: d}, nil
-}
-
-// loadDesign returns the design lift curve the rig asks for in [lift]
-// design: "thin-airfoil" (2π/rad with the span correction on the rig's
-// aspect ratio, α_L0 = 0), a design-curve CSV (rig.Parse has resolved a
-// relative path against the rig file's folder), or nil.
-func loadDesign(r *rig.Rig) (estimate.Design, error) {
-	switch d := r.Lift.Design; d {
-	case "":
-		return nil, nil
-	case rig.DesignThinAirfoil:
-		return estimate.ThinAirfoil{AspectRatio: r.Reference.AspectRatio()}, nil
-	default:
-		f, err := os.Open(d)
-		if err != nil {
-			return nil, usagef("[lift] design: %v", err)
-		}
-		defer f.Close()
-		c, err := estimate.ParseDesignCurve(f, d)
-		if err != nil {
-			return nil, usagef("[lift] design: %v", err)
-		}
-		return c, nil
-	}
-}
-
-// csvSource replays a raw CSV file (DESIGN §3.3) as one source of the rig:
-// an acquire.Source that is not live. It waits for the recorder instead of
-// dropping (nothing is lost by waiting for a file) and returns nil at the
-// end of the file, which ends the recording.
-type csvSource struct {
-	path, source string
-	blockN       int
-	health       *acquire.Health
-}
-
-// Run implements acquire.Source.
-func (s *csvSource) Run(ctx context.Context, out chan<- acquire.Block) error {
-	f, err := os.Open(s.path)
-	if err != nil {
-		return err
-	}
-	defer f.Close()
-	err = acquire.ReadRawCSV(f, s.source, s.blockN, func(b acquire.Block) error {
-		select {
-		case out <- b:
-			s.health.Frames.Add(1)
-			s.health.Samples.Add(uint64(b.Len()))
-			return nil
-		case <-ctx.Done():
-			return ctx.Err()
-		}
-	})
-	if errors.Is(err, context.Canceled) || errors.Is(err, context.DeadlineExceeded) {
-		return nil
-	}
-	return err
-}
 
 // checkRawCSV reads the whole file once before a run is made, so that a bad
 // file is refused (exit 2, with its line) and leaves no half-made run. It
@@ -172,44 +105,54 @@ func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	if err != nil {
 		return err
 	}
-	m := offlineMain(r, string(data), *db, fmt.Sprintf("imported from %s", filepath.Base(pos[0])), newLogger(stderr, *verbose))
-	src := &csvSource{path: pos[0], source: name, blockN: *blockN, health: &acquire.Health{}}
-	m.Sources = []Source{{Name: name, Src: src, Health: src.health}}
-	if err := m.Run(ctx); err != nil {
+	store, err := storage.Open(*db, storage.Options{})
+	if err != nil {
+		return err
+	}
+	defer store.Close()
+	src := &acquire.CSVFile{Path: pos[0], Source: name, BlockN: *blockN}
+	id, fin, err := recordOffline(ctx, store, r, string(data), fmt.Sprintf("imported from %s", filepath.Base(pos[0])),
+		src, &src.Health, name, newLogger(stderr, *verbose))
+	if err != nil {
 		return err
 	}
 	fmt.Fprintf(stderr, "liftyard import: %d sample times of %d channels (%s) from %s as run %d in %s\n",
-		samples, len(channels), strings.Join(channels, ", "), pos[0], m.RunID(), *db)
-	printDrift(stderr, m)
-	if err := printSummary(stderr, *db, nil, m.RunID(), m.Rig); err != nil {
+		samples, len(channels), strings.Join(channels, ", "), pos[0], id, *db)
+	printDrift(stderr, r, fin)
+	if err := printSummary(stderr, store, id, r); err != nil {
 		return err
 	}
-	fmt.Fprintln(stdout, m.RunID())
+	fmt.Fprintln(stdout, id)
 	return nil
 }
 
-// offlineMain sets up Main for a source that is not live (import,
-// reprocess): blocks wait for the store instead of being dropped, the
-// dashboard listens on a free loopback port only, and nothing is published
-// to a site broker (the results were not made live).
-func offlineMain(r *rig.Rig, rigTOML, db, note string, log *slog.Logger) *Main {
+// errStopped ends an offline run that was stopped before its data ended.
+var errStopped = errors.New("stopped before the end of the data; the run is stored as interrupted")
+
+// recordOffline makes a new run in store from a source that is not live (a
+// file, a stored run): every block goes through the one pipeline
+// (process.Replay) and waits for the store rather than being dropped.
+// Nothing is published to a site broker: the results were not made live.
+// h counts what src handed over, as source name in the run's health.
+func recordOffline(ctx context.Context, store *storage.Store, r *rig.Rig, rigTOML, note string,
+	src acquire.Replayer, h *acquire.Health, name string, log *slog.Logger) (uint64, process.Finished, error) {
 	rc := *r
 	rc.Publish = nil
-	return &Main{Rig: &rc, RigTOML: rigTOML, DBPath: db, Addr: "127.0.0.1:0", Logger: log, Replay: true, Note: note}
+	rec, err := process.NewRecorder(store, process.RecorderConfig{Rig: &rc, RigTOML: rigTOML, Note: note, Offline: true, Logger: log})
+	if err != nil {
+		return 0, process.Finished{}, err
+	}
+	_, err = process.Replay(ctx, src, rec.Pipeline(), rec.Keep)
+	if err != nil && ctx.Err() != nil {
+		err = errStopped
+	}
+	fin, ferr := rec.Finish(ctx, err, []acquire.HealthSnapshot{h.Snapshot(name)})
+	return rec.RunID(), fin, errors.Join(err, ferr)
 }
 
 // printSummary prints what a test engineer looks at first after a run is
 // processed: the lift curve (FitPolar) and the verdict against the design.
-// store may be nil (the file at db is opened read-only).
-func printSummary(w io.Writer, db string, store *storage.Store, runID uint64, r *rig.Rig) error {
-	if store == nil {
-		st, err := storage.Open(db, storage.Options{ReadOnly: true})
-		if err != nil {
-			return err
-		}
-		defer st.Close()
-		store = st
-	}
+func printSummary(w io.Writer, store *storage.Store, runID uint64, r *rig.Rig) error {
 	segs, err := store.Segments(runID)
 	if err != nil {
 		return err
@@ -228,7 +171,7 @@ func printSummary(w io.Writer, db string, store *storage.Store, runID uint64, r 
 	} else {
 		fmt.Fprintf(w, "  no lift-curve fit: %v\n", err)
 	}
-	d, err := loadDesign(r)
+	d, err := process.LoadDesign(r)
 	if err != nil || d == nil {
 		return nil
 	}

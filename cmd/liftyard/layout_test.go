@@ -18,10 +18,11 @@ var allowed = map[string][]string{
 	"calibrate": {"rig", "acquire"},
 	"estimate":  {"rig", "acquire", "calibrate"},
 	"storage":   {"rig", "acquire", "calibrate", "estimate"},
-	"report":    {"rig", "acquire", "calibrate", "estimate", "storage"},
-	"dashboard": {"rig", "acquire", "calibrate", "estimate", "storage", "report"},
-	"cmd":       {"rig", "acquire", "calibrate", "estimate", "storage", "report", "dashboard"},
-	"internal":  {"rig", "acquire", "calibrate", "estimate", "storage", "report", "dashboard", "internal"},
+	"process":   {"rig", "acquire", "calibrate", "estimate", "storage"},
+	"report":    {"rig", "acquire", "calibrate", "estimate", "storage", "process"},
+	"dashboard": {"rig", "acquire", "calibrate", "estimate", "storage", "process", "report"},
+	"cmd":       {"rig", "acquire", "calibrate", "estimate", "storage", "process", "report", "dashboard"},
+	"internal":  {"rig", "acquire", "calibrate", "estimate", "storage", "process", "report", "dashboard", "internal"},
 }
 
 // forbiddenStd lists standard-library packages a stage must not use.

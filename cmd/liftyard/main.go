@@ -15,6 +15,7 @@ import (
 	"os/signal"
 	"syscall"
 
+	"liftyard/process"
 	"liftyard/rig"
 )
 
@@ -90,8 +91,9 @@ func exitCode(err error, name string, stderr io.Writer) int {
 	var ue *usageError
 	var re rig.Errors
 	var re1 *rig.Error
+	var ie *process.InputError
 	switch {
-	case errors.As(err, &ue):
+	case errors.As(err, &ue), errors.As(err, &ie):
 		fmt.Fprintf(stderr, "liftyard %s: %v\n", name, err)
 		return 2
 	case errors.As(err, &re), errors.As(err, &re1):

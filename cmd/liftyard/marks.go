@@ -2,7 +2,6 @@ package main
 
 import (
 	"context"
-	"errors"
 	"fmt"
 	"io"
 	"os"
@@ -12,186 +11,17 @@ import (
 	"text/tabwriter"
 	"time"
 
-	"liftyard/acquire"
-	"liftyard/calibrate"
 	"liftyard/dashboard"
 	"liftyard/estimate"
-	"liftyard/rig"
+	"liftyard/process"
 	"liftyard/storage"
 )
 
-// marksNote is the run note and event of segments recomputed from marks.
-const (
-	marksNote    = "segments set by user marks"
-	unmarkedNote = "segments set by the automatic steady test (user marks cleared)"
-)
-
-// errFound stops a replay early.
-var errFound = errors.New("found")
-
-// storedRig parses the rig file stored with a run.
-func storedRig(run storage.Run) (*rig.Rig, error) {
-	if run.RigTOML == "" {
-		return nil, fmt.Errorf("run %d has no stored rig file: it cannot be re-processed", run.ID)
-	}
-	r, err := rig.Parse("", []byte(run.RigTOML))
-	if err != nil {
-		return nil, fmt.Errorf("rig file stored with run %d: %w", run.ID, err)
-	}
-	return r, nil
-}
-
-// runStart returns the time of run id's first sample on the clock of its
-// segments: sample 0 of the first stored block of the source that carries
-// the rig's first normal-force channel (the estimator's timeline source).
-func runStart(store *storage.Store, id uint64) (time.Time, error) {
-	run, err := store.Run(id)
-	if err != nil {
-		return time.Time{}, err
-	}
-	r, err := storedRig(run)
-	if err != nil {
-		return time.Time{}, err
-	}
-	if len(r.Lift.Normal) == 0 {
-		return time.Time{}, fmt.Errorf("run %d: the rig names no normal-force channel", id)
-	}
-	var t0 time.Time
-	err = store.ReplayBlocks(id, func(b acquire.Block) error {
-		for _, s := range b.Series {
-			if s.Channel == r.Lift.Normal[0] && b.Len() > 0 {
-				t0 = time.UnixMicro(b.T0Us).UTC()
-				return errFound
-			}
-		}
-		return nil
-	})
-	switch {
-	case errors.Is(err, errFound):
-		return t0, nil
-	case err != nil:
-		return time.Time{}, err
-	}
-	return time.Time{}, fmt.Errorf("run %d has no stored samples of %s", id, r.Lift.Normal[0])
-}
-
-// recomputeSegments re-runs run id's stored raw blocks through the
-// recorder's stages — clock alignment, calibration, the flow-off zero (the
-// drift between the zeros before and after the run when the run stored
-// one, else the zero before the run as the live run applied it), the
-// estimator — with marks (nil: the automatic steady test). It returns the
-// segments and the marks that gave none.
-func recomputeSegments(ctx context.Context, store *storage.Store, run storage.Run, marks []estimate.Mark) ([]estimate.Segment, []estimate.Mark, error) {
-	r, err := storedRig(run)
-	if err != nil {
-		return nil, nil, err
-	}
-	if r.Kind == rig.KindRoof {
-		// A roof run's segments are fixed blocks whose length the run
-		// does not store: recomputing could change them.
-		return nil, nil, fmt.Errorf("run %d is a roof run: its segments are fixed-length blocks, which user marks do not set", run.ID)
-	}
-	cal, err := calibrate.NewCalibratorFrom(r, store.Calibration)
-	if err != nil {
-		return nil, nil, err
-	}
-	est, err := newStage(r, estimate.RoofConfig{}, marks)
-	if err != nil {
-		return nil, nil, err
-	}
-	replay := func(fn func(cb *calibrate.Block)) error {
-		var aligner acquire.Aligner
-		return store.ReplayBlocks(run.ID, func(b acquire.Block) error {
-			if err := ctx.Err(); err != nil {
-				return err
-			}
-			aligner.Align(&b)
-			cb := cal.Apply(&b)
-			fn(&cb)
-			return nil
-		})
-	}
-	var correct func(cb *calibrate.Block)
-	if zw := zeroWatch(r); zw != nil && len(run.Drift) > 0 {
-		// The stored drift lines lack the zeros' times: take the zeros
-		// again from the same raw blocks, as the recorder did.
-		if err := replay(zw.Observe); err != nil {
-			return nil, nil, err
-		}
-		d, err := zw.Drift()
-		if err != nil {
-			return nil, nil, fmt.Errorf("run %d stored a zero drift, but its flow-off zeros cannot be taken again: %w", run.ID, err)
-		}
-		correct = d.Correct
-	} else if zw != nil {
-		correct = func(cb *calibrate.Block) {
-			zw.Observe(cb)
-			if z := zw.Live(); z != nil {
-				z.Correct(cb)
-			}
-		}
-	}
-	var segs []estimate.Segment
-	err = replay(func(cb *calibrate.Block) {
-		if correct != nil {
-			correct(cb)
-		}
-		segs = append(segs, est.Add(cb)...)
-	})
-	if err != nil {
-		return nil, nil, err
-	}
-	segs = append(segs, est.Flush()...)
-	var unused []estimate.Mark
-	if e, ok := est.(*estimate.Estimator); ok {
-		unused = e.UnusedMarks()
-	}
-	return segs, unused, nil
-}
-
-// applyMarks recomputes run id's segments with its stored marks (the
-// automatic steady test when it has none) and stores them with
-// storage.CorrectRun; the raw blocks are untouched.
+// applyMarks recomputes run id's segments with its stored marks through
+// process.ApplyMarks, for the dashboard's mark capability.
 func applyMarks(ctx context.Context, store *storage.Store, id uint64) (dashboard.MarksApplied, error) {
-	run, err := store.Run(id)
-	if err != nil {
-		return dashboard.MarksApplied{}, err
-	}
-	if run.Status == storage.StatusRecording {
-		return dashboard.MarksApplied{}, fmt.Errorf("run %d is still recording: apply marks once it has ended", id)
-	}
-	marks, err := store.Marks(id)
-	if err != nil {
-		return dashboard.MarksApplied{}, err
-	}
-	segs, unused, err := recomputeSegments(ctx, store, run, marks)
-	if err != nil {
-		return dashboard.MarksApplied{}, err
-	}
-	res := dashboard.MarksApplied{Segments: len(segs), Unused: []int{}, Note: unmarkedNote}
-	if len(marks) > 0 {
-		res.Note = fmt.Sprintf("%s (%d marks)", marksNote, len(marks))
-	}
-	for _, u := range unused {
-		if i := slices.IndexFunc(marks, func(m estimate.Mark) bool { return m.Start.Equal(u.Start) }); i >= 0 {
-			res.Unused = append(res.Unused, i+1)
-		}
-	}
-	if len(res.Unused) > 0 {
-		res.Note += fmt.Sprintf("; marks %s held too few samples and gave no segment", joinInts(res.Unused))
-	}
-	if err := store.CorrectRun(id, segs, res.Note, nil); err != nil {
-		return dashboard.MarksApplied{}, err
-	}
-	return res, nil
-}
-
-func joinInts(v []int) string {
-	s := make([]string, len(v))
-	for i, n := range v {
-		s[i] = strconv.Itoa(n)
-	}
-	return strings.Join(s, ", ")
+	res, err := process.ApplyMarks(ctx, store, id)
+	return dashboard.MarksApplied(res), err
 }
 
 // parseMarkTime reads one end of a mark: seconds from the run's first
@@ -282,7 +112,7 @@ func runMarks(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 	if err != nil {
 		return err
 	}
-	t0, t0Err := runStart(store, id)
+	t0, t0Err := process.RunStart(store, id)
 	switch {
 	case len(adds) > 0:
 		if t0Err != nil {
@@ -320,11 +150,11 @@ func runMarks(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 		if err != nil {
 			return err
 		}
-		r, err := storedRig(run)
+		r, err := process.StoredRig(run)
 		if err != nil {
 			return err
 		}
-		if err := printSummary(stderr, *db, store, id, r); err != nil {
+		if err := printSummary(stderr, store, id, r); err != nil {
 			return err
 		}
 	}

@@ -11,6 +11,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"liftyard/estimate"
+	"liftyard/process"
 	"liftyard/rig"
 	"liftyard/storage"
 )
@@ -58,7 +59,7 @@ func TestMarks_CLI(t *testing.T) {
 		assert.InDelta(t, orig[i].CL.U, again[i].CL.U, 1e-9, "segment %d u(C_L)", i)
 		assert.Equal(t, orig[i].N, again[i].N, "segment %d N", i)
 	}
-	assert.Contains(t, run.Note, unmarkedNote)
+	assert.Contains(t, run.Note, process.UnmarkedNote)
 
 	// The record starts 2026-03-14 09:00:00 UTC: 2.0 s and 09:00:04Z give
 	// the same kind of time.
@@ -78,7 +79,7 @@ func TestMarks_CLI(t *testing.T) {
 	assert.Contains(t, out, "2.400")
 	marked, run := storedSegments(t, db, 1)
 	require.Len(t, marked, 2)
-	assert.Contains(t, run.Note, marksNote)
+	assert.Contains(t, run.Note, process.MarksNote)
 	t0 := time.Date(2026, 3, 14, 9, 0, 0, 0, time.UTC)
 	assert.True(t, marked[0].TStart.Equal(t0.Add(500*time.Millisecond)), "first sample %s", marked[0].TStart)
 	assert.True(t, marked[0].TEnd.Equal(t0.Add(2200*time.Millisecond)), "last sample %s", marked[0].TEnd)

@@ -15,9 +15,9 @@ import (
 	"liftyard/acquire/mqtt"
 	"liftyard/acquire/serial"
 	"liftyard/acquire/sim"
-	"liftyard/calibrate"
 	"liftyard/dashboard"
 	"liftyard/estimate"
+	"liftyard/process"
 	"liftyard/rig"
 	"liftyard/storage"
 )
@@ -26,11 +26,6 @@ import (
 // several seconds of data at typical block rates; the sources never wait on
 // it (they drop and count), so it only smooths bursts.
 const rawQueue = 64
-
-// storeQueue is the capacity of the recorder → store channel. The writer
-// commits every 200 ms; 1024 items ride out a slow commit of a few seconds
-// on an SD card before the oldest blocks are dropped (and counted).
-const storeQueue = 1024
 
 // outboxGrace is how long a finished recording waits for its last results
 // to reach the site broker before giving up on them.
@@ -55,20 +50,11 @@ type Main struct {
 	// exists, with the dashboard URL and the run id.
 	OnReady func(url string, runID uint64)
 
-	// Drift is the zero drift found between the flow-off zeros before and
-	// after the run (empty when there were not both); ZeroNote says what
-	// was done about it.
-	Drift    []calibrate.DriftLine
-	ZeroNote string
+	// Finished says how the run ended, with the zero drift found between
+	// the flow-off zeros before and after it; set by Run.
+	Finished process.Finished
 
-	// Store, when set, is used instead of opening DBPath; the caller owns
-	// it (reprocess replays raw blocks from the same store).
-	Store *storage.Store
-	// Replay marks sources that are not live (a file, a stored run): raw
-	// blocks wait for the store instead of being dropped when it falls
-	// behind, since waiting loses nothing upstream.
-	Replay bool
-	// Note is stored with the run, e.g. "imported from raw.csv".
+	// Note is stored with the run.
 	Note string
 	// Roof sets up the estimator of a roof rig (block length, epochs per
 	// block, live window); the zero value takes the estimate package's
@@ -115,19 +101,11 @@ func buildSources(r *rig.Rig, logger *slog.Logger, rhoKgPerM3 float64, onEvent a
 			out = append(out, Source{Name: s.Name, Src: src, Health: &src.Health})
 		case rig.SourceSimulated:
 			q := estimate.DynamicPressure(rhoKgPerM3, defaultSpeed(r.Fluid))
-			if r.Kind == rig.KindRoof {
-				sr, err := sim.NewRoof(r, sim.RoofConfig{QPa: q, RateHz: s.RateHz})
-				if err != nil {
-					return nil, fmt.Errorf("source %q: %w", s.Name, err)
-				}
-				out = append(out, Source{Name: s.Name, Src: sr, Health: &sr.Health})
-				continue
-			}
-			sr, err := sim.New(r, sim.Config{QPa: q, RateHz: s.RateHz}, rhoKgPerM3)
+			sr, err := sim.ForRig(r, sim.Common{QPa: q, RateHz: s.RateHz, RhoKgPerM3: rhoKgPerM3})
 			if err != nil {
 				return nil, fmt.Errorf("source %q: %w", s.Name, err)
 			}
-			out = append(out, Source{Name: s.Name, Src: sr, Health: &sr.Health})
+			out = append(out, Source{Name: s.Name, Src: sr, Health: sr.Stats()})
 		case rig.SourceSerial:
 			src, err := serial.FromRig(s, r)
 			if err != nil {
@@ -156,7 +134,8 @@ func defaultSpeed(f rig.Fluid) float64 {
 
 // Run records until ctx is done, then shuts down in order: sources stop, the
 // estimator closes its open segment, the store commits its last batch, the
-// run is finished, the dashboard stops.
+// run is finished, the dashboard stops. The processing itself is one
+// process.Recorder stepped block by block; Run only wires goroutines.
 func (m *Main) Run(ctx context.Context) error {
 	log := m.Logger
 	if log == nil {
@@ -172,301 +151,221 @@ func (m *Main) Run(ctx context.Context) error {
 			return err
 		}
 	}
-	est, err := newStage(m.Rig, m.Roof, nil)
+	store, err := storage.Open(m.DBPath, storage.Options{})
 	if err != nil {
 		return err
 	}
-	store := m.Store
-	if store == nil {
-		if store, err = storage.Open(m.DBPath, storage.Options{}); err != nil {
-			return err
-		}
-		defer store.Close()
-	}
-	// Stored calibrations (calibration = { id = "…" }) come from this store.
-	cal, err := calibrate.NewCalibratorFrom(m.Rig, store.Calibration)
+	defer store.Close()
+	// Everything that can fail on the user's input is checked before the
+	// run is made, so a bad port or broker setting leaves no empty run.
+	dash, ln, err := m.listen(store, log)
 	if err != nil {
 		return err
 	}
-	started := time.Now()
-	runID, err := store.CreateRun(storage.Run{
-		Rig: m.Rig.Name, Kind: string(m.Rig.Kind), Fluid: string(m.Rig.Fluid), RigTOML: m.RigTOML,
-		AreaM2: m.Rig.Reference.AreaM2, AreaKind: m.Rig.Reference.AreaKind, Started: started, Note: m.Note,
-	})
+	out, err := newOutbox(m.Rig, log)
 	if err != nil {
+		ln.Close()
 		return err
 	}
-	m.runID = runID
-	if err := storeRunCalibrations(store, runID, cal); err != nil {
+	rec, err := process.NewRecorder(store, process.RecorderConfig{Rig: m.Rig, RigTOML: m.RigTOML, Note: m.Note,
+		Pipeline: process.Options{Roof: m.Roof}, Logger: log})
+	if err != nil {
+		ln.Close()
 		return err
 	}
-	dash, err := dashboard.New(dashboard.Config{Addr: m.Addr, Token: m.Token, Store: store, Calibrations: store, Logger: log})
-	if err != nil {
-		return err
-	}
-	ln, err := net.Listen("tcp", m.Addr)
-	if err != nil {
-		return fmt.Errorf("dashboard listen on %s: %w", m.Addr, err)
-	}
-	if run, err := store.Run(runID); err == nil {
-		dash.SetRun(run)
-	}
-
+	m.runID = rec.RunID()
 	ctx, cancel := context.WithCancelCause(ctx)
 	defer cancel(nil)
-	dashErr := make(chan error, 1)
-	dashCtx, stopDash := context.WithCancel(context.WithoutCancel(ctx))
-	defer stopDash()
-	go func() { dashErr <- dash.Serve(dashCtx, ln) }()
-
-	raw := make(chan acquire.Block, rawQueue)
-	var srcWG sync.WaitGroup
-	for _, s := range m.Sources {
-		srcWG.Go(func() {
-			if err := s.Src.Run(ctx, raw); err != nil {
-				cancel(fmt.Errorf("source %q: %w", s.Name, err))
-			}
-		})
-	}
-	go func() { srcWG.Wait(); close(raw) }()
-
-	items := make(chan storage.Item, storeQueue)
-	var storeDropped storeCounter
-	writer := store.NewWriter(runID, storage.WriterConfig{})
-	writerErr := make(chan error, 1)
-	// The writer outlives ctx: it commits until items is closed.
-	go func() { writerErr <- writer.Run(context.WithoutCancel(ctx), items) }()
-
-	sources := func() []acquire.HealthSnapshot {
-		hs := make([]acquire.HealthSnapshot, 0, len(m.Sources)+1)
-		for _, s := range m.Sources {
-			hs = append(hs, s.Health.Snapshot(s.Name))
-		}
-		hs = append(hs, acquire.HealthSnapshot{Source: "store", BlocksDropped: storeDropped.blocks.Load()})
-		return hs
-	}
-
-	// Live results for other consumers on the site (DESIGN §7): a bounded
-	// outbox that never makes the recorder wait.
-	var outbox *mqtt.Outbox
-	var outboxDone chan error
-	stopOut := func() {}
-	publish := func(string, []byte) {}
-	if p := m.Rig.Publish; p != nil {
-		if outbox, err = mqtt.OutboxFromRig(*p, m.Rig.Name, os.Getenv); err != nil {
-			return err
-		}
-		outbox.Logger = log
-		outboxDone = make(chan error, 1)
-		// The outbox outlives the recording briefly, to send the last
-		// segment and health (see outboxGrace).
-		outCtx, stopOutbox := context.WithCancel(context.WithoutCancel(ctx))
-		defer stopOutbox()
-		stopOut = stopOutbox
-		go func() {
-			err := outbox.Run(outCtx)
-			if err != nil {
-				log.Error("publishing live results stopped", "broker", p.Broker, "err", err)
-			}
-			outboxDone <- err
-		}()
-		publish = func(what string, payload []byte) { outbox.Offer(p.TopicPrefix+"/"+what, payload) }
-	}
-
-	if m.OnReady != nil {
-		m.OnReady("http://"+ln.Addr().String(), runID)
-	}
-	log.Info("recording", "run", runID, "rig", m.Rig.Name, "db", m.DBPath)
-
-	// The recorder loop: the only goroutine that touches the aligner, the
-	// monitors and the estimator. Sources report events through m.events.
-	var (
-		lastLive time.Time
-		aligner  acquire.Aligner
-		chans    = acquire.NewMonitor(m.Rig)
-		loads    = calibrate.NewLoadMonitor(m.Rig)
-		zeros    = zeroWatch(m.Rig)
-		tick     = time.NewTicker(time.Second)
-	)
+	stopDash := m.serve(ctx, dash, ln, store)
+	out.start(ctx, log)
+	raw := m.startSources(ctx, cancel)
+	pub := publisher{dash: dash, out: out, runID: m.runID}
+	log.Info("recording", "run", m.runID, "rig", m.Rig.Name, "db", m.DBPath)
+	// The recorder loop: the only goroutine that touches rec. Sources
+	// report events through m.events.
+	tick := time.NewTicker(time.Second)
 	defer tick.Stop()
-	record := func(ev acquire.Event) {
-		if ev.T.IsZero() {
-			ev.T = time.Now()
-		}
-		msg := ev.Message
-		if ev.Duration > 0 {
-			msg = fmt.Sprintf("%s (%s)", msg, ev.Duration.Round(time.Millisecond))
-		}
-		storage.Offer(items, storage.Item{Event: &storage.Event{T: ev.T, Kind: string(ev.Kind), Source: ev.Source, Message: msg}}, &storeDropped.blocks)
-		log.Warn(msg, "source", ev.Source, "event", ev.Kind)
-	}
-	expired := expiredCalibrations(cal, time.Now())
-	for _, ev := range expired {
-		record(ev)
-	}
-	health := func() dashboard.Health {
-		return dashboard.Health{Sources: sources(), Channels: chans.Snapshot(time.Now()), Loads: loads.Snapshot()}
-	}
+	var lastLive time.Time
 loop:
 	for {
 		select {
 		case ev := <-m.events:
-			record(ev)
+			rec.Event(ev)
 		case <-tick.C:
-			h := health()
-			dash.PublishHealth(h)
-			publish("health", dashboard.EncodeHealth(h))
+			pub.health(m.health(rec))
 		case b, ok := <-raw:
 			if !ok {
 				break loop
 			}
-			aligner.Align(&b)
-			for _, ev := range chans.Observe(&b) {
-				record(ev)
-			}
-			if m.Replay {
-				items <- storage.Item{Block: &b} // not live: wait for the store
-			} else {
-				storeDropped.offer(items, storage.Item{Block: &b})
-			}
-			cb := cal.Apply(&b)
-			if zeros != nil {
-				zeros.Observe(&cb)
-				if z := zeros.Live(); z != nil {
-					z.Correct(&cb) // the flow-off zero taken before the run
-				}
-			}
-			for _, l := range loads.Observe(&cb) {
-				record(acquire.Event{T: b.Received, Source: b.Source, Kind: "overload",
-					Message: fmt.Sprintf("channel %s at %.0f %% of its rated %g %s (%s)", l.Channel, 100*l.PeakFrac, l.CapacitySI, l.Unit, l.State)})
-			}
-			for _, seg := range est.Add(&cb) {
-				m.segment(items, dash, seg)
-				publish("segments", dashboard.EncodeSegment(runID, seg))
-			}
+			pub.segments(rec.Block(b).Segments)
 			if now := time.Now(); now.Sub(lastLive) >= livePeriod {
-				if l, ok := est.Live(); ok {
-					l.Warnings = withCalibrationWarnings(l.Warnings, expired)
-					dash.PublishLive(l)
-					publish("live", dashboard.EncodeLive(l))
+				if l, ok := rec.Live(); ok {
+					pub.live(l)
 				}
 				lastLive = now
 			}
 		}
 	}
-	for _, seg := range est.Flush() {
-		m.segment(items, dash, seg)
-		publish("segments", dashboard.EncodeSegment(runID, seg))
-	}
+	pub.segments(rec.Flush())
 	for len(m.events) > 0 {
-		record(<-m.events)
+		rec.Event(<-m.events)
 	}
-	final := health()
-	dash.PublishHealth(final)
-	publish("health", dashboard.EncodeHealth(final))
-	if outbox != nil {
-		// Give the site broker a moment to take the last results.
-		deadline := time.Now().Add(outboxGrace)
-		for outbox.Pending() > 0 && time.Now().Before(deadline) {
-			time.Sleep(20 * time.Millisecond)
-		}
-		stopOut()
-	}
-	close(items)
-	werr := <-writerErr
-	status := storage.StatusComplete
+	final := m.health(rec)
+	pub.health(final)
+	oerr := out.close()
 	runErr := context.Cause(ctx)
 	if errors.Is(runErr, context.Canceled) || errors.Is(runErr, context.DeadlineExceeded) {
 		runErr = nil
 	}
-	if runErr != nil || werr != nil {
-		status = storage.StatusInterrupted
-	}
-	ferr := errors.Join(store.FinishRun(runID, time.Now(), status, final.Sources),
-		store.SetRunChannels(runID, final.Channels, final.Loads))
-	if zeros != nil && ferr == nil && werr == nil {
-		ferr = m.correctZeroDrift(store, runID, cal, zeros, log)
-	}
-	if run, err := store.Run(runID); err == nil {
+	fin, ferr := rec.Finish(ctx, runErr, final.Sources[:len(m.Sources)])
+	m.Finished = fin
+	if run, err := store.Run(m.runID); err == nil {
 		dash.SetRun(run)
 	}
-	stopDash()
-	derr := <-dashErr
-	if outboxDone != nil {
-		<-outboxDone
-	}
-	return errors.Join(runErr, werr, ferr, derr)
+	return errors.Join(runErr, ferr, oerr, stopDash())
 }
 
-// stage is the estimator a recording feeds: the force-balance
-// estimate.Estimator or, for a roof rig, the estimate.RoofEstimator. The
-// recorder loop, the zero-drift replay and the marks replay all go through
-// it, so a stored run is re-processed by the same code that recorded it.
-type stage interface {
-	// Add takes one calibrated block and returns the segments it
-	// completed (a steady step; for a roof, one per zone per block).
-	Add(b *calibrate.Block) []estimate.Segment
-	// Live is the moving-window estimate for the dashboard; false until
-	// there is one.
-	Live() (estimate.Live, bool)
-	// Flush closes the open segment at the end of a run.
-	Flush() []estimate.Segment
+// startSources runs every source into one bounded channel, closed when
+// they have all returned. A source that fails cancels the recording.
+func (m *Main) startSources(ctx context.Context, cancel context.CancelCauseFunc) <-chan acquire.Block {
+	raw := make(chan acquire.Block, rawQueue)
+	var wg sync.WaitGroup
+	for _, s := range m.Sources {
+		wg.Go(func() {
+			if err := s.Src.Run(ctx, raw); err != nil {
+				cancel(fmt.Errorf("source %q: %w", s.Name, err))
+			}
+		})
+	}
+	go func() { wg.Wait(); close(raw) }()
+	return raw
 }
 
-// newStage builds the stage for r's kind. marks (user-set steady
-// segments) apply to force-balance rigs only: a roof's segments are its
-// fixed blocks, so marks on a roof are refused. roof is passed to the roof
-// estimator (zero value: the package defaults).
-func newStage(r *rig.Rig, roof estimate.RoofConfig, marks []estimate.Mark) (stage, error) {
-	if r.Kind == rig.KindRoof {
-		if len(marks) > 0 {
-			return nil, errors.New("user marks set steady segments of a force-balance rig; a roof rig's segments are its fixed-length blocks")
-		}
-		return estimate.NewRoofEstimator(r, roof)
+// health is the recording's health now: each source, then the store edge,
+// the channels and the rated loads.
+func (m *Main) health(rec *process.Recorder) dashboard.Health {
+	hs := make([]acquire.HealthSnapshot, 0, len(m.Sources)+1)
+	for _, s := range m.Sources {
+		hs = append(hs, s.Health.Snapshot(s.Name))
 	}
-	cfg, err := estimatorConfig(r)
+	hs = append(hs, rec.StoreHealth())
+	return dashboard.Health{Sources: hs, Channels: rec.Pipeline().Channels(), Loads: rec.Pipeline().Loads()}
+}
+
+// publisher hands live results to their consumers: the dashboard and the
+// site outbox. Neither ever makes the recorder wait.
+type publisher struct {
+	dash  *dashboard.Server
+	out   *outbox
+	runID uint64
+}
+
+func (p publisher) segments(segs []estimate.Segment) {
+	for _, seg := range segs {
+		p.dash.PublishSegment(seg)
+		p.out.publish("segments", dashboard.EncodeSegment(p.runID, seg))
+	}
+}
+
+func (p publisher) health(h dashboard.Health) {
+	p.dash.PublishHealth(h)
+	p.out.publish("health", dashboard.EncodeHealth(h))
+}
+
+func (p publisher) live(l estimate.Live) {
+	p.dash.PublishLive(l)
+	p.out.publish("live", dashboard.EncodeLive(l))
+}
+
+// listen makes the recorder's dashboard and its listener.
+func (m *Main) listen(store *storage.Store, log *slog.Logger) (*dashboard.Server, net.Listener, error) {
+	dash, err := dashboard.New(dashboard.Config{Addr: m.Addr, Token: m.Token, Store: store, Calibrations: store, Logger: log})
+	if err != nil {
+		return nil, nil, err
+	}
+	ln, err := net.Listen("tcp", m.Addr)
+	if err != nil {
+		return nil, nil, fmt.Errorf("dashboard listen on %s: %w", m.Addr, err)
+	}
+	return dash, ln, nil
+}
+
+// serve serves the dashboard of the run being recorded until the returned
+// stop is called (stop returns Serve's error).
+func (m *Main) serve(ctx context.Context, dash *dashboard.Server, ln net.Listener, store *storage.Store) (stop func() error) {
+	if run, err := store.Run(m.runID); err == nil {
+		dash.SetRun(run)
+	}
+	dashErr := make(chan error, 1)
+	dashCtx, stopDash := context.WithCancel(context.WithoutCancel(ctx))
+	go func() { dashErr <- dash.Serve(dashCtx, ln) }()
+	if m.OnReady != nil {
+		m.OnReady("http://"+ln.Addr().String(), m.runID)
+	}
+	return func() error { stopDash(); return <-dashErr }
+}
+
+// outbox publishes live results to a site broker ([publish] in the rig
+// file): a bounded outbox that never makes the recorder wait. The zero
+// outbox publishes nothing.
+type outbox struct {
+	box            *mqtt.Outbox
+	prefix, broker string
+	stop           context.CancelFunc
+	done           chan error
+}
+
+// newOutbox makes the site outbox of r, if it has one.
+func newOutbox(r *rig.Rig, log *slog.Logger) (*outbox, error) {
+	p := r.Publish
+	if p == nil {
+		return &outbox{}, nil
+	}
+	box, err := mqtt.OutboxFromRig(*p, r.Name, os.Getenv)
 	if err != nil {
 		return nil, err
 	}
-	cfg.Marks = marks
-	return estimate.NewEstimator(r, cfg)
+	box.Logger = log
+	return &outbox{box: box, prefix: p.TopicPrefix, broker: p.Broker}, nil
 }
 
-// zeroWatch is the flow-off zero watch of a force-balance rig. A roof rig
-// gets none: the watch zeroes the balance channels and the pitot, and on a
-// roof it would zero the pitot alone while the taps kept their offsets, so
-// roof runs are recorded without zero-drift correction (docs/roof.md).
-func zeroWatch(r *rig.Rig) *calibrate.ZeroWatch {
-	if r.Kind == rig.KindRoof {
+// start runs the outbox. It outlives the recording briefly, to send the
+// last segment and health (outboxGrace).
+func (o *outbox) start(ctx context.Context, log *slog.Logger) {
+	if o.box == nil {
+		return
+	}
+	o.done = make(chan error, 1)
+	var outCtx context.Context
+	outCtx, o.stop = context.WithCancel(context.WithoutCancel(ctx))
+	go func() {
+		err := o.box.Run(outCtx)
+		if err != nil {
+			log.Error("publishing live results stopped", "broker", o.broker, "err", err)
+		}
+		o.done <- err
+	}()
+}
+
+func (o *outbox) publish(what string, payload []byte) {
+	if o.box != nil {
+		o.box.Offer(o.prefix+"/"+what, payload)
+	}
+}
+
+// close gives the site broker a moment to take the last results, then
+// stops the outbox.
+func (o *outbox) close() error {
+	if o.box == nil {
 		return nil
 	}
-	return calibrate.NewZeroWatch(r)
-}
-
-// segment hands a completed segment to the store (waiting if need be: a
-// result row is never dropped) and to the dashboard.
-func (m *Main) segment(items chan<- storage.Item, dash *dashboard.Server, seg estimate.Segment) {
-	items <- storage.Item{Segment: &seg}
-	dash.PublishSegment(seg)
-}
-
-// correctZeroDrift applies the flow-off zeros before and after the run: the
-// segments are recomputed from the stored raw blocks with the zero drift
-// removed, and the drift is stored and reported (DESIGN §4).
-func (m *Main) correctZeroDrift(store *storage.Store, runID uint64, cal *calibrate.Calibrator, z *calibrate.ZeroWatch, log *slog.Logger) error {
-	d, err := z.Drift()
-	if err != nil {
-		m.ZeroNote = "no zero-drift correction: " + err.Error()
-		log.Info(m.ZeroNote, "run", runID)
-		return nil
+	deadline := time.Now().Add(outboxGrace)
+	for o.box.Pending() > 0 && time.Now().Before(deadline) {
+		time.Sleep(20 * time.Millisecond)
 	}
-	segs, err := correctDrift(store, runID, m.Rig, cal, d)
-	if err != nil {
-		return fmt.Errorf("zero-drift correction of run %d: %w", runID, err)
-	}
-	m.Drift = d.Report()
-	m.ZeroNote = "segments corrected for the zero drift between the flow-off zeros before and after the run"
-	return store.CorrectRun(runID, segs, m.ZeroNote, m.Drift)
+	o.stop()
+	<-o.done
+	return nil
 }
 
 // RunID returns the id of the run being recorded (0 before Run creates it).
@@ -514,17 +413,17 @@ func runRecord(ctx context.Context, args []string, stdout, stderr io.Writer) err
 		return err
 	}
 	fmt.Fprintf(stdout, "liftyard record: run %d stored in %s\n", m.RunID(), *db)
-	printDrift(stdout, m)
+	printDrift(stdout, m.Rig, m.Finished)
 	return nil
 }
 
-// printDrift reports the zero drift of a finished run.
-func printDrift(w io.Writer, m *Main) {
-	if m.ZeroNote != "" {
-		fmt.Fprintf(w, "  %s\n", m.ZeroNote)
+// printDrift reports the zero drift of a finished run of rig r.
+func printDrift(w io.Writer, r *rig.Rig, fin process.Finished) {
+	if fin.ZeroNote != "" {
+		fmt.Fprintf(w, "  %s\n", fin.ZeroNote)
 	}
-	for _, d := range m.Drift {
-		ch, _ := m.Rig.Channel(d.Channel)
+	for _, d := range fin.Drift {
+		ch, _ := r.Channel(d.Channel)
 		fmt.Fprintf(w, "  zero drift %s: %+.4g %s (%.4g → %.4g)\n", d.Channel, d.ChangeSI, ch.Quantity.SIUnit(), d.StartSI, d.EndSI)
 	}
 }

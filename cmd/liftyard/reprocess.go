@@ -11,35 +11,6 @@ import (
 	"liftyard/storage"
 )
 
-// storeSource replays the raw blocks of a stored run in the order they
-// arrived (storage.ReplayBlocks), with their receive times, so the
-// recorder's stages (clock alignment, join, steady test) see what the live
-// run saw. Like csvSource it is not live: it waits for the recorder and
-// returns nil when the run's blocks are done.
-type storeSource struct {
-	store  *storage.Store
-	runID  uint64
-	health *acquire.Health
-}
-
-// Run implements acquire.Source.
-func (s *storeSource) Run(ctx context.Context, out chan<- acquire.Block) error {
-	err := s.store.ReplayBlocks(s.runID, func(b acquire.Block) error {
-		select {
-		case out <- b:
-			s.health.Frames.Add(1)
-			s.health.Samples.Add(uint64(b.Len()))
-			return nil
-		case <-ctx.Done():
-			return ctx.Err()
-		}
-	})
-	if ctx.Err() != nil {
-		return nil
-	}
-	return err
-}
-
 // runReprocess is `liftyard reprocess --db FILE --run ID [--rig RIG.toml]`.
 func runReprocess(ctx context.Context, args []string, stdout, stderr io.Writer) error {
 	fs := newFlags("reprocess", "--db FILE --run ID|latest [--rig RIG.toml]",
@@ -110,18 +81,16 @@ func runReprocess(ctx context.Context, args []string, stdout, stderr io.Writer) 
 		}
 		rigTOML = old.RigTOML
 	}
-	m := offlineMain(r, rigTOML, *db, note, newLogger(stderr, *verbose))
-	m.Store = store
-	h := &acquire.Health{}
-	m.Sources = []Source{{Name: fmt.Sprintf("replay of run %d", id), Src: &storeSource{store: store, runID: id, health: h}, Health: h}}
-	if err := m.Run(ctx); err != nil {
+	src := &acquire.StoredRun{Store: store, RunID: id}
+	newID, fin, err := recordOffline(ctx, store, r, rigTOML, note, src, &src.Health, fmt.Sprintf("replay of run %d", id), newLogger(stderr, *verbose))
+	if err != nil {
 		return err
 	}
-	fmt.Fprintf(stderr, "liftyard reprocess: run %d re-processed as run %d\n", id, m.RunID())
-	printDrift(stderr, m)
-	if err := printSummary(stderr, *db, store, m.RunID(), m.Rig); err != nil {
+	fmt.Fprintf(stderr, "liftyard reprocess: run %d re-processed as run %d\n", id, newID)
+	printDrift(stderr, r, fin)
+	if err := printSummary(stderr, store, newID, r); err != nil {
 		return err
 	}
-	fmt.Fprintln(stdout, m.RunID())
+	fmt.Fprintln(stdout, newID)
 	return nil
 }

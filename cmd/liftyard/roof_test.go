@@ -17,7 +17,6 @@ import (
 	"liftyard/acquire/sim"
 	"liftyard/estimate"
 	"liftyard/rig"
-	"liftyard/storage"
 )
 
 // simRoofRig is the example roof rig with its serial tap scanner replaced
@@ -33,29 +32,6 @@ func simRoofRig(t *testing.T) (*rig.Rig, string) {
 	r, err := rig.Parse("sim-roof.toml", []byte(toml))
 	require.NoError(t, err)
 	return r, toml
-}
-
-// Ensure that newStage picks the estimator by rig kind, refuses user marks
-// on a roof, and that a roof rig gets no flow-off zero watch.
-func TestNewStage_ByKind(t *testing.T) {
-	roof, _ := simRoofRig(t)
-	st, err := newStage(roof, estimate.RoofConfig{}, nil)
-	require.NoError(t, err)
-	assert.IsType(t, &estimate.RoofEstimator{}, st)
-	_, err = newStage(roof, estimate.RoofConfig{}, []estimate.Mark{{Start: time.Unix(0, 0), End: time.Unix(30, 0)}})
-	assert.ErrorContains(t, err, "roof")
-	assert.Nil(t, zeroWatch(roof), "roof runs get no zero-drift correction")
-	_, toml := simRoofRig(t)
-	_, _, err = recomputeSegments(t.Context(), nil, storage.Run{ID: 3, Kind: "roof", RigTOML: toml}, nil)
-	assert.ErrorContains(t, err, "roof run", "applying marks to a roof run is refused before the store is read")
-
-	text, err := os.ReadFile("../../testdata/rigs/foil-towtank.toml")
-	require.NoError(t, err)
-	foil, err := rig.Parse("foil-towtank.toml", text)
-	require.NoError(t, err)
-	st, err = newStage(foil, estimate.RoofConfig{}, nil)
-	require.NoError(t, err)
-	assert.IsType(t, &estimate.Estimator{}, st)
 }
 
 // Ensure that a roof rig records end to end: the simulated tap scanner
@@ -78,7 +54,7 @@ func TestRecord_RoofEndToEnd(t *testing.T) {
 	ctx, cancel := context.WithTimeout(t.Context(), 5*time.Second)
 	defer cancel()
 	require.NoError(t, m.Run(ctx))
-	assert.Empty(t, m.Drift, "no zero-drift correction on a roof")
+	assert.Empty(t, m.Finished.Drift, "no zero-drift correction on a roof")
 
 	var out, errOut bytes.Buffer
 	code := run(t.Context(), []string{"export", "--db", db, "--run", "latest", "--what", "segments", "--format", "json"}, &out, &errOut)

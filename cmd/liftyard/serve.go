@@ -10,6 +10,7 @@ import (
 	"time"
 
 	"liftyard/dashboard"
+	"liftyard/process"
 	"liftyard/storage"
 )
 
@@ -31,7 +32,7 @@ func (s *serveStore) RunStart(id uint64) (time.Time, error) {
 	if ok {
 		return t, nil
 	}
-	t, err := runStart(s.Store, id)
+	t, err := process.RunStart(s.Store, id)
 	if err != nil {
 		return time.Time{}, err
 	}

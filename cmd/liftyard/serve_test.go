@@ -14,6 +14,7 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
+	"liftyard/process"
 	"liftyard/storage"
 )
 
@@ -142,7 +143,7 @@ func TestServe_StoredDatabase(t *testing.T) {
 	defer st.Close()
 	run, err := st.Run(1)
 	require.NoError(t, err)
-	assert.Contains(t, run.Note, marksNote)
+	assert.Contains(t, run.Note, process.MarksNote)
 	marks, err := st.Marks(1)
 	require.NoError(t, err)
 	require.Len(t, marks, 1)

@@ -51,12 +51,7 @@ func runSimulate(ctx context.Context, args []string, stdout, stderr io.Writer) e
 		v = defaultSpeed(r.Fluid)
 	}
 	q := estimate.DynamicPressure(fluid.RhoKgPerM3, v)
-	var s simRig
-	if r.Kind == rig.KindRoof {
-		s, err = sim.NewRoof(r, sim.RoofConfig{QPa: q, Seed: *seed})
-	} else {
-		s, err = sim.New(r, sim.Config{QPa: q, Seed: *seed}, fluid.RhoKgPerM3)
-	}
+	s, err := sim.ForRig(r, sim.Common{QPa: q, Seed: *seed, RhoKgPerM3: fluid.RhoKgPerM3})
 	if err != nil {
 		return fmt.Errorf("simulate %q: %w", r.Name, err)
 	}
@@ -126,14 +121,8 @@ func runSimulate(ctx context.Context, args []string, stdout, stderr io.Writer) e
 	return err
 }
 
-// simRig is a simulated rig: the force-balance one or the roof one.
-type simRig interface {
-	Run(ctx context.Context, out chan<- acquire.Block) error
-	Preview() acquire.Block
-}
-
 // simChannels lists the channels the simulator produces, in its order.
-func simChannels(s simRig) []string {
+func simChannels(s sim.Simulator) []string {
 	b := s.Preview()
 	names := make([]string, len(b.Series))
 	for i, ser := range b.Series {

@@ -13,6 +13,7 @@ import (
 	"liftyard/acquire/sim"
 	"liftyard/calibrate"
 	"liftyard/estimate"
+	"liftyard/process"
 	"liftyard/rig"
 	"liftyard/storage"
 )
@@ -60,7 +61,7 @@ func TestRecord_ZeroDriftCorrected(t *testing.T) {
 	require.NotEmpty(t, segs)
 	cal, err := calibrate.NewCalibrator(r)
 	require.NoError(t, err)
-	raw, err := correctDrift(st, run.ID, r, cal, calibrate.Drift{})
+	raw, err := process.CorrectDrift(t.Context(), st, run.ID, r, cal, calibrate.Drift{})
 	require.NoError(t, err)
 	require.Equal(t, len(segs), len(raw))
 	worse := 0

@@ -1,0 +1,84 @@
+package acquire
+
+import (
+	"context"
+	"fmt"
+	"os"
+)
+
+// Replayer is a source that is not live: a file recorded elsewhere or a run
+// already stored. Nothing is lost by waiting for it, so it hands blocks to a
+// callback at the caller's pace instead of racing a channel.
+//
+// Replay calls fn with every block in order, on the caller's goroutine, and
+// returns nil at the end of the data, fn's error unchanged, or ctx.Err()
+// once ctx is done (checked between blocks). fn owns the block it is given.
+// A Replayer may be replayed more than once; each Replay starts from the
+// beginning.
+type Replayer interface {
+	Replay(ctx context.Context, fn func(Block) error) error
+}
+
+// CSVFile replays a raw CSV file (the format ReadRawCSV reads) as one
+// source of a rig.
+type CSVFile struct {
+	Path   string // file to read
+	Source string // rig source the file's blocks are attributed to
+	// BlockN is the number of sample times per block; 0 means
+	// DefaultRawCSVBlock.
+	BlockN int
+	// Health counts the blocks (Frames) and sample times (Samples) handed
+	// to fn; it only grows, over every Replay.
+	Health Health
+}
+
+// Replay implements Replayer. A malformed file gives a *RawCSVError naming
+// its line, after the blocks before that line were handed to fn.
+func (f *CSVFile) Replay(ctx context.Context, fn func(Block) error) error {
+	file, err := os.Open(f.Path)
+	if err != nil {
+		return fmt.Errorf("raw CSV: %w", err)
+	}
+	defer file.Close()
+	n := f.BlockN
+	if n <= 0 {
+		n = DefaultRawCSVBlock
+	}
+	return ReadRawCSV(file, f.Source, n, func(b Block) error {
+		if err := ctx.Err(); err != nil {
+			return err
+		}
+		f.Health.Frames.Add(1)
+		f.Health.Samples.Add(uint64(b.Len()))
+		return fn(b)
+	})
+}
+
+// BlockStore gives back the raw blocks of a stored run in the order they
+// arrived (all sources merged by receive time). *storage.Store implements it.
+// ReplayBlocks returns fn's error unchanged.
+type BlockStore interface {
+	ReplayBlocks(runID uint64, fn func(Block) error) error
+}
+
+// StoredRun replays the raw blocks of a stored run, with their receive
+// times, so that a pipeline sees them as the live run did.
+type StoredRun struct {
+	Store BlockStore
+	RunID uint64
+	// Health counts the blocks (Frames) and sample times (Samples) handed
+	// to fn; it only grows, over every Replay.
+	Health Health
+}
+
+// Replay implements Replayer.
+func (s *StoredRun) Replay(ctx context.Context, fn func(Block) error) error {
+	return s.Store.ReplayBlocks(s.RunID, func(b Block) error {
+		if err := ctx.Err(); err != nil {
+			return err
+		}
+		s.Health.Frames.Add(1)
+		s.Health.Samples.Add(uint64(b.Len()))
+		return fn(b)
+	})
+}

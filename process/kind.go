@@ -1,0 +1,132 @@
+package process
+
+import (
+	"fmt"
+	"os"
+
+	"liftyard/calibrate"
+	"liftyard/estimate"
+	"liftyard/rig"
+)
+
+// Stage is the estimation stage of one rig kind: the force-balance
+// estimate.Estimator or the roof's estimate.RoofEstimator. The Pipeline
+// owns it; it is not safe for concurrent use.
+type Stage interface {
+	// Add takes one calibrated block and returns the segments it completed
+	// (a steady stretch; for a roof, one row per zone per block).
+	Add(b *calibrate.Block) []estimate.Segment
+	// Live is the moving-window estimate; false until there is one.
+	Live() (estimate.Live, bool)
+	// Flush closes the open segment at the end of the data.
+	Flush() []estimate.Segment
+}
+
+// kind is what the pipeline does differently for one rig kind. kinds is
+// the one place that maps a rig kind to its processing; the dashboard and
+// the report pick their views in their own one place.
+type kind struct {
+	// stage builds the estimation stage.
+	stage func(r *rig.Rig, opt Options) (Stage, error)
+	// flowOffZero: the flow-off zeros before and after a run are taken and
+	// applied (calibrate.ZeroWatch) — balance channels and the pitot.
+	flowOffZero bool
+	// marks: user marks can set the steady segments.
+	marks bool
+}
+
+var kinds = map[rig.Kind]kind{
+	rig.KindFoil:  {stage: balanceStage, flowOffZero: true, marks: true},
+	rig.KindRotor: {stage: balanceStage, flowOffZero: true, marks: true},
+	rig.KindBody:  {stage: balanceStage, flowOffZero: true, marks: true},
+	// A roof's segments are fixed blocks of time, not steady stretches.
+	// The zero watch zeroes the balance channels and the pitot; on a roof
+	// it would zero the pitot alone while the taps kept their offsets, so
+	// roof runs are recorded without it (docs/roof.md).
+	rig.KindRoof: {stage: roofStage},
+}
+
+// kindOf returns the processing of r's kind; a rig file with no kind is a
+// force-balance body (rig.Parse's default).
+func kindOf(r *rig.Rig) (kind, error) {
+	if r.Kind == "" {
+		return kinds[rig.KindBody], nil
+	}
+	k, ok := kinds[r.Kind]
+	if !ok {
+		return kind{}, fmt.Errorf("rig %q: kind %q has no processing stage", r.Name, r.Kind)
+	}
+	return k, nil
+}
+
+// NewStage builds the estimation stage for r's kind with opt.
+func NewStage(r *rig.Rig, opt Options) (Stage, error) {
+	k, err := kindOf(r)
+	if err != nil {
+		return nil, err
+	}
+	if len(opt.Marks) > 0 && !k.marks {
+		return nil, fmt.Errorf("user marks set the steady segments of a force-balance rig; a %s rig's segments are its fixed-length blocks", r.Kind)
+	}
+	return k.stage(r, opt)
+}
+
+// MarksApply reports whether user marks can set the segments of r's kind.
+func MarksApply(r *rig.Rig) bool {
+	k, err := kindOf(r)
+	return err == nil && k.marks
+}
+
+func balanceStage(r *rig.Rig, opt Options) (Stage, error) {
+	d, err := LoadDesign(r)
+	if err != nil {
+		return nil, err
+	}
+	return estimate.NewEstimator(r, estimate.Config{Design: d, Marks: opt.Marks, Now: opt.Now})
+}
+
+func roofStage(r *rig.Rig, opt Options) (Stage, error) {
+	cfg := opt.Roof
+	if cfg.Now == nil {
+		cfg.Now = opt.Now
+	}
+	return estimate.NewRoofEstimator(r, cfg)
+}
+
+// InputError is a problem with a file the user gave (a design curve named
+// by the rig file): the command line exits 2 for it.
+type InputError struct{ Err error }
+
+func (e *InputError) Error() string { return e.Err.Error() }
+func (e *InputError) Unwrap() error { return e.Err }
+
+// LoadDesign returns the design lift curve the rig asks for in [lift]
+// design: "thin-airfoil" (2π/rad with the span correction on the rig's
+// aspect ratio, α_L0 = 0), a design-curve CSV (rig.Parse has resolved a
+// relative path against the rig file's folder), or nil for none. A missing
+// or malformed CSV gives an *InputError.
+func LoadDesign(r *rig.Rig) (estimate.Design, error) {
+	switch d := r.Lift.Design; d {
+	case "":
+		return nil, nil
+	case rig.DesignThinAirfoil:
+		return estimate.ThinAirfoil{AspectRatio: r.Reference.AspectRatio()}, nil
+	default:
+		f, err := os.Open(d)
+		if err != nil {
+			return nil, &InputError{fmt.Errorf("[lift] design: %w", err)}
+		}
+		defer f.Close()
+		c, err := estimate.ParseDesignCurve(f, d)
+		if err != nil {
+			return nil, &InputError{fmt.Errorf("[lift] design: %w", err)}
+		}
+		return c, nil
+	}
+}
+
+// HasKind reports whether rig kind k has a processing stage.
+func HasKind(k rig.Kind) bool {
+	_, ok := kinds[k]
+	return ok
+}

@@ -1,0 +1,169 @@
+package process
+
+import (
+	"context"
+	"fmt"
+	"time"
+
+	"liftyard/acquire"
+	"liftyard/calibrate"
+	"liftyard/estimate"
+	"liftyard/rig"
+)
+
+// Options sets up a Pipeline. A zero Options takes every default.
+type Options struct {
+	// Roof sets up a roof rig's stage (block length, epochs, live window);
+	// zero fields take estimate's defaults. Other kinds ignore it.
+	Roof estimate.RoofConfig
+	// Marks, when not empty, set the steady segments of a force-balance
+	// rig by hand (estimate.Config.Marks); a kind whose segments are not
+	// steady stretches refuses them.
+	Marks []estimate.Mark
+	// Drift, when set, is a zero drift known in advance (from the
+	// flow-off zeros before and after a stored run): it is removed from
+	// every calibrated block instead of the zero watch's live zero.
+	Drift *calibrate.Drift
+	// Now gives the host clock for the stage's staleness warnings and the
+	// channel monitor. Nil means time.Now.
+	Now func() time.Time
+}
+
+// Step is what one block gave.
+type Step struct {
+	// Events are the channel-health and overload events the block raised,
+	// to be stored with the run.
+	Events []acquire.Event
+	// Segments are the result rows the block completed.
+	Segments []estimate.Segment
+}
+
+// Pipeline is the one processing chain of liftyard: clock alignment →
+// calibration → flow-off zero / zero drift → the rig kind's estimation
+// stage, with the channel-health and load monitors beside it. The live
+// recorder steps it block by block; import, reprocess, user marks and the
+// zero-drift correction Replay stored or file blocks through it. The same
+// blocks therefore give the same segments on every path.
+//
+// A Pipeline is not safe for concurrent use: one goroutine owns it.
+type Pipeline struct {
+	rig     *rig.Rig
+	cal     *calibrate.Calibrator
+	aligner acquire.Aligner
+	chans   *acquire.Monitor
+	loads   *calibrate.LoadMonitor
+	zeros   *calibrate.ZeroWatch // nil when the kind or the rig takes no flow-off zero
+	drift   *calibrate.Drift     // fixed drift (Options.Drift), or nil
+	stage   Stage
+	now     func() time.Time
+}
+
+// New builds the pipeline of rig r with the calibrations in cal
+// (calibrate.NewCalibratorFrom).
+func New(r *rig.Rig, cal *calibrate.Calibrator, opt Options) (*Pipeline, error) {
+	k, err := kindOf(r)
+	if err != nil {
+		return nil, err
+	}
+	if opt.Now == nil {
+		opt.Now = time.Now
+	}
+	st, err := NewStage(r, opt)
+	if err != nil {
+		return nil, err
+	}
+	p := &Pipeline{rig: r, cal: cal, chans: acquire.NewMonitor(r), loads: calibrate.NewLoadMonitor(r),
+		drift: opt.Drift, stage: st, now: opt.Now}
+	if k.flowOffZero {
+		p.zeros = calibrate.NewZeroWatch(r)
+	}
+	return p, nil
+}
+
+// Step aligns b's clock in place (b is stored that way), checks its
+// channels, calibrates it, removes the zero and hands it to the stage.
+func (p *Pipeline) Step(b *acquire.Block) Step {
+	var st Step
+	p.aligner.Align(b)
+	st.Events = append(st.Events, p.chans.Observe(b)...)
+	cb := p.cal.Apply(b)
+	switch {
+	case p.drift != nil:
+		p.drift.Correct(&cb)
+	case p.zeros != nil:
+		p.zeros.Observe(&cb)
+		if z := p.zeros.Live(); z != nil {
+			z.Correct(&cb) // the flow-off zero taken before the run
+		}
+	}
+	for _, l := range p.loads.Observe(&cb) {
+		st.Events = append(st.Events, acquire.Event{T: b.Received, Source: b.Source, Kind: EventOverload,
+			Message: fmt.Sprintf("channel %s at %.0f %% of its rated %g %s (%s)", l.Channel, 100*l.PeakFrac, l.CapacitySI, l.Unit, l.State)})
+	}
+	st.Segments = p.stage.Add(&cb)
+	return st
+}
+
+// EventOverload is the kind of the event a channel loaded past its warning
+// or alarm level raises.
+const EventOverload acquire.EventKind = "overload"
+
+// Live is the stage's moving-window estimate; false until there is one.
+func (p *Pipeline) Live() (estimate.Live, bool) { return p.stage.Live() }
+
+// Flush closes the open segment at the end of the data.
+func (p *Pipeline) Flush() []estimate.Segment { return p.stage.Flush() }
+
+// Channels is each channel's health now.
+func (p *Pipeline) Channels() []acquire.ChannelHealth { return p.chans.Snapshot(p.now()) }
+
+// Loads is each rated channel's largest load against its capacity.
+func (p *Pipeline) Loads() []calibrate.LoadHealth { return p.loads.Snapshot() }
+
+// Drift returns the zero drift between the flow-off zeros seen before and
+// after the data, or an error saying why there is none (the kind takes no
+// flow-off zero, the flow was never off at one end, ...).
+func (p *Pipeline) Drift() (calibrate.Drift, error) {
+	if p.zeros == nil {
+		return calibrate.Drift{}, fmt.Errorf("rig kind %q takes no flow-off zero", p.rig.Kind)
+	}
+	return p.zeros.Drift()
+}
+
+// UnusedMarks returns the user marks that held too few samples to give a
+// segment (none for a stage without marks).
+func (p *Pipeline) UnusedMarks() []estimate.Mark {
+	if e, ok := p.stage.(interface{ UnusedMarks() []estimate.Mark }); ok {
+		return e.UnusedMarks()
+	}
+	return nil
+}
+
+// Replay steps every block of src through p, then flushes it, and returns
+// every segment in order. each, when not nil, is called after every step
+// with the block (nil for the final step, which holds the segments Flush
+// closed); its error stops the replay and is returned. Replay is the one
+// offline path: import, reprocess, user marks and the zero-drift correction
+// all go through it.
+func Replay(ctx context.Context, src acquire.Replayer, p *Pipeline, each func(b *acquire.Block, st Step) error) ([]estimate.Segment, error) {
+	var segs []estimate.Segment
+	err := src.Replay(ctx, func(b acquire.Block) error {
+		st := p.Step(&b)
+		segs = append(segs, st.Segments...)
+		if each != nil {
+			return each(&b, st)
+		}
+		return nil
+	})
+	if err != nil {
+		return segs, err
+	}
+	last := Step{Segments: p.Flush()}
+	segs = append(segs, last.Segments...)
+	if each != nil {
+		if err := each(nil, last); err != nil {
+			return segs, err
+		}
+	}
+	return segs, nil
+}
