@@ -11,6 +11,7 @@ import (
 	"strings"
 
 	"liftyard/calibrate"
+	"liftyard/rig"
 )
 
 // Design gives the design (predicted) lift coefficient of a body at an angle
@@ -24,34 +25,20 @@ type Design interface {
 	Describe() string
 }
 
-// ErrDesignCurve is returned (wrapped in a *DesignCurveError) when a design
-// curve CSV cannot be read.
+// ErrDesignCurve is returned (wrapped in a *rig.Error) when a design curve
+// CSV cannot be read.
 var ErrDesignCurve = errors.New("bad design curve")
 
-// DesignCurveError is a positioned error in a design curve CSV, printed as
-// `foil.csv:4: column "cl": "x" is not a number`.
-type DesignCurveError struct {
-	Name   string // file name as given to ParseDesignCurve
-	Line   int    // 1-based line; 0 for the whole file
-	Column string // column name, when one is at fault
-	Msg    string
-}
-
-func (e *DesignCurveError) Error() string {
-	var b strings.Builder
-	b.WriteString(e.Name)
-	if e.Line > 0 {
-		fmt.Fprintf(&b, ":%d", e.Line)
+// designCurveError is a problem in a design curve CSV, printed as
+// `foil.csv:4: column "cl": "x" is not a number`. col is the column at
+// fault, or "".
+func designCurveError(name string, line int, col, format string, args ...any) error {
+	if col != "" {
+		format = "column %q: " + format
+		args = append([]any{col}, args...)
 	}
-	b.WriteString(": ")
-	if e.Column != "" {
-		fmt.Fprintf(&b, "column %q: ", e.Column)
-	}
-	b.WriteString(e.Msg)
-	return b.String()
+	return &rig.Error{File: name, Line: line, Key: col, Err: rig.Problem(ErrDesignCurve, format, args...)}
 }
-
-func (e *DesignCurveError) Unwrap() error { return ErrDesignCurve }
 
 // DesignCurve is a design lift curve given as points, interpolated linearly
 // in α. It gives no value outside its first and last angle: a design is not
@@ -80,7 +67,7 @@ func ParseDesignCurve(r io.Reader, name string) (*DesignCurve, error) {
 	cr.TrimLeadingSpace = true
 	cr.Comment = '#'
 	fail := func(line int, col, format string, args ...any) error {
-		return &DesignCurveError{Name: name, Line: line, Column: col, Msg: fmt.Sprintf(format, args...)}
+		return designCurveError(name, line, col, format, args...)
 	}
 	header, err := cr.Read()
 	if err == io.EOF {
@@ -166,9 +153,9 @@ func ParseDesignCurve(r io.Reader, name string) (*DesignCurve, error) {
 func csvFail(name string, err error) error {
 	var pe *csv.ParseError
 	if errors.As(err, &pe) {
-		return &DesignCurveError{Name: name, Line: pe.Line, Msg: pe.Err.Error()}
+		return designCurveError(name, pe.Line, "", "%v", pe.Err)
 	}
-	return &DesignCurveError{Name: name, Msg: err.Error()}
+	return designCurveError(name, 0, "", "%v", err)
 }
 
 // At interpolates linearly between the two rows around α; outside the

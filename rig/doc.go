@@ -70,7 +70,9 @@
 //
 // and unwraps to one sentinel (ErrSyntax, ErrUnknownKey, ErrMissing,
 // ErrUnit, ErrValue, ErrReference, ErrDuplicate). Parse never panics on
-// input.
+// input. *Error is liftyard's one positioned error: the raw CSV, design
+// curve and calibration points readers downstream return it too, each with
+// its own sentinel, and the command line answers it with exit status 2.
 //
 // # Caution
 //
