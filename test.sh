@@ -1,6 +1,7 @@
 #!/usr/bin/env bash
 # The one test command (README "Test"): installs what the tests need on a bare
-# Debian machine, then vets and runs the whole suite with the race detector.
+# Debian machine, checks that go.mod is tidy, then vets, runs staticcheck and
+# runs the whole suite with the race detector.
 set -euo pipefail
 cd "$(dirname "$0")"
 
@@ -16,5 +17,22 @@ if [ ${#need[@]} -gt 0 ]; then
   DEBIAN_FRONTEND=noninteractive $sudo apt-get install -y -qq --no-install-recommends "${need[@]}"
 fi
 
+# staticcheck is pinned: a new release can add checks, and the suite should not
+# start failing on its own. v0.8.2 is release 2026.2.2, which targets Go 1.26.
+staticcheck_version=v0.8.2
+gobin="$(go env GOBIN)"
+[ -n "$gobin" ] || gobin="$(go env GOPATH)/bin"
+staticcheck="$gobin/staticcheck"
+if ! "$staticcheck" -version 2>/dev/null | grep -qF "(${staticcheck_version#v})"; then
+  echo "test.sh: installing staticcheck $staticcheck_version with go install"
+  go install "honnef.co/go/tools/cmd/staticcheck@$staticcheck_version"
+fi
+
+if ! go mod tidy -diff; then
+  echo "test.sh: go.mod/go.sum are not tidy (diff above); run 'go mod tidy' and commit the result" >&2
+  exit 1
+fi
+
 go vet ./...
+"$staticcheck" ./...
 go test -race -count=1 -timeout 14m ./...

@@ -8,36 +8,24 @@ import (
 	"math"
 	"strconv"
 	"strings"
+
+	"liftyard/rig"
 )
 
-// ErrRawCSV is returned (wrapped in a *RawCSVError) when a raw CSV file
-// cannot be imported.
+// ErrRawCSV is returned (wrapped in a *rig.Error) when a raw CSV file cannot
+// be imported.
 var ErrRawCSV = errors.New("bad raw CSV")
 
-// RawCSVError is a positioned problem in a raw CSV file, printed as
-// `raw.csv:12: column "pitot": "1.2.3" is not a number`.
-type RawCSVError struct {
-	Name   string // file name, as given to ReadRawCSV
-	Line   int    // 1-based line; 0 for the whole file
-	Column string // column at fault, or ""
-	Msg    string
-}
-
-func (e *RawCSVError) Error() string {
-	var b strings.Builder
-	b.WriteString(e.Name)
-	if e.Line > 0 {
-		fmt.Fprintf(&b, ":%d", e.Line)
+// rawCSVError is a problem in a raw CSV file, printed as
+// `raw.csv:12: column "pitot": "1.2.3" is not a number`. col is the column
+// (channel) at fault, or "".
+func rawCSVError(name string, line int, col, format string, args ...any) error {
+	if col != "" {
+		format = "column %q: " + format
+		args = append([]any{col}, args...)
 	}
-	b.WriteString(": ")
-	if e.Column != "" {
-		fmt.Fprintf(&b, "column %q: ", e.Column)
-	}
-	b.WriteString(e.Msg)
-	return b.String()
+	return &rig.Error{File: name, Line: line, Key: col, Err: rig.Problem(ErrRawCSV, format, args...)}
 }
-
-func (e *RawCSVError) Unwrap() error { return ErrRawCSV }
 
 // DefaultRawCSVBlock is the block length ReadRawCSV uses when asked for
 // none: 100 samples, 0.1 s at 1 kHz, the size of a live block.
@@ -62,7 +50,7 @@ const DefaultRawCSVBlock = 100
 // (the last row, after a change) takes the spacing of the block before it;
 // a file with one sample time cannot tell its spacing and is refused.
 //
-// Bad input never panics: every problem is a *RawCSVError (wrapping
+// Bad input never panics: every problem is a *rig.Error (wrapping
 // ErrRawCSV) with the line and column, e.g. `raw.csv:12: column "pitot":
 // "1.2.3" is not a number`. Blocks before the bad line have already been
 // emitted. An error from emit stops the read and is returned as is. emit
@@ -72,7 +60,7 @@ func ReadRawCSV(r io.Reader, source string, blockSamples int, emit func(Block) e
 		blockSamples = DefaultRawCSVBlock
 	}
 	fail := func(line int, col, format string, args ...any) error {
-		return &RawCSVError{Name: source, Line: line, Column: col, Msg: fmt.Sprintf(format, args...)}
+		return rawCSVError(source, line, col, format, args...)
 	}
 	cr := csv.NewReader(r)
 	cr.ReuseRecord = true
@@ -201,9 +189,9 @@ func rawCSVParseError(name string, err error) error {
 		if errors.Is(pe.Err, csv.ErrFieldCount) {
 			msg = "wrong number of fields (every row has one cell per header column; leave a cell blank for no sample)"
 		}
-		return &RawCSVError{Name: name, Line: pe.Line, Msg: msg}
+		return rawCSVError(name, pe.Line, "", "%s", msg)
 	}
-	return &RawCSVError{Name: name, Msg: err.Error()}
+	return rawCSVError(name, 0, "", "%v", err)
 }
 
 // parseSecondsUs reads a time in seconds as whole microseconds. Plain

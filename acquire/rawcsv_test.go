@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"liftyard/acquire"
+	"liftyard/rig"
 )
 
 func readAll(t testing.TB, in string, blockN int) ([]acquire.Block, error) {
@@ -88,9 +89,9 @@ func TestReadRawCSV_Errors(t *testing.T) {
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			_, err := readAll(t, c.in, 10)
-			var re *acquire.RawCSVError
+			var re *rig.Error
 			if err == nil || !strings.HasPrefix(err.Error(), c.want) || !errors.As(err, &re) || !errors.Is(err, acquire.ErrRawCSV) {
-				t.Errorf("err = %v, want prefix %q as *RawCSVError", err, c.want)
+				t.Errorf("err = %v, want prefix %q as *rig.Error", err, c.want)
 			}
 		})
 	}
@@ -139,7 +140,7 @@ func writeRawCSV(blocks []acquire.Block) string {
 }
 
 // FuzzReadRawCSV checks that the import never panics, refuses with a
-// positioned *RawCSVError or gives well-formed blocks (equal-length series,
+// positioned *rig.Error or gives well-formed blocks (equal-length series,
 // positive spacing, increasing time), and that writing those blocks back
 // and reading them again gives the same samples (parse → write → parse).
 func FuzzReadRawCSV(f *testing.F) {
@@ -164,9 +165,9 @@ func FuzzReadRawCSV(f *testing.F) {
 			return nil
 		})
 		if err != nil {
-			var re *acquire.RawCSVError
+			var re *rig.Error
 			if !errors.As(err, &re) {
-				t.Fatalf("error %v is not a *RawCSVError", err)
+				t.Fatalf("error %v is not a *rig.Error", err)
 			}
 			return
 		}

@@ -8,38 +8,24 @@ import (
 	"math"
 	"strconv"
 	"strings"
+
+	"liftyard/rig"
 )
 
-// ErrPointsFile is returned (wrapped in a *PointsError) when a calibration
+// ErrPointsFile is returned (wrapped in a *rig.Error) when a calibration
 // points file cannot be read: a missing or unknown column, a value that is
 // not a finite number, an unknown direction, a row with too many or too few
 // fields, or a file with no points.
 var ErrPointsFile = errors.New("bad calibration points file")
 
-// PointsError is a problem in a calibration points file, positioned like
-// encoding/csv's ParseError. Line and Column count from 1; Column is 0 when
-// the problem concerns a whole line (or the whole file, with Line 0).
-type PointsError struct {
-	Name   string // file name for the message; empty prints "line N"
-	Line   int    // line of the problem, from 1; 0 for the file as a whole
-	Column int    // field (column) of the problem, from 1; 0 for the whole line
-	Msg    string // what is wrong and how to fix it
+// pointsError is a problem in a calibration points file, positioned like
+// encoding/csv's ParseError: line and col count from 1; col is 0 when the
+// problem concerns a whole line (or the whole file, with line 0). The
+// message names the field, so it prints as "line 7: reading ..." (or
+// "points.csv:7: ..." once the caller sets File) and col stays in Col.
+func pointsError(line, col int, format string, args ...any) error {
+	return &rig.Error{Line: line, Col: col, LineOnly: true, Err: rig.Problem(ErrPointsFile, format, args...)}
 }
-
-func (e *PointsError) Error() string {
-	switch {
-	case e.Line == 0 && e.Name != "":
-		return e.Name + ": " + e.Msg
-	case e.Line == 0:
-		return e.Msg
-	case e.Name != "":
-		return fmt.Sprintf("%s:%d: %s", e.Name, e.Line, e.Msg)
-	}
-	return fmt.Sprintf("line %d: %s", e.Line, e.Msg)
-}
-
-// Unwrap returns ErrPointsFile.
-func (e *PointsError) Unwrap() error { return ErrPointsFile }
 
 // Column names of a points file.
 const (
@@ -65,7 +51,7 @@ const (
 // Columns may come in any order. Numbers take any Go float syntax
 // (strconv.ParseFloat: 1e6, 0x1p20, ...) but must be finite. Blank lines and
 // lines starting with '#' are skipped; fields may be quoted as in
-// encoding/csv. Errors are *PointsError values naming the line and column.
+// encoding/csv. Errors are *rig.Error values naming the line and column.
 func ReadPoints(r io.Reader) ([]Point, error) {
 	cr := csv.NewReader(r)
 	cr.Comment = '#'
@@ -87,7 +73,7 @@ func ReadPoints(r io.Reader) ([]Point, error) {
 		if err != nil {
 			var pe *csv.ParseError
 			if errors.As(err, &pe) {
-				return nil, &PointsError{Line: pe.Line, Column: pe.Column, Msg: pe.Err.Error()}
+				return nil, pointsError(pe.Line, pe.Column, "%v", pe.Err)
 			}
 			return nil, fmt.Errorf("read points: %w", err)
 		}
@@ -110,12 +96,11 @@ func ReadPoints(r io.Reader) ([]Point, error) {
 					idx = &iDirection
 				default:
 					col, _ := fieldColumn(cr, i)
-					return nil, &PointsError{Line: line, Column: col,
-						Msg: fmt.Sprintf("unknown column %q (the header is applied,reading[,direction])", strings.TrimSpace(f))}
+					return nil, pointsError(line, col, "unknown column %q (the header is applied,reading[,direction])", strings.TrimSpace(f))
 				}
 				if *idx >= 0 {
 					col, _ := fieldColumn(cr, i)
-					return nil, &PointsError{Line: line, Column: col, Msg: fmt.Sprintf("column %q appears twice", name)}
+					return nil, pointsError(line, col, "column %q appears twice", name)
 				}
 				*idx = i
 			}
@@ -124,23 +109,21 @@ func ReadPoints(r io.Reader) ([]Point, error) {
 				if iApplied >= 0 {
 					missing = colReading
 				}
-				return nil, &PointsError{Line: line,
-					Msg: fmt.Sprintf("header has no %q column (the first line that is not blank or a # comment must be applied,reading[,direction])", missing)}
+				return nil, pointsError(line, 0, "header has no %q column (the first line that is not blank or a # comment must be applied,reading[,direction])", missing)
 			}
 			continue
 		}
 		if len(rec) != ncols {
-			return nil, &PointsError{Line: line,
-				Msg: fmt.Sprintf("%d fields, the header has %d", len(rec), ncols)}
+			return nil, pointsError(line, 0, "%d fields, the header has %d", len(rec), ncols)
 		}
 		var p Point
 		if p.Applied, err = pointNumber(rec[iApplied]); err != nil {
 			col, _ := fieldColumn(cr, iApplied)
-			return nil, &PointsError{Line: line, Column: col, Msg: fmt.Sprintf("applied %q %v", strings.TrimSpace(rec[iApplied]), err)}
+			return nil, pointsError(line, col, "applied %q %v", strings.TrimSpace(rec[iApplied]), err)
 		}
 		if p.Reading, err = pointNumber(rec[iReading]); err != nil {
 			col, _ := fieldColumn(cr, iReading)
-			return nil, &PointsError{Line: line, Column: col, Msg: fmt.Sprintf("reading %q %v", strings.TrimSpace(rec[iReading]), err)}
+			return nil, pointsError(line, col, "reading %q %v", strings.TrimSpace(rec[iReading]), err)
 		}
 		if iDirection >= 0 {
 			d := strings.ToLower(strings.TrimSpace(rec[iDirection]))
@@ -149,17 +132,16 @@ func ReadPoints(r io.Reader) ([]Point, error) {
 				p.Direction = Direction(d)
 			default:
 				col, _ := fieldColumn(cr, iDirection)
-				return nil, &PointsError{Line: line, Column: col,
-					Msg: fmt.Sprintf("direction %q is not up, down or blank (up while loading, down while unloading)", strings.TrimSpace(rec[iDirection]))}
+				return nil, pointsError(line, col, "direction %q is not up, down or blank (up while loading, down while unloading)", strings.TrimSpace(rec[iDirection]))
 			}
 		}
 		pts = append(pts, p)
 	}
 	if header {
-		return nil, &PointsError{Msg: "no header: the file is empty (write applied,reading[,direction] and one line per point)"}
+		return nil, pointsError(0, 0, "no header: the file is empty (write applied,reading[,direction] and one line per point)")
 	}
 	if len(pts) == 0 {
-		return nil, &PointsError{Msg: "no points after the header"}
+		return nil, pointsError(0, 0, "no points after the header")
 	}
 	return pts, nil
 }

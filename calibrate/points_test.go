@@ -11,6 +11,7 @@ import (
 	"testing"
 
 	"liftyard/calibrate"
+	"liftyard/rig"
 )
 
 // Ensure that ReadPoints accepts the points format of DESIGN §3.1 with its
@@ -104,26 +105,26 @@ func TestReadPoints(t *testing.T) {
 			if !errors.Is(err, calibrate.ErrPointsFile) {
 				t.Errorf("error does not wrap ErrPointsFile: %v", err)
 			}
-			var pe *calibrate.PointsError
+			var pe *rig.Error
 			if !errors.As(err, &pe) {
-				t.Fatalf("error is %T, want *calibrate.PointsError", err)
+				t.Fatalf("error is %T, want *rig.Error", err)
 			}
-			if pe.Line != tt.line || pe.Column != tt.column {
-				t.Errorf("position %d:%d, want %d:%d", pe.Line, pe.Column, tt.line, tt.column)
+			if pe.Line != tt.line || pe.Col != tt.column {
+				t.Errorf("position %d:%d, want %d:%d", pe.Line, pe.Col, tt.line, tt.column)
 			}
 		})
 	}
 }
 
-// Ensure that a named PointsError prints as file:line: message, the form
-// the CLI shows.
-func TestPointsError_Name(t *testing.T) {
+// Ensure that a points error given its file name prints as file:line:
+// message, the form the CLI shows.
+func TestReadPoints_ErrorFile(t *testing.T) {
 	_, err := calibrate.ReadPoints(strings.NewReader("applied,reading\n1,2\n3,4\n5,6\n7,8\n9,10\n11,12x\n"))
-	var pe *calibrate.PointsError
+	var pe *rig.Error
 	if !errors.As(err, &pe) {
-		t.Fatalf("error %v is not a *PointsError", err)
+		t.Fatalf("error %v is not a *rig.Error", err)
 	}
-	pe.Name = "points.csv"
+	pe.File = "points.csv"
 	if got, want := pe.Error(), `points.csv:7: reading "12x" is not a number`; got != want {
 		t.Errorf("got %q, want %q", got, want)
 	}
@@ -193,9 +194,9 @@ func FuzzReadPoints(f *testing.F) {
 	f.Fuzz(func(t *testing.T, in string) {
 		pts, err := calibrate.ReadPoints(strings.NewReader(in))
 		if err != nil {
-			var pe *calibrate.PointsError
+			var pe *rig.Error
 			if !errors.As(err, &pe) {
-				t.Fatalf("error %v is %T, not a *PointsError", err, err)
+				t.Fatalf("error %v is %T, not a *rig.Error", err, err)
 			}
 			return
 		}

@@ -9,6 +9,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"liftyard/calibrate"
+	"liftyard/rig"
 )
 
 // Ensure that a zero is the mean of the flow-off samples per channel,
@@ -122,7 +123,7 @@ func TestFitTare_RecoversModel(t *testing.T) {
 	var alpha []float64
 	readings := map[string][]float64{}
 	for deg := -10.0; deg <= 30; deg += 4 {
-		a := deg * math.Pi / 180
+		a := rig.Rad(deg)
 		alpha = append(alpha, a)
 		for ch, c := range want {
 			readings[ch] = append(readings[ch], c[0]+c[1]*math.Sin(a)+c[2]*math.Cos(a))
@@ -136,7 +137,7 @@ func TestFitTare_RecoversModel(t *testing.T) {
 			assert.InDelta(t, c[j], f.Coef[j], 1e-9, "%s coef %d", ch, j)
 		}
 		assert.Equal(t, 8, f.Dof)
-		a := 12.5 * math.Pi / 180
+		a := rig.Rad(12.5)
 		assert.InDelta(t, c[0]+c[1]*math.Sin(a)+c[2]*math.Cos(a), tare.At(ch, a), 1e-12)
 	}
 	assert.Equal(t, 0.0, tare.At("pitot", 0.1), "no tare for a channel not in the sweep")

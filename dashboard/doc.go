@@ -1,7 +1,9 @@
 // Package dashboard serves liftyard's local web dashboard: a live page, run
-// pages with a polar plot, and a JSON API. It formats what estimate produced
-// and storage kept; it computes no physics (the only conversions are for
-// display: radians to degrees, and standard to expanded uncertainty U95).
+// pages with a polar plot (zone plots for roofs) and a printable report,
+// calibration pages, user marks, and a JSON API. It formats what estimate
+// produced and storage kept; it computes no physics (the only conversions
+// are for display: radians to degrees, and standard to expanded
+// uncertainty U95).
 //
 // # Routes
 //
@@ -9,12 +11,19 @@
 //	GET  /runs                      table of runs
 //	GET  /runs/{id}                 run details, source health, segments
 //	GET  /runs/{id}/polar.svg       C_L against α (S for rotors) with U95 bars (gonum/plot)
+//	GET  /runs/{id}/zones.svg       a roof run's net Cp per zone and block, against design
+//	GET  /runs/{id}/report          the printable report (package report)
+//	GET  /calibrations[/{id}]       stored calibrations; fit.svg and residuals.svg per record
 //	GET  /static/...                the embedded script, style sheet and icon
 //	POST /logout                    clears the token cookie (off loopback)
 //	GET  /api/v1/live               latest estimate (503 before the first one)
+//	GET  /api/v1/health             source, channel and load health of the recording (503 before one)
 //	GET  /api/v1/runs               runs, newest first
 //	GET  /api/v1/runs/{id}          one run
-//	GET  /api/v1/runs/{id}/segments its steady segments (DESIGN §3.4 field names)
+//	GET  /api/v1/runs/{id}/segments its steady segments
+//	GET  /api/v1/runs/{id}/marks    its marks; POST adds one, POST .../{n}/delete,
+//	                                .../clear and .../apply edit them and recompute
+//	GET  /api/v1/calibrations[/{id}] calibration records as JSON
 //	GET  /api/v1/stream             server-sent events: run, health, live, segment
 //
 // JSON fields are the Go field names in snake_case with their unit
@@ -49,7 +58,8 @@
 //
 // # Caveats
 //
-// The polar cache is keyed by run and segment count: a re-processed run
-// with the same number of segments shows the old plot until the process
-// restarts. The live trends hold what the page received since it opened.
+// The polar cache is keyed by run and segment count; applying marks drops
+// the run's plots, but segments rewritten by another process with the same
+// count show the old plot until this one restarts. The live trends hold
+// what the page received since it opened.
 package dashboard

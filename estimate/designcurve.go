@@ -11,6 +11,7 @@ import (
 	"strings"
 
 	"liftyard/calibrate"
+	"liftyard/rig"
 )
 
 // Design gives the design (predicted) lift coefficient of a body at an angle
@@ -24,34 +25,20 @@ type Design interface {
 	Describe() string
 }
 
-// ErrDesignCurve is returned (wrapped in a *DesignCurveError) when a design
-// curve CSV cannot be read.
+// ErrDesignCurve is returned (wrapped in a *rig.Error) when a design curve
+// CSV cannot be read.
 var ErrDesignCurve = errors.New("bad design curve")
 
-// DesignCurveError is a positioned error in a design curve CSV, printed as
-// `foil.csv:4: column "cl": "x" is not a number`.
-type DesignCurveError struct {
-	Name   string // file name as given to ParseDesignCurve
-	Line   int    // 1-based line; 0 for the whole file
-	Column string // column name, when one is at fault
-	Msg    string
-}
-
-func (e *DesignCurveError) Error() string {
-	var b strings.Builder
-	b.WriteString(e.Name)
-	if e.Line > 0 {
-		fmt.Fprintf(&b, ":%d", e.Line)
+// designCurveError is a problem in a design curve CSV, printed as
+// `foil.csv:4: column "cl": "x" is not a number`. col is the column at
+// fault, or "".
+func designCurveError(name string, line int, col, format string, args ...any) error {
+	if col != "" {
+		format = "column %q: " + format
+		args = append([]any{col}, args...)
 	}
-	b.WriteString(": ")
-	if e.Column != "" {
-		fmt.Fprintf(&b, "column %q: ", e.Column)
-	}
-	b.WriteString(e.Msg)
-	return b.String()
+	return &rig.Error{File: name, Line: line, Key: col, Err: rig.Problem(ErrDesignCurve, format, args...)}
 }
-
-func (e *DesignCurveError) Unwrap() error { return ErrDesignCurve }
 
 // DesignCurve is a design lift curve given as points, interpolated linearly
 // in α. It gives no value outside its first and last angle: a design is not
@@ -80,7 +67,7 @@ func ParseDesignCurve(r io.Reader, name string) (*DesignCurve, error) {
 	cr.TrimLeadingSpace = true
 	cr.Comment = '#'
 	fail := func(line int, col, format string, args ...any) error {
-		return &DesignCurveError{Name: name, Line: line, Column: col, Msg: fmt.Sprintf(format, args...)}
+		return designCurveError(name, line, col, format, args...)
 	}
 	header, err := cr.Read()
 	if err == io.EOF {
@@ -156,7 +143,7 @@ func ParseDesignCurve(r io.Reader, name string) (*DesignCurve, error) {
 		if i > 0 && rw.a == rows[i-1].a {
 			return nil, fail(rw.line, "alpha_deg", "angle %g° is given twice (also on line %d)", rw.a, rows[i-1].line)
 		}
-		d.AlphaRad = append(d.AlphaRad, rw.a*math.Pi/180)
+		d.AlphaRad = append(d.AlphaRad, rig.Rad(rw.a))
 		d.CL = append(d.CL, rw.c)
 		d.CLU95 = append(d.CLU95, rw.u)
 	}
@@ -166,9 +153,9 @@ func ParseDesignCurve(r io.Reader, name string) (*DesignCurve, error) {
 func csvFail(name string, err error) error {
 	var pe *csv.ParseError
 	if errors.As(err, &pe) {
-		return &DesignCurveError{Name: name, Line: pe.Line, Msg: pe.Err.Error()}
+		return designCurveError(name, pe.Line, "", "%v", pe.Err)
 	}
-	return &DesignCurveError{Name: name, Msg: err.Error()}
+	return designCurveError(name, 0, "", "%v", err)
 }
 
 // At interpolates linearly between the two rows around α; outside the
@@ -197,7 +184,7 @@ func (d *DesignCurve) Describe() string {
 	if n == 0 {
 		return "design curve (empty)"
 	}
-	return fmt.Sprintf("design curve %s (%d points, %.1f° to %.1f°)", d.Name, n, deg(d.AlphaRad[0]), deg(d.AlphaRad[n-1]))
+	return fmt.Sprintf("design curve %s (%d points, %.1f° to %.1f°)", d.Name, n, rig.Deg(d.AlphaRad[0]), rig.Deg(d.AlphaRad[n-1]))
 }
 
 // HelmboldBelowAspectRatio is where ThinAirfoil switches from Prandtl's
@@ -243,11 +230,11 @@ func (t ThinAirfoil) At(alphaRad float64) (calibrate.Value, float64, bool) {
 func (t ThinAirfoil) Describe() string {
 	switch {
 	case !(t.AspectRatio > 0):
-		return fmt.Sprintf("thin-airfoil theory, 2π/rad, α_L0 = %.2f°", deg(t.AlphaZeroRad))
+		return fmt.Sprintf("thin-airfoil theory, 2π/rad, α_L0 = %.2f°", rig.Deg(t.AlphaZeroRad))
 	case t.AspectRatio < HelmboldBelowAspectRatio:
-		return fmt.Sprintf("thin-airfoil 2π/rad with Helmbold's correction for AR %.2f: %.3f/rad, α_L0 = %.2f°", t.AspectRatio, t.SlopePerRad(), deg(t.AlphaZeroRad))
+		return fmt.Sprintf("thin-airfoil 2π/rad with Helmbold's correction for AR %.2f: %.3f/rad, α_L0 = %.2f°", t.AspectRatio, t.SlopePerRad(), rig.Deg(t.AlphaZeroRad))
 	}
-	return fmt.Sprintf("thin-airfoil 2π/rad with lifting-line correction for AR %.2f: %.3f/rad, α_L0 = %.2f°", t.AspectRatio, t.SlopePerRad(), deg(t.AlphaZeroRad))
+	return fmt.Sprintf("thin-airfoil 2π/rad with lifting-line correction for AR %.2f: %.3f/rad, α_L0 = %.2f°", t.AspectRatio, t.SlopePerRad(), rig.Deg(t.AlphaZeroRad))
 }
 
 // DesignAt returns the design value at a measured point and the normalised
@@ -382,11 +369,11 @@ func (c *Comparison) disagreeReasons(compared int) []string {
 	hasAgree := c.Agree > 0
 	switch {
 	case hasAgree && allBelow && lo > lastAgree:
-		out = append(out, fmt.Sprintf("all at or above %.1f°, with the measured lift below the design: stall (or separation) that the design does not model; compare over the attached range only, or give a design curve that includes the stall", deg(lo)))
+		out = append(out, fmt.Sprintf("all at or above %.1f°, with the measured lift below the design: stall (or separation) that the design does not model; compare over the attached range only, or give a design curve that includes the stall", rig.Deg(lo)))
 	case hasAgree && allBelow && hi < firstAgree:
-		out = append(out, fmt.Sprintf("all at or below %.1f°, with the measured lift above the design (less negative): negative stall that the design does not model", deg(hi)))
+		out = append(out, fmt.Sprintf("all at or below %.1f°, with the measured lift above the design (less negative): negative stall that the design does not model", rig.Deg(hi)))
 	case hasAgree && allAbove && lo > lastAgree:
-		out = append(out, fmt.Sprintf("all at or above %.1f°, with the measured lift above the design: check the design curve at high angles and the angle calibration", deg(lo)))
+		out = append(out, fmt.Sprintf("all at or above %.1f°, with the measured lift above the design: check the design curve at high angles and the angle calibration", rig.Deg(lo)))
 	case allAbove && (!hasAgree || (lo <= firstAgree && hi >= lastAgree)):
 		out = append(out, "the measured C_L is above the design wherever they disagree: an offset or scale error is likely; check the reference area, the normal-force zero (tare), the pitot coefficient and the angle zero")
 	case allBelow && (!hasAgree || (lo <= firstAgree && hi >= lastAgree)):
@@ -399,9 +386,9 @@ func (c *Comparison) disagreeReasons(compared int) []string {
 			if first.En > 0 {
 				steeper = "shallower"
 			}
-			out = append(out, fmt.Sprintf("the measured lift curve is %s than the design (disagreeing points of both signs from %.1f° to %.1f°): check the angle calibration's scale and the aspect-ratio (span) correction of the design", steeper, deg(lo), deg(hi)))
+			out = append(out, fmt.Sprintf("the measured lift curve is %s than the design (disagreeing points of both signs from %.1f° to %.1f°): check the angle calibration's scale and the aspect-ratio (span) correction of the design", steeper, rig.Deg(lo), rig.Deg(hi)))
 		} else {
-			out = append(out, fmt.Sprintf("disagreeing points of both signs between %.1f° and %.1f°: look at the points one by one (unsteady flow, a bad step)", deg(lo), deg(hi)))
+			out = append(out, fmt.Sprintf("disagreeing points of both signs between %.1f° and %.1f°: look at the points one by one (unsteady flow, a bad step)", rig.Deg(lo), rig.Deg(hi)))
 		}
 	}
 	return out

@@ -57,8 +57,9 @@ func TestParseDesignCurve_Errors(t *testing.T) {
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			_, err := estimate.ParseDesignCurve(strings.NewReader(c.in), "d.csv")
-			if err == nil || !strings.HasPrefix(err.Error(), c.want) || !errors.Is(err, estimate.ErrDesignCurve) {
-				t.Errorf("err = %v, want prefix %q wrapping ErrDesignCurve", err, c.want)
+			var re *rig.Error
+			if err == nil || !strings.HasPrefix(err.Error(), c.want) || !errors.Is(err, estimate.ErrDesignCurve) || !errors.As(err, &re) {
+				t.Errorf("err = %v, want prefix %q as a *rig.Error wrapping ErrDesignCurve", err, c.want)
 			}
 		})
 	}

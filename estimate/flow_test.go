@@ -6,6 +6,7 @@ import (
 
 	"liftyard/calibrate"
 	"liftyard/estimate"
+	"liftyard/rig"
 )
 
 // Ensure that the pitot inversions of check-values §7 are reproduced
@@ -79,7 +80,7 @@ func TestWindAxes(t *testing.T) {
 // Ensure the finite-wing slopes of check-values §6.3 ([R] from the formulas,
 // which are [M]: lifting line and Helmbold as recalled, not checked in print).
 func TestLiftSlopes(t *testing.T) {
-	a0deg := 0.105 * 180 / math.Pi // 0.105 per degree (NACA 2412, Abbott & von Doenhoff via Anderson 1999)
+	a0PerRad := 0.105 / rig.Rad(1) // 0.105 per degree (NACA 2412, Abbott & von Doenhoff via Anderson 1999)
 	tests := []struct {
 		name string
 		got  float64
@@ -87,14 +88,14 @@ func TestLiftSlopes(t *testing.T) {
 	}{
 		{"lifting line AR 6, 2π", estimate.LiftingLineSlope(estimate.ThinAirfoilSlopePerRad, 6), 4.7124},
 		{"Helmbold AR 6, 2π", estimate.HelmboldSlope(2*math.Pi, 6), 4.5287},
-		{"lifting line AR 6, 0.105/deg", estimate.LiftingLineSlope(a0deg, 6), 4.5605},
-		{"Helmbold AR 6, 0.105/deg", estimate.HelmboldSlope(a0deg, 6), 4.3949},
+		{"lifting line AR 6, 0.105/deg", estimate.LiftingLineSlope(a0PerRad, 6), 4.5605},
+		{"Helmbold AR 6, 0.105/deg", estimate.HelmboldSlope(a0PerRad, 6), 4.3949},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) { near(t, "a", tc.got, tc.want, 5e-5) })
 	}
 	near(t, "lifting line = 3π/2", estimate.LiftingLineSlope(2*math.Pi, 6), 3*math.Pi/2, 1e-12)
-	near(t, "per degree", estimate.LiftingLineSlope(2*math.Pi, 6)*math.Pi/180, 0.08225, 5e-6)
+	near(t, "per degree", estimate.LiftingLineSlope(2*math.Pi, 6)*rig.Rad(1), 0.08225, 5e-6)
 	near(t, "Helmbold closed form 2πAR/(2+√(AR²+4))", estimate.HelmboldSlope(2*math.Pi, 3), 2*math.Pi*3/(2+math.Sqrt(13)), 1e-12)
 	if !math.IsNaN(estimate.LiftingLineSlope(2*math.Pi, 0)) {
 		t.Error("AR = 0 should give NaN")

@@ -67,13 +67,13 @@ func TestFitPolar_ExactRecovery(t *testing.T) {
 		}
 	}
 	near("slope", p.SlopePerRad.X, 5.2, 1e-9)
-	near("alpha_L0 (deg)", p.AlphaZeroRad.X*180/math.Pi, -1.8, 1e-9)
-	near("linear max (deg)", p.LinearMaxRad*180/math.Pi, 12, 1e-9)
-	near("linear min (deg)", p.LinearMinRad*180/math.Pi, -4, 1e-9)
+	near("alpha_L0 (deg)", rig.Deg(p.AlphaZeroRad.X), -1.8, 1e-9)
+	near("linear max (deg)", rig.Deg(p.LinearMaxRad), 12, 1e-9)
+	near("linear min (deg)", rig.Deg(p.LinearMinRad), -4, 1e-9)
 	if !p.Stalled {
 		t.Fatalf("stall not found; warnings %q", p.Warnings)
 	}
-	near("stall (deg)", p.StallRad*180/math.Pi, 12, 1e-9)
+	near("stall (deg)", rig.Deg(p.StallRad), 12, 1e-9)
 	near("CLmax", p.CLMax.X, 5.2*rig.Rad(13.8), 1e-9)
 	if !p.DragFitted {
 		t.Fatalf("drag polar not fitted: %q", p.Warnings)
@@ -192,7 +192,7 @@ func TestFitPolar_NACA2412(t *testing.T) {
 	const a0PerDeg, alphaL0Deg = 0.105, -2.2
 	r := rand.New(rand.NewPCG(2412, 1))
 	alphas := []float64{-6, -4, -2, 0, 2, 4, 6, 8, 10}
-	segs := polarSegs(alphas, func(a float64) float64 { return a0PerDeg * (a*180/math.Pi - alphaL0Deg) },
+	segs := polarSegs(alphas, func(a float64) float64 { return a0PerDeg * (rig.Deg(a) - alphaL0Deg) },
 		parabola(0.006, 0.006, 0.2), 0.01, 0.0003, r)
 	p, err := estimate.FitPolar(segs, estimate.PolarOptions{})
 	if err != nil {
@@ -201,7 +201,7 @@ func TestFitPolar_NACA2412(t *testing.T) {
 	if got := p.SlopePerDeg(); math.Abs(got-a0PerDeg) > 0.005 {
 		t.Errorf("a0 = %.4f /deg, want 0.105 ± 0.005", got)
 	}
-	if got := p.AlphaZeroRad.X * 180 / math.Pi; math.Abs(got-alphaL0Deg) > 0.3 {
+	if got := rig.Deg(p.AlphaZeroRad.X); math.Abs(got-alphaL0Deg) > 0.3 {
 		t.Errorf("alpha_L0 = %.3f°, want −2.2 ± 0.3°", got)
 	}
 	if p.SlopePerRad.X+p.SlopePerRad.U95() >= estimate.ThinAirfoilSlopePerRad {
@@ -220,7 +220,7 @@ func TestFitPolar_Options(t *testing.T) {
 		t.Fatal(err)
 	}
 	if !p.Stalled || math.Abs(p.StallRad-rig.Rad(10)) > 1e-12 || strings.Contains(strings.Join(p.Warnings, "\n"), "onset") {
-		t.Errorf("stalled %v at %g°, warnings %q; want the stall at 10°", p.Stalled, p.StallRad*180/math.Pi, p.Warnings)
+		t.Errorf("stalled %v at %g°, warnings %q; want the stall at 10°", p.Stalled, rig.Deg(p.StallRad), p.Warnings)
 	}
 	if len(p.Linear) != 4 || p.Points != 10 {
 		t.Errorf("linear %v of %d points, want 4 of 10", p.Linear, p.Points)
@@ -276,7 +276,7 @@ func TestFitPolar_OnsetOfStall(t *testing.T) {
 		t.Errorf("warnings %q", p.Warnings)
 	}
 	if math.Abs(p.AlphaCLMaxRad-rig.Rad(12)) > 1e-12 {
-		t.Errorf("C_L,max at %g°, want the 12° point", p.AlphaCLMaxRad*180/math.Pi)
+		t.Errorf("C_L,max at %g°, want the 12° point", rig.Deg(p.AlphaCLMaxRad))
 	}
 }
 

@@ -396,7 +396,7 @@ func (e *RoofEstimator) Add(b *calibrate.Block) []Segment {
 		} else {
 			q = DynamicPressureFromPitot(q, e.pitotC)
 		}
-		pInt := math.NaN()
+		var pInt float64
 		if e.intChan != "" {
 			pInt = at(iv, i)
 		} else {

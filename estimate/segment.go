@@ -3,6 +3,8 @@ package estimate
 import (
 	"math"
 	"time"
+
+	"liftyard/rig"
 )
 
 // SteadyConfig sets the steady-segment test. A zero field takes its default.
@@ -39,7 +41,7 @@ const flowOffFrac = 0.05
 
 func (c SteadyConfig) withDefaults() SteadyConfig {
 	if c.AngleTolRad <= 0 {
-		c.AngleTolRad = 0.25 * math.Pi / 180
+		c.AngleTolRad = rig.Rad(0.25)
 	}
 	if c.QTolFrac <= 0 {
 		c.QTolFrac = 0.08

@@ -6,9 +6,12 @@
 //
 // Build reads a run from the store (facts, source and channel health,
 // loads, zero drift, calibrations used, events, segment results), parses
-// the rig file stored with the run, fits the polar (estimate.FitPolar) and
-// compares the points with the rig's design curve (estimate.Compare). The
-// Report it returns is plain data; WriteHTML renders it. Nothing is
+// the rig file stored with the run, and for a foil or other body fits the
+// polar (estimate.FitPolar) and compares the points with the rig's design
+// (a curve or thin-airfoil theory; estimate.Compare). A rotor's points are
+// C_L against the spin ratio, with no lift-curve fit; a roof run is reported
+// zone by zone and block by block against the zones' design Cp (roof.go).
+// The Report it returns is plain data; WriteHTML renders it. Nothing is
 // recomputed for display: every number comes from estimate or storage and
 // is only rounded here.
 //
@@ -33,8 +36,7 @@
 //
 // # Cautions
 //
-// The report carries the cautions of the design (DESIGN §6): results are
-// test data, not a design approval; structural decisions follow the local
-// code and a licensed engineer; rigs are loaded only within their rated
-// capacities.
+// The report carries liftyard's cautions: results are test data, not a
+// design approval; structural decisions follow the local code and a
+// licensed engineer; rigs are loaded only within their rated capacities.
 package report

@@ -326,7 +326,7 @@ func (r *Report) polarView(v *view) {
 		}
 		return
 	}
-	perDeg := math.Pi / 180
+	perDeg := rig.Rad(1) // rad per degree: a slope per rad times this is a slope per degree
 	v.PolarRows = []row{
 		{"Lift-curve slope a [1/rad]", pm(p.SlopePerRad.X, p.SlopePerRad.U95(), 3)},
 		{"Lift-curve slope a [1/°]", pm(p.SlopePerRad.X*perDeg, p.SlopePerRad.U95()*perDeg, 4)},

@@ -381,7 +381,7 @@ func (r *Report) enPlot() (*figure, error) {
 	p.Y.Min, p.Y.Max = padY(ymin, ymax)
 	band, err := plotter.NewPolygon(plotter.XYs{{X: p.X.Min, Y: -1}, {X: p.X.Max, Y: -1}, {X: p.X.Max, Y: 1}, {X: p.X.Min, Y: 1}})
 	if err != nil {
-		return nil, fmt.Errorf("En plot: %w", err)
+		return nil, fmt.Errorf("plot of En: %w", err)
 	}
 	band.Color = colBand
 	band.LineStyle.Width = 0
@@ -389,12 +389,12 @@ func (r *Report) enPlot() (*figure, error) {
 	p.Legend.Add("|E_n| ≤ 1: agrees", band)
 	for _, y := range []float64{-1, 1} {
 		if err := addCurve(p, plotter.XYs{{X: p.X.Min, Y: y}, {X: p.X.Max, Y: y}}, colDesign, []vg.Length{vg.Points(5), vg.Points(3)}, ""); err != nil {
-			return nil, fmt.Errorf("En plot: %w", err)
+			return nil, fmt.Errorf("plot of En: %w", err)
 		}
 	}
 	sc, err := plotter.NewScatter(xys)
 	if err != nil {
-		return nil, fmt.Errorf("En plot: %w", err)
+		return nil, fmt.Errorf("plot of En: %w", err)
 	}
 	sc.GlyphStyle.Color = colPoints
 	sc.GlyphStyle.Shape = draw.CircleGlyph{}
@@ -403,7 +403,7 @@ func (r *Report) enPlot() (*figure, error) {
 	p.Legend.Add("E_n per point", sc)
 	svg, err := svgOf(p)
 	if err != nil {
-		return nil, fmt.Errorf("En plot: %w", err)
+		return nil, fmt.Errorf("plot of En: %w", err)
 	}
 	return &figure{SVG: svg, Alt: "normalised error En per point with the band from −1 to 1",
 		Caption: "E_n = (C_L,measured − C_L,design)/√(U_m² + U_d²) per point; inside the shaded band (|E_n| ≤ 1) measurement and design agree."}, nil

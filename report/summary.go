@@ -2,7 +2,6 @@ package report
 
 import (
 	"fmt"
-	"math"
 	"strings"
 
 	"liftyard/estimate"
@@ -36,7 +35,7 @@ func (r *Report) Summary() []string {
 	if p := r.Polar; p != nil {
 		out = append(out, fmt.Sprintf("Lift slope %s per rad (%s per degree), zero-lift angle %s°, fitted over %s from %s° to %s°.",
 			pm(p.SlopePerRad.X, p.SlopePerRad.U95(), 3),
-			pm(p.SlopePerRad.X*math.Pi/180, p.SlopePerRad.U95()*math.Pi/180, 4),
+			pm(p.SlopePerRad.X*rig.Rad(1), p.SlopePerRad.U95()*rig.Rad(1), 4),
 			pm(rig.Deg(p.AlphaZeroRad.X), rig.Deg(p.AlphaZeroRad.U95()), 2),
 			plural(len(p.Linear), "point", "points"), fix(rig.Deg(p.LinearMinRad), 1), fix(rig.Deg(p.LinearMaxRad), 1)))
 		if p.Stalled {

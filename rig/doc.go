@@ -59,7 +59,8 @@
 // A bare number where a unit is needed is refused. Accepted units per
 // quantity are listed by Units; the factors follow NIST SP 811 (2008),
 // Appendix B. "inH2O" is the conventional inch of water (249.0889 Pa);
-// inH2O_39F and inH2O_60F are the temperature-referenced ones.
+// inH2O_39F and inH2O_60F are the temperature-referenced ones. Deg and Rad
+// are liftyard's one pair of angle converters, for the boundaries.
 //
 // # Errors
 //
@@ -70,7 +71,9 @@
 //
 // and unwraps to one sentinel (ErrSyntax, ErrUnknownKey, ErrMissing,
 // ErrUnit, ErrValue, ErrReference, ErrDuplicate). Parse never panics on
-// input.
+// input. *Error is liftyard's one positioned error: the raw CSV, design
+// curve and calibration points readers downstream return it too, each with
+// its own sentinel, and the command line answers it with exit status 2.
 //
 // # Caution
 //

@@ -6,7 +6,7 @@ import (
 	"strings"
 )
 
-// Sentinel errors. Every problem that Parse reports is an *Error whose chain
+// Sentinel errors of rig files. Every problem that Parse reports is an *Error whose chain
 // ends in exactly one of these, so callers can sort problems with errors.Is.
 var (
 	// ErrSyntax is returned when the file is not valid TOML: an unclosed
@@ -41,38 +41,68 @@ var (
 	ErrDuplicate = errors.New("rig: duplicate")
 )
 
-// Error is one problem in a rig file, with its position. Line and Col are
-// 1-based; Line 0 means the problem has no single line (a top-level key that
-// is missing), Col 0 means the column is not meaningful. Key is the TOML path
-// of the offending key, with 0-based indices for arrays of tables, for
-// example "channel[2].unit"; it is empty for syntax errors.
+// Error is one problem at a place in an input file. It is the one positioned
+// error of liftyard, here because rig lies upstream of every reader: rig
+// files (Parse), raw CSV records (acquire.ReadRawCSV), calibration points
+// files (calibrate.ReadPoints) and design curves (estimate.ParseDesignCurve)
+// all report their problems as *Error, each wrapping its own sentinel, and
+// cmd/liftyard answers any *Error with exit status 2 (bad input file).
 //
-// Error prints as "rig.toml:14:3: channel \"n_fore\": unknown unit ..." and
-// unwraps to one of the sentinels in this file.
+// Error prints as "rig.toml:14:3: channel \"n_fore\": unknown unit ...":
+// the file, then the line and column when known, then the message. With no
+// File it prints "line 14: ..." (or the message alone when Line is 0), so a
+// reader that does not know its file name can leave it to the caller, who
+// sets File before showing the error.
 type Error struct {
-	File      string
-	Line, Col int
-	Key       string
-	Err       error
+	// File names the file for the user, as the caller gave it; "" when the
+	// reader was not told.
+	File string
+	// Line is 1-based; 0 means the problem has no single line (a missing
+	// top-level key, an empty file).
+	Line int
+	// Col is the 1-based column where the problem starts on Line; 0 means it
+	// is not known or not meaningful.
+	Col int
+	// LineOnly prints the position as file:line even when Col is set: the
+	// points reader names the field in its message and keeps Col for
+	// callers only.
+	LineOnly bool
+	// Key is what the problem is about: the TOML path of a rig key with
+	// 0-based indices for arrays of tables ("channel[2].unit"), or a CSV
+	// column name ("pitot"); "" for syntax errors and whole-file problems.
+	// The message already names it: Key is for callers, not printed.
+	Key string
+	// Err is the message; its chain ends in the reader's sentinel (ErrUnit,
+	// acquire.ErrRawCSV, ...), for errors.Is.
+	Err error
 }
 
 func (e *Error) Error() string {
-	file := e.File
-	if file == "" {
-		file = "<rig>"
-	}
 	msg := "<nil>"
 	if e.Err != nil {
 		msg = e.Err.Error()
 	}
+	var b strings.Builder
 	switch {
-	case e.Line <= 0:
-		return fmt.Sprintf("%s: %s", file, msg)
-	case e.Col <= 0:
-		return fmt.Sprintf("%s:%d: %s", file, e.Line, msg)
+	case e.File != "":
+		b.WriteString(e.File)
+		if e.Line > 0 {
+			fmt.Fprintf(&b, ":%d", e.Line)
+			if e.Col > 0 && !e.LineOnly {
+				fmt.Fprintf(&b, ":%d", e.Col)
+			}
+		}
+	case e.Line > 0:
+		fmt.Fprintf(&b, "line %d", e.Line)
+		if e.Col > 0 && !e.LineOnly {
+			fmt.Fprintf(&b, ", column %d", e.Col)
+		}
 	default:
-		return fmt.Sprintf("%s:%d:%d: %s", file, e.Line, e.Col, msg)
+		return msg
 	}
+	b.WriteString(": ")
+	b.WriteString(msg)
+	return b.String()
 }
 
 // Unwrap returns the wrapped error, whose chain holds the sentinel.
@@ -115,7 +145,9 @@ type problem struct {
 func (p *problem) Error() string { return p.msg }
 func (p *problem) Unwrap() error { return p.kind }
 
-// newProblem formats a message and ties it to a sentinel.
-func newProblem(kind error, format string, args ...any) error {
+// Problem returns the message of an Error: the formatted text, whose chain
+// ends in kind. The text is printed without kind's own words, so a reader
+// keeps its messages while errors.Is(err, kind) sorts them.
+func Problem(kind error, format string, args ...any) error {
 	return &problem{msg: fmt.Sprintf(format, args...), kind: kind}
 }

@@ -50,15 +50,19 @@ const DesignThinAirfoil = "thin-airfoil"
 // of the sentinels. The returned Rig holds SI values only, with defaults
 // filled in; it has passed Validate.
 func Parse(filename string, data []byte) (*Rig, error) {
-	d := &decoder{file: filename, reported: map[string]bool{}}
+	errFile := filename
+	if errFile == "" {
+		errFile = noFile
+	}
+	d := &decoder{file: errFile, reported: map[string]bool{}}
 	var doc map[string]any
 	if _, err := toml.Decode(string(data), &doc); err != nil {
 		var pe toml.ParseError
 		if errors.As(err, &pe) {
-			d.errs = append(d.errs, &Error{File: filename, Line: pe.Position.Line, Col: pe.Position.Col,
-				Err: newProblem(ErrSyntax, "%s", syntaxMessage(pe))})
+			d.errs = append(d.errs, &Error{File: d.file, Line: pe.Position.Line, Col: pe.Position.Col,
+				Err: Problem(ErrSyntax, "%s", syntaxMessage(pe))})
 		} else {
-			d.errs = append(d.errs, &Error{File: filename, Err: newProblem(ErrSyntax, "%v", err)})
+			d.errs = append(d.errs, &Error{File: d.file, Err: Problem(ErrSyntax, "%v", err)})
 		}
 		return nil, d.errs
 	}
@@ -83,6 +87,10 @@ func syntaxMessage(pe toml.ParseError) string {
 	return "TOML syntax: " + msg
 }
 
+// noFile names the rig in messages when it has no file name: a rig parsed
+// from memory or built in code.
+const noFile = "<rig>"
+
 // decoder collects problems while it turns the decoded TOML into a Rig.
 type decoder struct {
 	file     string
@@ -101,7 +109,7 @@ func (d *decoder) add(path string, kind error, format string, args ...any) {
 	}
 	d.reported[path] = true
 	p := d.idx.at(path)
-	d.errs = append(d.errs, &Error{File: d.file, Line: p.line, Col: p.col, Key: path, Err: newProblem(kind, format, args...)})
+	d.errs = append(d.errs, &Error{File: d.file, Line: p.line, Col: p.col, Key: path, Err: Problem(kind, format, args...)})
 }
 
 func (d *decoder) sort() {

@@ -223,8 +223,11 @@ func (r *Rig) Channel(name string) (Channel, bool) {
 	return Channel{}, false
 }
 
-// Deg converts radians to degrees, for display and export.
+// Deg converts radians to degrees, for display and export (radians inside,
+// degrees only at the boundary). Deg and Rad are liftyard's one pair of
+// angle converters; a slope per rad times Rad(1) is a slope per degree.
 func Deg(rad float64) float64 { return rad * 180 / math.Pi }
 
-// Rad converts degrees to radians.
+// Rad converts degrees to radians, where a degree enters: a flag, a design
+// curve's alpha_deg, a tolerance written in degrees.
 func Rad(deg float64) float64 { return deg * math.Pi / 180 }

@@ -141,14 +141,14 @@ func Units(q Quantity) []string {
 // message lists the units that q accepts.
 func UnitToSI(q Quantity, unit string) (Affine, error) {
 	if !q.Known() {
-		return Affine{}, newProblem(ErrValue, "unknown quantity %q (use %s)", q, orList(quantityWords()))
+		return Affine{}, Problem(ErrValue, "unknown quantity %q (use %s)", q, orList(quantityWords()))
 	}
 	u, ok := lookupUnit(unit)
 	if !ok {
-		return Affine{}, newProblem(ErrUnit, "unknown unit %q%s (use %s)", unit, caseHint(unit), orList(Units(q)))
+		return Affine{}, Problem(ErrUnit, "unknown unit %q%s (use %s)", unit, caseHint(unit), orList(Units(q)))
 	}
 	if u.q != q {
-		return Affine{}, newProblem(ErrUnit, "unit %q is a %s unit, not a %s unit (use %s)", unit, u.q, q, orList(Units(q)))
+		return Affine{}, Problem(ErrUnit, "unit %q is a %s unit, not a %s unit (use %s)", unit, u.q, q, orList(Units(q)))
 	}
 	return u.toSI, nil
 }
@@ -167,22 +167,22 @@ var quantityRE = regexp.MustCompile(`^\s*([+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-
 func ParseQuantity(s string) (valueSI float64, q Quantity, err error) {
 	m := quantityRE.FindStringSubmatch(s)
 	if m == nil {
-		return 0, "", newProblem(ErrValue, "%q is not a number with a unit (write e.g. \"2 kN\" or \"500 Pa\")", s)
+		return 0, "", Problem(ErrValue, "%q is not a number with a unit (write e.g. \"2 kN\" or \"500 Pa\")", s)
 	}
 	v, perr := strconv.ParseFloat(m[1], 64)
 	if perr != nil || math.IsInf(v, 0) || math.IsNaN(v) {
-		return 0, "", newProblem(ErrValue, "%q: number out of range", s)
+		return 0, "", Problem(ErrValue, "%q: number out of range", s)
 	}
 	if m[2] == "" {
-		return 0, "", newProblem(ErrUnit, "%q has no unit (write e.g. \"%s N\" or \"%s Pa\")", s, m[1], m[1])
+		return 0, "", Problem(ErrUnit, "%q has no unit (write e.g. \"%s N\" or \"%s Pa\")", s, m[1], m[1])
 	}
 	u, ok := lookupUnit(m[2])
 	if !ok {
-		return 0, "", newProblem(ErrUnit, "unknown unit %q in %q%s", m[2], s, caseHint(m[2]))
+		return 0, "", Problem(ErrUnit, "unknown unit %q in %q%s", m[2], s, caseHint(m[2]))
 	}
 	si := u.toSI.Apply(v)
 	if math.IsInf(si, 0) {
-		return 0, "", newProblem(ErrValue, "%q: number out of range", s)
+		return 0, "", Problem(ErrValue, "%q: number out of range", s)
 	}
 	return si, u.q, nil
 }

@@ -253,3 +253,30 @@ func TestUnits_TemperatureConsistency(t *testing.T) {
 		}
 	}
 }
+
+// Ensure that Deg and Rad convert by the definition of the degree (π/180
+// rad, SI Brochure 9th ed. 2019, Table 8) and undo each other.
+func TestDegRad(t *testing.T) {
+	for _, c := range []struct {
+		name     string
+		deg, rad float64
+	}{
+		{"zero", 0, 0},
+		{"half turn", 180, math.Pi},
+		{"right angle", 90, math.Pi / 2},
+		{"negative", -45, -math.Pi / 4},
+		{"one degree", 1, math.Pi / 180},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			if got := rig.Rad(c.deg); math.Abs(got-c.rad) > 1e-15 {
+				t.Errorf("Rad(%g) = %.17g, want %.17g", c.deg, got, c.rad)
+			}
+			if got := rig.Deg(c.rad); math.Abs(got-c.deg) > 1e-12 {
+				t.Errorf("Deg(%.17g) = %.17g, want %g", c.rad, got, c.deg)
+			}
+			if got := rig.Deg(rig.Rad(c.deg)); math.Abs(got-c.deg) > 1e-12 {
+				t.Errorf("Deg(Rad(%g)) = %.17g", c.deg, got)
+			}
+		})
+	}
+}

@@ -14,7 +14,7 @@ import (
 // of the right quantity, the kind has what it needs, and every number is in
 // range. It returns Errors without file positions, or nil.
 func (r *Rig) Validate() error {
-	d := &decoder{reported: map[string]bool{}}
+	d := &decoder{file: noFile, reported: map[string]bool{}}
 	validate(r, d)
 	if len(d.errs) > 0 {
 		return d.errs

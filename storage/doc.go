@@ -1,19 +1,23 @@
 // Package storage keeps liftyard's record on disk: runs, the raw blocks of
-// every source, the result rows (segments) and the events of each run, in
-// one bbolt file. Raw readings are kept raw, so any run can be processed
-// again (for example after a corrected calibration).
+// every source, the result rows (segments), events and marks of each run,
+// and the calibration records, in one bbolt file. Raw readings are kept
+// raw, so any run can be processed again (for example after a corrected
+// calibration).
 //
 // # Layout
 //
 // Top-level buckets, all created in the file's first transaction:
 //
 //	meta/format                      "1"
+//	meta/marks/<run id u64 BE>       the run's hand-set segments (estimate.Mark), JSON
 //	runs/<run id u64 BE>             Run as JSON (rig file included)
 //	raw/<run id>/<source>/<key>      one acquire.Block per value, binary;
 //	                                 key = t0_us (sign-flipped u64 BE) + seq (u64 BE)
 //	results/<run id>/<index u32 BE>  estimate.Segment as JSON (NaN as null)
 //	events/<run id>/<t ns><seq u32>  Event as JSON
-//	cal/                             reserved for calibration records
+//	cal/rec/<id>                     calibration record (calibrate.Record), JSON
+//	cal/idx/<channel>/<created><seq> id: each channel's calibration history
+//	cal/run/<run id u64 BE>          ids of the calibrations a run used
 //
 // Big-endian keys make byte order equal time order, so cursors walk in
 // time. Samples are stored in blocks, never one sample per key: a block
@@ -39,10 +43,12 @@
 //
 // # Reading
 //
-// Readers use short read transactions: RawBlocks and ExportRaw read a few
-// dozen blocks per transaction and call back, or write, outside it. A long
-// read transaction would stall the writer whenever the file is re-mapped
-// and keep freed pages from reuse.
+// Readers use short read transactions: RawBlocks, ReplayBlocks and
+// ExportRaw read a few dozen blocks per transaction and call back, or
+// write, outside it. A long read transaction would stall the writer
+// whenever the file is re-mapped and keep freed pages from reuse.
+// ReplayBlocks merges the sources of a run by receive time, so a run can be
+// processed again as it was recorded; CorrectRun replaces its segments.
 //
 // # Caveats
 //

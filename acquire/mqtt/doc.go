@@ -1,7 +1,8 @@
 // Package mqtt connects liftyard to MQTT brokers: a Source that subscribes to
-// block payloads (DESIGN §3.3) with paho, a Publisher that sends blocks (the
-// simulator's side), an Outbox that publishes live results to a site broker
-// (DESIGN §7), and an embedded mochi broker for the demo and tests.
+// block payloads (acquire.DecodePayload) with paho, a Publisher that sends
+// blocks (the simulator's side), an Outbox that publishes messages such as
+// live results to a site broker (the rig file's [publish] table), and an
+// embedded mochi broker for the demo and tests.
 //
 // # Delivery
 //

@@ -14,7 +14,7 @@
 //
 // # Line formats
 //
-// FormatFrame (DESIGN §3.3, acquire.ParseFrame): one line per sample time,
+// FormatFrame (acquire.ParseFrame): one line per sample time,
 //
 //	17,1733061000000000,812.1,201.4*DFD2
 //

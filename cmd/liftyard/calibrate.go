@@ -197,9 +197,9 @@ func readPointsFile(path string) ([]calibrate.Point, error) {
 	defer f.Close()
 	pts, err := calibrate.ReadPoints(f)
 	if err != nil {
-		var pe *calibrate.PointsError
+		var pe *rig.Error
 		if errors.As(err, &pe) {
-			pe.Name = path
+			pe.File = path
 			return nil, usagef("%v", pe)
 		}
 		return nil, fmt.Errorf("points file %s: %w", path, err)

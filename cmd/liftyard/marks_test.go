@@ -63,7 +63,7 @@ func TestMarks_CLI(t *testing.T) {
 
 	// The record starts 2026-03-14 09:00:00 UTC: 2.0 s and 09:00:04Z give
 	// the same kind of time.
-	code, out, errOut = runCLI(t, "marks", "--db", db, "--run", "1",
+	code, _, errOut = runCLI(t, "marks", "--db", db, "--run", "1",
 		"--add", "0.5,2.2,hold at -4°, checked on video", "--add", "2.0s,4.0", "--apply")
 	require.Equal(t, 2, code, "a bad time is bad usage: %s", errOut)
 	assert.Contains(t, errOut, `"2.0s" is neither seconds`)
