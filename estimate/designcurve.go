@@ -11,6 +11,7 @@ import (
 	"strings"
 
 	"liftyard/calibrate"
+	"liftyard/rig"
 )
 
 // Design gives the design (predicted) lift coefficient of a body at an angle
@@ -197,7 +198,7 @@ func (d *DesignCurve) Describe() string {
 	if n == 0 {
 		return "design curve (empty)"
 	}
-	return fmt.Sprintf("design curve %s (%d points, %.1f° to %.1f°)", d.Name, n, deg(d.AlphaRad[0]), deg(d.AlphaRad[n-1]))
+	return fmt.Sprintf("design curve %s (%d points, %.1f° to %.1f°)", d.Name, n, rig.Deg(d.AlphaRad[0]), rig.Deg(d.AlphaRad[n-1]))
 }
 
 // HelmboldBelowAspectRatio is where ThinAirfoil switches from Prandtl's
@@ -243,11 +244,11 @@ func (t ThinAirfoil) At(alphaRad float64) (calibrate.Value, float64, bool) {
 func (t ThinAirfoil) Describe() string {
 	switch {
 	case !(t.AspectRatio > 0):
-		return fmt.Sprintf("thin-airfoil theory, 2π/rad, α_L0 = %.2f°", deg(t.AlphaZeroRad))
+		return fmt.Sprintf("thin-airfoil theory, 2π/rad, α_L0 = %.2f°", rig.Deg(t.AlphaZeroRad))
 	case t.AspectRatio < HelmboldBelowAspectRatio:
-		return fmt.Sprintf("thin-airfoil 2π/rad with Helmbold's correction for AR %.2f: %.3f/rad, α_L0 = %.2f°", t.AspectRatio, t.SlopePerRad(), deg(t.AlphaZeroRad))
+		return fmt.Sprintf("thin-airfoil 2π/rad with Helmbold's correction for AR %.2f: %.3f/rad, α_L0 = %.2f°", t.AspectRatio, t.SlopePerRad(), rig.Deg(t.AlphaZeroRad))
 	}
-	return fmt.Sprintf("thin-airfoil 2π/rad with lifting-line correction for AR %.2f: %.3f/rad, α_L0 = %.2f°", t.AspectRatio, t.SlopePerRad(), deg(t.AlphaZeroRad))
+	return fmt.Sprintf("thin-airfoil 2π/rad with lifting-line correction for AR %.2f: %.3f/rad, α_L0 = %.2f°", t.AspectRatio, t.SlopePerRad(), rig.Deg(t.AlphaZeroRad))
 }
 
 // DesignAt returns the design value at a measured point and the normalised
@@ -303,6 +304,18 @@ const (
 	VerdictNone      = "no comparison"
 )
 
+// Agrees applies the comparison rule of every result against its design
+// value: a measurement agrees when its normalised error |En| ≤ 1 (En =
+// (x − X)/√(U_x² + U_X²) with expanded uncertainties, as used in proficiency
+// testing, ISO/IEC 17043 and ISO 13528 §9.7). ok is false when en is not a
+// number (no comparison made); agrees is then false.
+func Agrees(en float64) (agrees, ok bool) {
+	if !finite(en) {
+		return false, false
+	}
+	return math.Abs(en) <= 1, true
+}
+
 // Compare compares every segment with finite C_L against the design (En per
 // point, DesignAt) and sums up. The verdict is "agrees" when every compared
 // point has |En| ≤ 1, "disagrees" when any has not, and "no comparison"
@@ -324,7 +337,7 @@ func Compare(segs []Segment, d Design) Comparison {
 		pt := ComparisonPoint{Segment: s.Index, AlphaRad: s.AlphaRad.X, CL: s.CL, En: math.NaN()}
 		if dv, en, ok := DesignAt(d, s.AlphaRad, s.CL); ok {
 			pt.DesignCL, pt.En, pt.InDesign = dv, en, true
-			pt.Agrees = math.Abs(en) <= 1
+			pt.Agrees, _ = Agrees(en)
 			if pt.Agrees {
 				c.Agree++
 			} else {
@@ -382,11 +395,11 @@ func (c *Comparison) disagreeReasons(compared int) []string {
 	hasAgree := c.Agree > 0
 	switch {
 	case hasAgree && allBelow && lo > lastAgree:
-		out = append(out, fmt.Sprintf("all at or above %.1f°, with the measured lift below the design: stall (or separation) that the design does not model; compare over the attached range only, or give a design curve that includes the stall", deg(lo)))
+		out = append(out, fmt.Sprintf("all at or above %.1f°, with the measured lift below the design: stall (or separation) that the design does not model; compare over the attached range only, or give a design curve that includes the stall", rig.Deg(lo)))
 	case hasAgree && allBelow && hi < firstAgree:
-		out = append(out, fmt.Sprintf("all at or below %.1f°, with the measured lift above the design (less negative): negative stall that the design does not model", deg(hi)))
+		out = append(out, fmt.Sprintf("all at or below %.1f°, with the measured lift above the design (less negative): negative stall that the design does not model", rig.Deg(hi)))
 	case hasAgree && allAbove && lo > lastAgree:
-		out = append(out, fmt.Sprintf("all at or above %.1f°, with the measured lift above the design: check the design curve at high angles and the angle calibration", deg(lo)))
+		out = append(out, fmt.Sprintf("all at or above %.1f°, with the measured lift above the design: check the design curve at high angles and the angle calibration", rig.Deg(lo)))
 	case allAbove && (!hasAgree || (lo <= firstAgree && hi >= lastAgree)):
 		out = append(out, "the measured C_L is above the design wherever they disagree: an offset or scale error is likely; check the reference area, the normal-force zero (tare), the pitot coefficient and the angle zero")
 	case allBelow && (!hasAgree || (lo <= firstAgree && hi >= lastAgree)):
@@ -399,9 +412,9 @@ func (c *Comparison) disagreeReasons(compared int) []string {
 			if first.En > 0 {
 				steeper = "shallower"
 			}
-			out = append(out, fmt.Sprintf("the measured lift curve is %s than the design (disagreeing points of both signs from %.1f° to %.1f°): check the angle calibration's scale and the aspect-ratio (span) correction of the design", steeper, deg(lo), deg(hi)))
+			out = append(out, fmt.Sprintf("the measured lift curve is %s than the design (disagreeing points of both signs from %.1f° to %.1f°): check the angle calibration's scale and the aspect-ratio (span) correction of the design", steeper, rig.Deg(lo), rig.Deg(hi)))
 		} else {
-			out = append(out, fmt.Sprintf("disagreeing points of both signs between %.1f° and %.1f°: look at the points one by one (unsteady flow, a bad step)", deg(lo), deg(hi)))
+			out = append(out, fmt.Sprintf("disagreeing points of both signs between %.1f° and %.1f°: look at the points one by one (unsteady flow, a bad step)", rig.Deg(lo), rig.Deg(hi)))
 		}
 	}
 	return out

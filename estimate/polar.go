@@ -12,6 +12,7 @@ import (
 	"gonum.org/v1/gonum/stat/distuv"
 
 	"liftyard/calibrate"
+	"liftyard/rig"
 )
 
 // ErrPolar is returned by FitPolar when the points cannot give a lift-curve
@@ -257,7 +258,7 @@ func FitPolar(segs []Segment, opts PolarOptions) (Polar, error) {
 		}
 		if lo < 0 || hi-lo+1 < minPts {
 			return p, fmt.Errorf("%d points in the given range %.2f°…%.2f°, need at least %d: %w",
-				max(0, hi-lo+1), deg(opts.AlphaMinRad), deg(opts.AlphaMaxRad), minPts, ErrPolar)
+				max(0, hi-lo+1), rig.Deg(opts.AlphaMinRad), rig.Deg(opts.AlphaMaxRad), minPts, ErrPolar)
 		}
 	} else {
 		var err error
@@ -292,7 +293,7 @@ func FitPolar(segs []Segment, opts PolarOptions) (Polar, error) {
 		p.Warnings = append(p.Warnings, fmt.Sprintf("scatter about the lift line exceeds the stated uncertainties (χ²/ν = %.1f): the fit's uncertainties are scaled up; look for unsteady points or a wrong calibration u", lf.chi2/float64(p.FitDof)))
 	}
 	if hi-lo+1 == minPts && opts.AlphaMinRad == 0 && opts.AlphaMaxRad == 0 {
-		p.Warnings = append(p.Warnings, fmt.Sprintf("the linear range holds only %d points: add angle steps between %.1f° and %.1f°", minPts, deg(p.LinearMinRad), deg(p.LinearMaxRad)))
+		p.Warnings = append(p.Warnings, fmt.Sprintf("the linear range holds only %d points: add angle steps between %.1f° and %.1f°", minPts, rig.Deg(p.LinearMinRad), rig.Deg(p.LinearMaxRad)))
 	}
 
 	// Stall and C_L,max.
@@ -317,7 +318,7 @@ func FitPolar(segs []Segment, opts PolarOptions) (Polar, error) {
 		}
 	}
 	if !p.Stalled && bend >= 0 {
-		p.Warnings = append(p.Warnings, fmt.Sprintf("C_L falls below the lift line from %.1f° while still rising: onset of stall; measure higher angles to find C_L,max", deg(pts[bend].alpha)))
+		p.Warnings = append(p.Warnings, fmt.Sprintf("C_L falls below the lift line from %.1f° while still rising: onset of stall; measure higher angles to find C_L,max", rig.Deg(pts[bend].alpha)))
 	}
 	if p.Stalled {
 		best = runMax
@@ -614,5 +615,3 @@ func (p *Polar) fitDrag(pts []polarPoint) {
 		}
 	}
 }
-
-func deg(rad float64) float64 { return rad * 180 / math.Pi }
