@@ -11,6 +11,7 @@ import (
 	"time"
 
 	"liftyard/estimate"
+	"liftyard/rig"
 	"liftyard/storage"
 )
 
@@ -168,7 +169,7 @@ func (s *Server) run(id uint64) (storage.Run, []segmentJSON, error) {
 	if err != nil {
 		return storage.Run{}, nil, fmt.Errorf("read segments of run %d: %w", id, err)
 	}
-	return r, segmentsOf(id, ss), nil
+	return r, segmentsOf(id, rig.Kind(r.Kind), ss), nil
 }
 
 func (s *Server) apiLive(w http.ResponseWriter, r *http.Request) {
@@ -309,11 +310,11 @@ func (s *Server) stream(w http.ResponseWriter, r *http.Request) {
 	}
 }
 
-// segmentsOf converts store segments for a template.
-func segmentsOf(run uint64, ss []estimate.Segment) []segmentJSON {
+// segmentsOf renders the stored segments of a run of rig kind kind.
+func segmentsOf(run uint64, kind rig.Kind, ss []estimate.Segment) []segmentJSON {
 	out := make([]segmentJSON, len(ss))
 	for i, s := range ss {
-		out[i] = toSegmentJSON(run, s)
+		out[i] = toSegmentRow(run, kind, s)
 	}
 	return out
 }

@@ -1,9 +1,7 @@
 package dashboard
 
 import (
-	"fmt"
 	"math"
-	"strconv"
 	"time"
 
 	"liftyard/acquire"
@@ -13,33 +11,10 @@ import (
 	"liftyard/storage"
 )
 
-// num is a float64 that encodes as JSON null when it is NaN or infinite
-// (encoding/json refuses those), so one missing quantity never hides the
-// rest of an estimate.
-type num float64
-
-func (n num) MarshalJSON() ([]byte, error) {
-	f := float64(n)
-	if math.IsNaN(f) || math.IsInf(f, 0) {
-		return []byte("null"), nil
-	}
-	return strconv.AppendFloat(nil, f, 'g', -1, 64), nil
-}
-
-// UnmarshalJSON reads null back as NaN, so a decoded estimate shows "—"
-// where the published one had no value.
-func (n *num) UnmarshalJSON(b []byte) error {
-	if string(b) == "null" {
-		*n = num(math.NaN())
-		return nil
-	}
-	f, err := strconv.ParseFloat(string(b), 64)
-	if err != nil {
-		return fmt.Errorf("number %q: %w", b, err)
-	}
-	*n = num(f)
-	return nil
-}
+// num is the one NaN-safe JSON number of liftyard (estimate.Num): NaN is
+// null, so one missing quantity never hides the rest of an estimate, and
+// null reads back as NaN, shown as "—".
+type num = estimate.Num
 
 // measured reports whether v holds a measurement: the zero Value means "not
 // measured" (calibrate.Value doc) and NaN means "could not be computed".
@@ -66,9 +41,6 @@ func u95(v calibrate.Value) num {
 	}
 	return num(v.U95())
 }
-
-// deg converts an angle for display; NaN passes through.
-func deg(n num) num { return num(rig.Deg(float64(n))) }
 
 // froude shows the Froude number, which estimate leaves at 0 where it does
 // not apply (air rigs), as null.
@@ -126,13 +98,13 @@ type zoneLiveJSON struct {
 	Agrees      *bool  `json:"agrees"`
 }
 
-// agrees is |en| ≤ 1 (DESIGN §4 "Comparison"), nil when en is not a number.
+// agrees is estimate.Agrees (|en| ≤ 1), nil when en is not a number.
 func agrees(en float64) *bool {
-	if math.IsNaN(en) || math.IsInf(en, 0) {
+	a, ok := estimate.Agrees(en)
+	if !ok {
 		return nil
 	}
-	ok := math.Abs(en) <= 1
-	return &ok
+	return &a
 }
 
 func toZonesJSON(zs []estimate.ZoneLive) []zoneLiveJSON {
@@ -159,15 +131,15 @@ func toLiveJSON(l estimate.Live) liveJSON {
 		w = []string{}
 	}
 	return liveJSON{
-		T:           l.T,
+		T:           l.T.UTC(),
 		WindowS:     num(l.Window.Seconds()),
 		N:           l.N,
 		QPa:         x(l.QPa),
 		QU95Pa:      u95(l.QPa),
 		SpeedMS:     x(l.SpeedMPerS),
 		SpeedU95MS:  u95(l.SpeedMPerS),
-		AlphaDeg:    deg(x(l.AlphaRad)),
-		AlphaU95Deg: deg(u95(l.AlphaRad)),
+		AlphaDeg:    num(rig.Deg(float64(x(l.AlphaRad)))),
+		AlphaU95Deg: num(rig.Deg(float64(u95(l.AlphaRad)))),
 		CL:          x(l.CL),
 		CLU95:       u95(l.CL),
 		CD:          x(l.CD),
@@ -186,106 +158,89 @@ func toLiveJSON(l estimate.Live) liveJSON {
 	}
 }
 
-// segmentJSON is the wire form of an estimate.Segment, with the field names
-// of the segment export (DESIGN §3.4).
+// segmentJSON is one result row as the API (/api/v1/runs/{id}/segments),
+// the live stream, the MQTT segment message and the run page show it. Its
+// JSON is the row itself (estimate.Row, rendered from the result column
+// table: inapplicable and missing fields absent). The other fields are the
+// row's values read back by column name for the templates and plots, NaN
+// where the row has none (shown as "—").
 type segmentJSON struct {
-	Run         uint64    `json:"run"`
-	Segment     int       `json:"segment"`
-	TStart      time.Time `json:"t_start"`
-	TEnd        time.Time `json:"t_end"`
-	N           int       `json:"n"`
-	NEff        num       `json:"n_eff"`
-	AlphaDeg    num       `json:"alpha_deg"`
-	AlphaU95Deg num       `json:"alpha_u95_deg"`
-	QPa         num       `json:"q_pa"`
-	QU95Pa      num       `json:"q_u95_pa"`
-	SpeedMS     num       `json:"speed_m_s"`
-	SpeedU95MS  num       `json:"speed_u95_m_s"`
-	RhoKgM3     num       `json:"rho_kg_m3"`
-	MuPaS       num       `json:"mu_pa_s"`
-	Re          num       `json:"re"`
-	Fn          num       `json:"fn"` // Froude number, water rigs; null otherwise
-	LiftN       num       `json:"lift_n"`
-	LiftU95N    num       `json:"lift_u95_n"`
-	DragN       num       `json:"drag_n"`
-	DragU95N    num       `json:"drag_u95_n"`
-	CL          num       `json:"cl"`
-	CLU95       num       `json:"cl_u95"`
-	CD          num       `json:"cd"`
-	CDU95       num       `json:"cd_u95"`
-	SpinRatio   num       `json:"spin_ratio"`
-	DesignCL    num       `json:"design_cl"`
-	DesignCLU95 num       `json:"design_cl_u95"`
-	En          num       `json:"en"`
-	// Roof rows only (one zone in one block); absent on other rows.
-	*roofSegmentJSON
+	row     estimate.Row
+	Segment int
+	TStart  time.Time
+	N       int
+
+	NEff, AlphaDeg, AlphaU95Deg, QPa, QU95Pa, SpeedMS, Re, CL, CLU95, CD, CDU95 num
+	SpinRatio, DesignCL, DesignCLU95, En                                        num
+
+	roof *roofView // roof rows only
 }
 
-// roofSegmentJSON is the roof part of a segment row, named as in the
-// segment export: the zone's net Cp mean with U95, its rms over the block,
-// the Gumbel peak, the mean net force (negative = upward) and the design
-// value. En in the row compares cp_mean with design_cp.
-type roofSegmentJSON struct {
-	Zone        string `json:"zone"`
-	CpMean      num    `json:"cp_mean"`
-	CpU95       num    `json:"cp_u95"`
-	CpRMS       num    `json:"cp_rms"`
-	CpPeak      num    `json:"cp_peak"`
-	UpliftN     num    `json:"uplift_n"`
-	UpliftU95N  num    `json:"uplift_u95_n"`
-	DesignCp    num    `json:"design_cp"`
-	DesignCpU95 num    `json:"design_cp_u95"`
-	Agrees      *bool  `json:"agrees"`
+// roofView is the roof part of a segment row for the templates and the
+// zone plot: the zone's net Cp mean with U95, its rms over the block, the
+// Gumbel peak, the mean net force (negative = upward) and the design value.
+type roofView struct {
+	Zone                                                                     string
+	CpMean, CpU95, CpRMS, CpPeak, UpliftN, UpliftU95N, DesignCp, DesignCpU95 num
+	Agrees                                                                   *bool // nil without a design value
 }
 
+// MarshalJSON writes the row (estimate.Row.MarshalJSON).
+func (s segmentJSON) MarshalJSON() ([]byte, error) { return s.row.MarshalJSON() }
+
+// UnmarshalJSON reads a row written by MarshalJSON, e.g. a segment kept by
+// the live hub.
+func (s *segmentJSON) UnmarshalJSON(b []byte) error {
+	var r estimate.Row
+	if err := r.UnmarshalJSON(b); err != nil {
+		return err
+	}
+	*s = segmentView(r)
+	return nil
+}
+
+// segmentView reads the display fields of a row.
+func segmentView(r estimate.Row) segmentJSON {
+	f := func(name string) num { return num(r.Float(name)) }
+	integer := func(name string) int {
+		v, _ := r.Value(name)
+		i, _ := v.(int64)
+		return int(i)
+	}
+	s := segmentJSON{
+		row: r, Segment: integer("segment"), N: integer("n"),
+		NEff: f("n_eff"), AlphaDeg: f("alpha_deg"), AlphaU95Deg: f("alpha_u95_deg"), QPa: f("q_pa"), QU95Pa: f("q_u95_pa"),
+		SpeedMS: f("speed_m_s"), Re: f("re"), CL: f("cl"), CLU95: f("cl_u95"), CD: f("cd"), CDU95: f("cd_u95"),
+		SpinRatio: f("spin_ratio"), DesignCL: f("design_cl"), DesignCLU95: f("design_cl_u95"), En: f("en"),
+	}
+	if v, ok := r.Value("t_start"); ok {
+		s.TStart, _ = v.(time.Time)
+	}
+	if r.Kind() == rig.KindRoof {
+		zone, _ := r.Value("zone")
+		rv := &roofView{
+			CpMean: f("cp_mean"), CpU95: f("cp_u95"), CpRMS: f("cp_rms"), CpPeak: f("cp_peak"),
+			UpliftN: f("uplift_n"), UpliftU95N: f("uplift_u95_n"), DesignCp: f("design_cp"), DesignCpU95: f("design_cp_u95"),
+		}
+		rv.Zone, _ = zone.(string)
+		if v, ok := r.Value("agrees"); ok {
+			a, _ := v.(bool)
+			rv.Agrees = &a
+		}
+		s.roof = rv
+	}
+	return s
+}
+
+// toSegmentJSON renders segment s of run; the row's kind is s.Kind (set by
+// the estimator), else guessed from its fields (estimate.KindOf).
 func toSegmentJSON(run uint64, s estimate.Segment) segmentJSON {
-	j := toBalanceSegmentJSON(run, s)
-	if s.Zone != "" {
-		en := s.En
-		if !measured(s.DesignCp) {
-			en = math.NaN()
-		}
-		j.En = num(en)
-		j.roofSegmentJSON = &roofSegmentJSON{
-			Zone: s.Zone, CpMean: x(s.CpMean), CpU95: u95(s.CpMean), CpRMS: num(s.CpRMS), CpPeak: num(s.CpPeak),
-			UpliftN: x(s.UpliftN), UpliftU95N: u95(s.UpliftN), DesignCp: x(s.DesignCp), DesignCpU95: u95(s.DesignCp),
-			Agrees: agrees(en),
-		}
-	}
-	return j
+	return toSegmentRow(run, "", s)
 }
 
-func toBalanceSegmentJSON(run uint64, s estimate.Segment) segmentJSON {
-	return segmentJSON{
-		Run:         run,
-		Segment:     s.Index,
-		TStart:      s.TStart,
-		TEnd:        s.TEnd,
-		N:           s.N,
-		NEff:        num(s.NEff),
-		AlphaDeg:    deg(x(s.AlphaRad)),
-		AlphaU95Deg: deg(u95(s.AlphaRad)),
-		QPa:         x(s.QPa),
-		QU95Pa:      u95(s.QPa),
-		SpeedMS:     x(s.SpeedMPerS),
-		SpeedU95MS:  u95(s.SpeedMPerS),
-		RhoKgM3:     num(s.RhoKgPerM3),
-		MuPaS:       num(s.MuPaS),
-		Re:          num(s.Re),
-		Fn:          froude(s.Fn),
-		LiftN:       x(s.LiftN),
-		LiftU95N:    u95(s.LiftN),
-		DragN:       x(s.DragN),
-		DragU95N:    u95(s.DragN),
-		CL:          x(s.CL),
-		CLU95:       u95(s.CL),
-		CD:          x(s.CD),
-		CDU95:       u95(s.CD),
-		SpinRatio:   num(s.SpinRatio),
-		DesignCL:    x(s.DesignCL),
-		DesignCLU95: u95(s.DesignCL),
-		En:          num(s.En),
-	}
+// toSegmentRow renders segment s of a run of rig kind kind.
+func toSegmentRow(run uint64, kind rig.Kind, s estimate.Segment) segmentJSON {
+	return segmentView(estimate.NewRow(run, kind, &s))
 }
 
 // runJSON is a storage.Run with its duration, which the run list shows.
@@ -316,6 +271,8 @@ func toRunJSON(r storage.Run, now time.Time) runJSON {
 	if r.Sources == nil {
 		r.Sources = []acquire.HealthSnapshot{}
 	}
+	// One time format everywhere: RFC 3339 in UTC.
+	r.Started, r.Ended = r.Started.UTC(), r.Ended.UTC()
 	return runJSON{Run: r, DurationS: num(runDuration(r, now).Seconds())}
 }
 
@@ -324,7 +281,8 @@ func toRunJSON(r storage.Run, now time.Time) runJSON {
 func EncodeLive(l estimate.Live) []byte { return mustJSON(toLiveJSON(l)) }
 
 // EncodeSegment returns a segment result of run as the JSON of the API's
-// segment rows.
+// segment rows (the result column table, estimate.Columns): the MQTT segment
+// message.
 func EncodeSegment(run uint64, s estimate.Segment) []byte { return mustJSON(toSegmentJSON(run, s)) }
 
 // EncodeHealth returns a health report as the JSON of GET /api/v1/health.

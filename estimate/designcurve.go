@@ -290,6 +290,18 @@ const (
 	VerdictNone      = "no comparison"
 )
 
+// Agrees applies the comparison rule of every result against its design
+// value: a measurement agrees when its normalised error |En| ≤ 1 (En =
+// (x − X)/√(U_x² + U_X²) with expanded uncertainties, as used in proficiency
+// testing, ISO/IEC 17043 and ISO 13528 §9.7). ok is false when en is not a
+// number (no comparison made); agrees is then false.
+func Agrees(en float64) (agrees, ok bool) {
+	if !finite(en) {
+		return false, false
+	}
+	return math.Abs(en) <= 1, true
+}
+
 // Compare compares every segment with finite C_L against the design (En per
 // point, DesignAt) and sums up. The verdict is "agrees" when every compared
 // point has |En| ≤ 1, "disagrees" when any has not, and "no comparison"
@@ -311,7 +323,7 @@ func Compare(segs []Segment, d Design) Comparison {
 		pt := ComparisonPoint{Segment: s.Index, AlphaRad: s.AlphaRad.X, CL: s.CL, En: math.NaN()}
 		if dv, en, ok := DesignAt(d, s.AlphaRad, s.CL); ok {
 			pt.DesignCL, pt.En, pt.InDesign = dv, en, true
-			pt.Agrees = math.Abs(en) <= 1
+			pt.Agrees, _ = Agrees(en)
 			if pt.Agrees {
 				c.Agree++
 			} else {

@@ -441,6 +441,7 @@ func (e *Estimator) reduceBuf(buf *sampleBuf) (Segment, bool) {
 		return Segment{}, false
 	}
 	seg := Segment{
+		Kind:   e.rig.Kind,
 		TStart: time.UnixMicro(buf.tUs[0]).UTC(), TEnd: time.UnixMicro(buf.tUs[len(buf.tUs)-1]).UTC(),
 		N: p.N, NEff: p.NEff, AlphaRad: p.AlphaRad, QPa: p.QPa, SpeedMPerS: p.SpeedMPerS,
 		RhoKgPerM3: fl.RhoKgPerM3, MuPaS: fl.MuPaS, Re: p.Re, LiftN: p.LiftN, DragN: p.DragN,

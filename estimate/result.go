@@ -4,6 +4,7 @@ import (
 	"time"
 
 	"liftyard/calibrate"
+	"liftyard/rig"
 )
 
 // Contribution is one line of an uncertainty budget (JCGM 100 §8): how much
@@ -25,6 +26,7 @@ type Contribution struct {
 // standard uncertainty (U95() gives the expanded one).
 type Segment struct {
 	Index      int       // 0-based segment number within the run
+	Kind       rig.Kind  // rig kind that produced the row; "" in rows stored before it was recorded (KindOf)
 	TStart     time.Time // first sample used (device clock)
 	TEnd       time.Time // last sample used (device clock)
 	N          int       // samples used

@@ -473,7 +473,7 @@ func (e *RoofEstimator) closeBlock(out []Segment) []Segment {
 			continue
 		}
 		s := Segment{
-			Index: e.segments, TStart: time.UnixMicro(e.blk.tUs[0]).UTC(),
+			Kind: rig.KindRoof, Index: e.segments, TStart: time.UnixMicro(e.blk.tUs[0]).UTC(),
 			TEnd: time.UnixMicro(e.blk.tUs[n-1]).UTC(), N: r.n, NEff: r.nEff,
 			QPa: r.q, SpeedMPerS: e.speed(r.q), RhoKgPerM3: e.fluid.RhoKgPerM3, MuPaS: e.fluid.MuPaS,
 			En: math.NaN(), Zone: e.zones[z].name, CpMean: r.cp, CpRMS: r.rms, CpPeak: r.peak,

@@ -249,41 +249,28 @@ func orDash(s string) string {
 }
 
 func (r *Report) segRow(s estimate.Segment, linear bool) segRow {
+	// The values come through the result column table, so the report shows
+	// a value exactly where the exports and the API have one.
+	row := estimate.NewRow(r.Run.ID, rig.Kind(r.Run.Kind), &s)
+	f := row.Float
 	sr := segRow{
 		Index:  strconv.Itoa(s.Index),
-		Alpha:  pm(rig.Deg(s.AlphaRad.X), rig.Deg(u95Of(s.AlphaRad)), 2),
-		Q:      pm(s.QPa.X, u95Of(s.QPa), 1),
-		V:      pm(s.SpeedMPerS.X, u95Of(s.SpeedMPerS), 3),
-		Re:     sig(s.Re, 2),
-		Fn:     fix(s.Fn, 3),
-		Spin:   fix(s.SpinRatio, 3),
-		CL:     pm(s.CL.X, u95Of(s.CL), 3),
-		CD:     pm(s.CD.X, u95Of(s.CD), 4),
+		Alpha:  pm(f("alpha_deg"), f("alpha_u95_deg"), 2),
+		Q:      pm(f("q_pa"), f("q_u95_pa"), 1),
+		V:      pm(f("speed_m_s"), f("speed_u95_m_s"), 3),
+		Re:     sig(f("re"), 2),
+		Fn:     fix(f("fn"), 3),
+		Spin:   fix(f("spin_ratio"), 3),
+		CL:     pm(f("cl"), f("cl_u95"), 3),
+		CD:     pm(f("cd"), f("cd_u95"), 4),
 		N:      strconv.Itoa(s.N),
-		NEff:   fix(s.NEff, 0),
-		Design: dash,
-		En:     dash,
+		NEff:   fix(f("n_eff"), 0),
+		Design: pm(f("design_cl"), f("design_cl_u95"), 3),
+		En:     fix(f("en"), 2),
 		Linear: linear,
 	}
-	if !measured(s.AlphaRad) {
-		sr.Alpha = dash
-	}
-	if !measured(s.QPa) {
-		sr.Q = dash
-	}
-	if !measured(s.SpeedMPerS) {
-		sr.V = dash
-	}
-	if !measured(s.CL) {
-		sr.CL = dash
-	}
-	if !measured(s.CD) {
-		sr.CD = dash
-	}
-	if s.DesignCL != (calibrate.Value{}) {
-		sr.Design = pm(s.DesignCL.X, s.DesignCL.U95(), 3)
-		sr.En = fix(s.En, 2)
-		sr.Disagree = finite(s.En) && math.Abs(s.En) > 1
+	if a, ok := row.Value("agrees"); ok {
+		sr.Disagree = !a.(bool)
 	}
 	return sr
 }

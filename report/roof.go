@@ -7,6 +7,8 @@ import (
 	"gonum.org/v1/plot/plotter"
 	"gonum.org/v1/plot/vg"
 	"gonum.org/v1/plot/vg/draw"
+
+	"liftyard/estimate"
 	"liftyard/rig"
 )
 
@@ -21,34 +23,30 @@ type roofRow struct {
 }
 
 // roofRows lists the roof segments in stored order (block by block, zone
-// by zone); rows without a zone are skipped.
+// by zone); rows without a zone are skipped. The values come through the
+// result column table (estimate.NewRow), as in the exports and the API.
 func (r *Report) roofRows() []roofRow {
 	var out []roofRow
 	for _, s := range r.Segments {
 		if s.Zone == "" {
 			continue
 		}
-		row := roofRow{
+		row := estimate.NewRow(r.Run.ID, rig.KindRoof, &s)
+		f := row.Float
+		rr := roofRow{
 			Index: fmt.Sprint(s.Index), Zone: s.Zone, Start: when(s.TStart),
-			Q:  pm(s.QPa.X, u95Of(s.QPa), 1),
-			Cp: pm(s.CpMean.X, u95Of(s.CpMean), 2), RMS: fix(s.CpRMS, 2), Peak: fix(s.CpPeak, 2),
-			Uplift: pm(s.UpliftN.X, u95Of(s.UpliftN), 0),
-			Design: "—", En: "—", Agrees: "—",
+			Q:  pm(f("q_pa"), f("q_u95_pa"), 1),
+			Cp: pm(f("cp_mean"), f("cp_u95"), 2), RMS: fix(f("cp_rms"), 2), Peak: fix(f("cp_peak"), 2),
+			Uplift: pm(f("uplift_n"), f("uplift_u95_n"), 0),
+			Design: pm(f("design_cp"), f("design_cp_u95"), 2), En: fix(f("en"), 2), Agrees: dash,
 		}
-		if !measured(s.CpMean) {
-			row.Cp = "—"
-		}
-		if measured(s.DesignCp) {
-			row.Design = pm(s.DesignCp.X, s.DesignCp.U95(), 2)
-			if finite(s.En) {
-				row.En = fix(s.En, 2)
-				row.Agrees = "yes"
-				if math.Abs(s.En) > 1 {
-					row.Agrees, row.Disagree = "no", true
-				}
+		if a, ok := row.Value("agrees"); ok {
+			rr.Agrees = "yes"
+			if !a.(bool) {
+				rr.Agrees, rr.Disagree = "no", true
 			}
 		}
-		out = append(out, row)
+		out = append(out, rr)
 	}
 	return out
 }
@@ -65,9 +63,9 @@ func (r *Report) roofSummary() []string {
 		}
 		rows++
 		zones[s.Zone] = true
-		if measured(s.DesignCp) && finite(s.En) {
+		if a, ok := estimate.Agrees(s.En); ok && measured(s.DesignCp) {
 			compared++
-			if math.Abs(s.En) <= 1 {
+			if a {
 				agree++
 			}
 		}

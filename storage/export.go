@@ -3,183 +3,58 @@ package storage
 import (
 	"bufio"
 	"encoding/csv"
-	"encoding/json"
 	"fmt"
 	"io"
 	"math"
+	"slices"
 	"strconv"
-	"time"
 
 	"liftyard/acquire"
-	"liftyard/calibrate"
 	"liftyard/estimate"
+	"liftyard/rig"
 )
 
-// exportTimeLayout is RFC 3339 in UTC with microseconds always written
-// (the device clock counts µs).
-const exportTimeLayout = "2006-01-02T15:04:05.000000Z07:00"
-
-// segmentColumns are the fields of one exported segment, in order
-// (DESIGN §3.4). Field names carry units; "_u95" is the expanded (95 %)
-// uncertainty U = k·u with k from Student t (calibrate.Value.U95).
-var segmentColumns = []string{
-	"run", "segment", "t_start", "t_end", "n", "n_eff", "alpha_deg",
-	"q_pa", "q_u95_pa", "speed_m_s", "rho_kg_m3", "re",
-	"cl", "cl_u95", "cd", "cd_u95", "spin_ratio", "design_cl", "en",
-}
-
-// roofColumns follow segmentColumns for roof rows (DESIGN §3.4 "roof
-// fields where they apply"): one row is one zone in one block. cp_mean is
-// the zone's area-weighted net Cp (negative = uplift), cp_rms its standard
-// deviation over the block, cp_peak the expected extreme from the Gumbel
-// fit, uplift_n the mean net force on the zone (negative = upward) and
-// design_cp the zone's design net Cp; en compares cp_mean with design_cp.
-var roofColumns = []string{
-	"zone", "cp_mean", "cp_u95", "cp_rms", "cp_peak", "uplift_n", "uplift_u95_n", "design_cp",
-}
-
-// cell is one exported value: a JSON literal, or null (empty in CSV).
-type cell struct {
-	json string // JSON literal; "" means null
-	csv  string
-}
-
-var nullCell = cell{}
-
-func intCell(v int64) cell {
-	s := strconv.FormatInt(v, 10)
-	return cell{s, s}
-}
-
-// floatCell formats v as encoding/json does; NaN and ±Inf become null,
-// since JSON cannot hold them.
-func floatCell(v float64) cell {
-	if math.IsNaN(v) || math.IsInf(v, 0) {
-		return nullCell
-	}
-	b, _ := json.Marshal(v) // cannot fail for a finite float
-	return cell{string(b), string(b)}
-}
-
-func timeCell(t time.Time) cell {
-	if t.IsZero() {
-		return nullCell
-	}
-	s := t.UTC().Format(exportTimeLayout)
-	return cell{strconv.Quote(s), s}
-}
-
-// isZeroValue reports a calibrate.Value that means "not measured".
-func isZeroValue(v calibrate.Value) bool { return v.X == 0 && v.U == 0 && v.Dof == 0 }
-
-// radToDeg converts an angle for display and export only (STYLE §2).
-func radToDeg(rad float64) float64 { return rad * 180 / math.Pi }
-
-// segmentCells gives the segmentColumns of one row. On a roof row (Zone
-// set) the balance fields that do not apply — alpha_deg, cl, cd, their
-// U95, spin_ratio, design_cl — are null, and en compares with design_cp.
-func segmentCells(run Run, sg *estimate.Segment) []cell {
-	roof := sg.Zone != ""
-	design := nullCell
-	if !roof && !isZeroValue(sg.DesignCL) {
-		design = floatCell(sg.DesignCL.X)
-	}
-	en := nullCell
-	if (!roof && !isZeroValue(sg.DesignCL)) || (roof && !isZeroValue(sg.DesignCp)) {
-		en = floatCell(sg.En) // NaN (no comparison made) is null as well
-	}
-	balance := func(v float64) cell {
-		if roof {
-			return nullCell
-		}
-		return floatCell(v)
-	}
-	return []cell{
-		intCell(int64(run.ID)), intCell(int64(sg.Index)), timeCell(sg.TStart), timeCell(sg.TEnd),
-		intCell(int64(sg.N)), floatCell(sg.NEff), balance(radToDeg(sg.AlphaRad.X)),
-		floatCell(sg.QPa.X), floatCell(sg.QPa.U95()), floatCell(sg.SpeedMPerS.X),
-		floatCell(sg.RhoKgPerM3), floatCell(sg.Re),
-		balance(sg.CL.X), balance(sg.CL.U95()), balance(sg.CD.X), balance(sg.CD.U95()),
-		balance(sg.SpinRatio), design, en,
-	}
-}
-
-// roofCells gives the roofColumns of one row; all null on a row without a
-// zone (a force-balance segment in a CSV that also holds roof rows).
-func roofCells(sg *estimate.Segment) []cell {
-	out := make([]cell, len(roofColumns))
-	if sg.Zone == "" {
-		return out
-	}
-	s := strconv.Quote(sg.Zone)
-	out[0] = cell{s, sg.Zone}
-	out[1], out[2] = floatCell(sg.CpMean.X), floatCell(sg.CpMean.U95())
-	out[3], out[4] = floatCell(sg.CpRMS), floatCell(sg.CpPeak)
-	out[5], out[6] = floatCell(sg.UpliftN.X), floatCell(sg.UpliftN.U95())
-	if !isZeroValue(sg.DesignCp) {
-		out[7] = floatCell(sg.DesignCp.X)
-	}
-	return out
-}
-
-// hasRoof reports whether any segment is a roof row.
-func hasRoof(segs []estimate.Segment) bool {
-	for i := range segs {
-		if segs[i].Zone != "" {
-			return true
-		}
-	}
-	return false
-}
-
 // ExportSegments writes the result rows of run in format "json" (an array,
-// one object per segment, fields as in DESIGN §3.4, null where a value does
-// not apply or is not a number) or "csv" (a header row, then the same fields,
-// an empty cell for null). design_cl and en are null when the segment has
-// no design value; t_start and t_end are RFC 3339 in UTC with microseconds;
-// alpha_deg is in degrees; *_u95 are expanded uncertainties at 95 %.
-//
-// Roof rows (Segment.Zone set) carry roofColumns after the common ones: in
-// JSON only on roof rows, in CSV as extra columns whenever the export
-// holds a roof row (empty cells on any other row). A force-balance export
-// is therefore unchanged by the roof fields.
+// one object per segment) or "csv" (a header row, then one row per
+// segment). Both render the result schema, estimate.Columns (listed in
+// docs/columns.md): a column that does not apply to a row's rig kind, or
+// that the row has no value for (no design value, NaN), is absent from the
+// JSON object and an empty CSV cell, never 0. Times are RFC 3339 in UTC
+// (estimate.TimeLayout); alpha_deg is in degrees; *_u95 are expanded
+// uncertainties at 95 %. The CSV header holds the columns that apply to the
+// kinds of the rows (of the run's kind when there are none).
 func ExportSegments(w io.Writer, run Run, segs []estimate.Segment, format string) error {
+	rows := make([]estimate.Row, len(segs))
+	for i := range segs {
+		rows[i] = estimate.NewRow(run.ID, rig.Kind(run.Kind), &segs[i])
+	}
 	switch format {
 	case "json":
-		return exportSegmentsJSON(w, run, segs)
+		return exportSegmentsJSON(w, rows)
 	case "csv":
-		return exportSegmentsCSV(w, run, segs)
+		return exportSegmentsCSV(w, run, rows)
 	}
 	return fmt.Errorf("export segments as %q: %w (use json or csv)", format, ErrFormat)
 }
 
-func exportSegmentsJSON(w io.Writer, run Run, segs []estimate.Segment) error {
+func exportSegmentsJSON(w io.Writer, rows []estimate.Row) error {
 	bw := bufio.NewWriter(w)
-	if len(segs) == 0 {
+	if len(rows) == 0 {
 		bw.WriteString("[]\n")
 		return bw.Flush()
 	}
 	bw.WriteString("[\n")
-	for i := range segs {
+	for i, r := range rows {
 		bw.WriteString("  {")
-		names, cells := segmentColumns, segmentCells(run, &segs[i])
-		if segs[i].Zone != "" {
-			names = append(append([]string(nil), segmentColumns...), roofColumns...)
-			cells = append(cells, roofCells(&segs[i])...)
-		}
-		for j, c := range cells {
+		for j, f := range r.Fields() {
 			if j > 0 {
 				bw.WriteString(", ")
 			}
-			bw.WriteString(strconv.Quote(names[j]))
+			bw.WriteString(strconv.Quote(f.Column.Name))
 			bw.WriteString(": ")
-			if c.json == "" {
-				bw.WriteString("null")
-			} else {
-				bw.WriteString(c.json)
-			}
+			bw.Write(f.JSON())
 		}
-		if i < len(segs)-1 {
+		if i < len(rows)-1 {
 			bw.WriteString("},\n")
 		} else {
 			bw.WriteString("}\n")
@@ -189,25 +64,23 @@ func exportSegmentsJSON(w io.Writer, run Run, segs []estimate.Segment) error {
 	return bw.Flush()
 }
 
-func exportSegmentsCSV(w io.Writer, run Run, segs []estimate.Segment) error {
-	cw := csv.NewWriter(w)
-	header, roof := segmentColumns, hasRoof(segs)
-	if roof {
-		header = append(append([]string(nil), segmentColumns...), roofColumns...)
+func exportSegmentsCSV(w io.Writer, run Run, rows []estimate.Row) error {
+	var kinds []rig.Kind
+	for _, r := range rows {
+		if k := r.Kind(); !slices.Contains(kinds, k) {
+			kinds = append(kinds, k)
+		}
 	}
-	if err := cw.Write(header); err != nil {
+	if len(kinds) == 0 && run.Kind != "" {
+		kinds = append(kinds, rig.Kind(run.Kind))
+	}
+	cols := estimate.ColumnsFor(kinds...)
+	cw := csv.NewWriter(w)
+	if err := cw.Write(estimate.Header(cols)); err != nil {
 		return err
 	}
-	row := make([]string, len(header))
-	for i := range segs {
-		cells := segmentCells(run, &segs[i])
-		if roof {
-			cells = append(cells, roofCells(&segs[i])...)
-		}
-		for j, c := range cells {
-			row[j] = c.csv
-		}
-		if err := cw.Write(row); err != nil {
+	for _, r := range rows {
+		if err := cw.Write(r.CSV(cols)); err != nil {
 			return err
 		}
 	}

@@ -64,8 +64,9 @@ func TestExportSegments_Golden(t *testing.T) {
 	}
 }
 
-// Ensure that the JSON export is valid JSON with exactly the contract's
-// fields, null where a value does not apply, and U95 = k·u.
+// Ensure that the JSON export is valid JSON with exactly the result
+// columns that apply to a foil row and have a value (absent, never null or
+// 0, where not), and U95 = k·u.
 func TestExportSegments_JSONFields(t *testing.T) {
 	run, segs := exportSegments()
 	var buf bytes.Buffer
@@ -76,25 +77,35 @@ func TestExportSegments_JSONFields(t *testing.T) {
 	if err := json.Unmarshal(buf.Bytes(), &rows); err != nil {
 		t.Fatalf("export is not JSON: %v", err)
 	}
-	want := "run segment t_start t_end n n_eff alpha_deg q_pa q_u95_pa speed_m_s rho_kg_m3 re cl cl_u95 cd cd_u95 spin_ratio design_cl en"
 	if len(rows) != 3 {
 		t.Fatalf("%d rows", len(rows))
 	}
+	always := "run segment kind t_start t_end n alpha_deg alpha_u95_deg q_pa q_u95_pa speed_m_s speed_u95_m_s rho_kg_m3 mu_pa_s re " +
+		"lift_n lift_u95_n drag_n drag_u95_n cl cl_u95 cd cd_u95"
 	for i, row := range rows {
-		if len(row) != len(strings.Fields(want)) {
-			t.Errorf("row %d has %d fields", i, len(row))
+		want := strings.Fields(always)
+		if i != 2 {
+			want = append(want, "n_eff") // row 2 has a NaN n_eff
 		}
-		for _, k := range strings.Fields(want) {
+		if i == 1 {
+			want = append(want, "design_cl", "design_cl_u95", "en", "agrees")
+		}
+		if len(row) != len(want) {
+			t.Errorf("row %d has %d fields, want %d: %v", i, len(row), len(want), row)
+		}
+		for _, k := range want {
 			if _, ok := row[k]; !ok {
 				t.Errorf("row %d lacks %q", i, k)
 			}
 		}
+		for _, k := range []string{"zone", "cp_mean", "spin_ratio", "fn"} {
+			if v, ok := row[k]; ok {
+				t.Errorf("row %d has %s = %v on a foil row (not a roof or rotor; Fn is 0 here)", i, k, v)
+			}
+		}
 	}
-	if rows[0]["en"] != nil || rows[0]["design_cl"] != nil || rows[2]["n_eff"] != nil {
-		t.Errorf("nulls: en %v design_cl %v n_eff %v", rows[0]["en"], rows[0]["design_cl"], rows[2]["n_eff"])
-	}
-	if rows[1]["en"] != -0.83 || rows[1]["design_cl"] != 0.22 {
-		t.Errorf("row 1 en %v design_cl %v", rows[1]["en"], rows[1]["design_cl"])
+	if rows[1]["en"] != -0.83 || rows[1]["design_cl"] != 0.22 || rows[1]["agrees"] != true || rows[1]["kind"] != "foil" {
+		t.Errorf("row 1 en %v design_cl %v agrees %v kind %v", rows[1]["en"], rows[1]["design_cl"], rows[1]["agrees"], rows[1]["kind"])
 	}
 	// α = 1 step of 2° (π/90 rad) is 2°.
 	if d := rows[1]["alpha_deg"].(float64); math.Abs(d-2) > 1e-12 {
@@ -105,13 +116,17 @@ func TestExportSegments_JSONFields(t *testing.T) {
 	if k := rows[0]["q_u95_pa"].(float64) / 6.1; k < 2.009 || k > 2.021 {
 		t.Errorf("q coverage factor %v, want between 2.009 and 2.021", k)
 	}
-	if ts := rows[0]["t_end"].(string); ts != "2025-06-14T09:31:15.000250Z" {
+	// RFC 3339 in UTC with the fractional digits the time needs.
+	if ts := rows[0]["t_end"].(string); ts != "2025-06-14T09:31:15.00025Z" {
 		t.Errorf("t_end = %q", ts)
+	}
+	if ts := rows[0]["t_start"].(string); ts != "2025-06-14T09:31:00Z" {
+		t.Errorf("t_start = %q", ts)
 	}
 }
 
-// Ensure that the CSV export has the same columns, one row per segment and
-// empty cells for null.
+// Ensure that the CSV export has the foil columns, one row per segment and
+// empty cells where the JSON leaves a field out.
 func TestExportSegments_CSV(t *testing.T) {
 	run, segs := exportSegments()
 	var buf bytes.Buffer
@@ -122,7 +137,19 @@ func TestExportSegments_CSV(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if len(recs) != 4 || recs[0][18] != "en" || recs[1][18] != "" || recs[2][18] != "-0.83" || recs[3][5] != "" {
+	if len(recs) != 4 {
+		t.Fatalf("%d records", len(recs))
+	}
+	col := map[string]int{}
+	for j, h := range recs[0] {
+		col[h] = j
+	}
+	for _, h := range []string{"zone", "cp_mean", "spin_ratio"} {
+		if _, ok := col[h]; ok {
+			t.Errorf("foil CSV has column %s", h)
+		}
+	}
+	if recs[1][col["en"]] != "" || recs[2][col["en"]] != "-0.83" || recs[3][col["n_eff"]] != "" || recs[2][col["agrees"]] != "true" {
 		t.Errorf("csv = %q", recs)
 	}
 }

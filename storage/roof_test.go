@@ -91,9 +91,10 @@ func TestExportSegments_RoofGolden(t *testing.T) {
 	}
 }
 
-// Ensure that roof rows carry the roof fields (DESIGN §3.4: zone, cp_mean,
-// cp_peak, cp_u95), null the balance fields that do not apply, compare En
-// with design_cp, and that U95 = k·u with k from Student t.
+// Ensure that roof rows carry the roof fields (zone, cp_mean, cp_peak,
+// cp_u95, ...), leave out the force-balance fields that do not apply (no
+// alpha_deg, re, cl or spin_ratio on a roof row: absent, not null or 0),
+// compare En with design_cp, and that U95 = k·u with k from Student t.
 func TestExportSegments_RoofJSON(t *testing.T) {
 	run, segs := roofSegments()
 	var buf bytes.Buffer
@@ -107,28 +108,29 @@ func TestExportSegments_RoofJSON(t *testing.T) {
 	if len(rows) != 3 {
 		t.Fatalf("%d rows", len(rows))
 	}
-	want := "run segment t_start t_end n n_eff alpha_deg q_pa q_u95_pa speed_m_s rho_kg_m3 re cl cl_u95 cd cd_u95 spin_ratio design_cl en " +
-		"zone cp_mean cp_u95 cp_rms cp_peak uplift_n uplift_u95_n design_cp"
+	want := "run segment kind t_start t_end n n_eff zone q_pa q_u95_pa speed_m_s speed_u95_m_s rho_kg_m3 mu_pa_s " +
+		"cp_mean cp_u95 cp_rms cp_peak uplift_n uplift_u95_n"
 	for i, row := range rows {
-		if len(row) != len(strings.Fields(want)) {
-			t.Errorf("row %d has %d fields, want %d", i, len(row), len(strings.Fields(want)))
+		w := strings.Fields(want)
+		if i == 0 {
+			w = append(w, "design_cp", "design_cp_u95", "en", "agrees")
 		}
-		for _, k := range strings.Fields(want) {
+		if len(row) != len(w) {
+			t.Errorf("row %d has %d fields, want %d: %v", i, len(row), len(w), row)
+		}
+		for _, k := range w {
 			if _, ok := row[k]; !ok {
 				t.Errorf("row %d lacks %q", i, k)
 			}
 		}
-		for _, k := range []string{"alpha_deg", "cl", "cl_u95", "cd", "cd_u95", "spin_ratio", "design_cl"} {
-			if row[k] != nil {
-				t.Errorf("row %d %s = %v on a roof row, want null", i, k, row[k])
+		for _, k := range []string{"alpha_deg", "re", "fn", "lift_n", "cl", "cl_u95", "cd", "cd_u95", "spin_ratio", "design_cl"} {
+			if v, ok := row[k]; ok {
+				t.Errorf("row %d has %s = %v on a roof row, want it absent", i, k, v)
 			}
 		}
 	}
-	if rows[0]["zone"] != "corner" || rows[0]["design_cp"] != -2.2 || rows[0]["en"] != 6.1 {
-		t.Errorf("row 0 zone %v design_cp %v en %v", rows[0]["zone"], rows[0]["design_cp"], rows[0]["en"])
-	}
-	if rows[1]["design_cp"] != nil || rows[1]["en"] != nil {
-		t.Errorf("row 1 without design: design_cp %v en %v", rows[1]["design_cp"], rows[1]["en"])
+	if rows[0]["zone"] != "corner" || rows[0]["design_cp"] != -2.2 || rows[0]["en"] != 6.1 || rows[0]["agrees"] != false {
+		t.Errorf("row 0 zone %v design_cp %v en %v agrees %v", rows[0]["zone"], rows[0]["design_cp"], rows[0]["en"], rows[0]["agrees"])
 	}
 	if rows[2]["cp_mean"] != -1.33 || rows[2]["cp_peak"] != -2.74 || rows[2]["uplift_n"] != -252.6 {
 		t.Errorf("row 2 cp_mean %v cp_peak %v uplift_n %v", rows[2]["cp_mean"], rows[2]["cp_peak"], rows[2]["uplift_n"])
@@ -143,9 +145,9 @@ func TestExportSegments_RoofJSON(t *testing.T) {
 	}
 }
 
-// Ensure that a CSV with roof rows adds the roof columns, and that a
-// force-balance row in the same export leaves them empty, while a
-// force-balance-only CSV keeps its columns (the foil golden).
+// Ensure that a CSV with roof rows and a force-balance row has the columns
+// of both kinds, each row empty in the other kind's columns, while a
+// roof-only CSV has no force-balance columns (the roof golden).
 func TestExportSegments_RoofCSV(t *testing.T) {
 	run, segs := roofSegments()
 	segs = append(segs, testSegment(3))
@@ -157,18 +159,34 @@ func TestExportSegments_RoofCSV(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if len(recs) != 5 || len(recs[0]) != 27 || recs[0][19] != "zone" || recs[0][26] != "design_cp" {
-		t.Fatalf("csv header %q (%d rows)", recs[0], len(recs))
+	if len(recs) != 5 {
+		t.Fatalf("%d records", len(recs))
 	}
-	if recs[1][19] != "corner" || recs[1][20] != "-1.31" || recs[1][12] != "" || recs[1][18] != "6.1" {
-		t.Errorf("roof row %q", recs[1])
+	col := map[string]int{}
+	for j, h := range recs[0] {
+		col[h] = j
 	}
-	for j := 19; j < 27; j++ {
-		if recs[4][j] != "" {
-			t.Errorf("force-balance row column %s = %q, want empty", recs[0][j], recs[4][j])
+	roofOnly := []string{"zone", "cp_mean", "cp_u95", "cp_rms", "cp_peak", "uplift_n", "uplift_u95_n", "design_cp", "design_cp_u95"}
+	balanceOnly := []string{"alpha_deg", "re", "cl", "cd", "design_cl"}
+	for _, h := range append(append([]string(nil), roofOnly...), balanceOnly...) {
+		if _, ok := col[h]; !ok {
+			t.Fatalf("csv header %q lacks %s", recs[0], h)
 		}
 	}
-	if recs[4][12] == "" {
-		t.Errorf("force-balance row lost its cl")
+	if r := recs[1]; r[col["zone"]] != "corner" || r[col["cp_mean"]] != "-1.31" || r[col["en"]] != "6.1" || r[col["kind"]] != "roof" {
+		t.Errorf("roof row %q", r)
+	}
+	for _, h := range balanceOnly {
+		if v := recs[1][col[h]]; v != "" {
+			t.Errorf("roof row column %s = %q, want empty", h, v)
+		}
+	}
+	for _, h := range roofOnly {
+		if v := recs[4][col[h]]; v != "" {
+			t.Errorf("force-balance row column %s = %q, want empty", h, v)
+		}
+	}
+	if recs[4][col["cl"]] == "" || recs[4][col["kind"]] != "foil" {
+		t.Errorf("force-balance row %q", recs[4])
 	}
 }

@@ -5,7 +5,6 @@ import (
 	"encoding/json"
 	"fmt"
 	"math"
-	"strconv"
 	"time"
 
 	bolt "go.etcd.io/bbolt"
@@ -14,54 +13,15 @@ import (
 	"liftyard/estimate"
 )
 
-// jfloat is a float64 that survives JSON: NaN is written as null and read
-// back as NaN (absent also reads as NaN where the record pre-sets it), and
-// ±Inf are written as the strings "+Inf" and "-Inf" (an exact uncertainty
-// has Dof = +Inf).
-type jfloat float64
-
-func (f jfloat) MarshalJSON() ([]byte, error) {
-	v := float64(f)
-	switch {
-	case math.IsNaN(v):
-		return []byte("null"), nil
-	case math.IsInf(v, 1):
-		return []byte(`"+Inf"`), nil
-	case math.IsInf(v, -1):
-		return []byte(`"-Inf"`), nil
-	}
-	return strconv.AppendFloat(nil, v, 'g', -1, 64), nil
-}
-
-func (f *jfloat) UnmarshalJSON(b []byte) error {
-	switch string(b) {
-	case "null":
-		*f = jfloat(math.NaN())
-		return nil
-	case `"+Inf"`:
-		*f = jfloat(math.Inf(1))
-		return nil
-	case `"-Inf"`:
-		*f = jfloat(math.Inf(-1))
-		return nil
-	}
-	v, err := strconv.ParseFloat(string(b), 64)
-	if err != nil {
-		return fmt.Errorf("number %q: %w", b, err)
-	}
-	*f = jfloat(v)
-	return nil
-}
-
 // valueRec is a calibrate.Value as stored.
 type valueRec struct {
-	X   jfloat `json:"x"`
-	U   jfloat `json:"u"`
-	Dof jfloat `json:"dof"`
+	X   estimate.Num `json:"x"`
+	U   estimate.Num `json:"u"`
+	Dof estimate.Num `json:"dof"`
 }
 
 func toValueRec(v calibrate.Value) valueRec {
-	return valueRec{jfloat(v.X), jfloat(v.U), jfloat(v.Dof)}
+	return valueRec{estimate.Num(v.X), estimate.Num(v.U), estimate.Num(v.Dof)}
 }
 
 func (r valueRec) value() calibrate.Value {
@@ -69,12 +29,12 @@ func (r valueRec) value() calibrate.Value {
 }
 
 type contributionRec struct {
-	Input       string `json:"input"`
-	U           jfloat `json:"u"`
-	Sensitivity jfloat `json:"sensitivity"`
-	UY          jfloat `json:"u_y"`
-	Dof         jfloat `json:"dof"`
-	TypeA       bool   `json:"type_a,omitempty"`
+	Input       string       `json:"input"`
+	U           estimate.Num `json:"u"`
+	Sensitivity estimate.Num `json:"sensitivity"`
+	UY          estimate.Num `json:"u_y"`
+	Dof         estimate.Num `json:"dof"`
+	TypeA       bool         `json:"type_a,omitempty"`
 }
 
 // segmentRec is an estimate.Segment as stored in results/<run>/<index>.
@@ -84,31 +44,31 @@ type segmentRec struct {
 	TStart     time.Time         `json:"t_start"`
 	TEnd       time.Time         `json:"t_end"`
 	N          int               `json:"n"`
-	NEff       jfloat            `json:"n_eff"`
+	NEff       estimate.Num      `json:"n_eff"`
 	AlphaRad   valueRec          `json:"alpha_rad"`
 	QPa        valueRec          `json:"q_pa"`
 	SpeedMPerS valueRec          `json:"speed_m_s"`
-	RhoKgPerM3 jfloat            `json:"rho_kg_m3"`
-	MuPaS      jfloat            `json:"mu_pa_s"`
-	Re         jfloat            `json:"re"`
-	Fn         jfloat            `json:"fn,omitempty"`
+	RhoKgPerM3 estimate.Num      `json:"rho_kg_m3"`
+	MuPaS      estimate.Num      `json:"mu_pa_s"`
+	Re         estimate.Num      `json:"re"`
+	Fn         estimate.Num      `json:"fn,omitempty"`
 	LiftN      valueRec          `json:"lift_n"`
 	DragN      valueRec          `json:"drag_n"`
 	CL         valueRec          `json:"cl"`
 	CD         valueRec          `json:"cd"`
-	SpinRatio  jfloat            `json:"spin_ratio"`
+	SpinRatio  estimate.Num      `json:"spin_ratio"`
 	DesignCL   valueRec          `json:"design_cl"`
-	En         jfloat            `json:"en"`
+	En         estimate.Num      `json:"en"`
 	CLBudget   []contributionRec `json:"cl_budget,omitempty"`
 	CDBudget   []contributionRec `json:"cd_budget,omitempty"`
 
 	// Roof rows only (Zone set); absent on force-balance rows.
-	Zone     string    `json:"zone,omitempty"`
-	CpMean   *valueRec `json:"cp_mean,omitempty"`
-	CpRMS    jfloat    `json:"cp_rms,omitempty"`
-	CpPeak   jfloat    `json:"cp_peak,omitempty"`
-	UpliftN  *valueRec `json:"uplift_n,omitempty"`
-	DesignCp *valueRec `json:"design_cp,omitempty"`
+	Zone     string       `json:"zone,omitempty"`
+	CpMean   *valueRec    `json:"cp_mean,omitempty"`
+	CpRMS    estimate.Num `json:"cp_rms,omitempty"`
+	CpPeak   estimate.Num `json:"cp_peak,omitempty"`
+	UpliftN  *valueRec    `json:"uplift_n,omitempty"`
+	DesignCp *valueRec    `json:"design_cp,omitempty"`
 }
 
 func budgetRec(in []estimate.Contribution) []contributionRec {
@@ -117,7 +77,7 @@ func budgetRec(in []estimate.Contribution) []contributionRec {
 	}
 	out := make([]contributionRec, len(in))
 	for i, c := range in {
-		out[i] = contributionRec{c.Input, jfloat(c.U), jfloat(c.Sensitivity), jfloat(c.UY), jfloat(c.Dof), c.TypeA}
+		out[i] = contributionRec{c.Input, estimate.Num(c.U), estimate.Num(c.Sensitivity), estimate.Num(c.UY), estimate.Num(c.Dof), c.TypeA}
 	}
 	return out
 }
@@ -139,17 +99,17 @@ func encodeSegment(sg *estimate.Segment) ([]byte, error) {
 		return nil, fmt.Errorf("segment index %d: %w", sg.Index, ErrBadRecord)
 	}
 	rec := segmentRec{
-		Index: sg.Index, TStart: sg.TStart, TEnd: sg.TEnd, N: sg.N, NEff: jfloat(sg.NEff),
+		Index: sg.Index, TStart: sg.TStart, TEnd: sg.TEnd, N: sg.N, NEff: estimate.Num(sg.NEff),
 		AlphaRad: toValueRec(sg.AlphaRad), QPa: toValueRec(sg.QPa), SpeedMPerS: toValueRec(sg.SpeedMPerS),
-		RhoKgPerM3: jfloat(sg.RhoKgPerM3), MuPaS: jfloat(sg.MuPaS), Re: jfloat(sg.Re), Fn: jfloat(sg.Fn),
+		RhoKgPerM3: estimate.Num(sg.RhoKgPerM3), MuPaS: estimate.Num(sg.MuPaS), Re: estimate.Num(sg.Re), Fn: estimate.Num(sg.Fn),
 		LiftN: toValueRec(sg.LiftN), DragN: toValueRec(sg.DragN), CL: toValueRec(sg.CL), CD: toValueRec(sg.CD),
-		SpinRatio: jfloat(sg.SpinRatio), DesignCL: toValueRec(sg.DesignCL), En: jfloat(sg.En),
+		SpinRatio: estimate.Num(sg.SpinRatio), DesignCL: toValueRec(sg.DesignCL), En: estimate.Num(sg.En),
 		CLBudget: budgetRec(sg.CLBudget), CDBudget: budgetRec(sg.CDBudget),
 	}
 	if sg.Zone != "" {
 		cp, up, d := toValueRec(sg.CpMean), toValueRec(sg.UpliftN), toValueRec(sg.DesignCp)
 		rec.Zone, rec.CpMean, rec.CpRMS, rec.CpPeak, rec.UpliftN, rec.DesignCp =
-			sg.Zone, &cp, jfloat(sg.CpRMS), jfloat(sg.CpPeak), &up, &d
+			sg.Zone, &cp, estimate.Num(sg.CpRMS), estimate.Num(sg.CpPeak), &up, &d
 	}
 	data, err := json.Marshal(rec)
 	if err != nil {
@@ -159,7 +119,7 @@ func encodeSegment(sg *estimate.Segment) ([]byte, error) {
 }
 
 func decodeSegment(data []byte) (estimate.Segment, error) {
-	rec := segmentRec{En: jfloat(math.NaN())} // absent en means "no design value"
+	rec := segmentRec{En: estimate.Num(math.NaN())} // absent en means "no design value"
 	if err := json.Unmarshal(data, &rec); err != nil {
 		return estimate.Segment{}, fmt.Errorf("%w: %w", ErrCorrupt, err)
 	}

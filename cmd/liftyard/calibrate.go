@@ -207,18 +207,9 @@ func readPointsFile(path string) ([]calibrate.Point, error) {
 	return pts, nil
 }
 
-// jnum is a float64 that prints in JSON with full precision (strconv 'g',
-// -1: the shortest form that reads back to the same float64), null when
-// not finite.
-type jnum float64
-
-func (n jnum) MarshalJSON() ([]byte, error) {
-	f := float64(n)
-	if math.IsNaN(f) || math.IsInf(f, 0) {
-		return []byte("null"), nil
-	}
-	return strconv.AppendFloat(nil, f, 'g', -1, 64), nil
-}
+// jnum is liftyard's one NaN-safe JSON number (estimate.Num): full
+// precision (strconv 'g', -1), null for NaN.
+type jnum = estimate.Num
 
 func jnums(v []float64) []jnum {
 	out := make([]jnum, len(v))
