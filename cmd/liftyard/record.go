@@ -200,7 +200,8 @@ func (m *Main) Run(ctx context.Context) error {
 	if err := storeRunCalibrations(store, runID, cal); err != nil {
 		return err
 	}
-	dash, err := dashboard.New(dashboard.Config{Addr: m.Addr, Token: m.Token, Store: store, Calibrations: store, Logger: log})
+	dash, err := dashboard.New(dashboard.Config{Addr: m.Addr, Token: m.Token, Runs: store, Live: true,
+		Marks: newMarkStore(store), Report: reportWriter(store, ""), Calibrations: store, Logger: log}) // marks read-only: liftyard serve edits them
 	if err != nil {
 		return err
 	}
