@@ -36,7 +36,7 @@ func TestLivePage_Browser(t *testing.T) {
 	ctx, cancel := context.WithTimeout(ctx, 30*time.Second)
 	defer cancel()
 
-	s, _ := newServer(t, dashboard.Config{Addr: "127.0.0.1:0", Store: testRuns()})
+	s, _ := newServer(t, dashboard.Config{Live: true, Addr: "127.0.0.1:0", Runs: testRuns()})
 	ln := listen(t)
 	sctx, stop := context.WithCancel(context.Background())
 	errc := make(chan error, 1)
@@ -160,7 +160,7 @@ func TestRunPage_Browser(t *testing.T) {
 	ctx := browsertest.Browser(t)
 	ctx, cancel := context.WithTimeout(ctx, 20*time.Second)
 	defer cancel()
-	s, _ := newServer(t, dashboard.Config{Addr: "127.0.0.1:0", Store: testRuns()})
+	s, _ := newServer(t, dashboard.Config{Live: true, Addr: "127.0.0.1:0", Runs: testRuns()})
 	ts := loopbackServer(t, s)
 	if err := chromedp.Do(ctx, chromedp.Navigate(ts.URL+"/runs/1")); err != nil {
 		t.Fatal(err)

@@ -67,7 +67,7 @@ func calStore(t *testing.T) (*storage.Store, []string) {
 // status, content type and records, and 404 for an unknown id.
 func TestCalibrationRoutes(t *testing.T) {
 	st, ids := calStore(t)
-	s, _ := newServer(t, dashboard.Config{Store: testRuns(), Calibrations: st})
+	s, _ := newServer(t, dashboard.Config{Live: true, Runs: testRuns(), Calibrations: st})
 	h := s.Handler()
 	tests := []struct {
 		path, ctype string
@@ -113,7 +113,7 @@ func TestCalibrationRoutes(t *testing.T) {
 // expired flag judged at the dashboard's clock.
 func TestCalibrationAPI_List(t *testing.T) {
 	st, ids := calStore(t)
-	s, _ := newServer(t, dashboard.Config{Calibrations: st})
+	s, _ := newServer(t, dashboard.Config{Live: true, Calibrations: st})
 	var got []struct {
 		ID         string     `json:"id"`
 		Expired    bool       `json:"expired"`
@@ -145,7 +145,7 @@ func TestCalibrationAPI_List(t *testing.T) {
 // refresh; read the diff before committing).
 func TestCalibrationAPI_Golden(t *testing.T) {
 	st, ids := calStore(t)
-	s, _ := newServer(t, dashboard.Config{Calibrations: st})
+	s, _ := newServer(t, dashboard.Config{Live: true, Calibrations: st})
 	body := get(t, s.Handler(), http.MethodGet, "/api/v1/calibrations/"+ids[0], nil).Body.Bytes()
 	var pretty bytes.Buffer
 	if err := json.Indent(&pretty, body, "", "  "); err != nil {
@@ -169,7 +169,7 @@ func TestCalibrationAPI_Golden(t *testing.T) {
 // Ensure that every string from a record is escaped on the pages.
 func TestCalibrationPages_Escaping(t *testing.T) {
 	st, ids := calStore(t)
-	s, _ := newServer(t, dashboard.Config{Calibrations: st})
+	s, _ := newServer(t, dashboard.Config{Live: true, Calibrations: st})
 	for _, path := range []string{"/calibrations", "/calibrations/" + ids[0]} {
 		body := get(t, s.Handler(), http.MethodGet, path, nil).Body.String()
 		for _, bad := range []string{hostileRig, `<img src=x`, `<4711>`} {
@@ -187,7 +187,7 @@ func TestCalibrationPages_Escaping(t *testing.T) {
 // axis labels, units and legend.
 func TestCalibrationSVG(t *testing.T) {
 	st, ids := calStore(t)
-	s, _ := newServer(t, dashboard.Config{Calibrations: st})
+	s, _ := newServer(t, dashboard.Config{Live: true, Calibrations: st})
 	tests := []struct {
 		path string
 		want []string
@@ -219,19 +219,19 @@ func TestCalibrationSVG(t *testing.T) {
 	}
 }
 
-// Ensure that without a calibration store the list says so and records
-// are 404, and existing dashboards (Config without Calibrations) work.
+// Ensure that without a calibration store the calibration pages and API
+// answer 404 saying that calibrations are off, the navigation has no
+// Calibrations link, and the rest of the dashboard works.
 func TestCalibration_NoStore(t *testing.T) {
-	s, _ := newServer(t, dashboard.Config{Store: testRuns()})
+	s, _ := newServer(t, dashboard.Config{Live: true, Runs: testRuns()})
 	h := s.Handler()
-	if rec := get(t, h, http.MethodGet, "/calibrations", nil); rec.Code != 200 || !strings.Contains(rec.Body.String(), "without a calibration store") {
-		t.Errorf("list without store: %d %s", rec.Code, rec.Body)
+	for _, path := range []string{"/calibrations", "/calibrations/x", "/calibrations/x/fit.svg", "/api/v1/calibrations", "/api/v1/calibrations/x"} {
+		if rec := get(t, h, http.MethodGet, path, nil); rec.Code != 404 || !strings.Contains(rec.Body.String(), "calibrations are off") {
+			t.Errorf("GET %s without store: %d %s", path, rec.Code, rec.Body)
+		}
 	}
-	if rec := get(t, h, http.MethodGet, "/api/v1/calibrations", nil); rec.Code != 200 || strings.TrimSpace(rec.Body.String()) != "[]" {
-		t.Errorf("API list without store: %d %s", rec.Code, rec.Body)
-	}
-	if rec := get(t, h, http.MethodGet, "/api/v1/calibrations/x", nil); rec.Code != 404 {
-		t.Errorf("record without store: %d", rec.Code)
+	if rec := get(t, h, http.MethodGet, "/runs", nil); rec.Code != 200 || strings.Contains(rec.Body.String(), `href="/calibrations"`) {
+		t.Errorf("runs page without calibrations: %d, offers the Calibrations link: %v", rec.Code, strings.Contains(rec.Body.String(), `href="/calibrations"`))
 	}
 }
 
@@ -243,7 +243,7 @@ func TestCalibrationPage_Browser(t *testing.T) {
 	ctx, cancel := context.WithTimeout(ctx, 20*time.Second)
 	defer cancel()
 	st, ids := calStore(t)
-	s, _ := newServer(t, dashboard.Config{Addr: "127.0.0.1:0", Calibrations: st})
+	s, _ := newServer(t, dashboard.Config{Live: true, Addr: "127.0.0.1:0", Calibrations: st})
 	ts := loopbackServer(t, s)
 	if err := chromedp.Do(ctx, chromedp.Navigate(ts.URL+"/calibrations/"+ids[0])); err != nil {
 		t.Fatal(err)

@@ -1,30 +1,40 @@
 // Package dashboard serves liftyard's local web dashboard: a live page, run
-// pages with a polar plot (zone plots for roofs) and a printable report,
-// calibration pages, user marks, and a JSON API. It formats what estimate
-// produced and storage kept; it computes no physics (the only conversions
-// are for display: radians to degrees, and standard to expanded
+// pages with the report's plot of the run, and a JSON API. It formats what
+// estimate produced and storage kept; it computes no physics (the only
+// conversions are for display: radians to degrees, and standard to expanded
 // uncertainty U95).
+//
+// # Capabilities
+//
+// What a dashboard offers is its Config, wired by cmd/liftyard: Runs (the
+// run list and pages), Live (a recording feeds the live page), Marks and
+// ApplyMarks (marks shown, and edited), Report (the printable report) and
+// Calibrations. Each is a small interface or func; nil (false) means off:
+// no page offers it and its routes answer 404 with a message naming it.
+//
+// # Rig kinds
+//
+// Each rig kind has a view (kinds.go: which plot, which tables, which
+// cautions); the pages ask the view, never the kind string.
 //
 // # Routes
 //
 //	GET  /                          live page (one EventSource, trends drawn by /static/live.js)
 //	GET  /runs                      table of runs
-//	GET  /runs/{id}                 run details, source health, segments
-//	GET  /runs/{id}/polar.svg       C_L against α (S for rotors) with U95 bars (gonum/plot)
-//	GET  /runs/{id}/zones.svg       a roof run's net Cp per zone and block, against design
-//	GET  /runs/{id}/report          the printable report (package report)
-//	GET  /calibrations[/{id}]       stored calibrations; fit.svg and residuals.svg per record
+//	GET  /runs/{id}                 run details, source health, segments or zones
+//	GET  /runs/{id}/polar.svg       C_L against α (S for rotors) with U95 bars (the report's plot)
+//	GET  /runs/{id}/zones.svg       net Cp per roof zone and block (the report's plot)
+//	GET  /runs/{id}/report          the printable report (Config.Report)
 //	GET  /static/...                the embedded script, style sheet and icon
 //	POST /logout                    clears the token cookie (off loopback)
-//	GET  /api/v1/live               latest estimate (503 before the first one)
-//	GET  /api/v1/health             source, channel and load health of the recording (503 before one)
+//	GET  /api/v1/live               latest estimate (503 before the first one; Config.Live)
+//	GET  /api/v1/health             latest source health (Config.Live)
 //	GET  /api/v1/runs               runs, newest first
 //	GET  /api/v1/runs/{id}          one run
-//	GET  /api/v1/runs/{id}/segments its steady segments
-//	GET  /api/v1/runs/{id}/marks    its marks; POST adds one, POST .../{n}/delete,
-//	                                .../clear and .../apply edit them and recompute
-//	GET  /api/v1/calibrations[/{id}] calibration records as JSON
-//	GET  /api/v1/stream             server-sent events: run, health, live, segment
+//	GET  /api/v1/runs/{id}/segments its steady segments (docs/columns.md)
+//	GET  /api/v1/stream             server-sent events: run, health, live, segment (Config.Live)
+//	     /calibrations, /api/v1/calibrations/...  stored calibrations (Config.Calibrations)
+//	     /api/v1/runs/{id}/marks...               user marks (Config.Marks, ApplyMarks; marks.go)
 //
 // JSON fields are the Go field names in snake_case with their unit
 // (q_pa, speed_m_s, alpha_deg, cl_u95); a quantity that was not measured or
@@ -58,7 +68,7 @@
 //
 // # Caveats
 //
-// The polar cache is keyed by run and segment count; applying marks drops
+// The plot cache is keyed by run and segment count; applying marks drops
 // the run's plots, but segments rewritten by another process with the same
 // count show the old plot until this one restarts. The live trends hold
 // what the page received since it opened.

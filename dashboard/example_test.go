@@ -17,7 +17,7 @@ import (
 // latest for the JSON API and streams it to open pages. Invented numbers
 // from a scenario of our own: a strut towed at about 1.1 m/s.
 func ExampleServer_PublishLive() {
-	s, err := dashboard.New(dashboard.Config{Logger: slog.New(slog.DiscardHandler)})
+	s, err := dashboard.New(dashboard.Config{Live: true, Logger: slog.New(slog.DiscardHandler)})
 	if err != nil {
 		panic(err)
 	}

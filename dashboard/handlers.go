@@ -12,6 +12,7 @@ import (
 
 	"liftyard/estimate"
 	"liftyard/rig"
+	"liftyard/report"
 	"liftyard/storage"
 )
 
@@ -37,32 +38,35 @@ func (s *Server) routes() http.Handler {
 		panic(err) // the embedded tree is fixed at build time
 	}
 	mux.Handle("GET /static/", http.StripPrefix("/static/", http.FileServerFS(static)))
-	mux.HandleFunc("GET /{$}", s.livePage)
+	mux.HandleFunc("GET /{$}", s.livePage) // without the live feed: says no run is recording
 	mux.HandleFunc("GET /runs", s.runsPage)
 	mux.HandleFunc("GET /runs/{id}", s.runPage)
-	mux.HandleFunc("GET /runs/{id}/polar.svg", s.polarSVG)
-	mux.HandleFunc("GET /runs/{id}/zones.svg", s.zonesSVG) // roof runs (zones.go)
-	mux.HandleFunc("GET /runs/{id}/report", s.runReport)   // printable report (report.go)
+	mux.HandleFunc("GET /runs/{id}/polar.svg", s.plotSVG("polar.svg", report.LiftPlotSVG)) // plots.go
+	mux.HandleFunc("GET /runs/{id}/zones.svg", s.plotSVG("zones.svg", report.ZonePlotSVG))
 	mux.HandleFunc("POST /logout", s.logout)
-	mux.HandleFunc("GET /api/v1/live", s.apiLive)
-	mux.HandleFunc("GET /api/v1/health", s.apiHealth)
-	mux.HandleFunc("GET /api/v1/stream", s.stream)
+	// Each capability's routes answer 404 when it is off (Config).
+	c := s.caps()
+	mux.HandleFunc("GET /runs/{id}/report", s.need(c.Report, offReport, false, s.runReport)) // report.go
+	mux.HandleFunc("GET /api/v1/live", s.need(c.Live, offLive, true, s.apiLive))
+	mux.HandleFunc("GET /api/v1/health", s.need(c.Live, offLive, true, s.apiHealth))
+	mux.HandleFunc("GET /api/v1/stream", s.need(c.Live, offLive, true, s.stream))
 	mux.HandleFunc("GET /api/v1/runs", s.apiRuns)
 	mux.HandleFunc("GET /api/v1/runs/{id}", s.apiRun)
 	mux.HandleFunc("GET /api/v1/runs/{id}/segments", s.apiSegments)
 	// Calibration records (calibration.go).
-	mux.HandleFunc("GET /calibrations", s.calibrationsPage)
-	mux.HandleFunc("GET /calibrations/{id}", s.calibrationPage)
-	mux.HandleFunc("GET /calibrations/{id}/fit.svg", s.calibrationFitSVG)
-	mux.HandleFunc("GET /calibrations/{id}/residuals.svg", s.calibrationResidualSVG)
-	mux.HandleFunc("GET /api/v1/calibrations", s.apiCalibrations)
-	mux.HandleFunc("GET /api/v1/calibrations/{id}", s.apiCalibration)
-	// User marks (marks.go): state changes only with a MarkStore.
-	mux.HandleFunc("GET /api/v1/runs/{id}/marks", s.apiMarks)
-	mux.HandleFunc("POST /api/v1/runs/{id}/marks", s.addMark)
-	mux.HandleFunc("POST /api/v1/runs/{id}/marks/{n}/delete", s.deleteMark)
-	mux.HandleFunc("POST /api/v1/runs/{id}/marks/clear", s.clearMarks)
-	mux.HandleFunc("POST /api/v1/runs/{id}/marks/apply", s.applyMarks)
+	mux.HandleFunc("GET /calibrations", s.need(c.Calibrations, offCalibrations, false, s.calibrationsPage))
+	mux.HandleFunc("GET /calibrations/{id}", s.need(c.Calibrations, offCalibrations, false, s.calibrationPage))
+	mux.HandleFunc("GET /calibrations/{id}/fit.svg", s.need(c.Calibrations, offCalibrations, false, s.calibrationFitSVG))
+	mux.HandleFunc("GET /calibrations/{id}/residuals.svg", s.need(c.Calibrations, offCalibrations, false, s.calibrationResidualSVG))
+	mux.HandleFunc("GET /api/v1/calibrations", s.need(c.Calibrations, offCalibrations, true, s.apiCalibrations))
+	mux.HandleFunc("GET /api/v1/calibrations/{id}", s.need(c.Calibrations, offCalibrations, true, s.apiCalibration))
+	// User marks (marks.go): shown with Config.Marks, changed only with
+	// Config.ApplyMarks too (editMarks answers 405 without it).
+	mux.HandleFunc("GET /api/v1/runs/{id}/marks", s.need(c.Marks, offMarks, true, s.apiMarks))
+	mux.HandleFunc("POST /api/v1/runs/{id}/marks", s.need(c.Marks, offMarks, true, s.addMark))
+	mux.HandleFunc("POST /api/v1/runs/{id}/marks/{n}/delete", s.need(c.Marks, offMarks, true, s.deleteMark))
+	mux.HandleFunc("POST /api/v1/runs/{id}/marks/clear", s.need(c.Marks, offMarks, true, s.clearMarks))
+	mux.HandleFunc("POST /api/v1/runs/{id}/marks/apply", s.need(c.Marks, offMarks, true, s.applyMarks))
 	return s.secure(mux)
 }
 
@@ -138,9 +142,19 @@ func (s *Server) runs() ([]storage.Run, error) {
 	return out, nil
 }
 
-// run returns one run and its segments. The current run is served from
-// memory when the store does not know it.
+// run returns one run and its segments as the pages and API show them.
 func (s *Server) run(id uint64) (storage.Run, []segmentJSON, error) {
+	r, segs, err := s.runSegments(id)
+	if err != nil {
+		return storage.Run{}, nil, err
+	}
+	return r, segmentsOf(id, rig.Kind(r.Kind), segs), nil
+}
+
+// runSegments returns one run and its segments. The current run's segments
+// are the ones published to this dashboard (the store may not have
+// committed them yet); its metadata comes from the store when it has it.
+func (s *Server) runSegments(id uint64) (storage.Run, []estimate.Segment, error) {
 	if cur := s.current.Load(); cur != nil && cur.ID == id {
 		r := *cur
 		if s.store != nil {
@@ -148,15 +162,12 @@ func (s *Server) run(id uint64) (storage.Run, []segmentJSON, error) {
 				r = sr
 			}
 		}
-		var segs []segmentJSON
-		for _, b := range s.hub.keptSegments() {
-			var sj segmentJSON
-			if err := json.Unmarshal(b, &sj); err != nil {
-				return storage.Run{}, nil, fmt.Errorf("decode kept segment: %w", err)
-			}
-			segs = append(segs, sj)
+		s.curMu.Lock()
+		defer s.curMu.Unlock()
+		if s.curRun != id {
+			return r, nil, nil
 		}
-		return r, segs, nil
+		return r, slices.Clone(s.curSegs), nil
 	}
 	if s.store == nil {
 		return storage.Run{}, nil, fmt.Errorf("run %d: %w", id, storage.ErrNotFound)
@@ -169,7 +180,7 @@ func (s *Server) run(id uint64) (storage.Run, []segmentJSON, error) {
 	if err != nil {
 		return storage.Run{}, nil, fmt.Errorf("read segments of run %d: %w", id, err)
 	}
-	return r, segmentsOf(id, rig.Kind(r.Kind), ss), nil
+	return r, ss, nil
 }
 
 func (s *Server) apiLive(w http.ResponseWriter, r *http.Request) {

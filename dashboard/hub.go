@@ -169,17 +169,6 @@ func (h *hub) latestHealth() []byte {
 	return h.health.data
 }
 
-// keptSegments returns the JSON of the kept segments of the current run.
-func (h *hub) keptSegments() [][]byte {
-	h.mu.Lock()
-	defer h.mu.Unlock()
-	out := make([][]byte, len(h.segments))
-	for i, ev := range h.segments {
-		out[i] = ev.data
-	}
-	return out
-}
-
 // subscribe registers a subscriber and returns it together with the state
 // to send first. Segments with a sequence number at or below after are left
 // out of the snapshot (the client saw them before it reconnected).

@@ -2,7 +2,6 @@ package dashboard
 
 import (
 	"bytes"
-	"context"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -23,34 +22,33 @@ import (
 )
 
 // MarkStore keeps the user marks of stored runs (steady segments set by
-// hand, DESIGN §4) and recomputes a run's segments with them. When
-// Config.Store also implements MarkStore, the run pages offer a form to add
-// marks and a button to apply them, and these routes change state:
+// hand). With Config.Marks set, the run pages show a run's marks; with
+// Config.ApplyMarks set too, they offer a form to add marks and a button to
+// apply them, and these routes change state:
 //
 //	GET  /api/v1/runs/{id}/marks                 the marks, and whether they can be edited
 //	POST /api/v1/runs/{id}/marks                 add one mark: {"start_s": 12.0, "end_s": 15.5, "label": "…"}
 //	POST /api/v1/runs/{id}/marks/{n}/delete      remove mark n (1-based)
 //	POST /api/v1/runs/{id}/marks/clear           remove every mark
-//	POST /api/v1/runs/{id}/marks/apply           recompute the segments with the marks
+//	POST /api/v1/runs/{id}/marks/apply           recompute the segments with the marks (Config.ApplyMarks)
 //
 // The POST routes go through the same checks as every request (Host check
-// on loopback, token off it, cross-origin protection). A *storage.Store
-// alone does not implement MarkStore: the recorder's dashboard shows the
-// marks read-only; "liftyard serve" attaches a MarkStore.
+// on loopback, token off it, cross-origin protection).
+//
+// Its methods may be called concurrently from HTTP handlers; the dashboard
+// serialises its own read-modify-write of marks. Marks returns a run's
+// marks in time order (none is not an error); PutMarks replaces them all
+// (nil clears them). RunStart is the time of the run's first sample on the
+// clock of its segments (Segment.TStart): marks are entered in seconds from
+// it; it returns an error when the run has no raw samples. The returned
+// slices belong to the caller.
 type MarkStore interface {
 	Marks(runID uint64) ([]estimate.Mark, error)
 	PutMarks(runID uint64, marks []estimate.Mark) error
-	// RunStart is the time of the run's first sample on the clock of its
-	// segments (Segment.TStart): marks are entered in seconds from it.
 	RunStart(runID uint64) (time.Time, error)
-	// ApplyMarks recomputes the run's segments from its stored raw blocks
-	// with its marks (the automatic steady test when it has none) and
-	// stores them. It returns the count of segments and the 1-based
-	// numbers of marks that gave none.
-	ApplyMarks(ctx context.Context, runID uint64) (MarksApplied, error)
 }
 
-// MarksApplied is the outcome of MarkStore.ApplyMarks.
+// MarksApplied is the outcome of Config.ApplyMarks.
 type MarksApplied struct {
 	Segments int    `json:"segments"`
 	Unused   []int  `json:"unused"` // 1-based numbers of marks that held too few samples
@@ -146,20 +144,9 @@ func DecodeMarkBody(r io.Reader) (start, end time.Duration, label string, err er
 	return start, end, label, nil
 }
 
-// markStore returns the attached MarkStore, or nil.
-func (s *Server) markStore() MarkStore {
-	ms, _ := s.store.(MarkStore)
-	return ms
-}
-
-// markReader is what showing marks needs (a *storage.Store has it).
-type markReader interface {
-	Marks(runID uint64) ([]estimate.Mark, error)
-}
-
 // marksEditable says whether run id's marks may change now, and if not why.
 func (s *Server) marksEditable(run storage.Run) (bool, string) {
-	if s.markStore() == nil {
+	if s.marks == nil || s.apply == nil {
 		return false, "marks are set on a stored database: stop the recording and run liftyard serve --db FILE, or use liftyard marks"
 	}
 	if cur := s.current.Load(); (cur != nil && cur.ID == run.ID) || run.Status == storage.StatusRecording {
@@ -191,23 +178,19 @@ func (s *Server) apiMarks(w http.ResponseWriter, r *http.Request) {
 func (s *Server) marksOf(run storage.Run) (marksJSON, error) {
 	out := marksJSON{Run: run.ID, Marks: []markJSON{}}
 	out.Editable, out.Reason = s.marksEditable(run)
-	mr, ok := s.store.(markReader)
-	if !ok {
-		return out, nil
-	}
-	marks, err := mr.Marks(run.ID)
+	marks, err := s.marks.Marks(run.ID)
 	if err != nil {
 		return out, fmt.Errorf("read marks of run %d: %w", run.ID, err)
 	}
-	var t0 time.Time
-	if ms := s.markStore(); ms != nil {
-		if t0, err = ms.RunStart(run.ID); err != nil {
-			// A run without raw samples cannot be marked or re-processed.
+	t0, err := s.marks.RunStart(run.ID)
+	if err != nil {
+		// A run without raw samples cannot be marked or re-processed.
+		if out.Editable {
 			out.Editable, out.Reason = false, fmt.Sprintf("run %d cannot be marked: %v", run.ID, err)
-			t0 = time.Time{}
-		} else {
-			out.RunStart = &t0
 		}
+		t0 = time.Time{}
+	} else {
+		out.RunStart = &t0
 	}
 	for i, m := range marks {
 		mj := markJSON{N: i + 1, StartS: num(math.NaN()), EndS: num(math.NaN()), Start: m.Start.UTC(), End: m.End.UTC(), Label: m.Label}
@@ -228,7 +211,7 @@ func (s *Server) editMarks(w http.ResponseWriter, r *http.Request, change func(m
 		s.fail(w, r, err, true)
 		return
 	}
-	ms := s.markStore()
+	ms := s.marks
 	marksMu.Lock()
 	defer marksMu.Unlock()
 	run, _, err := s.run(id)
@@ -238,7 +221,7 @@ func (s *Server) editMarks(w http.ResponseWriter, r *http.Request, change func(m
 	}
 	if ok, why := s.marksEditable(run); !ok {
 		status := http.StatusConflict
-		if ms == nil {
+		if s.apply == nil {
 			status = http.StatusMethodNotAllowed
 		}
 		writeJSONStatus(w, status, map[string]string{"error": why})
@@ -319,7 +302,7 @@ func (s *Server) clearMarks(w http.ResponseWriter, r *http.Request) {
 
 func (s *Server) applyMarks(w http.ResponseWriter, r *http.Request) {
 	s.editMarks(w, r, func(ms MarkStore, run storage.Run) (*MarksApplied, error) {
-		res, err := ms.ApplyMarks(r.Context(), run.ID)
+		res, err := s.apply(r.Context(), run.ID)
 		if err != nil {
 			return nil, err
 		}
@@ -328,20 +311,4 @@ func (s *Server) applyMarks(w http.ResponseWriter, r *http.Request) {
 		}
 		return &res, nil
 	})
-}
-
-// forget drops the cached polar plots of a run whose segments were
-// recomputed (the cache key holds only the segment count).
-func (c *polarCache) forget(run uint64) {
-	c.mu.Lock()
-	defer c.mu.Unlock()
-	keep := c.order[:0]
-	for _, k := range c.order {
-		if k.run == run {
-			delete(c.svg, k)
-			continue
-		}
-		keep = append(keep, k)
-	}
-	c.order = keep
 }

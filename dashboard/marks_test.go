@@ -50,8 +50,9 @@ func (s *markTestStore) ApplyMarks(_ context.Context, id uint64) (dashboard.Mark
 }
 
 // markServer returns a loopback server over a store holding run 1 with
-// three automatic segments.
-func markServer(t *testing.T, withMarks bool) (*dashboard.Server, *markTestStore) {
+// three automatic segments. Its marks are shown, and editable only when
+// editable (with an ApplyMarks).
+func markServer(t *testing.T, editable bool) (*dashboard.Server, *markTestStore) {
 	t.Helper()
 	st, err := storage.Open(filepath.Join(t.TempDir(), "marks.db"), storage.Options{})
 	if err != nil {
@@ -69,9 +70,9 @@ func markServer(t *testing.T, withMarks bool) (*dashboard.Server, *markTestStore
 		t.Fatal(err)
 	}
 	ms := &markTestStore{Store: st, t0: epoch.Add(2 * time.Second)}
-	cfg := dashboard.Config{Store: st, Calibrations: st}
-	if withMarks {
-		cfg.Store = ms
+	cfg := dashboard.Config{Live: true, Runs: st, Calibrations: st, Marks: ms}
+	if editable {
+		cfg.ApplyMarks = ms.ApplyMarks
 	}
 	s, _ := newServer(t, cfg)
 	return s, ms
@@ -200,17 +201,18 @@ func TestMarks_API(t *testing.T) {
 	}
 }
 
-// Ensure that marks cannot change without a MarkStore (the recorder's
-// dashboard) nor on the run being recorded, and that the API says why.
+// Ensure that marks cannot change without ApplyMarks (the recorder's
+// dashboard shows them read-only) nor on the run being recorded, and that
+// the API says why.
 func TestMarks_NotEditable(t *testing.T) {
 	s, ms := markServer(t, false)
 	h := s.Handler()
 	rec := get(t, h, "GET", "/api/v1/runs/1/marks", nil)
 	if rec.Code != 200 || !strings.Contains(rec.Body.String(), `"editable":false`) || !strings.Contains(rec.Body.String(), "liftyard serve") {
-		t.Errorf("GET without MarkStore: %d %s", rec.Code, rec.Body)
+		t.Errorf("GET without ApplyMarks: %d %s", rec.Code, rec.Body)
 	}
 	if rec := post(t, h, "/api/v1/runs/1/marks", `{"start_s": 1, "end_s": 2}`, nil); rec.Code != http.StatusMethodNotAllowed {
-		t.Errorf("POST without MarkStore: %d", rec.Code)
+		t.Errorf("POST without ApplyMarks: %d", rec.Code)
 	}
 
 	s2, ms2 := markServer(t, true)

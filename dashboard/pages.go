@@ -51,7 +51,8 @@ func parsePages() (*pages, error) {
 
 // render executes a page into a buffer first, so a template error becomes
 // a clean 500 instead of half a page.
-func (s *Server) render(w http.ResponseWriter, r *http.Request, t *template.Template, data any) {
+func (s *Server) render(w http.ResponseWriter, r *http.Request, t *template.Template, data pageData) {
+	data.Caps = s.caps()
 	var buf bytes.Buffer
 	if err := t.ExecuteTemplate(&buf, "base", data); err != nil {
 		s.fail(w, r, fmt.Errorf("render %s: %w", t.Name(), err), false)
@@ -69,11 +70,16 @@ type pageData struct {
 	Title   string
 	Nav     string // "live" or "runs": the highlighted link
 	Token   bool   // off loopback: show the sign-out button
+	Caps    caps   // which links to offer
 	Content any
 }
 
 type livePageData struct {
-	Run *storage.Run
+	Run  *storage.Run
+	Live bool     // a recording feeds this dashboard (Config.Live)
+	View kindView // the current run's view (the balance view without a run)
+	// Layouts maps each rig kind to its live layout, for live.js.
+	Layouts map[string]string
 }
 
 type runsPageData struct {
@@ -87,15 +93,22 @@ type runRow struct {
 
 type runPageData struct {
 	Run      storage.Run
+	View     kindView
+	Caps     caps
 	Duration time.Duration
 	Segments []segmentJSON
 	Health   []acquire.HealthSnapshot
 }
 
 func (s *Server) livePage(w http.ResponseWriter, r *http.Request) {
+	cur := s.current.Load()
+	view := balanceView()
+	if cur != nil {
+		view = viewOf(cur.Kind)
+	}
 	s.render(w, r, s.pages.live, pageData{
 		Title: "Live", Nav: "live", Token: !s.loopback.Load(),
-		Content: livePageData{Run: s.current.Load()},
+		Content: livePageData{Run: cur, Live: s.live, View: view, Layouts: layouts()},
 	})
 }
 
@@ -129,7 +142,7 @@ func (s *Server) runPage(w http.ResponseWriter, r *http.Request) {
 	}
 	s.render(w, r, s.pages.run, pageData{
 		Title: "Run " + strconv.FormatUint(id, 10), Nav: "runs", Token: !s.loopback.Load(),
-		Content: runPageData{Run: run, Duration: runDuration(run, s.now()), Segments: segs, Health: run.Sources},
+		Content: runPageData{Run: run, View: viewOf(run.Kind), Caps: s.caps(), Duration: runDuration(run, s.now()), Segments: segs, Health: run.Sources},
 	})
 }
 
@@ -150,6 +163,7 @@ var funcs = template.FuncMap{
 	"dur":   func(d time.Duration) string { return d.Round(time.Second).String() },
 	"when":  func(t time.Time) string { return whenStr(t) },
 	"count": func(n uint64) string { return strconv.FormatUint(n, 10) },
+	"json":  func(v map[string]string) string { return string(mustJSON(v)) },
 }
 
 func finite(n num) bool { f := float64(n); return !math.IsNaN(f) && !math.IsInf(f, 0) }

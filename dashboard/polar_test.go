@@ -36,7 +36,7 @@ func TestPolarSVG(t *testing.T) {
 	bad.CL.X = math.NaN()
 	st.segs[1] = append(st.segs[1], bad)
 	st.segs[2] = nil
-	s, _ := newServer(t, dashboard.Config{Store: st})
+	s, _ := newServer(t, dashboard.Config{Live: true, Runs: st})
 	rec := get(t, s.Handler(), "GET", "/runs/1/polar.svg", nil)
 	if rec.Code != 200 {
 		t.Fatalf("status %d: %s", rec.Code, rec.Body)

@@ -4,37 +4,23 @@ import (
 	"bytes"
 	"fmt"
 	"net/http"
-
-	"liftyard/report"
-	"liftyard/storage"
 )
 
 // reportCSP lets the report's inline CSS apply and nothing else: the page
 // has no scripts, images or external files.
 const reportCSP = "default-src 'none'; style-src 'unsafe-inline'; base-uri 'none'; form-action 'none'; frame-ancestors 'none'"
 
-// runReport serves the printable report of a run (the same HTML as
-// `liftyard report`). It needs the store itself (report.Build reads
-// events, calibrations and the stored rig file), so a dashboard whose
-// RunStore is not a *storage.Store answers 404.
+// runReport serves the printable report of a run through Config.Report
+// (the same HTML as `liftyard report`). The route answers 404 when the
+// report capability is off (routes).
 func (s *Server) runReport(w http.ResponseWriter, r *http.Request) {
 	id, err := runID(r)
 	if err != nil {
 		s.fail(w, r, err, false)
 		return
 	}
-	st, ok := s.store.(*storage.Store)
-	if !ok || st == nil {
-		http.Error(w, "no report: this dashboard has no store attached", http.StatusNotFound)
-		return
-	}
-	rep, err := report.Build(st, id, report.Options{Now: s.now})
-	if err != nil {
-		s.fail(w, r, err, false)
-		return
-	}
 	var buf bytes.Buffer
-	if err := rep.WriteHTML(&buf); err != nil {
+	if err := s.report(&buf, id); err != nil {
 		s.fail(w, r, fmt.Errorf("report of run %d: %w", id, err), false)
 		return
 	}

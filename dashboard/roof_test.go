@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"context"
 	"encoding/json"
+	"errors"
 	"math"
 	"os"
 	"path/filepath"
@@ -58,8 +59,19 @@ func roofServer(t *testing.T) *dashboard.Server {
 	st := testRuns()
 	run, segs := roofRun()
 	st.runs[run.ID], st.segs[run.ID] = run, segs
-	s, _ := newServer(t, dashboard.Config{Addr: "127.0.0.1:0", Store: st})
+	s, _ := newServer(t, dashboard.Config{Live: true, Addr: "127.0.0.1:0", Runs: st, Marks: noMarks{}, ApplyMarks: noApply})
 	return s
+}
+
+// noMarks is a MarkStore of runs without marks that refuses to keep any.
+type noMarks struct{}
+
+func (noMarks) Marks(uint64) ([]estimate.Mark, error)  { return nil, nil }
+func (noMarks) PutMarks(uint64, []estimate.Mark) error { return errors.New("noMarks keeps no marks") }
+func (noMarks) RunStart(uint64) (time.Time, error)     { return epoch, nil }
+
+func noApply(context.Context, uint64) (dashboard.MarksApplied, error) {
+	return dashboard.MarksApplied{}, errors.New("noApply applies nothing")
 }
 
 // Ensure that the roof API rows (live zones, roof segment rows) match

@@ -53,7 +53,7 @@ func TestSegmentFields_ExportAPIAndMQTTAgree(t *testing.T) {
 		t.Fatal(err)
 	}
 	t.Cleanup(func() { st.Close() })
-	s, _ := newServer(t, dashboard.Config{Store: st})
+	s, _ := newServer(t, dashboard.Config{Runs: st})
 
 	for _, c := range []struct {
 		name      string
@@ -147,7 +147,7 @@ func itoa(id uint64) string { return strconv.FormatUint(id, 10) }
 // roof rows could not be decoded, "json: cannot set embedded pointer to
 // unexported struct", and every one answered 500).
 func TestRecordingRoofRun_PagesAnswer(t *testing.T) {
-	s, logs := newServer(t, dashboard.Config{Store: testRuns()})
+	s, logs := newServer(t, dashboard.Config{Runs: testRuns(), Live: true})
 	run, segs := roofRun()
 	run.ID, run.Status, run.Ended = 9, storage.StatusRecording, time.Time{}
 	s.SetRun(run) // not in the store: served from memory

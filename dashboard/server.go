@@ -5,10 +5,12 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"io"
 	"log/slog"
 	"net"
 	"net/http"
 	"strconv"
+	"sync"
 	"sync/atomic"
 	"time"
 
@@ -40,8 +42,11 @@ type RunStore interface {
 	Segments(id uint64) ([]estimate.Segment, error)
 }
 
-// Config configures a Server. A zero Config serves live data only on
-// DefaultAddr with the default logger.
+// Config configures a Server. Each capability of the dashboard is one
+// field: nil (or false) means off, and then the pages do not offer it (no
+// link, no form) and its routes answer 404 with a message that names the
+// capability. A zero Config serves an empty run list on DefaultAddr with the
+// default logger; cmd/liftyard wires the capabilities of each verb.
 type Config struct {
 	// Addr is the listen address, "host:port". Empty means DefaultAddr. When
 	// the host is not a loopback address (127.0.0.0/8, ::1, "localhost"),
@@ -54,13 +59,43 @@ type Config struct {
 	// Ignored on loopback. Never logged.
 	Token string
 
-	// Store reads recorded runs for the run pages. Nil serves the live page
-	// and the current run only.
-	Store RunStore
+	// Runs reads recorded runs for the run list, run pages and API. Nil
+	// serves the current run (SetRun) only.
+	Runs RunStore
+
+	// Live says that a recording feeds this dashboard through SetRun and the
+	// Publish methods: the live page, GET /api/v1/live, /api/v1/health and
+	// /api/v1/stream. False (liftyard serve): the live page says no run is
+	// recording, the navigation has no Live link and the live routes
+	// answer 404.
+	Live bool
+
+	// Marks reads and writes the user marks of stored runs. Nil: run pages
+	// have no marks section and the marks routes answer 404.
+	Marks MarkStore
+
+	// ApplyMarks recomputes run runID's segments from its stored raw
+	// blocks with its marks (the automatic steady test when it has none)
+	// and stores them. It returns the count of segments and the 1-based
+	// numbers of marks that gave none. It may be called concurrently with
+	// reads of the store; the dashboard never calls it for a run that is
+	// recording, nor twice at once. Marks may be changed only when both
+	// Marks and ApplyMarks are set; with Marks alone they are shown
+	// read-only.
+	ApplyMarks func(ctx context.Context, runID uint64) (MarksApplied, error)
+
+	// Report writes the printable report of run runID to w as one
+	// self-contained HTML page (inline CSS and SVG; no scripts, images or
+	// external files: GET /runs/{id}/report serves it under a CSP that
+	// allows nothing else). It may be called concurrently. For an unknown
+	// run it returns an error wrapping storage.ErrNotFound (404). On any
+	// error w may hold part of a page; the dashboard discards it. Nil: run
+	// pages have no report link and the route answers 404.
+	Report func(w io.Writer, runID uint64) error
 
 	// Calibrations reads stored calibration records for the calibration
-	// pages and API. Nil: the pages say no store is attached, and every
-	// record is 404.
+	// pages and API. Nil: no Calibrations link, and those routes answer
+	// 404.
 	Calibrations CalibrationStore
 
 	// Logger receives request errors (the detail that a 500 response does
@@ -85,6 +120,10 @@ type Stats struct {
 type Server struct {
 	token    string
 	store    RunStore
+	live     bool
+	marks    MarkStore
+	apply    func(ctx context.Context, runID uint64) (MarksApplied, error)
+	report   func(w io.Writer, runID uint64) error
 	cals     CalibrationStore
 	log      *slog.Logger
 	now      func() time.Time
@@ -95,6 +134,13 @@ type Server struct {
 	loopback atomic.Bool  // bound to loopback: check Host, no token
 	port     atomic.Int64 // port for the Host check; 0 = any (not yet known)
 	current  atomic.Pointer[storage.Run]
+
+	// curSegs are the segments published for the current run, kept as
+	// estimate made them (the run page, API and plot of a run that is
+	// still recording read them).
+	curMu   sync.Mutex
+	curRun  uint64
+	curSegs []estimate.Segment
 }
 
 // New checks cfg and builds a Server. It parses the page templates, so a
@@ -132,7 +178,11 @@ func New(cfg Config) (*Server, error) {
 	}
 	s := &Server{
 		token:  cfg.Token,
-		store:  cfg.Store,
+		store:  cfg.Runs,
+		live:   cfg.Live,
+		marks:  cfg.Marks,
+		apply:  cfg.ApplyMarks,
+		report: cfg.Report,
 		cals:   cfg.Calibrations,
 		log:    cfg.Logger.With("component", "dashboard"),
 		now:    cfg.Now,
@@ -206,6 +256,11 @@ func (s *Server) Serve(ctx context.Context, ln net.Listener) error {
 func (s *Server) SetRun(r storage.Run) {
 	rc := r
 	s.current.Store(&rc)
+	s.curMu.Lock()
+	if s.curRun != r.ID {
+		s.curRun, s.curSegs = r.ID, nil
+	}
+	s.curMu.Unlock()
 	s.hub.setRun(r.ID, mustJSON(toRunJSON(r, s.now())))
 }
 
@@ -219,6 +274,12 @@ func (s *Server) PublishLive(l estimate.Live) {
 // every live client. It never blocks.
 func (s *Server) PublishSegment(seg estimate.Segment) {
 	id, _ := s.hub.currentRunID()
+	s.curMu.Lock()
+	if len(s.curSegs) >= maxKeptSegments {
+		s.curSegs = append(s.curSegs[:0], s.curSegs[1:]...)
+	}
+	s.curSegs = append(s.curSegs, seg)
+	s.curMu.Unlock()
 	s.hub.publish("segment", mustJSON(toSegmentJSON(id, seg)))
 }
 

@@ -176,7 +176,7 @@ func get(t *testing.T, h http.Handler, method, target string, hdr map[string]str
 
 // Ensure that every route answers with the right status and content type.
 func TestRoutes(t *testing.T) {
-	s, _ := newServer(t, dashboard.Config{Store: testRuns()})
+	s, _ := newServer(t, dashboard.Config{Live: true, Runs: testRuns()})
 	h := s.Handler()
 	// Before the first estimate the live API says so.
 	rec := get(t, h, "GET", "/api/v1/live", nil)
@@ -237,7 +237,7 @@ func TestRoutes(t *testing.T) {
 func TestStoreError_500(t *testing.T) {
 	st := testRuns()
 	st.err = errors.New("disk on fire at block 77")
-	s, logs := newServer(t, dashboard.Config{Store: st})
+	s, logs := newServer(t, dashboard.Config{Live: true, Runs: st})
 	for _, path := range []string{"/api/v1/runs", "/runs", "/api/v1/runs/1"} {
 		rec := get(t, s.Handler(), "GET", path, nil)
 		if rec.Code != 500 {
@@ -255,7 +255,7 @@ func TestStoreError_500(t *testing.T) {
 // Ensure that on loopback only a loopback Host with our port is served
 // (DNS rebinding).
 func TestHostCheck(t *testing.T) {
-	s, _ := newServer(t, dashboard.Config{})
+	s, _ := newServer(t, dashboard.Config{Live: true})
 	tests := []struct {
 		host   string
 		status int
@@ -307,7 +307,7 @@ const goodToken = "yard-7f3c9a1e5b2d4c60"
 // Ensure that off loopback every request needs the token, by header or by
 // the cookie that /?token= sets.
 func TestToken(t *testing.T) {
-	s, _ := newServer(t, dashboard.Config{Addr: "0.0.0.0:8470", Token: goodToken, Store: testRuns()})
+	s, _ := newServer(t, dashboard.Config{Live: true, Addr: "0.0.0.0:8470", Token: goodToken, Runs: testRuns()})
 	h := s.Handler()
 	host := map[string]string{"Host": "yard-pc.local:8470"}
 	if rec := get(t, h, "GET", "/api/v1/runs", host); rec.Code != 401 || rec.Header().Get("WWW-Authenticate") == "" {
@@ -350,7 +350,7 @@ func TestToken(t *testing.T) {
 // Ensure that a cross-origin browser POST is rejected and a same-origin one
 // passes (Go's CrossOriginProtection).
 func TestCrossOriginPOST(t *testing.T) {
-	s, _ := newServer(t, dashboard.Config{})
+	s, _ := newServer(t, dashboard.Config{Live: true})
 	tests := []struct {
 		name   string
 		hdr    map[string]string
@@ -372,7 +372,7 @@ func TestCrossOriginPOST(t *testing.T) {
 
 // Ensure that a hostile rig name is escaped on every page that shows it.
 func TestEscaping_HostileRigName(t *testing.T) {
-	s, _ := newServer(t, dashboard.Config{Store: testRuns()})
+	s, _ := newServer(t, dashboard.Config{Live: true, Runs: testRuns()})
 	s.SetRun(storage.Run{ID: 3, Rig: hostileRig, Kind: "foil", Fluid: "air", Status: storage.StatusRecording, Started: epoch})
 	for _, path := range []string{"/", "/runs", "/runs/1", "/runs/3"} {
 		body := get(t, s.Handler(), "GET", path, nil).Body.String()
@@ -389,7 +389,7 @@ func TestEscaping_HostileRigName(t *testing.T) {
 // rewrite them; read the diff before committing).
 func TestAPI_Golden(t *testing.T) {
 	st := testRuns()
-	s, _ := newServer(t, dashboard.Config{Store: st})
+	s, _ := newServer(t, dashboard.Config{Live: true, Runs: st})
 	cur := st.runs[2]
 	s.SetRun(cur)
 	live := liveSample(20, 0.43)
@@ -432,7 +432,7 @@ func TestAPI_Golden(t *testing.T) {
 // Ensure that the live JSON carries the published numbers under the
 // contract's field names, with display conversions only (° from rad, U95).
 func TestAPILive_Fields(t *testing.T) {
-	s, _ := newServer(t, dashboard.Config{})
+	s, _ := newServer(t, dashboard.Config{Live: true})
 	l := liveSample(7, 0.43)
 	s.PublishLive(l)
 	var got map[string]any
@@ -548,7 +548,7 @@ func loopbackServer(t *testing.T, s *dashboard.Server) *httptest.Server {
 // event in order, and that a reconnect with Last-Event-ID skips the
 // segments it saw.
 func TestStream_SnapshotAndOrder(t *testing.T) {
-	s, _ := newServer(t, dashboard.Config{Addr: "127.0.0.1:0"}) // port unknown: httptest picks one
+	s, _ := newServer(t, dashboard.Config{Live: true, Addr: "127.0.0.1:0"}) // port unknown: httptest picks one
 	ts := loopbackServer(t, s)
 	s.SetRun(storage.Run{ID: 5, Rig: "strut-b", Kind: "foil", Status: storage.StatusRecording})
 	s.PublishHealth(dashboard.Health{Sources: []acquire.HealthSnapshot{{Source: "balance", Frames: 10}}})
@@ -642,7 +642,7 @@ func waitFor(t *testing.T, what string, cond func() bool) {
 // Ensure that a stalled client is disconnected and counted while a client
 // that keeps up receives every event.
 func TestStream_SlowClientDropped(t *testing.T) {
-	s, _ := newServer(t, dashboard.Config{Addr: "127.0.0.1:0"})
+	s, _ := newServer(t, dashboard.Config{Live: true, Addr: "127.0.0.1:0"})
 	ts := loopbackServer(t, s)
 	stall(t, s)
 	fast := openStream(t, t.Context(), ts.URL, "")
@@ -668,7 +668,7 @@ func TestStream_SlowClientDropped(t *testing.T) {
 // Ensure that PublishLive never blocks: 10 000 events with stalled clients
 // all return, and each stalled client is dropped once.
 func TestPublishLive_NeverBlocks(t *testing.T) {
-	s, _ := newServer(t, dashboard.Config{})
+	s, _ := newServer(t, dashboard.Config{Live: true})
 	for range 3 {
 		stall(t, s)
 	}
@@ -698,7 +698,7 @@ func TestPublishLive_NeverBlocks(t *testing.T) {
 
 // Ensure that Serve ends live streams and returns when its context ends.
 func TestServe_Shutdown(t *testing.T) {
-	s, _ := newServer(t, dashboard.Config{Addr: "127.0.0.1:0"})
+	s, _ := newServer(t, dashboard.Config{Live: true, Addr: "127.0.0.1:0"})
 	ln := listen(t)
 	ctx, cancel := context.WithCancel(context.Background())
 	errc := make(chan error, 1)

@@ -81,8 +81,9 @@ type view struct {
 
 	Figures []*figure
 
-	Water, Rotor bool
-	Segments     []segRow
+	// Spin adds the spin-ratio column S (rotor runs).
+	Water, Spin bool
+	Segments    []segRow
 
 	// Roof runs show RoofRows (zones × blocks) instead of the polar.
 	Roof     bool
@@ -137,15 +138,11 @@ func (r *Report) view() (*view, error) {
 		Version:   r.Version,
 		Summary:   r.Summary(),
 		Water:     r.Run.Fluid == string(rig.FluidFreshWater) || r.Run.Fluid == string(rig.FluidSeaWater),
-		Rotor:     r.isRotor(),
+		Spin:      r.section().spin,
 		Notes:     r.Notes,
 	}
 	v.Facts = r.facts()
-	plots := []func() (*figure, error){r.liftPlot, r.dragPlot, r.enPlot, r.qPlot}
-	if r.isRoof() {
-		plots = r.roofFigures()
-	}
-	for _, f := range plots {
+	for _, f := range r.section().figures(r) {
 		fig, err := f()
 		if err != nil {
 			return nil, fmt.Errorf("report of run %d: %w", r.Run.ID, err)
@@ -166,7 +163,7 @@ func (r *Report) view() (*view, error) {
 			compared[pt.Segment] = pt
 		}
 	}
-	if r.isRoof() {
+	if r.section().zones {
 		v.Roof, v.RoofRows = true, r.roofRows()
 		r.recordView(v)
 		return v, nil
@@ -308,8 +305,8 @@ func (r *Report) polarView(v *view) {
 	p := r.Polar
 	if p == nil {
 		v.PolarProblem = r.PolarProblem
-		if r.isRotor() {
-			v.PolarProblem = "A rotor's lift is reported against the spin ratio; no lift curve in α is fitted."
+		if why := r.section().noLiftCurve; why != "" {
+			v.PolarProblem = why
 		}
 		return
 	}

@@ -214,17 +214,30 @@ type figure struct {
 // liftPlot draws C_L against α (or S for a rotor) with U95 bars, the lift
 // line over the linear range and the design curve.
 func (r *Report) liftPlot() (*figure, error) {
-	rotor := r.isRotor()
+	p, caption, _, err := r.drawLift()
+	if p == nil || err != nil {
+		return nil, err
+	}
+	svg, err := svgOf(p)
+	if err != nil {
+		return nil, fmt.Errorf("lift plot: %w", err)
+	}
+	return &figure{SVG: svg, Caption: strings.Join(caption, " "), Alt: "lift coefficient against " + p.X.Label.Text + " with U95 error bars"}, nil
+}
+
+// drawLift builds the lift plot and its caption sentences, and counts the
+// segments left out (no C_L or no abscissa). The plot is nil when no
+// segment has both.
+func (r *Report) drawLift() (p *plot.Plot, caption []string, left int, err error) {
+	spin := r.section().spin
 	xLabel := "angle of attack α [°]"
-	if rotor {
+	if spin {
 		xLabel = "spin ratio S = ωR/V"
 	}
-	p := newPlot("Lift coefficient", xLabel, "C_L")
 	var pts errPts
-	left := 0
 	for _, s := range r.Segments {
 		xv, ux := rig.Deg(s.AlphaRad.X), rig.Deg(u95Of(s.AlphaRad))
-		if rotor {
+		if spin {
 			xv, ux = s.SpinRatio, 0
 		}
 		if !finite(xv) || !measured(s.CL) {
@@ -233,17 +246,16 @@ func (r *Report) liftPlot() (*figure, error) {
 		}
 		pts.add(xv, s.CL.X, ux, u95Of(s.CL))
 	}
-	fig := &figure{Alt: "lift coefficient against " + xLabel + " with U95 error bars"}
 	if len(pts.XYs) == 0 {
-		return nil, nil
+		return nil, nil, left, nil
 	}
+	p = newPlot("Lift coefficient", xLabel, "C_L")
 	xmin, xmax, ymin, ymax := pts.bounds()
 	p.X.Min, p.X.Max = pad(xmin, xmax)
 	p.Y.Min, p.Y.Max = padY(ymin, ymax)
-	var caption []string
 	caption = append(caption, "Points: segment means; bars: ± U95 of C_L (and of α).")
-	if err := addPoints(p, &pts, !rotor, "measured C_L ± U95"); err != nil {
-		return nil, fmt.Errorf("lift plot: %w", err)
+	if err := addPoints(p, &pts, !spin, "measured C_L ± U95"); err != nil {
+		return nil, nil, left, fmt.Errorf("lift plot: %w", err)
 	}
 	if pl := r.Polar; pl != nil {
 		line := plotter.XYs{}
@@ -251,12 +263,12 @@ func (r *Report) liftPlot() (*figure, error) {
 			line = append(line, plotter.XY{X: rig.Deg(a), Y: pl.CLAtZeroAlpha.X + pl.SlopePerRad.X*a})
 		}
 		if err := addCurve(p, line, colFit, nil, "lift line (linear range)"); err != nil {
-			return nil, fmt.Errorf("lift plot: %w", err)
+			return nil, nil, left, fmt.Errorf("lift plot: %w", err)
 		}
 		caption = append(caption, fmt.Sprintf("Solid line: weighted least-squares lift line over the linear range %s° to %s°.",
 			fix(rig.Deg(pl.LinearMinRad), 1), fix(rig.Deg(pl.LinearMaxRad), 1)))
 	}
-	if r.Design != nil && !rotor {
+	if r.Design != nil && r.section().design {
 		xs := sampleAlpha(p.X.Min, p.X.Max, r.Design)
 		var line plotter.XYs
 		for _, xd := range xs {
@@ -268,19 +280,14 @@ func (r *Report) liftPlot() (*figure, error) {
 			line = append(line, plotter.XY{X: xd, Y: y})
 		}
 		if err := addCurve(p, line, colDesign, []vg.Length{vg.Points(5), vg.Points(3)}, "design"); err != nil {
-			return nil, fmt.Errorf("lift plot: %w", err)
+			return nil, nil, left, fmt.Errorf("lift plot: %w", err)
 		}
 		caption = append(caption, "Dashed line: the design curve (see Design comparison).")
 	}
 	if left > 0 {
 		caption = append(caption, fmt.Sprintf("%d segment(s) without C_L are not shown.", left))
 	}
-	svg, err := svgOf(p)
-	if err != nil {
-		return nil, fmt.Errorf("lift plot: %w", err)
-	}
-	fig.SVG, fig.Caption = svg, strings.Join(caption, " ")
-	return fig, nil
+	return p, caption, left, nil
 }
 
 // sampleAlpha returns angles in degrees across lo..hi, plus the corners of

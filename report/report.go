@@ -70,7 +70,8 @@ type Report struct {
 	Segments []estimate.Segment
 
 	// Polar is the lift-curve fit; nil when it could not be made
-	// (PolarProblem says why) or does not apply (a rotor's C_L(S)).
+	// (PolarProblem says why) or does not apply to the rig kind (a rotor's
+	// C_L(S), a roof's zones).
 	Polar        *estimate.Polar
 	PolarProblem string
 
@@ -169,15 +170,9 @@ func (r *Report) readCalibrations(store *storage.Store) error {
 	return nil
 }
 
-// isRotor reports whether the run's points are C_L(S) rather than C_L(α).
-func (r *Report) isRotor() bool { return r.Run.Kind == string(rig.KindRotor) }
-
 func (r *Report) fitPolar(po estimate.PolarOptions) {
-	if r.isRotor() {
-		return // a lift curve in α does not apply; the plot uses the spin ratio
-	}
-	if r.isRoof() {
-		return // a roof's rows are zones in blocks: no lift curve (roof.go)
+	if !r.section().liftCurve {
+		return // the kind's rows are not C_L(α) (kinds.go)
 	}
 	if len(r.Segments) == 0 {
 		r.PolarProblem = "no steady segments: no lift curve"
@@ -240,7 +235,7 @@ func (r *Report) compare(rigDir string) {
 	if r.DesignProblem != "" {
 		r.Notes = append(r.Notes, r.DesignProblem)
 	}
-	if r.Design == nil || r.isRotor() {
+	if r.Design == nil || !r.section().design {
 		return
 	}
 	c := estimate.Compare(r.Segments, r.Design)

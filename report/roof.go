@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 
+	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/plotter"
 	"gonum.org/v1/plot/vg"
 	"gonum.org/v1/plot/vg/draw"
@@ -11,10 +12,6 @@ import (
 	"liftyard/estimate"
 	"liftyard/rig"
 )
-
-// isRoof reports whether the run is a roof mock-up: its rows are zones in
-// blocks of time (DESIGN §4 "Roofs"), not polar points.
-func (r *Report) isRoof() bool { return r.Run.Kind == string(rig.KindRoof) }
 
 // roofRow is one zone in one block, rounded to text.
 type roofRow struct {
@@ -93,6 +90,21 @@ func (r *Report) roofSummary() []string {
 // spread within the zone's column, not averaged: they share calibration
 // errors) and the zone's design value with its expanded uncertainty.
 func (r *Report) zonePlot() (*figure, error) {
+	p, _, err := r.drawZones()
+	if p == nil || err != nil {
+		return nil, err
+	}
+	svg, err := svgOf(p)
+	if err != nil {
+		return nil, fmt.Errorf("zone plot: %w", err)
+	}
+	return &figure{SVG: svg, Alt: "net pressure coefficient per roof zone, each block with U95 bars, beside the design value",
+		Caption: "Net Cp (external − internal, area-weighted over the zone's taps) of each block, bars ± U95, and the zone's design value (square) with its expanded uncertainty."}, nil
+}
+
+// drawZones builds the zone plot and counts the rows left out (no zone or
+// no Cp mean). The plot is nil when no row has both.
+func (r *Report) drawZones() (p *plot.Plot, left int, err error) {
 	var zones []string
 	col := map[string]int{}
 	count := map[string]int{}
@@ -100,6 +112,7 @@ func (r *Report) zonePlot() (*figure, error) {
 	done := map[string]bool{}
 	for _, s := range r.Segments {
 		if s.Zone == "" || !measured(s.CpMean) {
+			left++
 			continue
 		}
 		i, ok := col[s.Zone]
@@ -117,9 +130,9 @@ func (r *Report) zonePlot() (*figure, error) {
 		}
 	}
 	if len(zones) == 0 {
-		return nil, nil
+		return nil, left, nil
 	}
-	p := newPlot("Net pressure coefficient per zone", "zone", "net Cp (negative = uplift)")
+	p = newPlot("Net pressure coefficient per zone", "zone", "net Cp (negative = uplift)")
 	p.NominalX(zones...)
 	_, _, ymin, ymax := meas.bounds()
 	if len(design.XYs) > 0 {
@@ -129,12 +142,12 @@ func (r *Report) zonePlot() (*figure, error) {
 	p.X.Min, p.X.Max = -0.6, float64(len(zones))-0.4
 	p.Y.Min, p.Y.Max = padY(ymin, ymax)
 	if err := addPoints(p, &meas, false, "block mean ± U95"); err != nil {
-		return nil, fmt.Errorf("zone plot: %w", err)
+		return nil, left, fmt.Errorf("zone plot: %w", err)
 	}
 	if len(design.XYs) > 0 {
 		sc, err := plotter.NewScatter(design.XYs)
 		if err != nil {
-			return nil, fmt.Errorf("zone plot: %w", err)
+			return nil, left, fmt.Errorf("zone plot: %w", err)
 		}
 		sc.GlyphStyle.Color, sc.GlyphStyle.Shape, sc.GlyphStyle.Radius = colDesign, draw.BoxGlyph{}, vg.Points(3)
 		eb, err := plotter.NewYErrorBars(struct {
@@ -142,22 +155,12 @@ func (r *Report) zonePlot() (*figure, error) {
 			plotter.YErrors
 		}{design.XYs, design.YErrors})
 		if err != nil {
-			return nil, fmt.Errorf("zone plot: %w", err)
+			return nil, left, fmt.Errorf("zone plot: %w", err)
 		}
 		eb.LineStyle.Color = colDesign
 		p.Add(eb, sc)
 		p.Legend.Add("design value ± its expanded uncertainty", sc)
 	}
 	p.Legend.Top = false
-	svg, err := svgOf(p)
-	if err != nil {
-		return nil, fmt.Errorf("zone plot: %w", err)
-	}
-	return &figure{SVG: svg, Alt: "net pressure coefficient per roof zone, each block with U95 bars, beside the design value",
-		Caption: "Net Cp (external − internal, area-weighted over the zone's taps) of each block, bars ± U95, and the zone's design value (square) with its expanded uncertainty."}, nil
-}
-
-// roofFigures are the plots of a roof report.
-func (r *Report) roofFigures() []func() (*figure, error) {
-	return []func() (*figure, error){r.zonePlot, r.qPlot}
+	return p, left, nil
 }

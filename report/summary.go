@@ -12,26 +12,7 @@ import (
 // the lift curve, the design verdict, and what in the record needs a look.
 // Each element is one sentence.
 func (r *Report) Summary() []string {
-	var out []string
-	n := 0
-	for _, s := range r.Segments {
-		if measured(s.CL) {
-			n++
-		}
-	}
-	lo, hi := r.AlphaRangeDeg()
-	switch {
-	case r.isRoof():
-		out = append(out, r.roofSummary()...)
-	case len(r.Segments) == 0:
-		out = append(out, "No steady segments were found in this run, so there are no coefficients to report.")
-	case r.isRotor():
-		out = append(out, fmt.Sprintf("%s with C_L.", plural(n, "steady segment", "steady segments")))
-	case n > 0:
-		out = append(out, fmt.Sprintf("%s from %s° to %s°.", plural(n, "steady segment", "steady segments"), fix(lo, 1), fix(hi, 1)))
-	default:
-		out = append(out, fmt.Sprintf("%s, none with a lift coefficient.", plural(len(r.Segments), "steady segment", "steady segments")))
-	}
+	out := r.section().count(r)
 	if p := r.Polar; p != nil {
 		out = append(out, fmt.Sprintf("Lift slope %s per rad (%s per degree), zero-lift angle %s°, fitted over %s from %s° to %s°.",
 			pm(p.SlopePerRad.X, p.SlopePerRad.U95(), 3),
@@ -63,7 +44,7 @@ func (r *Report) Summary() []string {
 		}
 	} else if r.DesignProblem != "" {
 		out = append(out, "No design comparison: "+r.DesignProblem+".")
-	} else if r.Rig != nil && r.Rig.Lift.Design == "" && !r.isRotor() && r.Run.Kind != string(rig.KindRoof) {
+	} else if r.Rig != nil && r.Rig.Lift.Design == "" && r.section().design {
 		out = append(out, "The rig file names no design curve ([lift] design): no design comparison.")
 	}
 	out = append(out, r.healthSentence())
@@ -90,6 +71,42 @@ func (r *Report) Summary() []string {
 	}
 	return out
 }
+
+// withCL counts the segments with a lift coefficient.
+func (r *Report) withCL() int {
+	n := 0
+	for _, s := range r.Segments {
+		if measured(s.CL) {
+			n++
+		}
+	}
+	return n
+}
+
+// balanceCount opens the summary of a force-balance run: how many steady
+// segments, over which angles.
+func balanceCount(r *Report) []string {
+	n := r.withCL()
+	lo, hi := r.AlphaRangeDeg()
+	switch {
+	case len(r.Segments) == 0:
+		return []string{noSegments}
+	case n > 0:
+		return []string{fmt.Sprintf("%s from %s° to %s°.", plural(n, "steady segment", "steady segments"), fix(lo, 1), fix(hi, 1))}
+	}
+	return []string{fmt.Sprintf("%s, none with a lift coefficient.", plural(len(r.Segments), "steady segment", "steady segments"))}
+}
+
+// rotorCount opens the summary of a rotor run: how many steady segments
+// have C_L (against the spin ratio, so no angle range).
+func rotorCount(r *Report) []string {
+	if len(r.Segments) == 0 {
+		return []string{noSegments}
+	}
+	return []string{fmt.Sprintf("%s with C_L.", plural(r.withCL(), "steady segment", "steady segments"))}
+}
+
+const noSegments = "No steady segments were found in this run, so there are no coefficients to report."
 
 // healthSentence sums the source counters in one sentence.
 func (r *Report) healthSentence() string {

@@ -279,7 +279,9 @@ func (p publisher) live(l estimate.Live) {
 
 // listen makes the recorder's dashboard and its listener.
 func (m *Main) listen(store *storage.Store, log *slog.Logger) (*dashboard.Server, net.Listener, error) {
-	dash, err := dashboard.New(dashboard.Config{Addr: m.Addr, Token: m.Token, Store: store, Calibrations: store, Logger: log})
+	// Marks are read-only here: liftyard serve edits them.
+	dash, err := dashboard.New(dashboard.Config{Addr: m.Addr, Token: m.Token, Runs: store, Live: true,
+		Marks: newMarkStore(store), Report: reportWriter(store, ""), Calibrations: store, Logger: log})
 	if err != nil {
 		return nil, nil, err
 	}

@@ -65,6 +65,20 @@ func runReport(_ context.Context, args []string, stdout, _ io.Writer) error {
 	return nil
 }
 
+// reportWriter is the report capability of a dashboard over store
+// (dashboard.Config.Report): the same HTML as `liftyard report`, with a
+// relative design-curve path read from rigDir ("" is the current
+// directory).
+func reportWriter(store *storage.Store, rigDir string) func(w io.Writer, runID uint64) error {
+	return func(w io.Writer, runID uint64) error {
+		rep, err := report.Build(store, runID, report.Options{RigDir: rigDir, Version: version})
+		if err != nil {
+			return err
+		}
+		return rep.WriteHTML(w)
+	}
+}
+
 // writeFileAtomic writes through a temporary file in the same folder and
 // renames it, so a failed report never leaves half a file under the name.
 func writeFileAtomic(path string, write func(io.Writer) error) error {

@@ -146,7 +146,7 @@ func TestReport_DashboardRoute(t *testing.T) {
 	store, err := storage.Open(db, storage.Options{ReadOnly: true})
 	require.NoError(t, err)
 	defer store.Close()
-	srv, err := dashboard.New(dashboard.Config{Store: store, Calibrations: store})
+	srv, err := dashboard.New(dashboard.Config{Runs: store, Report: reportWriter(store, ""), Calibrations: store})
 	require.NoError(t, err)
 	ts := httptest.NewServer(srv.Handler())
 	defer ts.Close()

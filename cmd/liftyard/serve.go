@@ -14,18 +14,22 @@ import (
 	"liftyard/storage"
 )
 
-// serveStore is the store behind `liftyard serve`: the runs, calibrations
-// and marks of a stored database, and the re-processing that applies marks
-// (dashboard.MarkStore).
-type serveStore struct {
+// markStore is the marks capability of a dashboard (dashboard.MarkStore)
+// over a store: the marks kept with each run, and each run's first sample,
+// read once.
+type markStore struct {
 	*storage.Store
 	mu     sync.Mutex
 	starts map[uint64]time.Time // first sample of each run, read once
 }
 
-// RunStart implements dashboard.MarkStore. A run's raw samples never change
-// once it has ended, so the answer is kept.
-func (s *serveStore) RunStart(id uint64) (time.Time, error) {
+func newMarkStore(store *storage.Store) *markStore {
+	return &markStore{Store: store, starts: map[uint64]time.Time{}}
+}
+
+// RunStart implements dashboard.MarkStore. A run's first raw sample never
+// changes once stored, so the answer is kept.
+func (s *markStore) RunStart(id uint64) (time.Time, error) {
 	s.mu.Lock()
 	t, ok := s.starts[id]
 	s.mu.Unlock()
@@ -40,11 +44,6 @@ func (s *serveStore) RunStart(id uint64) (time.Time, error) {
 	s.starts[id] = t
 	s.mu.Unlock()
 	return t, nil
-}
-
-// ApplyMarks implements dashboard.MarkStore.
-func (s *serveStore) ApplyMarks(ctx context.Context, id uint64) (dashboard.MarksApplied, error) {
-	return applyMarks(ctx, s.Store, id)
 }
 
 // serveOptions are the flags of `liftyard serve`.
@@ -89,9 +88,16 @@ func serve(ctx context.Context, o serveOptions, stderr io.Writer) error {
 		return err
 	}
 	defer store.Close()
-	ss := &serveStore{Store: store, starts: map[uint64]time.Time{}}
-	dash, err := dashboard.New(dashboard.Config{Addr: o.addr, Token: o.token, Store: ss, Calibrations: store,
-		Logger: newLogger(stderr, o.verbose)})
+	// Stored runs only: no live feed. Marks are edited and applied here
+	// (the file is held read-write), and run pages link to the report.
+	dash, err := dashboard.New(dashboard.Config{Addr: o.addr, Token: o.token, Runs: store,
+		Marks: newMarkStore(store),
+		ApplyMarks: func(ctx context.Context, id uint64) (dashboard.MarksApplied, error) {
+			return applyMarks(ctx, store, id)
+		},
+		Report:       reportWriter(store, ""),
+		Calibrations: store,
+		Logger:       newLogger(stderr, o.verbose)})
 	if err != nil {
 		return usagef("%v", err)
 	}

@@ -1,13 +1,16 @@
 package main
 
 import (
+	"bufio"
 	"bytes"
 	"context"
 	"encoding/json"
 	"errors"
 	"io"
 	"net/http"
+	"regexp"
 	"strings"
+	"sync"
 	"testing"
 	"time"
 
@@ -170,3 +173,78 @@ func TestServe_BadUsage(t *testing.T) {
 		})
 	}
 }
+
+// Ensure that `liftyard serve --db FILE`, run as the command line runs it,
+// offers each run's printable report and serves it: the run page links it
+// and GET /runs/{id}/report answers 200 with the report's HTML (issue 9:
+// the link used to answer 404 "this dashboard has no store attached").
+func TestServe_Report(t *testing.T) {
+	db := importedRun(t)
+	ctx, cancel := context.WithCancel(t.Context())
+	outR, outW := io.Pipe()
+	var errOut syncBuf
+	done := make(chan int, 1)
+	go func() {
+		code := run(ctx, []string{"serve", "--db", db, "--addr", "127.0.0.1:0"}, outW, &errOut)
+		outW.Close()
+		done <- code
+	}()
+	t.Cleanup(func() {
+		cancel()
+		select {
+		case code := <-done:
+			assert.Equal(t, 0, code, "serve exit code; stderr: %s", errOut.String())
+		case <-time.After(5 * time.Second):
+			t.Error("serve did not stop within 5 s of Ctrl-C")
+		}
+	})
+	lines := make(chan string, 1)
+	go func() {
+		line, _ := bufio.NewReader(outR).ReadString('\n')
+		lines <- line
+		io.Copy(io.Discard, outR)
+	}()
+	var url string
+	select {
+	case line := <-lines:
+		m := regexp.MustCompile(`on (http://127\.0\.0\.1:\d+/)`).FindStringSubmatch(line)
+		require.NotNil(t, m, "serve's first line %q names no URL; stderr: %s", line, errOut.String())
+		url = m[1]
+	case <-time.After(10 * time.Second):
+		t.Fatalf("serve did not listen within 10 s; stderr: %s", errOut.String())
+	}
+
+	code, page := fetch(t, "GET", url+"runs/1", "", nil)
+	require.Equal(t, 200, code, page)
+	assert.Contains(t, page, `<a href="/runs/1/report"`)
+
+	req, err := http.NewRequestWithContext(t.Context(), "GET", url+"runs/1/report", nil)
+	require.NoError(t, err)
+	res, err := http.DefaultClient.Do(req)
+	require.NoError(t, err)
+	body, err := io.ReadAll(res.Body)
+	res.Body.Close()
+	require.NoError(t, err)
+	require.Equal(t, http.StatusOK, res.StatusCode, string(body))
+	assert.Equal(t, "text/html; charset=utf-8", res.Header.Get("Content-Type"))
+	assert.Contains(t, string(body), "Lift test report: run 1")
+	assert.Contains(t, string(body), "<h2>Steady segments</h2>")
+	assert.Contains(t, string(body), "<svg", "the report's plots are inline")
+
+	code, _ = fetch(t, "GET", url+"runs/9/report", "", nil)
+	assert.Equal(t, http.StatusNotFound, code, "report of a run the store does not have")
+}
+
+// syncBuf is a bytes.Buffer safe for a writer and a reader goroutine.
+type syncBuf struct {
+	mu sync.Mutex
+	b  bytes.Buffer
+}
+
+func (s *syncBuf) Write(p []byte) (int, error) {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.Write(p)
+}
+
+func (s *syncBuf) String() string { s.mu.Lock(); defer s.mu.Unlock(); return s.b.String() }

@@ -52,9 +52,11 @@
     $("no-segments").hidden = false;
   }
 
-  // setRoof shows the zone tables (and hides the force-balance tiles) for
-  // a roof rig.
-  function setRoof(on) { $("live").classList.toggle("roof", on); }
+  // setLayout shows the parts of the page for the run's rig kind: the
+  // server maps each kind to a layout (data-layouts, dashboard/kinds.go),
+  // which is the class of #live that style.css reads.
+  const layouts = JSON.parse($("live").dataset.layouts || "{}");
+  function setLayout(kind) { $("live").className = layouts[kind] || "balance"; }
 
   function agreesText(a) { return a === true ? "yes" : (a === false ? "no" : "—"); }
 
@@ -98,7 +100,7 @@
     set("run-rig", r.rig);
     set("run-kind", r.kind + ", " + r.fluid);
     set("run-area", fix(r.area_m2, 4) + " m² " + r.area_kind);
-    setRoof(r.kind === "roof");
+    setLayout(r.kind);
   }
 
   function onLive(l) {
@@ -129,7 +131,7 @@
     if (!isFinite(t)) t = Date.now();
     push(trends.q, t, l.q_pa);
     push(trends.cl, t, l.cl);
-    if (l.zones && l.zones.length) { setRoof(true); onZones(l.zones); }
+    if (l.zones && l.zones.length) onZones(l.zones);
   }
 
   function push(tr, t, v) {

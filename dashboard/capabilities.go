@@ -1,0 +1,46 @@
+package dashboard
+
+import "net/http"
+
+// caps is what this dashboard can do, for the templates: a page offers a
+// link or a form only when its capability is on (Config).
+type caps struct {
+	Live         bool // a recording feeds the live page
+	Marks        bool // run pages show the marks
+	EditMarks    bool // and may change them
+	Report       bool // run pages link to the printable report
+	Calibrations bool // the calibration pages exist
+}
+
+func (s *Server) caps() caps {
+	return caps{
+		Live:         s.live,
+		Marks:        s.marks != nil,
+		EditMarks:    s.marks != nil && s.apply != nil,
+		Report:       s.report != nil,
+		Calibrations: s.cals != nil,
+	}
+}
+
+// Messages of the 404 that a route of a capability that is off answers.
+const (
+	offLive         = "the live feed is off on this dashboard: no recording feeds it (liftyard record and liftyard demo do)"
+	offMarks        = "marks are off on this dashboard: it was started without a mark store (liftyard serve --db FILE shows and edits marks)"
+	offReport       = "the report is off on this dashboard: it was started without a report writer (liftyard report --db FILE --run ID writes one)"
+	offCalibrations = "calibrations are off on this dashboard: it was started without a calibration store"
+)
+
+// need returns h when on, else a handler that answers 404 with msg (JSON
+// on API routes).
+func (s *Server) need(on bool, msg string, api bool, h http.HandlerFunc) http.HandlerFunc {
+	if on {
+		return h
+	}
+	return func(w http.ResponseWriter, r *http.Request) {
+		if api {
+			writeJSONStatus(w, http.StatusNotFound, map[string]string{"error": msg})
+			return
+		}
+		http.Error(w, msg, http.StatusNotFound)
+	}
+}

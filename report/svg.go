@@ -1,0 +1,81 @@
+package report
+
+import (
+	"bytes"
+	"fmt"
+	"strconv"
+
+	"gonum.org/v1/plot"
+
+	"liftyard/estimate"
+	"liftyard/storage"
+)
+
+// LiftPlotSVG draws the report's lift plot of a run as a standalone SVG
+// document, for the dashboard's run page: C_L against α with U95 bars in
+// both (against the spin ratio S for a rotor), and the lift line over the
+// linear range when the run's kind fits one and the fit succeeds. No
+// design curve is drawn (that needs the rig file's folder; the report
+// has it). Segments without C_L or abscissa are left out and the x label
+// says how many; with none left it draws empty axes that say so.
+func LiftPlotSVG(run storage.Run, segs []estimate.Segment) ([]byte, error) {
+	r := &Report{Run: run, Segments: segs}
+	r.fitPolar(estimate.PolarOptions{})
+	p, _, left, err := r.drawLift()
+	if err != nil {
+		return nil, fmt.Errorf("run %d: %w", run.ID, err)
+	}
+	switch {
+	case p == nil:
+		xLabel := "angle of attack α [°]"
+		if r.section().spin {
+			xLabel = "spin ratio S = ωR/V"
+		}
+		p = emptyPlot("Lift coefficient", xLabel+" — no segments with C_L yet", "C_L")
+	case left > 0:
+		p.X.Label.Text += " — " + strconv.Itoa(left) + " segment(s) without C_L or abscissa not shown"
+	}
+	p.Title.Text = fmt.Sprintf("Run %d: %s", run.ID, p.Title.Text)
+	return standaloneSVG(p)
+}
+
+// ZonePlotSVG draws the report's zone plot of a roof run as a standalone
+// SVG document, for the dashboard's run page: each block's net Cp mean per
+// zone with U95 bars, beside the zone's design value. Rows without a zone
+// or Cp mean are left out and the x label says how many; with none left it
+// draws empty axes that say so.
+func ZonePlotSVG(run storage.Run, segs []estimate.Segment) ([]byte, error) {
+	r := &Report{Run: run, Segments: segs}
+	p, left, err := r.drawZones()
+	if err != nil {
+		return nil, fmt.Errorf("run %d: %w", run.ID, err)
+	}
+	switch {
+	case p == nil:
+		p = emptyPlot("Net pressure coefficient per zone", "zone — no roof blocks yet", "net Cp (negative = uplift)")
+	case left > 0:
+		p.X.Label.Text += " — " + strconv.Itoa(left) + " row(s) without a zone Cp not shown"
+	}
+	p.Title.Text = fmt.Sprintf("Run %d: %s", run.ID, p.Title.Text)
+	return standaloneSVG(p)
+}
+
+// emptyPlot is a plot's frame with nothing in it (unit axes).
+func emptyPlot(title, xLabel, yLabel string) *plot.Plot {
+	p := newPlot(title, xLabel, yLabel)
+	p.X.Min, p.X.Max, p.Y.Min, p.Y.Max = 0, 1, 0, 1
+	return p
+}
+
+// standaloneSVG renders p as an SVG document of the report's plot size.
+func standaloneSVG(p *plot.Plot) ([]byte, error) {
+	wt, err := p.WriterTo(plotW, plotH, "svg")
+	if err != nil {
+		return nil, fmt.Errorf("svg: %w", err)
+	}
+	var buf bytes.Buffer
+	if _, err := wt.WriteTo(&buf); err != nil {
+		return nil, fmt.Errorf("svg: %w", err)
+	}
+	return buf.Bytes(), nil
+}
