@@ -12,7 +12,7 @@ import (
 // reader skips to the next newline, so noise never grows a buffer.
 const MaxLineBytes = 4096
 
-// Frame is one serial frame (DESIGN §3.3): one sample time of a device.
+// Frame is one serial frame (docs/design.md §3.3): one sample time of a device.
 //
 // On the wire it is one ASCII line
 //

@@ -118,7 +118,7 @@ var frameTests = []struct {
 	{name: "empty line", line: "\n", n: 1, reason: acquire.ReasonParse, err: acquire.ErrFrameSyntax},
 }
 
-// Ensure that frames of DESIGN §3.3 parse, and every bad line is rejected
+// Ensure that frames of docs/design.md §3.3 parse, and every bad line is rejected
 // with the right sentinel, reason and field.
 func TestParseFrame(t *testing.T) {
 	for _, tt := range frameTests {

@@ -14,7 +14,7 @@ import (
 // samples is over a minute of data at 1 kHz, far more than one block needs.
 const MaxPayloadSamples = 1 << 16
 
-// payload is the JSON block of DESIGN §3.3:
+// payload is the JSON block of docs/design.md §3.3:
 //
 //	{"seq":17,"t_us":1733061000000000,"dt_us":1000,"v":{"n_fore":[812.1,813.0],"pitot":[201.4,201.9]}}
 //

@@ -11,7 +11,7 @@ import (
 	"liftyard/acquire"
 )
 
-// Ensure that block payloads of DESIGN §3.3 decode, and every malformed one is
+// Ensure that block payloads of docs/design.md §3.3 decode, and every malformed one is
 // rejected with the right reason.
 func TestDecodePayload(t *testing.T) {
 	tests := []struct {

@@ -31,7 +31,7 @@ func rawCSVError(name string, line int, col, format string, args ...any) error {
 // none: 100 samples, 0.1 s at 1 kHz, the size of a live block.
 const DefaultRawCSVBlock = 100
 
-// ReadRawCSV reads a raw CSV record (DESIGN §3.3) and hands it on as Blocks
+// ReadRawCSV reads a raw CSV record (docs/design.md §3.3) and hands it on as Blocks
 // of source, as a live source would:
 //
 //	t_s,n_fore,n_aft,pitot

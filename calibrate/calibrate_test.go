@@ -13,8 +13,8 @@ import (
 )
 
 // Ensure that K95 is the two-sided 95 % Student t quantile: JCGM 100:2008
-// Table G.2 and standard t tables (values as listed in the team's
-// check-values §9.2, recomputed there from the regularised incomplete beta).
+// Table G.2 and standard t tables (values as listed in
+// docs/references.md §9.2, recomputed there from the regularised incomplete beta).
 func TestK95_StudentT(t *testing.T) {
 	for _, tc := range []struct {
 		dof, want float64

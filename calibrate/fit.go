@@ -54,7 +54,7 @@ const exactRel = 1e-20
 //     may be wrong;
 //   - non-linearity or hysteresis could not be computed (see below).
 //
-// NonlinearityPctFS and HysteresisPctFS follow DESIGN §3.1, in reading
+// NonlinearityPctFS and HysteresisPctFS follow docs/design.md §3.1, in reading
 // space: points with Direction Down are unloading points, all others
 // (Up or unstated) loading points. Readings at the same applied value (equal
 // within 1e-9 of the applied span) are averaged first, so repeated cycles
@@ -265,7 +265,7 @@ func levels(pts []Point, tol float64) []level {
 }
 
 // characteristics returns non-linearity and hysteresis in % of the loading
-// reading span (DESIGN §3.1; see FitPoly), and warnings when they cannot be
+// reading span (docs/design.md §3.1; see FitPoly), and warnings when they cannot be
 // computed.
 func characteristics(points []Point) (nonlinPct, hystPct float64, warnings []string) {
 	var up, down []Point

@@ -47,11 +47,11 @@ func lre(est, cert float64) float64 {
 // Ensure that FitPoly reproduces the certified values of the NIST StRD
 // linear least-squares datasets Norris (order 1) and Pontius (order 2).
 // Source: NIST/ITL Statistical Reference Datasets, Norris.dat and
-// Pontius.dat, certified values (15 significant digits), as listed in the
-// team's check-values §5 [C+R]. In both, the NIST model is y = B0 + B1·x
+// Pontius.dat, certified values (15 significant digits), as listed in
+// docs/references.md §5 [C+R]. In both, the NIST model is y = B0 + B1·x
 // (+ B2·x²) with x our reading and y our applied value, so the certified
 // B's are our poly. Required: LRE ≥ 9 on the coefficients (a project
-// choice, check-values §5), 6 significant digits on s(B) and the residual SD.
+// choice, docs/references.md §5), 6 significant digits on s(B) and the residual SD.
 func TestFitPoly_NIST(t *testing.T) {
 	for _, tc := range []struct {
 		name, file string
@@ -118,7 +118,7 @@ func TestFitPoly_Cubic24BitCounts(t *testing.T) {
 	assert.Less(t, f.ResidualSD, 1e-10, "noise-free data: residual SD at rounding level (N)")
 	assert.Empty(t, f.Warnings, "the cubic term is needed and ν = 16")
 	assert.Equal(t, 0.0, f.HysteresisPctFS, "unloading points lie on the loading curve")
-	// Non-linearity from the definition (DESIGN §3.1), in reading space:
+	// Non-linearity from the definition (docs/design.md §3.1), in reading space:
 	// the line through the lowest (x = 1e6) and highest (x = 7e6) loading
 	// points, as a function of the applied value; the largest deviation of a
 	// loading reading from it, in % of the 6e6-count span.
@@ -132,7 +132,7 @@ func TestFitPoly_Cubic24BitCounts(t *testing.T) {
 	assert.Greater(t, f.NonlinearityPctFS, 0.1, "the curve is visibly non-linear")
 }
 
-// Ensure that non-linearity and hysteresis follow DESIGN §3.1 on a small
+// Ensure that non-linearity and hysteresis follow docs/design.md §3.1 on a small
 // invented point set, checked against arithmetic done by hand:
 //
 //	loading:   0 N → 1000, 50 N → 3010 and 3030 (mean 3020), 100 N → 5000

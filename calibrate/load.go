@@ -7,7 +7,7 @@ import (
 	"liftyard/rig"
 )
 
-// The load levels against a channel's rated capacity (DESIGN §5).
+// The load levels against a channel's rated capacity (docs/design.md §5).
 const (
 	LoadWarnFrac  = 0.8 // warning at 80 % of capacity
 	LoadAlarmFrac = 1.0 // alarm at 100 %

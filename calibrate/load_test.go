@@ -13,7 +13,7 @@ import (
 
 // Ensure that a load cell is flagged at 80 % of its rated capacity (warning)
 // and at 100 % (alarm), by the magnitude of the load in either direction,
-// with exact sample counts (DESIGN §5; the 80 % level is common practice).
+// with exact sample counts (docs/design.md §5; the 80 % level is common practice).
 func TestLoadMonitor_WarningAndAlarm(t *testing.T) {
 	r := &rig.Rig{Channels: []rig.Channel{
 		{Name: "n_fore", Quantity: rig.QuantityForce, CapacitySI: 500},

@@ -34,7 +34,7 @@ const (
 	colDirection = "direction"
 )
 
-// ReadPoints reads calibration points from a CSV file (DESIGN §3.1):
+// ReadPoints reads calibration points from a CSV file (docs/design.md §3.1):
 //
 //	# dead weights on the fore cell, 2026-12-01
 //	applied,reading,direction

@@ -14,7 +14,7 @@ import (
 	"liftyard/rig"
 )
 
-// Ensure that ReadPoints accepts the points format of DESIGN §3.1 with its
+// Ensure that ReadPoints accepts the points format of docs/design.md §3.1 with its
 // comments, blank lines, column orders and number syntaxes, and names the
 // exact line and column of every problem.
 func TestReadPoints(t *testing.T) {

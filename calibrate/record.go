@@ -48,7 +48,7 @@ type Fit struct {
 	Dof        int         `json:"dof"`         // ν = points − (order + 1)
 	// NonlinearityPctFS is the largest deviation of the loading readings from
 	// the straight line through the lowest and highest loading points, in %
-	// of the loading reading span (DESIGN §3.1).
+	// of the loading reading span (docs/design.md §3.1).
 	NonlinearityPctFS float64 `json:"nonlinearity_pct_fs"`
 	// HysteresisPctFS is the largest |down − up| reading at the same applied
 	// value, in % of the loading reading span; 0 without unloading points.

@@ -23,7 +23,7 @@ const ZeroKeep = 30 * time.Second
 const ZeroMin = 500 * time.Millisecond
 
 // ZeroWatch collects the flow-off stretches at the start and the end of a
-// run (DESIGN §4: flow-off zero before and after each run). It is not safe
+// run (docs/design.md §4: flow-off zero before and after each run). It is not safe
 // for concurrent use; the recorder loop owns it.
 type ZeroWatch struct {
 	q         string  // dynamic pressure channel

@@ -11,8 +11,8 @@ import (
 	"time"
 
 	"liftyard/estimate"
-	"liftyard/rig"
 	"liftyard/report"
+	"liftyard/rig"
 	"liftyard/storage"
 )
 

@@ -108,7 +108,7 @@ func TestAPI_RoofGolden(t *testing.T) {
 	if err := json.Unmarshal(get(t, s.Handler(), "GET", "/api/v1/live", nil).Body.Bytes(), &live); err != nil {
 		t.Fatal(err)
 	}
-	// |En| ≤ 1 agrees (DESIGN §4); no design value: agrees is null.
+	// |En| ≤ 1 agrees (docs/design.md §4); no design value: agrees is null.
 	var rows []map[string]any
 	if err := json.Unmarshal(get(t, s.Handler(), "GET", "/api/v1/runs/5/segments", nil).Body.Bytes(), &rows); err != nil {
 		t.Fatal(err)

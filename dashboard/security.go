@@ -11,7 +11,7 @@ import (
 // tokenCookie is the cookie that carries the token after /?token=... .
 const tokenCookie = "token"
 
-// secure wraps next with the checks of DESIGN §5, outermost first:
+// secure wraps next with the checks of docs/design.md §5, outermost first:
 //
 //  1. Host check on loopback (DNS rebinding): only 127.0.0.1, localhost and
 //     [::1] with our port.

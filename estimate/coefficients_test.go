@@ -55,7 +55,7 @@ var turbulentFoil = foilCase{
 // Ensure statistical coverage: over 200 seeds the 95 % interval of C_L holds
 // the true value 90–99 % of the time, the mean U95 is within 1.5× of the
 // true 95 % spread, and plain s/√N (ignoring autocorrelation) covers clearly
-// less, which is why N_eff is used (DESIGN §4).
+// less, which is why N_eff is used (docs/design.md §4).
 func TestReduce_Coverage(t *testing.T) {
 	const seeds = 200
 	c := turbulentFoil

@@ -26,7 +26,7 @@ const (
 // means adding one Column to the table in columns.go.
 type Column struct {
 	// Name is the JSON key and the CSV header: snake_case with the unit as
-	// suffix (STYLE §2: q_pa, q_u95_pa, alpha_deg). "_u95" marks an expanded
+	// suffix (DEVELOPERS.md "Units in names": q_pa, q_u95_pa, alpha_deg). "_u95" marks an expanded
 	// uncertainty U = k·u at 95 % coverage (calibrate.Value.U95).
 	Name string
 	// Unit is the unit of the values, for headers and docs; "" for a
@@ -70,7 +70,7 @@ var (
 )
 
 // columns is the result schema, in output order. Names and units follow
-// STYLE §2; the docs list it in docs/columns.md (a test keeps them equal).
+// DEVELOPERS.md "Units in names"; the docs list it in docs/columns.md (a test keeps them equal).
 var columns = []Column{
 	{Name: "run", Type: TypeInt, Kinds: kindsAll, Doc: "run id in the store",
 		Read: func(run uint64, _ *Segment) (any, bool) { return int64(run), true }},

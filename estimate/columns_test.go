@@ -56,7 +56,7 @@ func roofSeg(design bool) estimate.Segment {
 	return s
 }
 
-// Ensure that every column of the table names itself by STYLE §2, applies
+// Ensure that every column of the table names itself by DEVELOPERS.md "Units in names", applies
 // to the kinds it should, and is present or absent on foil, rotor and roof
 // rows exactly as the schema says: absent where the kind does not carry it
 // (never 0), absent where the row has no value.
@@ -145,7 +145,7 @@ func TestColumns_Table(t *testing.T) {
 	}
 }
 
-// Ensure that a unit suffix and the Unit field agree (STYLE §2: one unit
+// Ensure that a unit suffix and the Unit field agree (DEVELOPERS.md "Units in names": one unit
 // per name), so a header built from Unit says what the name says.
 func TestColumns_UnitMatchesName(t *testing.T) {
 	suffix := map[string]string{"_pa": "Pa", "_deg": "°", "_m_s": "m/s", "_kg_m3": "kg/m³", "_pa_s": "Pa·s", "_n": "N"}

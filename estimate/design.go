@@ -42,7 +42,7 @@ func HelmboldSlope(a0PerRad, aspectRatio float64) float64 {
 
 // En returns the normalised error of a measurement against a design or
 // reference value, as used in proficiency testing and interlaboratory
-// comparisons (ISO/IEC 17043:2010 Annex B, from memory; DESIGN §4):
+// comparisons (ISO/IEC 17043:2010 Annex B, from memory; docs/design.md §4):
 //
 //	En = (x_m − x_d)/√(U_m² + U_d²)
 //

@@ -240,7 +240,7 @@ func (t ThinAirfoil) Describe() string {
 // DesignAt returns the design value at a measured point and the normalised
 // error of the measurement against it,
 //
-//	En = (C_L,m − C_L,d)/√(U_m² + U_d²)   (DESIGN §4)
+//	En = (C_L,m − C_L,d)/√(U_m² + U_d²)   (docs/design.md §4)
 //
 // where U_d also carries the angle's uncertainty through the design slope:
 // U_d² = U95(C_L,d)² + (dC_L,d/dα · U95(α))², because the design is read at

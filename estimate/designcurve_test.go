@@ -66,9 +66,9 @@ func TestParseDesignCurve_Errors(t *testing.T) {
 }
 
 // Ensure the thin-airfoil design slopes: 2π/rad for a section (thin-airfoil
-// theory, check-values §6.1), the lifting line at AR 6 (3π/2 = 4.7124/rad,
-// check-values §6.3 [R]) and Helmbold below AR 4 (2π·AR/(2 + √(AR² + 4)),
-// check-values §6.3 [M formula, R values]); at AR 4 the switch is to the
+// theory, docs/references.md §6.1), the lifting line at AR 6 (3π/2 = 4.7124/rad,
+// docs/references.md §6.3 [R]) and Helmbold below AR 4 (2π·AR/(2 + √(AR² + 4)),
+// docs/references.md §6.3 [M formula, R values]); at AR 4 the switch is to the
 // lifting line.
 func TestThinAirfoil_Slope(t *testing.T) {
 	for _, c := range []struct {
@@ -106,7 +106,7 @@ func comparePoints(pts ...[3]float64) []estimate.Segment {
 	return segs
 }
 
-// Ensure the comparison's En (DESIGN §4), verdict and reasons for the
+// Ensure the comparison's En (docs/design.md §4), verdict and reasons for the
 // patterns a test engineer meets: all agree, stall above the design's
 // range, an offset, a slope error and points outside a design curve.
 func TestCompare(t *testing.T) {
@@ -146,7 +146,7 @@ func TestCompare(t *testing.T) {
 	}
 }
 
-// Ensure En by its definition, En = (x_m − x_d)/√(U_m² + U_d²) (DESIGN §4),
+// Ensure En by its definition, En = (x_m − x_d)/√(U_m² + U_d²) (docs/design.md §4),
 // with the angle's U95 carried through the design slope into U_d.
 func TestDesignAt_En(t *testing.T) {
 	d := estimate.ThinAirfoil{}
@@ -167,7 +167,7 @@ func TestDesignAt_En(t *testing.T) {
 }
 
 // Ensure the Froude number by its definition Fn = V/√(g·L) with standard
-// gravity 9.806 65 m/s² (ITTC practice; g0 of ISO 2533, check-values §1.1).
+// gravity 9.806 65 m/s² (ITTC practice; g0 of ISO 2533, docs/references.md §1.1).
 func TestFroude(t *testing.T) {
 	for _, c := range []struct {
 		name       string

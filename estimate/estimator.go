@@ -29,7 +29,7 @@ type Config struct {
 	// I/O): a DesignCurve from the rig's [lift] design CSV, or ThinAirfoil.
 	Design Design
 	// Marks, when not empty, are steady segments set by hand ("user marks
-	// override", DESIGN §4): the estimator makes exactly one segment per
+	// override", docs/design.md §4): the estimator makes exactly one segment per
 	// mark from the samples inside it (both ends included, on the clock of
 	// Segment.TStart/TEnd) instead of running the automatic steady test,
 	// in mark order. A mark is not split by a gap, and MinDuration does not

@@ -9,7 +9,7 @@ import (
 	"liftyard/rig"
 )
 
-// Ensure that the pitot inversions of check-values §7 are reproduced
+// Ensure that the pitot inversions of docs/references.md §7 are reproduced
 // (Bernoulli, incompressible, [R]).
 func TestSpeedFromQ(t *testing.T) {
 	tests := []struct {
@@ -27,7 +27,7 @@ func TestSpeedFromQ(t *testing.T) {
 			near(t, "q round trip", estimate.DynamicPressure(tc.rho, tc.want), tc.qPa, tc.qPa*1e-5) // V printed to 6 digits
 		})
 	}
-	// check-values §7 table: ½ρV² at ISA for 10, 30, 50, 70 m/s [R].
+	// docs/references.md §7 table: ½ρV² at ISA for 10, 30, 50, 70 m/s [R].
 	for _, r := range []struct{ v, q float64 }{{10, 61.250}, {30, 551.250}, {50, 1531.250}, {70, 3001.250}} {
 		near(t, "½ρV²", estimate.DynamicPressure(1.225, r.v), r.q, 5e-4)
 	}
@@ -51,7 +51,7 @@ func TestDynamicPressureFromPitot(t *testing.T) {
 	if q := estimate.DynamicPressureFromPitot(250, -1); !math.IsNaN(q) {
 		t.Errorf("negative C gave %g, want NaN", q)
 	}
-	// Re = ρVL/μ; ISA air, 20 m/s, 0.2 m chord: ν0 = 1.4607e-5 m²/s (check-values §1.1 [R]).
+	// Re = ρVL/μ; ISA air, 20 m/s, 0.2 m chord: ν0 = 1.4607e-5 m²/s (docs/references.md §1.1 [R]).
 	near(t, "Re", estimate.Reynolds(1.225, 20, 0.2, 1.7894e-5), 20*0.2/1.4607e-5, 30) // ν0 printed to 5 digits
 }
 
@@ -77,7 +77,7 @@ func TestWindAxes(t *testing.T) {
 	}
 }
 
-// Ensure the finite-wing slopes of check-values §6.3 ([R] from the formulas,
+// Ensure the finite-wing slopes of docs/references.md §6.3 ([R] from the formulas,
 // which are [M]: lifting line and Helmbold as recalled, not checked in print).
 func TestLiftSlopes(t *testing.T) {
 	a0PerRad := 0.105 / rig.Rad(1) // 0.105 per degree (NACA 2412, Abbott & von Doenhoff via Anderson 1999)
@@ -102,7 +102,7 @@ func TestLiftSlopes(t *testing.T) {
 	}
 }
 
-// Ensure that En compares expanded uncertainties (DESIGN §4).
+// Ensure that En compares expanded uncertainties (docs/design.md §4).
 func TestEn(t *testing.T) {
 	inf := math.Inf(1)
 	m := calibrate.Value{X: 0.52, U: 0.01, Dof: inf}

@@ -17,7 +17,7 @@ func near(t *testing.T, name string, got, want, tol float64) {
 }
 
 // Ensure that ISA reproduces ISO 2533 / US76 at geopotential heights
-// (check-values §1.2; all heights here are geopotential H, not geometric Z).
+// (docs/references.md §1.2; all heights here are geopotential H, not geometric Z).
 func TestISA(t *testing.T) {
 	tests := []struct {
 		name        string
@@ -38,7 +38,7 @@ func TestISA(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			tk, p, rho := estimate.ISA(tc.hM)
 			near(t, "T", tk, tc.tempK, 0.0005)
-			near(t, "p", p, tc.pPa, 0.1)      // check-values §1.2 tolerance ±0.1 Pa
+			near(t, "p", p, tc.pPa, 0.1)      // docs/references.md §1.2 tolerance ±0.1 Pa
 			near(t, "rho", rho, tc.rho, 1e-5) // ±1e-5 kg/m³
 			near(t, "a", estimate.SpeedOfSoundMPerS(tk), tc.aMPerS, 0.001)
 		})
@@ -49,7 +49,7 @@ func TestISA(t *testing.T) {
 }
 
 // Ensure that AirDensityCIPM2007 reproduces the CIPM-2007 rows of
-// check-values §2.3 (Picard et al., Metrologia 45 (2008) 149).
+// docs/references.md §2.3 (Picard et al., Metrologia 45 (2008) 149).
 func TestAirDensityCIPM2007(t *testing.T) {
 	const mmHg = 133.322387415 // Pa per mmHg (conventional)
 	tests := []struct {
@@ -90,7 +90,7 @@ func TestAirDensityCIPM2007_FallsWithHumidity(t *testing.T) {
 	}
 }
 
-// Ensure that Sutherland's law matches US76 eq. 51 (check-values §3, [R], ±1e-9 Pa·s
+// Ensure that Sutherland's law matches US76 eq. 51 (docs/references.md §3, [R], ±1e-9 Pa·s
 // on values printed to 6 digits, so ±5e-11 on the last digit plus rounding).
 func TestSutherlandMuPaS(t *testing.T) {
 	tests := []struct {
@@ -111,7 +111,7 @@ func TestSutherlandMuPaS(t *testing.T) {
 }
 
 // Ensure that the water properties reproduce ITTC 7.5-02-01-03 Rev 02 (2011)
-// rows of check-values §4 to their printed digits.
+// rows of docs/references.md §4 to their printed digits.
 func TestWaterProperties_ITTC(t *testing.T) {
 	tests := []struct {
 		name    string
@@ -149,7 +149,7 @@ func TestWaterProperties_ITTC(t *testing.T) {
 // Ensure that every 1 °C row of ITTC Table 1 (fresh, 10–40 °C, pp. 4–5) and
 // Table 3 (seawater, 1–30 °C, pp. 7–8), as quoted in a public test suite, is
 // reproduced, and that interpolation between rows stays within ±0.002 kg/m³
-// of the mid-point of a cubic through the table (check-values §4 note).
+// of the mid-point of a cubic through the table (docs/references.md §4 note).
 func TestWaterDensity_TableRows(t *testing.T) {
 	fresh := []float64{999.7025, 999.6079, 999.5004, 999.3801, 999.2474, 999.1026, 998.9461,
 		998.7780, 998.5986, 998.4083, 998.2072, 997.9955, 997.7735, 997.5414,

@@ -18,7 +18,7 @@ const EulerGamma = 0.57721566490153286
 // the design coefficient is the mode plus 1.4 dispersions, U + 1.4/a, the
 // 78 % fractile exp(−e^{−1.4}) = 0.7815 of the epoch-peak distribution
 // (Cook & Mayne, J. Wind Eng. Ind. Aerodyn. 4 (1979) 149–164 and 6 (1980)
-// 125–137 — the attribution and the 1.4 are from memory, check-values
+// 125–137 — the attribution and the 1.4 are from memory, docs/references.md
 // §12.1 [M]; the fractile is recomputed there [R]).
 const CookMayneReduced = 1.4
 
@@ -35,7 +35,7 @@ type GumbelFit struct {
 //
 //	x_p = U + (1/a)·(−ln(−ln p))
 //
-// (check-values §12.1). p outside (0, 1) gives NaN.
+// (docs/references.md §12.1). p outside (0, 1) gives NaN.
 func (g GumbelFit) Quantile(p float64) float64 {
 	if !(p > 0 && p < 1) {
 		return math.NaN()
@@ -85,7 +85,7 @@ func meanSD(x []float64) (mean, sd float64) {
 }
 
 // FitGumbelMoments fits a Gumbel distribution by the method of moments
-// (check-values §12.1):
+// (docs/references.md §12.1):
 //
 //	1/a = s·√6/π,  U = x̄ − γ_E/a
 //
@@ -103,7 +103,7 @@ func FitGumbelMoments(x []float64) (GumbelFit, error) {
 }
 
 // FitGumbelMLE fits a Gumbel distribution by maximum likelihood
-// (check-values §12.1; e.g. Coles, An Introduction to Statistical Modeling
+// (docs/references.md §12.1; e.g. Coles, An Introduction to Statistical Modeling
 // of Extreme Values, Springer 2001, §3.3): the dispersion b = 1/a solves
 //
 //	b = x̄ − Σ x_i·e^{−x_i/b} / Σ e^{−x_i/b}

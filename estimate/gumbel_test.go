@@ -13,7 +13,7 @@ import (
 // 1923–1987, metres, in year order: Coles (2001), An Introduction to
 // Statistical Modeling of Extreme Values, Springer, Example 3.4.1 (public
 // copies: jojal5/Extremes.jl data/portpirie.csv, britols/bayesian_adventures
-// data/portpirie.csv; check-values §12.1).
+// data/portpirie.csv; docs/references.md §12.1).
 var portPirie = []float64{
 	4.03, 3.83, 3.65, 3.88, 4.01, 4.08, 4.18, 3.80, 4.36, 3.96, 3.98, 4.69, 3.85, 3.96, 3.85, 3.93, 3.75, 3.63, 3.57, 4.25,
 	3.97, 4.05, 4.24, 4.22, 3.73, 4.37, 4.06, 3.71, 3.96, 4.06, 4.55, 3.79, 3.89, 4.11, 3.85, 3.86, 3.86, 4.21, 4.01, 4.11,
@@ -30,12 +30,12 @@ func TestGumbel_PortPirie(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	// [R] check-values §12.1: Gumbel MLE recomputed (U, 1/a) = (3.869 44, 0.194 89).
+	// [R] docs/references.md §12.1: Gumbel MLE recomputed (U, 1/a) = (3.869 44, 0.194 89).
 	if math.Abs(mle.ModeU-3.86944) > 1e-4 || math.Abs(mle.ScaleInvA-0.19489) > 1e-4 {
 		t.Errorf("MLE (U, 1/a) = (%.5f, %.5f), want (3.86944, 0.19489) ±1e-4", mle.ModeU, mle.ScaleInvA)
 	}
 	// Coles (2001) §3.4.1 prints (3.87, 0.195): from memory, recomputed
-	// (check-values §12.1 [M] published, [R] recomputed) — to the printed digits.
+	// (docs/references.md §12.1 [M] published, [R] recomputed) — to the printed digits.
 	if got := math.Round(mle.ModeU*100) / 100; got != 3.87 {
 		t.Errorf("MLE U rounds to %.2f, want 3.87", got)
 	}
@@ -49,7 +49,7 @@ func TestGumbel_PortPirie(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	// [R] check-values §12.1: method of moments (3.872 37, 0.187 53), from
+	// [R] docs/references.md §12.1: method of moments (3.872 37, 0.187 53), from
 	// mean 3.980 615 and s 0.240 513.
 	if math.Abs(mom.ModeU-3.87237) > 1e-4 || math.Abs(mom.ScaleInvA-0.18753) > 1e-4 {
 		t.Errorf("moments (U, 1/a) = (%.5f, %.5f), want (3.87237, 0.18753) ±1e-4", mom.ModeU, mom.ScaleInvA)
@@ -84,7 +84,7 @@ func TestGumbel_MLEScoreZero(t *testing.T) {
 }
 
 // Ensure that Quantile is the Gumbel inverse CDF: the Cook & Mayne value
-// U + 1.4/a sits at p = exp(−e^{−1.4}) = 0.7815 (check-values §12.1 [R]),
+// U + 1.4/a sits at p = exp(−e^{−1.4}) = 0.7815 (docs/references.md §12.1 [R]),
 // and p outside (0, 1) gives NaN.
 func TestGumbel_Quantile(t *testing.T) {
 	g := estimate.GumbelFit{ModeU: 1.2, ScaleInvA: 0.3, N: 16}

@@ -3,7 +3,7 @@ package estimate
 import "math"
 
 // WindAxes resolves body-axis forces into wind axes (a rotation by α; common
-// practice, DESIGN §4):
+// practice, docs/design.md §4):
 //
 //	L = N·cos α − A·sin α,  D = N·sin α + A·cos α
 //

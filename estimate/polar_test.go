@@ -155,7 +155,7 @@ func quantileAbs(x []float64, p float64) float64 {
 // Ensure the symmetric-foil identity: points of a symmetric section, noise
 // included, mirrored through the origin (C_L(−α) = −C_L(α)) give α_L0 = 0
 // and C_L(0) = 0 to rounding, whatever the noise (thin-airfoil theory: a
-// symmetric section has α_L0 = 0; check-values §6.1).
+// symmetric section has α_L0 = 0; docs/references.md §6.1).
 func TestFitPolar_SymmetricFoil(t *testing.T) {
 	r := rand.New(rand.NewPCG(3, 4))
 	var segs []estimate.Segment
@@ -183,10 +183,10 @@ func TestFitPolar_SymmetricFoil(t *testing.T) {
 // Ensure the fit recovers published NACA 2412 section data within the
 // reading tolerance of the plots: a0 ≈ 0.105 per degree and α_L0 ≈ −2.2°
 // (Abbott & von Doenhoff, Theory of Wing Sections, Appendix IV, as read in
-// Anderson, Aircraft Performance and Design, 1999, Fig. 2.6; check-values
+// Anderson, Aircraft Performance and Design, 1999, Fig. 2.6; docs/references.md
 // §6.2 [C], plot-read: ±0.005/deg and ±0.3°). The points are built from
 // those numbers with C_L noise of 0.01 (seeded); the measured slope is below
-// the thin-airfoil 2π/rad = 0.1097/deg (check-values §6.1), as real
+// the thin-airfoil 2π/rad = 0.1097/deg (docs/references.md §6.1), as real
 // sections are.
 func TestFitPolar_NACA2412(t *testing.T) {
 	const a0PerDeg, alphaL0Deg = 0.105, -2.2

@@ -21,7 +21,7 @@ type Contribution struct {
 	TypeA bool
 }
 
-// Segment is one steady segment of a run: one polar point (DESIGN §3.4).
+// Segment is one steady segment of a run: one polar point (docs/design.md §3.4).
 // Dimensionless coefficients carry no unit suffix; every Value holds its
 // standard uncertainty (U95() gives the expanded one).
 type Segment struct {
@@ -48,7 +48,7 @@ type Segment struct {
 	CLBudget   []Contribution
 	CDBudget   []Contribution
 
-	// Roof rigs: one Segment is one zone in one block of time (DESIGN §4).
+	// Roof rigs: one Segment is one zone in one block of time (docs/design.md §4).
 	// Zone is empty for force-balance rigs.
 	Zone     string
 	CpMean   calibrate.Value // zone's area-weighted net pressure coefficient, mean over the block (negative = uplift)

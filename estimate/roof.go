@@ -24,12 +24,12 @@ const roofFlowOffFrac = 0.02
 // beside it.
 type RoofConfig struct {
 	Block  time.Duration // length of one result block (default 10 min, common practice; tests use seconds)
-	Epochs int           // sub-epochs per block for the extreme-value fit (default 16 — the "sixteen epochs" convention, check-values §12)
+	Epochs int           // sub-epochs per block for the extreme-value fit (default 16 — the "sixteen epochs" convention, docs/references.md §12)
 	Window time.Duration // live window (default 10 s)
 	Now    func() time.Time
 }
 
-// RoofEstimator is the streaming estimation stage of a roof rig (DESIGN §1
+// RoofEstimator is the streaming estimation stage of a roof rig (docs/design.md §1
 // workflow 2, §4 "Roofs"): it turns calibrated blocks of tap pressures into
 // one Segment per zone per block of time, plus a whole-roof Segment (zone
 // "roof"), and a live moving-window estimate.

@@ -74,7 +74,7 @@ func zoneSeg(t *testing.T, segs []estimate.Segment, zone string) estimate.Segmen
 // case: q_p = 600 Pa, zone F with c_pe,10 = −1.8 (EN 1991-1-4:2005 Table
 // 7.2, flat roof, sharp eaves [C]); with c_pi = +0.2 the net coefficient is
 // −2.0 and w = q_p·(c_pe − c_pi) = −1200 Pa; with c_pi = −0.3 (7.2.9(6)
-// NOTE [C for −0.3, M for +0.2]) it is −1.5 and −900 Pa (check-values §8.1,
+// NOTE [C for −0.3, M for +0.2]) it is −1.5 and −900 Pa (docs/references.md §8.1,
 // [R]).
 func TestRoof_ENNetPressure(t *testing.T) {
 	for _, tc := range []struct {

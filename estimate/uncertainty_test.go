@@ -10,7 +10,7 @@ import (
 )
 
 // Ensure the Welch–Satterthwaite and combination against the GUM worked
-// examples of check-values §9.3.
+// examples of docs/references.md §9.3.
 func TestWelchSatterthwaite_GUM(t *testing.T) {
 	t.Run("GUM G.4.1, Y = bX1X2X3", func(t *testing.T) {
 		// Relative u 0.25 %, 0.57 %, 0.82 % from means of 10, 5, 15 readings
@@ -43,7 +43,7 @@ func TestWelchSatterthwaite_GUM(t *testing.T) {
 	})
 }
 
-// Ensure the coverage factors against Student t (check-values §9.2, [R],
+// Ensure the coverage factors against Student t (docs/references.md §9.2, [R],
 // three decimals as tabulated).
 func TestCoverageFactor_Table(t *testing.T) {
 	inf := math.Inf(1)
@@ -106,7 +106,7 @@ func TestMonteCarlo_JCGM101Additive(t *testing.T) {
 }
 
 // exactNEffAR1 is the exact N_eff of an AR(1) series with ρ_k = φ^k
-// (check-values §11: N/[1 + 2Σ_{k=1}^{N−1}(1 − k/N)φ^k]).
+// (docs/references.md §11: N/[1 + 2Σ_{k=1}^{N−1}(1 − k/N)φ^k]).
 func exactNEffAR1(n int, phi float64) float64 {
 	s, pk := 0.0, 1.0
 	for k := 1; k < n; k++ {
@@ -126,7 +126,7 @@ func ar1(r *rand.Rand, n int, phi, sigma float64) []float64 {
 	return x
 }
 
-// Ensure that NEff recovers the exact AR(1) values of check-values §11 on
+// Ensure that NEff recovers the exact AR(1) values of docs/references.md §11 on
 // simulated series. The sample autocorrelation is noisy and biased low, so
 // the test asserts the mean over 200 series within 12 % of the exact value,
 // and that the exact formula itself reproduces the table.
@@ -134,7 +134,7 @@ func TestNEff_AR1(t *testing.T) {
 	tests := []struct {
 		n     int
 		phi   float64
-		exact float64 // [R] check-values §11
+		exact float64 // [R] docs/references.md §11
 	}{
 		{1000, 0.5, 333.778},
 		{1000, 0.9, 53.135},

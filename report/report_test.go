@@ -242,7 +242,7 @@ func TestWriteHTML_SelfContainedAndWellFormed(t *testing.T) {
 	assert.Contains(t, svgs[3], "q [Pa]")
 }
 
-// Ensure that the report holds the cautions of DESIGN §6, a row for every
+// Ensure that the report holds the cautions of docs/design.md §6, a row for every
 // segment, the polar parameters and the record-quality facts.
 func TestWriteHTML_Contents(t *testing.T) {
 	st, id := mustFinStore(t, "fin-7", `design = "thin-airfoil"`)

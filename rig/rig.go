@@ -127,7 +127,7 @@ type Source struct {
 	RateHz      float64 // simulated: sample rate, Hz (default 200)
 }
 
-// Publish says where live results go for other consumers on a site (DESIGN
+// Publish says where live results go for other consumers on a site (docs/design.md
 // §7): an existing MQTT broker, under a topic prefix.
 type Publish struct {
 	Broker      string // broker URL, tcp://host:port (ssl:// or tls:// for TLS)

@@ -88,7 +88,7 @@ func exportSegmentsCSV(w io.Writer, run Run, rows []estimate.Row) error {
 	return cw.Error()
 }
 
-// ExportRaw writes the raw readings of run id as CSV (DESIGN §3.3 "Raw CSV"):
+// ExportRaw writes the raw readings of run id as CSV (docs/design.md §3.3 "Raw CSV"):
 // a header t_s,<channel>,..., then one row per sample time, in device time
 // order across all sources; a blank cell means that channel has no sample at
 // that time (another source's time, or a NaN reading). t_s is the device

@@ -38,7 +38,7 @@ type contributionRec struct {
 }
 
 // segmentRec is an estimate.Segment as stored in results/<run>/<index>.
-// Field names follow the Go fields in snake_case (STYLE §2).
+// Field names follow the Go fields in snake_case (DEVELOPERS.md "Units in names").
 type segmentRec struct {
 	Index      int               `json:"index"`
 	TStart     time.Time         `json:"t_start"`

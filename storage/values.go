@@ -11,7 +11,7 @@ import (
 )
 
 // valueUnitSuffix is the column suffix of each quantity's SI unit in a
-// values export (STYLE §2: the unit ends the name).
+// values export (DEVELOPERS.md "Units in names": the unit ends the name).
 var valueUnitSuffix = map[rig.Quantity]string{
 	rig.QuantityForce:       "n",
 	rig.QuantityMoment:      "n_m",

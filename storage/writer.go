@@ -16,7 +16,7 @@ import (
 // Writer defaults.
 const (
 	// DefaultInterval is the longest an item waits before it is committed.
-	// DESIGN §5 allows a crash to lose "at most the last uncommitted batch";
+	// docs/design.md §5 allows a crash to lose "at most the last uncommitted batch";
 	// 200 ms of data is what a user would accept losing, and five commits a
 	// second cost a few ms of fsync each on an SSD, 10–50 ms on an SD card.
 	DefaultInterval = 200 * time.Millisecond

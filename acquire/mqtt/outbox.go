@@ -21,7 +21,7 @@ const DefaultOutboxQueue = 1024
 const publishWait = 30 * time.Second
 
 // Outbox publishes messages to a broker at QoS 1 from one goroutine, in the
-// order they were offered, for consumers elsewhere on a site (DESIGN §7:
+// order they were offered, for consumers elsewhere on a site (docs/design.md §7:
 // live results to the site broker). Offer never blocks: while the broker is
 // away or slow, messages wait in a bounded queue, and when it is full the
 // oldest is dropped and counted. Build one with OutboxFromRig or fill the

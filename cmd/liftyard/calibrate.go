@@ -219,7 +219,7 @@ func jnums(v []float64) []jnum {
 	return out
 }
 
-// calJSON is the --json output. The first seven fields are the DESIGN §3.1
+// calJSON is the --json output. The first seven fields are the docs/design.md §3.1
 // contract; the rest are extras for scripts.
 type calJSON struct {
 	ID                string   `json:"id"`

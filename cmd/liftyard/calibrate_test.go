@@ -54,7 +54,7 @@ func relErr(got, want float64) float64 { return math.Abs(got-want) / math.Abs(wa
 func TestCalibrate_NISTCertified(t *testing.T) {
 	// Certified values: NIST/ITL StRD linear least squares, Norris.dat and
 	// Pontius.dat (https://www.itl.nist.gov/div898/strd/lls/lls.shtml),
-	// as listed in the project's check-values §5.1 and §5.2. NIST's y is
+	// as listed in docs/references.md §5.1 and §5.2. NIST's y is
 	// our applied value, its x our reading.
 	tests := []struct {
 		name   string

@@ -18,13 +18,13 @@ var updateGolden = flag.Bool("update", false, "rewrite golden files in testdata/
 
 // Ensure the field calculator against published values, through run():
 // moist air by CIPM-2007 at 20 °C, 101 325 Pa, 50 % is 1.199 314 kg/m³
-// (check-values §2.3 [R], recomputed from Picard et al., Metrologia 45
+// (docs/references.md §2.3 [R], recomputed from Picard et al., Metrologia 45
 // (2008) Appendix A1; the issue asks for 1e-4, the recomputation allows
 // 2e-6); Sutherland μ at 20 °C is 1.813 41e-5 Pa·s (US Standard Atmosphere
-// 1976 eq. 51, check-values §3 [R]); fresh water at 20 °C is 998.2072
+// 1976 eq. 51, docs/references.md §3 [R]); fresh water at 20 °C is 998.2072
 // kg/m³, ν 1.0034e-6 m²/s and standard seawater at 15 °C 1026.0210 kg/m³,
 // ν 1.1892e-6 m²/s (ITTC 7.5-02-01-03 Rev 02 (2011) Tables 1 and 3,
-// check-values §4 [C]).
+// docs/references.md §4 [C]).
 func TestFluid_PublishedValues(t *testing.T) {
 	for _, c := range []struct {
 		name         string

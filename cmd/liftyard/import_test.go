@@ -224,7 +224,7 @@ func TestExport_Values(t *testing.T) {
 // the same blocks meet the same aligner, calibrator and estimator), and that
 // a corrected calibration, both normal-force cells reading 2 % high, shifts
 // C_L by exactly 0.02·(C_L·cos²α + C_D·sin α·cos α), the normal force's
-// share of the lift (L = N cos α − A sin α, DESIGN §4).
+// share of the lift (L = N cos α − A sin α, docs/design.md §4).
 func TestReprocess_DemoRun(t *testing.T) {
 	db, _ := demoForTest(t, 6*time.Second, nil)
 	code, out, errOut := runCLI(t, "reprocess", "--db", db, "--run", "1")

@@ -113,7 +113,7 @@ func TestDemoRig_IsTheExample(t *testing.T) {
 }
 
 // Ensure that usage errors exit 2, runtime failures 1, help 0, and that
-// check names the line of a bad rig file (DESIGN §3.1 exit statuses).
+// check names the line of a bad rig file (docs/design.md §3.1 exit statuses).
 func TestCLI_ExitStatus(t *testing.T) {
 	bad := filepath.Join(t.TempDir(), "bad.toml")
 	require.NoError(t, os.WriteFile(bad, []byte("name = \"x\"\nkind = \"foil\"\nfluid = \"lava\"\n"), 0o644))

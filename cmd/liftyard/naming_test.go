@@ -11,7 +11,7 @@ import (
 )
 
 // siSuffixes are the coherent SI unit suffixes a dimensional float64 field may
-// end with (STYLE §2). Longer suffixes come first so that "M2PerS" is not
+// end with (DEVELOPERS.md "Units in names"). Longer suffixes come first so that "M2PerS" is not
 // read as "S".
 var siSuffixes = []string{
 	"KgPerKg", "KgPerM3", "M2PerS", "MPerS", "RadPerS", "PerRad", "PaS", "NM",
@@ -45,7 +45,7 @@ var dimensionless = map[string]bool{
 }
 
 // Ensure that every exported float64 or calibrate.Value field in our
-// packages names its SI unit, or is a known dimensionless quantity (STYLE §2:
+// packages names its SI unit, or is a known dimensionless quantity (DEVELOPERS.md "Units in names":
 // one grep from a number on the screen to the code).
 func TestNaming_FieldsCarrySIUnits(t *testing.T) {
 	root := "../.."

@@ -37,7 +37,7 @@ func simRoofRig(t *testing.T) (*rig.Rig, string) {
 // Ensure that a roof rig records end to end: the simulated tap scanner
 // through the recorder, the roof estimator and the store, then `export
 // --what segments --format json` gives one row per zone per block with the
-// roof fields of DESIGN §3.4, and each zone's net Cp mean lies within its
+// roof fields of docs/design.md §3.4, and each zone's net Cp mean lies within its
 // U95 of the simulator's true value.
 func TestRecord_RoofEndToEnd(t *testing.T) {
 	r, toml := simRoofRig(t)

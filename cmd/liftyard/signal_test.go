@@ -98,7 +98,7 @@ func storedRun(t *testing.T, db string) storage.Run {
 }
 
 // Ensure that Ctrl-C (SIGINT) stops the demo in order: exit status 0, the
-// last batch committed, the run marked complete (STYLE §4).
+// last batch committed, the run marked complete (DEVELOPERS.md, shutdown order).
 func TestDemo_CtrlCShutsDownInOrder(t *testing.T) {
 	db := filepath.Join(t.TempDir(), "ctrlc.db")
 	cmd := startChild(t, "demo", "--db", db, "--addr", "127.0.0.1:0")
@@ -114,7 +114,7 @@ func TestDemo_CtrlCShutsDownInOrder(t *testing.T) {
 
 // Ensure that a recorder killed outright (SIGKILL: a power cut as far as the
 // process is concerned) leaves a store that opens, keeps what was committed,
-// and marks the run interrupted (DESIGN §5).
+// and marks the run interrupted (docs/design.md §5).
 func TestDemo_KilledRecorderLeavesAUsableStore(t *testing.T) {
 	db := filepath.Join(t.TempDir(), "kill.db")
 	cmd := startChild(t, "demo", "--db", db, "--addr", "127.0.0.1:0")

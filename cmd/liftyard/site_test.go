@@ -23,7 +23,7 @@ import (
 // Ensure that `liftyard simulate --mqtt` and `liftyard record` work against
 // a real site broker (Debian mosquitto): the recorder subscribes to the
 // simulated logger, and with a [publish] table publishes its live results
-// and segments back to the broker for other consumers (DESIGN §7, issue 4).
+// and segments back to the broker for other consumers (docs/design.md §7, issue 4).
 func TestRecord_SiteBrokerRoundTrip(t *testing.T) {
 	br := mosquittotest.Start(t)
 	text, err := os.ReadFile("../../testdata/rigs/foil-towtank.toml")
