@@ -18,6 +18,7 @@ import (
 	"unicode/utf8"
 
 	"liftyard/estimate"
+	"liftyard/process"
 	"liftyard/storage"
 )
 
@@ -48,12 +49,9 @@ type MarkStore interface {
 	RunStart(runID uint64) (time.Time, error)
 }
 
-// MarksApplied is the outcome of Config.ApplyMarks.
-type MarksApplied struct {
-	Segments int    `json:"segments"`
-	Unused   []int  `json:"unused"` // 1-based numbers of marks that held too few samples
-	Note     string `json:"note"`
-}
+// MarksApplied is the outcome of Config.ApplyMarks; its home is the
+// pipeline that produces it.
+type MarksApplied = process.MarksApplied
 
 // maxMarkBody bounds a mark request body: a mark is a few dozen bytes.
 const maxMarkBody = 4 << 10

@@ -11,18 +11,10 @@ import (
 	"text/tabwriter"
 	"time"
 
-	"liftyard/dashboard"
 	"liftyard/estimate"
 	"liftyard/process"
 	"liftyard/storage"
 )
-
-// applyMarks recomputes run id's segments with its stored marks through
-// process.ApplyMarks, for the dashboard's mark capability.
-func applyMarks(ctx context.Context, store *storage.Store, id uint64) (dashboard.MarksApplied, error) {
-	res, err := process.ApplyMarks(ctx, store, id)
-	return dashboard.MarksApplied(res), err
-}
 
 // parseMarkTime reads one end of a mark: seconds from the run's first
 // sample ("12.5") or an RFC 3339 time ("2026-03-14T09:00:12.5Z").
@@ -141,7 +133,7 @@ func runMarks(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 		fmt.Fprintf(stderr, "liftyard marks: marks of run %d cleared\n", id)
 	}
 	if *apply {
-		res, err := applyMarks(ctx, store, id)
+		res, err := process.ApplyMarks(ctx, store, id)
 		if err != nil {
 			return err
 		}

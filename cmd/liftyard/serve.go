@@ -93,7 +93,7 @@ func serve(ctx context.Context, o serveOptions, stderr io.Writer) error {
 	dash, err := dashboard.New(dashboard.Config{Addr: o.addr, Token: o.token, Runs: store,
 		Marks: newMarkStore(store),
 		ApplyMarks: func(ctx context.Context, id uint64) (dashboard.MarksApplied, error) {
-			return applyMarks(ctx, store, id)
+			return process.ApplyMarks(ctx, store, id)
 		},
 		Report:       reportWriter(store, ""),
 		Calibrations: store,
