@@ -1,7 +1,6 @@
 package dashboard
 
 import (
-	"bytes"
 	"errors"
 	"fmt"
 	"html/template"
@@ -17,6 +16,7 @@ import (
 	"gonum.org/v1/plot/vg/draw"
 
 	"liftyard/calibrate"
+	"liftyard/report"
 )
 
 // CalibrationStore reads stored calibration records. *storage.Store
@@ -365,7 +365,7 @@ func calFitPlot(rec calibrate.Record) ([]byte, error) {
 	if rising {
 		p.Legend.YOffs = -vg.Points(14)
 	}
-	return svgBytes(p, 6.5*vg.Inch, 4*vg.Inch)
+	return report.SVG(p, 6.5*vg.Inch, 4*vg.Inch)
 }
 
 // calResidualPlot draws applied − fitted against the reading, with the
@@ -418,7 +418,7 @@ func calResidualPlot(rec calibrate.Record) ([]byte, error) {
 	}
 	p.Legend.Top, p.Legend.Left = true, true
 	p.Legend.XOffs, p.Legend.YOffs = vg.Points(10), -vg.Points(12)
-	return svgBytes(p, 6.5*vg.Inch, 3.2*vg.Inch)
+	return report.SVG(p, 6.5*vg.Inch, 3.2*vg.Inch)
 }
 
 // padRange widens [lo, hi] by 5 % on each side, so no point sits on the
@@ -429,18 +429,6 @@ func padRange(lo, hi float64) (float64, float64) {
 		m = 0.5 * max(math.Abs(lo), 1)
 	}
 	return lo - m, hi + m
-}
-
-func svgBytes(p *plot.Plot, w, h vg.Length) ([]byte, error) {
-	wt, err := p.WriterTo(w, h, "svg")
-	if err != nil {
-		return nil, fmt.Errorf("svg: %w", err)
-	}
-	var buf bytes.Buffer
-	if _, err := wt.WriteTo(&buf); err != nil {
-		return nil, fmt.Errorf("svg: %w", err)
-	}
-	return buf.Bytes(), nil
 }
 
 // calFuncs format the calibration pages' numbers. They only print.

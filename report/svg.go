@@ -6,6 +6,7 @@ import (
 	"strconv"
 
 	"gonum.org/v1/plot"
+	"gonum.org/v1/plot/vg"
 
 	"liftyard/estimate"
 	"liftyard/storage"
@@ -68,8 +69,12 @@ func emptyPlot(title, xLabel, yLabel string) *plot.Plot {
 }
 
 // standaloneSVG renders p as an SVG document of the report's plot size.
-func standaloneSVG(p *plot.Plot) ([]byte, error) {
-	wt, err := p.WriterTo(plotW, plotH, "svg")
+func standaloneSVG(p *plot.Plot) ([]byte, error) { return SVG(p, plotW, plotH) }
+
+// SVG renders a gonum plot as a standalone SVG document of size w × h: the
+// one SVG writer of the report and the dashboard's plots.
+func SVG(p *plot.Plot, w, h vg.Length) ([]byte, error) {
+	wt, err := p.WriterTo(w, h, "svg")
 	if err != nil {
 		return nil, fmt.Errorf("svg: %w", err)
 	}
