@@ -2,6 +2,7 @@ package process_test
 
 import (
 	"context"
+	"errors"
 	"os"
 	"path/filepath"
 	"testing"
@@ -176,4 +177,48 @@ func TestApplyMarks_OneSegmentPerMark(t *testing.T) {
 	require.Len(t, segs, 2)
 	assert.False(t, segs[0].TStart.Before(marks[0].Start))
 	assert.False(t, segs[1].TEnd.After(marks[2].End))
+}
+
+// Ensure that a store that stops taking data (here its file is closed under
+// the recorder, as a broken card would) makes the recording fail loudly:
+// nothing blocks forever, and Finish says what happened (issue 9 review; a
+// full disk is the same path).
+func TestRecorder_StoreFailureIsLoud(t *testing.T) {
+	r, text := loadRig(t, foilRig)
+	store, err := storage.Open(filepath.Join(t.TempDir(), "broken.db"), storage.Options{})
+	require.NoError(t, err)
+	rec, err := process.NewRecorder(store, process.RecorderConfig{Rig: r, RigTOML: text, Offline: true})
+	require.NoError(t, err)
+	src := &acquire.CSVFile{Path: rawCSV, Source: r.Sources[0].Name, BlockN: 10}
+	n := 0
+	done := make(chan error, 1)
+	go func() {
+		_, err := process.Replay(t.Context(), src, rec.Pipeline(), func(b *acquire.Block, st process.Step) error {
+			if n++; n == 20 {
+				assert.NoError(t, store.Close())
+			}
+			if err := rec.Keep(b, st); err != nil {
+				return err
+			}
+			if n > 20 {
+				// Give the writer time to hit the closed file before the
+				// file runs out.
+				select {
+				case <-rec.WriterDone():
+				case <-time.After(20 * time.Millisecond):
+				}
+			}
+			return nil
+		})
+		_, ferr := rec.Finish(t.Context(), err, nil)
+		done <- errors.Join(err, ferr)
+	}()
+	select {
+	case err := <-done:
+		require.Error(t, err)
+		assert.ErrorContains(t, err, "store stopped taking data")
+		t.Log(err)
+	case <-time.After(30 * time.Second):
+		t.Fatal("the recorder hung on a failed store")
+	}
 }

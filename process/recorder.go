@@ -60,7 +60,10 @@ type Recorder struct {
 	runID   uint64
 	items   chan storage.Item
 	dropped atomic.Uint64
-	werr    chan error
+	werr    chan error    // the writer's result, once
+	wdone   chan struct{} // closed when the writer has returned
+	wfail   error         // the writer's error, set before wdone closes
+	lost    atomic.Uint64 // results and events not stored because the writer had failed
 	expired []acquire.Event
 	log     *slog.Logger
 	done    bool
@@ -100,7 +103,7 @@ func NewRecorder(store *storage.Store, cfg RecorderConfig) (*Recorder, error) {
 		return nil, err
 	}
 	rec := &Recorder{store: store, cfg: cfg, cal: cal, p: p, runID: id, log: log,
-		items: make(chan storage.Item, StoreQueue), werr: make(chan error, 1)}
+		items: make(chan storage.Item, StoreQueue), werr: make(chan error, 1), wdone: make(chan struct{})}
 	if err := store.SetRunCalibrations(id, storedIDs(cal)); err != nil {
 		_ = store.FinishRun(id, cfg.Now(), storage.StatusInterrupted, nil)
 		return nil, err
@@ -108,7 +111,12 @@ func NewRecorder(store *storage.Store, cfg RecorderConfig) (*Recorder, error) {
 	w := store.NewWriter(id, storage.WriterConfig{})
 	// The writer commits until items is closed (Finish), whatever the
 	// caller's context does.
-	go func() { rec.werr <- w.Run(context.Background(), rec.items) }()
+	go func() {
+		err := w.Run(context.Background(), rec.items)
+		rec.wfail = err
+		close(rec.wdone)
+		rec.werr <- err
+	}()
 	rec.expired = expiredCalibrations(cal, now)
 	for _, ev := range rec.expired {
 		rec.Event(ev)
@@ -130,9 +138,10 @@ func (rec *Recorder) Block(b acquire.Block) Step {
 }
 
 // Keep stores a stepped block (nil: none), its events and its segments. A
-// segment or event is never dropped; a live raw block is dropped (and
-// counted) rather than waited for. Keep has the signature Replay's each
-// wants; it never fails.
+// segment is never dropped while the store works; a live raw block is
+// dropped (and counted) rather than waited for. Keep has the signature
+// Replay's each wants: it fails once the store's writer has stopped on an
+// error, so an offline replay stops there.
 func (rec *Recorder) Keep(b *acquire.Block, st Step) error {
 	for _, ev := range st.Events {
 		rec.Event(ev)
@@ -140,13 +149,41 @@ func (rec *Recorder) Keep(b *acquire.Block, st Step) error {
 	if b != nil {
 		it := storage.Item{Block: b}
 		if rec.cfg.Offline {
-			rec.items <- it // not live: wait for the store
+			rec.send(it) // not live: wait for the store
 		} else {
 			storage.Offer(rec.items, it, &rec.dropped)
 		}
 	}
 	for i := range st.Segments {
-		rec.items <- storage.Item{Segment: &st.Segments[i]}
+		rec.send(storage.Item{Segment: &st.Segments[i]})
+	}
+	return rec.StoreFailed()
+}
+
+// send waits for the writer to take it, unless the writer has stopped on
+// an error: then it is counted as lost instead of blocking forever.
+func (rec *Recorder) send(it storage.Item) {
+	select {
+	case rec.items <- it:
+	case <-rec.wdone:
+		rec.lost.Add(1)
+	}
+}
+
+// WriterDone is closed when the store's writer has stopped before Finish:
+// a commit failed (a full disk, a broken file). The recording should stop;
+// StoreFailed says why.
+func (rec *Recorder) WriterDone() <-chan struct{} { return rec.wdone }
+
+// StoreFailed returns the writer's error once it has stopped on one, else
+// nil.
+func (rec *Recorder) StoreFailed() error {
+	select {
+	case <-rec.wdone:
+		if rec.wfail != nil {
+			return fmt.Errorf("the store stopped taking data: %w", rec.wfail)
+		}
+	default:
 	}
 	return nil
 }
@@ -217,6 +254,9 @@ func (rec *Recorder) Finish(ctx context.Context, runErr error, sources []acquire
 	rec.done = true
 	close(rec.items)
 	werr := <-rec.werr
+	if n := rec.lost.Load(); werr != nil && n > 0 {
+		werr = fmt.Errorf("%w; %d results and events after it were not stored", werr, n)
+	}
 	if errors.Is(runErr, context.Canceled) || errors.Is(runErr, context.DeadlineExceeded) {
 		runErr = nil
 	}
@@ -229,6 +269,9 @@ func (rec *Recorder) Finish(ctx context.Context, runErr error, sources []acquire
 		rec.store.SetRunChannels(rec.runID, rec.p.Channels(), rec.p.Loads()))
 	if ferr == nil && werr == nil && rec.p.zeros != nil {
 		ferr = rec.correctZeroDrift(context.WithoutCancel(ctx), &fin)
+	}
+	if werr != nil && errors.Is(runErr, rec.wfail) {
+		werr = nil // the caller's error already says it (StoreFailed)
 	}
 	return fin, errors.Join(werr, ferr)
 }

@@ -35,6 +35,9 @@ const outboxGrace = 2 * time.Second
 // smooth to watch and costs little.
 const livePeriod = 200 * time.Millisecond
 
+// errStoreStopped ends a recording whose store stopped taking data.
+var errStoreStopped = errors.New("recording stopped because the store failed")
+
 // Main is one recording session: sources → calibrate → estimate → store and
 // dashboard. The demo and record verbs and the end-to-end tests share it.
 type Main struct {
@@ -186,6 +189,7 @@ func (m *Main) Run(ctx context.Context) error {
 	tick := time.NewTicker(time.Second)
 	defer tick.Stop()
 	var lastLive time.Time
+	storeDown := rec.WriterDone()
 loop:
 	for {
 		select {
@@ -193,6 +197,11 @@ loop:
 			rec.Event(ev)
 		case <-tick.C:
 			pub.health(m.health(rec))
+		case <-storeDown:
+			// A failed commit (full disk, broken file) ends the recording
+			// loudly rather than losing data in silence; Finish says why.
+			cancel(errStoreStopped)
+			storeDown = nil
 		case b, ok := <-raw:
 			if !ok {
 				break loop
