@@ -95,27 +95,38 @@ type Polar struct {
 }
 
 // HysteresisStep is one set-point measured on rising and on falling angle.
-// Up and Down are the means of the segments reached with α rising and
-// falling; their uncertainties are the Type A parts only, as the inputs
-// common to the run (calibrations, area) move both alike and cancel in
-// the difference Diff = Up − Down.
+// CLUp and CLDown are the mean C_L of the segments reached with α rising
+// and falling; their uncertainties are the Type A parts only, as the inputs
+// common to the run (calibrations, area) move both alike and cancel in the
+// difference CLDiff = CLUp − CLDown.
 type HysteresisStep struct {
-	AlphaRad float64
-	Up, Down calibrate.Value
-	Diff     calibrate.Value
+	AlphaRad     float64
+	CLUp, CLDown calibrate.Value
+	CLDiff       calibrate.Value
 }
 
 // Significant reports whether the up and down sweeps differ by more than
 // the difference's U95.
-func (h HysteresisStep) Significant() bool { return math.Abs(h.Diff.X) > h.Diff.U95() }
+func (h HysteresisStep) Significant() bool { return math.Abs(h.CLDiff.X) > h.CLDiff.U95() }
 
-// MaxHysteresis returns the step with the largest |Up − Down| relative to
+// Describe says in one sentence (no capital, no full stop) how the sweeps
+// differ at the step, for reports and the command line.
+func (h HysteresisStep) Describe() string {
+	s := fmt.Sprintf("up and down sweeps at %.1f°: C_L %.3f rising, %.3f falling, difference %.3f ± %.3f (95 %%)",
+		rig.Deg(h.AlphaRad), h.CLUp.X, h.CLDown.X, h.CLDiff.X, h.CLDiff.U95())
+	if h.Significant() {
+		return s + ": hysteresis (the flow separates and reattaches at different angles)"
+	}
+	return s + ": within its uncertainty, no hysteresis seen"
+}
+
+// MaxHysteresis returns the step with the largest |CLUp − CLDown| relative to
 // its U95; ok is false when no set-point was measured in both directions.
 func (p Polar) MaxHysteresis() (h HysteresisStep, ok bool) {
 	best := -1.0
 	for _, s := range p.Hysteresis {
-		r := math.Abs(s.Diff.X) / s.Diff.U95()
-		if !(s.Diff.U95() > 0) {
+		r := math.Abs(s.CLDiff.X) / s.CLDiff.U95()
+		if !(s.CLDiff.U95() > 0) {
 			r = math.Inf(1)
 		}
 		if !ok || r > best {
@@ -593,7 +604,7 @@ func hysteresisAt(pts []polarPoint, g angleGroup) (HysteresisStep, bool) {
 	}
 	diff := calibrate.Value{X: up.X - down.X, U: math.Hypot(up.U, down.U),
 		Dof: WelchSatterthwaite([]Contribution{{UY: up.U, Dof: up.Dof}, {UY: down.U, Dof: down.Dof}})}
-	return HysteresisStep{AlphaRad: g.alpha, Up: up, Down: down, Diff: diff}, true
+	return HysteresisStep{AlphaRad: g.alpha, CLUp: up, CLDown: down, CLDiff: diff}, true
 }
 
 // growLinear picks the automatic linear range over set-points (see

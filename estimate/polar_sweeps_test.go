@@ -129,7 +129,7 @@ func TestFitPolar_RepeatedSweepsExact(t *testing.T) {
 	}
 	// The down sweeps lose 0.15 at 12° (14° is only met at the turn).
 	h, ok := p.MaxHysteresis()
-	if !ok || !h.Significant() || math.Abs(h.Diff.X-0.15) > 1e-9 {
+	if !ok || !h.Significant() || math.Abs(h.CLDiff.X-0.15) > 1e-9 {
 		t.Errorf("hysteresis %+v (ok %v), want up − down = 0.15", h, ok)
 	}
 }
