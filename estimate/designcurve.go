@@ -501,8 +501,13 @@ func (c *Comparison) testLine(d Design, p Polar) {
 	c.DesignSlopePerRad = calibrate.Value{X: b, U: uB, Dof: math.Inf(1)}
 	a0 := mx - my/b
 	c.DesignAlphaZeroRad = calibrate.Value{X: a0, U: math.Hypot(mu/b, my/(b*b)*uB), Dof: math.Inf(1)}
-	if dc, ok := d.(*DesignCurve); ok && dc.HasAlphaZero {
-		c.DesignAlphaZeroRad = dc.AlphaZeroRad
+	switch dd := d.(type) {
+	case *DesignCurve:
+		if dd.HasAlphaZero {
+			c.DesignAlphaZeroRad = dd.AlphaZeroRad
+		}
+	case ThinAirfoil:
+		c.DesignAlphaZeroRad = calibrate.Value{X: dd.AlphaZeroRad, Dof: math.Inf(1)} // exact, as its line is
 	}
 	c.SlopePerRad, c.AlphaZeroRad = p.SlopePerRad, p.AlphaZeroRad
 	c.SlopeEn = En(c.SlopePerRad, c.DesignSlopePerRad)

@@ -21,7 +21,7 @@ type sweepRun struct {
 	SlopePerRad, Alpha0Deg, StallDeg float64
 	ReattachDeg, DownLoss            float64
 	StepsDeg                         []float64
-	Sweeps                           int // monotone runs: up, down, up, …
+	Sweeps                           int     // monotone runs: up, down, up, …
 	UScatter                         float64 // Type A u of each C_L
 	UAlphaScatterDeg                 float64 // Type A u of each segment's mean α
 	UAngleDeg                        float64 // angle calibration u, common to the run
