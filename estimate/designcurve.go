@@ -1,6 +1,7 @@
 package estimate
 
 import (
+	"bytes"
 	"encoding/csv"
 	"errors"
 	"fmt"
@@ -48,10 +49,18 @@ type DesignCurve struct {
 	AlphaRad []float64 // strictly increasing
 	CL       []float64
 	CLU95    []float64 // expanded (95 %) uncertainty of each C_L; zeros when the file has none
+	// AlphaZeroRad is the design's zero-lift angle as the file states it
+	// (a comment line "# alpha_zero_deg = …", optionally with
+	// "# alpha_zero_u95_deg = …"); HasAlphaZero is false when the file
+	// states none, and Compare then takes the zero crossing of the curve's
+	// line over the measured linear range.
+	AlphaZeroRad calibrate.Value
+	HasAlphaZero bool
 }
 
 // ParseDesignCurve reads a design curve CSV:
 //
+//	# alpha_zero_deg = -2.1
 //	alpha_deg,cl[,cl_u95]
 //	-4,-0.21,0.02
 //	0,0.16,0.02
@@ -61,8 +70,22 @@ type DesignCurve struct {
 // two rows at the same angle, a non-number, a negative cl_u95 or fewer than
 // two rows is an error that names the line (and column). name labels
 // errors, e.g. the file name.
+//
+// Lines starting with # are comments. Two comment lines, anywhere in the
+// file, are read as settings: "# alpha_zero_deg = x" states the design's
+// zero-lift angle in degrees, and "# alpha_zero_u95_deg = u" its expanded
+// uncertainty (default 0). Any other comment is ignored, so a file without
+// them reads as before.
 func ParseDesignCurve(r io.Reader, name string) (*DesignCurve, error) {
-	cr := csv.NewReader(r)
+	data, err := io.ReadAll(r)
+	if err != nil {
+		return nil, designCurveError(name, 0, "", "%v", err)
+	}
+	settings, err := designSettings(data, name)
+	if err != nil {
+		return nil, err
+	}
+	cr := csv.NewReader(bytes.NewReader(data))
 	cr.FieldsPerRecord = -1
 	cr.TrimLeadingSpace = true
 	cr.Comment = '#'
@@ -139,6 +162,10 @@ func ParseDesignCurve(r io.Reader, name string) (*DesignCurve, error) {
 	}
 	sort.SliceStable(rows, func(i, j int) bool { return rows[i].a < rows[j].a })
 	d := &DesignCurve{Name: name}
+	if a0, ok := settings["alpha_zero_deg"]; ok {
+		d.AlphaZeroRad = calibrate.Value{X: rig.Rad(a0), U: rig.Rad(settings["alpha_zero_u95_deg"]) / calibrate.K95(math.Inf(1)), Dof: math.Inf(1)}
+		d.HasAlphaZero = true
+	}
 	for i, rw := range rows {
 		if i > 0 && rw.a == rows[i-1].a {
 			return nil, fail(rw.line, "alpha_deg", "angle %g° is given twice (also on line %d)", rw.a, rows[i-1].line)
@@ -148,6 +175,46 @@ func ParseDesignCurve(r io.Reader, name string) (*DesignCurve, error) {
 		d.CLU95 = append(d.CLU95, rw.u)
 	}
 	return d, nil
+}
+
+// designSettings reads the "# key = value" comment lines of a design CSV
+// (alpha_zero_deg, alpha_zero_u95_deg). A setting given twice or with a
+// value that is not a number is an error naming its line; other comments
+// are ignored.
+func designSettings(data []byte, name string) (map[string]float64, error) {
+	out := map[string]float64{}
+	seen := map[string]int{}
+	for i, ln := range strings.Split(string(data), "\n") {
+		t := strings.TrimSpace(strings.TrimPrefix(ln, "\ufeff"))
+		if !strings.HasPrefix(t, "#") {
+			continue
+		}
+		key, val, ok := strings.Cut(strings.TrimSpace(t[1:]), "=")
+		key = strings.ToLower(strings.TrimSpace(key))
+		if !ok || (key != "alpha_zero_deg" && key != "alpha_zero_u95_deg") {
+			continue
+		}
+		line := i + 1
+		if prev, twice := seen[key]; twice {
+			return nil, designCurveError(name, line, "", "%s is given twice (also on line %d)", key, prev)
+		}
+		seen[key] = line
+		v, err := strconv.ParseFloat(strings.TrimSpace(val), 64)
+		if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+			return nil, designCurveError(name, line, "", "%s: %q is not a number", key, strings.TrimSpace(val))
+		}
+		switch {
+		case key == "alpha_zero_deg" && math.Abs(v) > 30:
+			return nil, designCurveError(name, line, "", "alpha_zero_deg %g is outside -30 to 30 degrees", v)
+		case key == "alpha_zero_u95_deg" && v < 0:
+			return nil, designCurveError(name, line, "", "alpha_zero_u95_deg %g is negative (an expanded uncertainty is ≥ 0)", v)
+		}
+		out[key] = v
+	}
+	if line, ok := seen["alpha_zero_u95_deg"]; ok && seen["alpha_zero_deg"] == 0 {
+		return nil, designCurveError(name, line, "", "alpha_zero_u95_deg without alpha_zero_deg (add # alpha_zero_deg = the zero-lift angle)")
+	}
+	return out, nil
 }
 
 func csvFail(name string, err error) error {
@@ -184,7 +251,11 @@ func (d *DesignCurve) Describe() string {
 	if n == 0 {
 		return "design curve (empty)"
 	}
-	return fmt.Sprintf("design curve %s (%d points, %.1f° to %.1f°)", d.Name, n, rig.Deg(d.AlphaRad[0]), rig.Deg(d.AlphaRad[n-1]))
+	s := fmt.Sprintf("design curve %s (%d points, %.1f° to %.1f°", d.Name, n, rig.Deg(d.AlphaRad[0]), rig.Deg(d.AlphaRad[n-1]))
+	if d.HasAlphaZero {
+		s += fmt.Sprintf(", α_L0 = %.2f°", rig.Deg(d.AlphaZeroRad.X))
+	}
+	return s + ")"
 }
 
 // HelmboldBelowAspectRatio is where ThinAirfoil switches from Prandtl's
@@ -280,7 +351,21 @@ type Comparison struct {
 	Disagree int // points with |En| > 1
 	Outside  int // points where the design has no value
 	Verdict  string
-	Reasons  []string // what a test engineer can act on
+	Reasons  []string // what a test engineer can act on; Reasons[1] is the diagnosis when the verdict is "disagrees"
+
+	// The lift line against the design's, over the measured linear range
+	// (LineTested is false without a lift-curve fit or when the design
+	// covers too little of that range). The slope tests the scale (angle
+	// scale, area, q, span correction); the zero-lift angle tests the offset
+	// (angle zero, camber, normal-force zero), which a scale error does not
+	// move. Each En is (measured − design)/√(U95_m² + U95_d²).
+	LineTested         bool
+	SlopePerRad        calibrate.Value // measured lift slope (Polar.SlopePerRad)
+	DesignSlopePerRad  calibrate.Value // the design's slope over the linear range
+	SlopeEn            float64
+	AlphaZeroRad       calibrate.Value // measured zero-lift angle (Polar.AlphaZeroRad)
+	DesignAlphaZeroRad calibrate.Value // the design's zero-lift angle
+	AlphaZeroEn        float64
 }
 
 // Verdicts of a Comparison.
@@ -305,14 +390,19 @@ func Agrees(en float64) (agrees, ok bool) {
 // Compare compares every segment with finite C_L against the design (En per
 // point, DesignAt) and sums up. The verdict is "agrees" when every compared
 // point has |En| ≤ 1, "disagrees" when any has not, and "no comparison"
-// when the design covers none of them. The reasons look for patterns among
-// the points that disagree: all above (or below) some angle with the
-// measured lift below the design (a stall the design does not model), all on
-// one side of the design at every angle (an offset or scale error: area,
-// zero, q), or opposite signs at the two ends (a different slope: angle
-// scale, span correction).
-func Compare(segs []Segment, d Design) Comparison {
-	c := Comparison{Verdict: VerdictNone}
+// when the design covers none of them.
+//
+// p is the run's lift-curve fit (FitPolar; nil when there is none: the
+// reasons then rest on the pattern of the points alone). Its slope and zero-lift angle are tested against the
+// design's over the linear range, each with its own En (see Comparison):
+// that tells an offset from a slope error whatever the pattern of the
+// points. The reasons name what is out: the zero-lift angle (angle zero,
+// the design's camber, normal-force zero) or the slope (angle scale,
+// reference area, q calibration, aspect-ratio correction), and a stall the
+// design does not model (disagreeing points all above the last agreeing
+// one, with the measured lift below the design).
+func Compare(segs []Segment, d Design, p *Polar) Comparison {
+	c := Comparison{Verdict: VerdictNone, SlopeEn: math.NaN(), AlphaZeroEn: math.NaN()}
 	if d != nil {
 		c.Design = d.Describe()
 	}
@@ -335,6 +425,9 @@ func Compare(segs []Segment, d Design) Comparison {
 		c.Points = append(c.Points, pt)
 	}
 	sort.SliceStable(c.Points, func(i, j int) bool { return c.Points[i].AlphaRad < c.Points[j].AlphaRad })
+	if p != nil && d != nil {
+		c.testLine(d, *p)
+	}
 	compared := c.Agree + c.Disagree
 	switch {
 	case compared == 0:
@@ -345,6 +438,9 @@ func Compare(segs []Segment, d Design) Comparison {
 	case c.Disagree == 0:
 		c.Verdict = VerdictAgrees
 		c.Reasons = append(c.Reasons, fmt.Sprintf("all %d compared points agree with the design within their uncertainties (|En| ≤ 1)", compared))
+		if c.LineTested {
+			c.Reasons = append(c.Reasons, c.lineSentence())
+		}
 	default:
 		c.Verdict = VerdictDisagrees
 		c.Reasons = append(c.Reasons, c.disagreeReasons(compared)...)
@@ -355,7 +451,84 @@ func Compare(segs []Segment, d Design) Comparison {
 	return c
 }
 
-// disagreeReasons describes the pattern of the disagreeing points.
+// designLineSamples is how many angles, evenly spaced over the linear range,
+// the design's own line is fitted to.
+const designLineSamples = 9
+
+// testLine sets the line tests: the design's slope and zero-lift angle
+// over the polar's linear range against the fit's.
+//
+// The design's line is the least-squares line through the design at
+// designLineSamples angles evenly spaced over the linear range (exact for
+// thin-airfoil theory). u(slope) comes from the design's u at the two ends
+// of the range, taken as independent: √(u_lo² + u_hi²)/(α_hi − α_lo).
+// The zero-lift angle is the design curve's own when its file states one
+// (DesignCurve.AlphaZeroRad), else −C_L(0)/a of that line, with u from the
+// mean design u (as an offset, /a) and the slope's u.
+func (c *Comparison) testLine(d Design, p Polar) {
+	lo, hi := p.LinearMinRad, p.LinearMaxRad
+	if !(hi > lo) || !finite(p.SlopePerRad.X) {
+		return
+	}
+	var xs, ys, us []float64
+	for k := range designLineSamples {
+		a := lo + (hi-lo)*float64(k)/float64(designLineSamples-1)
+		v, _, ok := d.At(a)
+		if !ok {
+			continue
+		}
+		xs, ys, us = append(xs, a), append(ys, v.X), append(us, v.U)
+	}
+	n := len(xs)
+	if n < 2 || xs[n-1]-xs[0] < (hi-lo)/2 {
+		return // the design covers less than half the linear range
+	}
+	var mx, my, mu float64
+	for i := range xs {
+		mx, my, mu = mx+xs[i], my+ys[i], mu+us[i]
+	}
+	mx, my, mu = mx/float64(n), my/float64(n), mu/float64(n)
+	var sxx, sxy float64
+	for i := range xs {
+		sxx += (xs[i] - mx) * (xs[i] - mx)
+		sxy += (xs[i] - mx) * (ys[i] - my)
+	}
+	b := sxy / sxx
+	if !(b != 0) {
+		return
+	}
+	uB := math.Hypot(us[0], us[n-1]) / (xs[n-1] - xs[0])
+	c.DesignSlopePerRad = calibrate.Value{X: b, U: uB, Dof: math.Inf(1)}
+	a0 := mx - my/b
+	c.DesignAlphaZeroRad = calibrate.Value{X: a0, U: math.Hypot(mu/b, my/(b*b)*uB), Dof: math.Inf(1)}
+	switch dd := d.(type) {
+	case *DesignCurve:
+		if dd.HasAlphaZero {
+			c.DesignAlphaZeroRad = dd.AlphaZeroRad
+		}
+	case ThinAirfoil:
+		c.DesignAlphaZeroRad = calibrate.Value{X: dd.AlphaZeroRad, Dof: math.Inf(1)} // exact, as its line is
+	}
+	c.SlopePerRad, c.AlphaZeroRad = p.SlopePerRad, p.AlphaZeroRad
+	c.SlopeEn = En(c.SlopePerRad, c.DesignSlopePerRad)
+	c.AlphaZeroEn = En(c.AlphaZeroRad, c.DesignAlphaZeroRad)
+	c.LineTested = true
+}
+
+// lineSentence states both line tests in one sentence.
+func (c *Comparison) lineSentence() string {
+	return fmt.Sprintf("lift slope %.3f ± %.3f /rad against the design's %.3f (En %+.1f); zero-lift angle %.2f ± %.2f° against the design's %.2f° (En %+.1f)",
+		c.SlopePerRad.X, c.SlopePerRad.U95(), c.DesignSlopePerRad.X, c.SlopeEn,
+		rig.Deg(c.AlphaZeroRad.X), rig.Deg(c.AlphaZeroRad.U95()), rig.Deg(c.DesignAlphaZeroRad.X), c.AlphaZeroEn)
+}
+
+// SlopeOut and OffsetOut report whether the line tests failed (|En| > 1);
+// both are false when the line was not tested.
+func (c *Comparison) SlopeOut() bool  { return c.LineTested && !(math.Abs(c.SlopeEn) <= 1) }
+func (c *Comparison) OffsetOut() bool { return c.LineTested && !(math.Abs(c.AlphaZeroEn) <= 1) }
+
+// disagreeReasons describes what is out: the line tests first, then the
+// pattern of the disagreeing points.
 func (c *Comparison) disagreeReasons(compared int) []string {
 	var bad []ComparisonPoint
 	var firstAgree, lastAgree = math.Inf(1), math.Inf(-1)
@@ -379,29 +552,56 @@ func (c *Comparison) disagreeReasons(compared int) []string {
 		lo, hi = math.Min(lo, p.AlphaRad), math.Max(hi, p.AlphaRad)
 	}
 	hasAgree := c.Agree > 0
+	var stall string
 	switch {
 	case hasAgree && allBelow && lo > lastAgree:
-		out = append(out, fmt.Sprintf("all at or above %.1f°, with the measured lift below the design: stall (or separation) that the design does not model; compare over the attached range only, or give a design curve that includes the stall", rig.Deg(lo)))
+		stall = fmt.Sprintf("all at or above %.1f°, with the measured lift below the design: stall (or separation) that the design does not model; compare over the attached range only, or give a design curve that includes the stall", rig.Deg(lo))
 	case hasAgree && allBelow && hi < firstAgree:
-		out = append(out, fmt.Sprintf("all at or below %.1f°, with the measured lift above the design (less negative): negative stall that the design does not model", rig.Deg(hi)))
-	case hasAgree && allAbove && lo > lastAgree:
-		out = append(out, fmt.Sprintf("all at or above %.1f°, with the measured lift above the design: check the design curve at high angles and the angle calibration", rig.Deg(lo)))
-	case allAbove && (!hasAgree || (lo <= firstAgree && hi >= lastAgree)):
-		out = append(out, "the measured C_L is above the design wherever they disagree: an offset or scale error is likely; check the reference area, the normal-force zero (tare), the pitot coefficient and the angle zero")
-	case allBelow && (!hasAgree || (lo <= firstAgree && hi >= lastAgree)):
-		out = append(out, "the measured C_L is below the design wherever they disagree: an offset or scale error is likely; check the reference area, the normal-force zero (tare), the pitot coefficient (q too high?) and the angle zero")
-	default:
-		// Opposite signs: compare the ends.
-		first, last := bad[0], bad[len(bad)-1]
-		if first.En < 0 && last.En > 0 || first.En > 0 && last.En < 0 {
-			steeper := "steeper"
-			if first.En > 0 {
-				steeper = "shallower"
-			}
-			out = append(out, fmt.Sprintf("the measured lift curve is %s than the design (disagreeing points of both signs from %.1f° to %.1f°): check the angle calibration's scale and the aspect-ratio (span) correction of the design", steeper, rig.Deg(lo), rig.Deg(hi)))
-		} else {
-			out = append(out, fmt.Sprintf("disagreeing points of both signs between %.1f° and %.1f°: look at the points one by one (unsteady flow, a bad step)", rig.Deg(lo), rig.Deg(hi)))
+		stall = fmt.Sprintf("all at or below %.1f°, with the measured lift above the design (less negative): negative stall that the design does not model", rig.Deg(hi))
+	}
+
+	if c.LineTested {
+		offset := fmt.Sprintf("offset: the zero-lift angle is %.2f ± %.2f° against the design's %.2f ± %.2f° (En %+.1f), so the measured lift curve is shifted by %+.2f°; check the angle zero, the design's zero-lift angle (camber: [lift] design_alpha_zero_deg, or the design CSV's alpha_zero_deg) and the normal-force zero (tare)",
+			rig.Deg(c.AlphaZeroRad.X), rig.Deg(c.AlphaZeroRad.U95()), rig.Deg(c.DesignAlphaZeroRad.X), rig.Deg(c.DesignAlphaZeroRad.U95()), c.AlphaZeroEn,
+			rig.Deg(c.AlphaZeroRad.X-c.DesignAlphaZeroRad.X))
+		word := "steeper"
+		if c.SlopeEn < 0 {
+			word = "shallower"
 		}
+		slope := fmt.Sprintf("slope: the lift slope is %.3f ± %.3f /rad against the design's %.3f ± %.3f /rad (En %+.1f), %s than the design; check the angle calibration's scale, the reference area, the dynamic-pressure (pitot) calibration and the design's aspect-ratio (span) correction",
+			c.SlopePerRad.X, c.SlopePerRad.U95(), c.DesignSlopePerRad.X, c.DesignSlopePerRad.U95(), c.SlopeEn, word)
+		switch so, oo := c.SlopeOut(), c.OffsetOut(); {
+		case so && oo && math.Abs(c.SlopeEn) >= math.Abs(c.AlphaZeroEn):
+			out = append(out, slope, offset)
+		case so && oo:
+			out = append(out, offset, slope)
+		case so:
+			out = append(out, slope, fmt.Sprintf("the zero-lift angle agrees with the design (En %+.1f): not an offset", c.AlphaZeroEn))
+		case oo:
+			out = append(out, offset, fmt.Sprintf("the lift slope agrees with the design (En %+.1f): not a scale error", c.SlopeEn))
+		case stall != "":
+			out = append(out, stall, c.lineSentence()+": the attached lift curve agrees")
+			return out
+		default:
+			out = append(out, fmt.Sprintf("the lift slope (En %+.1f) and the zero-lift angle (En %+.1f) agree with the design, yet points from %.1f° to %.1f° do not: look at them one by one (unsteady flow, a bad step, a bend the design does not have)",
+				c.SlopeEn, c.AlphaZeroEn, rig.Deg(lo), rig.Deg(hi)))
+		}
+		if stall != "" {
+			out = append(out, stall)
+		}
+		return out
+	}
+
+	// Without a line fit only the pattern of the points is left.
+	switch {
+	case stall != "":
+		out = append(out, stall)
+	case allAbove && (!hasAgree || (lo <= firstAgree && hi >= lastAgree)):
+		out = append(out, "the measured C_L is above the design wherever they disagree: an offset or scale error is likely (no lift-curve fit to tell which); check the reference area, the normal-force zero (tare), the pitot coefficient and the angle zero")
+	case allBelow && (!hasAgree || (lo <= firstAgree && hi >= lastAgree)):
+		out = append(out, "the measured C_L is below the design wherever they disagree: an offset or scale error is likely (no lift-curve fit to tell which); check the reference area, the normal-force zero (tare), the pitot coefficient (q too high?) and the angle zero")
+	default:
+		out = append(out, fmt.Sprintf("disagreeing points between %.1f° and %.1f° (no lift-curve fit to tell an offset from a slope error): look at the points one by one", rig.Deg(lo), rig.Deg(hi)))
 	}
 	return out
 }

@@ -108,7 +108,8 @@ func comparePoints(pts ...[3]float64) []estimate.Segment {
 
 // Ensure the comparison's En (docs/design.md §4), verdict and reasons for the
 // patterns a test engineer meets: all agree, stall above the design's
-// range, an offset, a slope error and points outside a design curve.
+// range, an offset, a slope error, no lift-curve fit and points outside a
+// design curve.
 func TestCompare(t *testing.T) {
 	ta := estimate.ThinAirfoil{} // 2π/rad: 0.10966 per degree
 	line := func(deg float64) float64 { return 2 * math.Pi * rig.Rad(deg) }
@@ -127,15 +128,21 @@ func TestCompare(t *testing.T) {
 			[3]float64{10, line(10) - 0.1, 0.02}, [3]float64{12, line(12) - 0.4, 0.02}),
 			estimate.VerdictDisagrees, 3, 2, "all at or above 10.0°, with the measured lift below the design: stall"},
 		{"offset", ta, comparePoints([3]float64{0, 0.1, 0.02}, [3]float64{4, line(4) + 0.1, 0.02}, [3]float64{8, line(8) + 0.1, 0.02}),
-			estimate.VerdictDisagrees, 0, 3, "above the design wherever they disagree: an offset or scale error"},
+			estimate.VerdictDisagrees, 0, 3, "offset: the zero-lift angle is -0.91"},
 		{"steeper", ta, comparePoints([3]float64{-4, line(-4) - 0.1, 0.02}, [3]float64{0, 0, 0.02}, [3]float64{4, line(4) + 0.1, 0.02}),
 			estimate.VerdictDisagrees, 1, 2, "steeper than the design"},
+		{"two points, no fit", ta, comparePoints([3]float64{0, 0.1, 0.02}, [3]float64{4, line(4) + 0.1, 0.02}),
+			estimate.VerdictDisagrees, 0, 2, "an offset or scale error is likely (no lift-curve fit to tell which)"},
 		{"outside curve", curve, comparePoints([3]float64{0, 0, 0.02}, [3]float64{8, 1, 0.02}),
 			estimate.VerdictAgrees, 1, 0, "1 points lie outside the design's angle range"},
 		{"none", curve, comparePoints([3]float64{10, 1, 0.02}), estimate.VerdictNone, 0, 0, "outside"},
 	} {
 		t.Run(c.name, func(t *testing.T) {
-			got := estimate.Compare(c.pts, c.design)
+			var fit *estimate.Polar
+			if p, err := estimate.FitPolar(c.pts, estimate.PolarOptions{}); err == nil {
+				fit = &p
+			}
+			got := estimate.Compare(c.pts, c.design, fit)
 			if got.Verdict != c.verdict || got.Agree != c.agree || got.Disagree != c.dis {
 				t.Errorf("verdict %q agree %d disagree %d, want %q %d %d", got.Verdict, got.Agree, got.Disagree, c.verdict, c.agree, c.dis)
 			}
@@ -202,7 +209,11 @@ func TestEstimator_DesignAndFroude(t *testing.T) {
 			if len(segs) != len(stdSweep.stepsDeg) {
 				t.Fatalf("%d segments", len(segs))
 			}
-			cmp := estimate.Compare(segs, design)
+			fit, err := estimate.FitPolar(segs, estimate.PolarOptions{})
+			if err != nil {
+				t.Fatal(err)
+			}
+			cmp := estimate.Compare(segs, design, &fit)
 			for i, s := range segs {
 				dv, en, _ := estimate.DesignAt(design, s.AlphaRad, s.CL)
 				if s.DesignCL != dv || s.En != en || cmp.Points[i].En != en {
@@ -217,8 +228,8 @@ func TestEstimator_DesignAndFroude(t *testing.T) {
 				}
 			}
 			// slope 4.6/rad measured vs Helmbold 2.5: 3.03/rad; both ends disagree.
-			if cmp.Verdict != estimate.VerdictDisagrees {
-				t.Errorf("verdict %q: %q", cmp.Verdict, cmp.Reasons)
+			if cmp.Verdict != estimate.VerdictDisagrees || !cmp.SlopeOut() || !strings.HasPrefix(cmp.Reasons[1], "slope: ") {
+				t.Errorf("verdict %q, slope En %.1f: %q; want the slope named", cmp.Verdict, cmp.SlopeEn, cmp.Reasons)
 			}
 			if lv, ok := e.Live(); !ok || (fluid == rig.FluidAir) != (lv.Fn == 0) {
 				t.Errorf("live Fn %g for %s", lv.Fn, fluid)

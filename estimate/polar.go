@@ -16,8 +16,13 @@ import (
 )
 
 // ErrPolar is returned by FitPolar when the points cannot give a lift-curve
-// fit (too few usable points, all at one angle, an ill-conditioned fit).
+// fit (too few distinct angles, all at one angle, an ill-conditioned fit).
 var ErrPolar = errors.New("cannot fit the polar")
+
+// DefaultGroupRad is the default PolarOptions.GroupRad: 0.25°, the angle
+// band of one steady segment (docs/design.md §4), so that repeats of one
+// angle step on later sweeps count as one set-point.
+var DefaultGroupRad = rig.Rad(0.25)
 
 // PolarOptions sets FitPolar. A zero PolarOptions chooses the linear range
 // automatically.
@@ -25,8 +30,14 @@ type PolarOptions struct {
 	// AlphaMinRad and AlphaMaxRad, when not both zero, fix the linear range:
 	// every usable point with AlphaMinRad ≤ α ≤ AlphaMaxRad is fitted.
 	AlphaMinRad, AlphaMaxRad float64
-	// MinPoints is the fewest points a lift-curve fit uses (default 3).
+	// MinPoints is the fewest distinct angles a lift-curve fit uses
+	// (default 3).
 	MinPoints int
+	// GroupRad is the width of one set-point, rad: points, sorted by α,
+	// that lie within GroupRad of the first point of their group are
+	// repeats of one angle (repeated sweeps, up and down). 0 means
+	// DefaultGroupRad; a negative value groups only identical angles.
+	GroupRad float64
 }
 
 // Polar is the lift curve and drag polar of one run: a weighted
@@ -35,6 +46,8 @@ type PolarOptions struct {
 // uncertainty and degrees of freedom (U95() gives the expanded one).
 type Polar struct {
 	Points       int     // usable points (finite C_L with a positive uncertainty)
+	Angles       int     // distinct angles (set-points) among them, repeats counted once
+	Sweeps       int     // monotone runs of the angle in time order (an up and a down sweep are 2)
 	Linear       []int   // indices into the input segments fitted as the linear range, by α
 	LinearMinRad float64 // smallest α of the linear range
 	LinearMaxRad float64 // largest α of the linear range
@@ -46,17 +59,29 @@ type Polar struct {
 	SlopeBudget   []Contribution
 	AlphaZeroRad  calibrate.Value // zero-lift angle α_L0
 	CLAtZeroAlpha calibrate.Value // intercept C_L(α = 0)
-	ChiSq         float64         // Σ (residual/u)² of the lift fit
-	FitDof        int             // points − 2
-	Scaled        bool            // the covariance was scaled by χ²/ν (scatter beyond the stated u)
+	// ChiSq is Σ (residual/u)² of the lift fit, with u each point's own
+	// (Type A) uncertainty: the test of the scatter about the line. Inputs
+	// common to all points do not enter it (they move every point alike).
+	ChiSq  float64
+	FitDof int  // points in the linear range − 2
+	Scaled bool // the covariance was scaled by χ²/ν (scatter beyond the stated u)
 
-	// Stalled is true when a point above the linear range falls below the
-	// line by more than its U95 after C_L has stopped rising. StallRad is
-	// then the α of C_L,max, the last angle before the lift falls.
-	Stalled       bool
-	StallRad      float64         // NaN when no stall was seen
-	CLMax         calibrate.Value // largest measured C_L (a lower bound when not Stalled)
+	// Stalled is true when a set-point above the linear range falls below
+	// the line by more than its U95 after C_L has stopped rising. StallRad
+	// is then the α of C_L,max, the last angle before the lift falls.
+	Stalled  bool
+	StallRad float64 // NaN when no stall was seen
+	// CLMax is the largest C_L measured at the set-point of C_L,max (a
+	// lower bound when not Stalled), with the full uncertainty of its own
+	// segment: Type A and every common input (the calibrations and the
+	// reference area do not average out of a single value).
+	CLMax         calibrate.Value
 	AlphaCLMaxRad float64
+
+	// Hysteresis compares the up and the down sweeps at each set-point
+	// from the top of the linear range upwards (near stall) that was
+	// measured in both directions; empty for a single sweep.
+	Hysteresis []HysteresisStep
 
 	// Drag polar C_D = C_D0 + K·(C_L − C_L,minD)², fitted over the linear
 	// range; DragFitted is false when there are too few points or the
@@ -69,30 +94,84 @@ type Polar struct {
 	Warnings []string // what a test engineer should know before using the numbers
 }
 
+// HysteresisStep is one set-point measured on rising and on falling angle.
+// CLUp and CLDown are the mean C_L of the segments reached with α rising
+// and falling; their uncertainties are the Type A parts only, as the inputs
+// common to the run (calibrations, area) move both alike and cancel in the
+// difference CLDiff = CLUp − CLDown.
+type HysteresisStep struct {
+	AlphaRad     float64
+	CLUp, CLDown calibrate.Value
+	CLDiff       calibrate.Value
+}
+
+// Significant reports whether the up and down sweeps differ by more than
+// the difference's U95.
+func (h HysteresisStep) Significant() bool { return math.Abs(h.CLDiff.X) > h.CLDiff.U95() }
+
+// Describe says in one sentence (no capital, no full stop) how the sweeps
+// differ at the step, for reports and the command line.
+func (h HysteresisStep) Describe() string {
+	s := fmt.Sprintf("up and down sweeps at %.1f°: C_L %.3f rising, %.3f falling, difference %.3f ± %.3f (95 %%)",
+		rig.Deg(h.AlphaRad), h.CLUp.X, h.CLDown.X, h.CLDiff.X, h.CLDiff.U95())
+	if h.Significant() {
+		return s + ": hysteresis (the flow separates and reattaches at different angles)"
+	}
+	return s + ": within its uncertainty, no hysteresis seen"
+}
+
+// MaxHysteresis returns the step with the largest |CLUp − CLDown| relative to
+// its U95; ok is false when no set-point was measured in both directions.
+func (p Polar) MaxHysteresis() (h HysteresisStep, ok bool) {
+	best := -1.0
+	for _, s := range p.Hysteresis {
+		r := math.Abs(s.CLDiff.X) / s.CLDiff.U95()
+		if !(s.CLDiff.U95() > 0) {
+			r = math.Inf(1)
+		}
+		if !ok || r > best {
+			h, best, ok = s, r, true
+		}
+	}
+	return h, ok
+}
+
 // SlopePerDeg returns the lift-curve slope per degree (display only).
 func (p Polar) SlopePerDeg() float64 { return p.SlopePerRad.X * rig.Rad(1) }
+
+// angleInput is the name of the C_L budget line of the angle's calibration
+// (estimate.Reduce): a common error of every point, which FitPolar carries
+// through the slope as well as through C_L.
+const angleInput = "angle of attack"
 
 // polarPoint is one usable segment, sorted by α.
 type polarPoint struct {
 	idx            int
-	alpha, uAlpha  float64
-	cl, uCL, dofCL float64
+	order          int // position among the usable points in time order
+	up             bool
+	alpha, uAlpha  float64 // uAlpha: the independent (Type A) part of u(α)
+	cl, uCL, dofCL float64 // uCL: the independent part of u(C_L)
+	full           calibrate.Value
 	cd, uCD, dofCD float64
 	hasCD          bool
-	u95CL          float64
-	effU           float64 // u of C_L including the angle's u through the slope
+	effU           float64 // independent u of C_L including the angle's independent u through the slope
 	effDof         float64
 	// shared holds the signed contributions c·u to C_L of inputs whose
 	// error is common to every point of a run (reference area, the
 	// calibrations); uCL then holds only the independent part.
 	shared map[string]sharedContribution
+	// angleSys is the angle calibration's u (rad) and the sensitivity of
+	// C_L to it at fixed loads (the budget line angleInput); hasAngleSys
+	// is false without that line.
+	angleSysU, angleSysC, angleSysDof float64
+	hasAngleSys                       bool
 }
 
 // splitShared separates a segment's C_L budget into the independent part
 // (the Type A lines, from the segment's own samples) and the shared inputs
 // (every other line: calibrations, reference area, angle calibration — one
 // error common to all the points of a run). Without a budget the whole
-// u(C_L) counts as independent.
+// u(C_L) and u(α) count as independent.
 func splitShared(pp *polarPoint, budget []Contribution) {
 	if len(budget) == 0 {
 		return
@@ -101,6 +180,13 @@ func splitShared(pp *polarPoint, budget []Contribution) {
 	for _, c := range budget {
 		if c.TypeA {
 			ind = append(ind, c)
+			continue
+		}
+		if c.Input == angleInput {
+			pp.angleSysU, pp.angleSysC, pp.angleSysDof, pp.hasAngleSys = c.U, c.Sensitivity, dofOrInf(c.Dof), true
+			// The angle calibration is in u(α) too: what is left is the
+			// angle's scatter over the segment.
+			pp.uAlpha = math.Sqrt(math.Max(pp.uAlpha*pp.uAlpha-c.U*c.U, 0))
 			continue
 		}
 		if pp.shared == nil {
@@ -114,6 +200,23 @@ func splitShared(pp *polarPoint, budget []Contribution) {
 	v := Combine(ind)
 	if v.U > 0 {
 		pp.uCL, pp.dofCL = v.U, dofOrInf(v.Dof)
+	}
+}
+
+// addAngleShared enters the angle calibration as a common input once the
+// slope b is known. A common angle error δ moves every point's α by δ and
+// its C_L by c·δ (c = ∂C_L/∂α at fixed loads), so about the line, at the
+// recorded angle, the point is off by (c − b)·δ.
+func addAngleShared(pts []polarPoint, b float64) {
+	for i := range pts {
+		pt := &pts[i]
+		if !pt.hasAngleSys {
+			continue
+		}
+		if pt.shared == nil {
+			pt.shared = map[string]sharedContribution{}
+		}
+		pt.shared["angle calibration"] = sharedContribution{d: (pt.angleSysC - b) * pt.angleSysU, dof: pt.angleSysDof}
 	}
 }
 
@@ -160,46 +263,152 @@ type sharedContribution struct {
 	dof float64
 }
 
-// FitPolar fits the lift curve and drag polar of steady segments.
+// angleGroup is one set-point: the points pts[lo..hi] (sorted by α) that
+// repeat one angle.
+type angleGroup struct {
+	lo, hi int
+	alpha  float64 // mean α of the points
+}
+
+// groupAngles splits the sorted points into set-points: a group holds
+// every point within tol of its first.
+func groupAngles(pts []polarPoint, tol float64) []angleGroup {
+	var gs []angleGroup
+	for i := range pts {
+		if len(gs) == 0 || pts[i].alpha-pts[gs[len(gs)-1].lo].alpha > tol {
+			gs = append(gs, angleGroup{lo: i, hi: i})
+			continue
+		}
+		gs[len(gs)-1].hi = i
+	}
+	for k := range gs {
+		s := 0.0
+		for i := gs[k].lo; i <= gs[k].hi; i++ {
+			s += pts[i].alpha
+		}
+		gs[k].alpha = s / float64(gs[k].hi-gs[k].lo+1)
+	}
+	return gs
+}
+
+// sweepDirections marks each point (in time order) as reached with the
+// angle rising (up) or falling, and returns the number of monotone runs.
+// A repeat of the same set-point keeps the direction before it; the
+// points before the first move take the direction of that move.
+func sweepDirections(byTime []*polarPoint, tol float64) int {
+	dir := make([]int, len(byTime))
+	for i := 1; i < len(byTime); i++ {
+		switch d := byTime[i].alpha - byTime[i-1].alpha; {
+		case d > tol:
+			dir[i] = 1
+		case d < -tol:
+			dir[i] = -1
+		default:
+			dir[i] = dir[i-1]
+		}
+	}
+	first := 1
+	for _, d := range dir {
+		if d != 0 {
+			first = d
+			break
+		}
+	}
+	sweeps, last := 1, 0
+	for i := range dir {
+		if dir[i] == 0 {
+			dir[i] = first
+		}
+		if i > 0 && dir[i] != last {
+			sweeps++
+		}
+		last = dir[i]
+		byTime[i].up = dir[i] > 0
+	}
+	return sweeps
+}
+
+// groupValue is the mean C_L of the points of g (of the up sweeps only
+// when up is true and the group has any), with the independent part
+// averaged over the repeats and the common part in full.
+func groupValue(pts []polarPoint, g angleGroup, upOnly bool) calibrate.Value {
+	hasUp := false
+	for i := g.lo; i <= g.hi; i++ {
+		hasUp = hasUp || pts[i].up
+	}
+	var sum, vInd, vShared float64
+	dof := math.Inf(1)
+	n := 0
+	for i := g.lo; i <= g.hi; i++ {
+		pt := pts[i]
+		if upOnly && hasUp && !pt.up {
+			continue
+		}
+		n++
+		sum += pt.cl
+		vInd += pt.effU * pt.effU
+		vShared += math.Max(pt.full.U*pt.full.U-pt.uCL*pt.uCL, 0)
+		dof = math.Min(dof, pt.effDof)
+	}
+	fn := float64(n)
+	return calibrate.Value{X: sum / fn, U: math.Sqrt(vInd/(fn*fn) + vShared/fn), Dof: dof}
+}
+
+// FitPolar fits the lift curve and drag polar of steady segments, given in
+// time order (as a run stores them).
+//
+// # Set-points and sweeps
+//
+// The points are sorted by α and grouped into set-points (PolarOptions
+// GroupRad): repeats of one angle on later sweeps, up and down, are one
+// set-point. The fit needs MinPoints distinct angles; fewer, or every point
+// at one angle, is refused with ErrPolar and a plain reason. In time
+// order each point is marked as reached with α rising or falling.
 //
 // # Lift curve
 //
-// Weighted least squares of C_L on α, weights 1/u², where u² = u(C_L)² +
-// (a·u(α))² (the "effective variance" that carries the angle's uncertainty
-// into C_L through the slope; a from a first fit). The fit is solved by QR
-// (gonum mat) and the parameter covariance is (RᵀR)⁻¹. The estimates are
-// linear in the C_L values, β = Σ_i c_i·C_L,i, so the degrees of freedom
-// follow from Welch–Satterthwaite over the points (JCGM 100 G.4). When the
-// scatter exceeds the stated uncertainties (χ²/ν above its 95 % quantile)
-// the covariance is scaled by χ²/ν (the Birge ratio, common practice) with
-// ν = n − 2, and Scaled is set.
+// Weighted least squares of C_L on α over every point of the linear range
+// (all sweeps), weights 1/u², where u² = u_A(C_L)² + (a·u_A(α))²: the
+// independent (Type A) parts of the point's C_L and angle, the angle's
+// carried into C_L through the slope a of a first fit ("effective
+// variance"). The fit is solved by QR (gonum mat) and the parameter
+// covariance is (RᵀR)⁻¹. The estimates are linear in the C_L values, β =
+// Σ_i c_i·C_L,i, so the degrees of freedom follow from Welch–Satterthwaite
+// over the points (JCGM 100 G.4). χ² = Σ (residual/u)² tests the scatter
+// about the line against those independent u; when it exceeds its 95 %
+// quantile the covariance is scaled by χ²/ν (the Birge ratio, common
+// practice) with ν = n − 2, and Scaled is set.
 //
-// The weights and χ² use only the independent part of each point's u(C_L)
-// (its scatter); inputs common to every point (reference area,
-// calibrations: all budget lines other than the scatter) are added after
-// the fit as fully correlated errors, since averaging over points does not
-// reduce them (see SlopeBudget).
+// Inputs common to every point (reference area, calibrations, the angle's
+// calibration: all budget lines but the Type A ones) are added after the
+// fit as fully correlated errors, since averaging over points does not
+// reduce them (see SlopeBudget). A common angle error moves α_L0 and
+// C_L(0) but not the slope.
 //
 // α_L0 = −C_L(0)/a; its uncertainty comes from the covariance of the two
 // parameters (first-order propagation, JCGM 100 eq. 13).
 //
 // # Linear range
 //
-// Unless the options fix it, the range starts from the three points around
-// the C_L closest to zero and grows one point at a time, on whichever side
-// is nearer in α, while the next point lies within its U95 of the line
-// fitted so far (the combined standard uncertainty of the point and the
-// line's prediction there, times k95 of the point). A point outside is
-// still taken when the point after it is inside again (one noisy point is
-// not a bend); a side stops at two points outside in a row, or at one
-// outside at its end.
+// Unless the options fix it, the range starts from the three set-points
+// around the C_L closest to zero and grows one set-point at a time, on
+// whichever side is nearer in α, while the next set-point lies within its
+// U95 of the line fitted so far (the weighted mean residual of its points,
+// with the combined standard uncertainty of that mean and the line's
+// prediction there, times k95). A set-point outside is still taken when
+// the one after it is inside again (one noisy point is not a bend); a side
+// stops at two outside in a row, or at one outside at its end.
 //
-// # Stall
+// # Stall and hysteresis
 //
-// Above the linear range, the first point that falls below the line by more
-// than its U95 while C_L no longer rises (C_L ≤ the largest C_L before it)
-// marks the stall; StallRad and C_L,max are taken at the largest C_L up to
-// there. Stall on the negative side is not looked for.
+// Above the linear range, each set-point is judged by the mean of its
+// up-sweep points (the stall is met on rising angle): the first that falls
+// below the line by more than its U95 while C_L no longer rises marks the
+// stall; StallRad is the set-point of the largest C_L up to there and
+// C_L,max the largest single segment at it, with that segment's full
+// uncertainty. Stall on the negative side is not looked for. From the top
+// set-point of the linear range upwards, set-points measured on both
+// rising and falling angle give Hysteresis.
 //
 // # Drag polar
 //
@@ -217,13 +426,20 @@ func FitPolar(segs []Segment, opts PolarOptions) (Polar, error) {
 	if minPts < 3 {
 		minPts = 3
 	}
+	tol := opts.GroupRad
+	switch {
+	case tol == 0:
+		tol = DefaultGroupRad
+	case tol < 0:
+		tol = 0
+	}
 	var pts []polarPoint
 	for i, s := range segs {
 		if !finite(s.CL.X) || !finite(s.AlphaRad.X) || !(s.CL.U > 0) || !finite(s.CL.U) {
 			continue
 		}
-		pp := polarPoint{idx: i, alpha: s.AlphaRad.X, uAlpha: s.AlphaRad.U, cl: s.CL.X, uCL: s.CL.U,
-			dofCL: dofOrInf(s.CL.Dof), u95CL: s.CL.U95()}
+		pp := polarPoint{idx: i, order: len(pts), alpha: s.AlphaRad.X, uAlpha: s.AlphaRad.U, cl: s.CL.X, uCL: s.CL.U,
+			dofCL: dofOrInf(s.CL.Dof), full: s.CL}
 		if finite(s.CD.X) && s.CD.U > 0 && finite(s.CD.U) {
 			pp.cd, pp.uCD, pp.dofCD, pp.hasCD = s.CD.X, s.CD.U, dofOrInf(s.CD.Dof), true
 		}
@@ -231,41 +447,51 @@ func FitPolar(segs []Segment, opts PolarOptions) (Polar, error) {
 			pp.uAlpha = 0
 		}
 		splitShared(&pp, s.CLBudget)
+		pp.effU, pp.effDof = pp.uCL, pp.dofCL
 		pts = append(pts, pp)
 	}
 	p.Points = len(pts)
-	if len(pts) < minPts {
-		return p, fmt.Errorf("%d usable points, need at least %d: %w", len(pts), minPts, ErrPolar)
+	if len(pts) == 0 {
+		return p, fmt.Errorf("no usable points (each needs a finite C_L and α and a positive u(C_L)): %w", ErrPolar)
 	}
-	sort.SliceStable(pts, func(i, j int) bool { return pts[i].alpha < pts[j].alpha })
-	if pts[len(pts)-1].alpha-pts[0].alpha <= 0 {
-		return p, fmt.Errorf("every point is at the same angle: %w", ErrPolar)
-	}
+	byTime := make([]*polarPoint, len(pts))
 	for i := range pts {
-		pts[i].effU, pts[i].effDof = pts[i].uCL, pts[i].dofCL
+		byTime[i] = &pts[i]
+	}
+	p.Sweeps = sweepDirections(byTime, tol)
+	sort.SliceStable(pts, func(i, j int) bool { return pts[i].alpha < pts[j].alpha })
+	gs := groupAngles(pts, tol)
+	p.Angles = len(gs)
+	switch {
+	case pts[len(pts)-1].alpha-pts[0].alpha <= 0:
+		return p, fmt.Errorf("every point is at the same angle (%.2f°): no spread in α to fit a slope to: %w", rig.Deg(pts[0].alpha), ErrPolar)
+	case len(gs) < minPts:
+		return p, fmt.Errorf("%d usable points at only %d distinct angles (repeats within %.2f° count once), need at least %d angles: %w",
+			len(pts), len(gs), rig.Deg(tol), minPts, ErrPolar)
 	}
 
-	var lo, hi int // the linear range pts[lo..hi]
+	var glo, ghi int // the linear range gs[glo..ghi]
 	if opts.AlphaMinRad != 0 || opts.AlphaMaxRad != 0 {
-		lo, hi = -1, -1
-		for i, pt := range pts {
-			if pt.alpha >= opts.AlphaMinRad && pt.alpha <= opts.AlphaMaxRad {
-				if lo < 0 {
-					lo = i
+		glo, ghi = -1, -1
+		for k, g := range gs {
+			if g.alpha >= opts.AlphaMinRad && g.alpha <= opts.AlphaMaxRad {
+				if glo < 0 {
+					glo = k
 				}
-				hi = i
+				ghi = k
 			}
 		}
-		if lo < 0 || hi-lo+1 < minPts {
-			return p, fmt.Errorf("%d points in the given range %.2f°…%.2f°, need at least %d: %w",
-				max(0, hi-lo+1), rig.Deg(opts.AlphaMinRad), rig.Deg(opts.AlphaMaxRad), minPts, ErrPolar)
+		if glo < 0 || ghi-glo+1 < minPts {
+			return p, fmt.Errorf("%d distinct angles in the given range %.2f°…%.2f°, need at least %d: %w",
+				max(0, ghi-glo+1), rig.Deg(opts.AlphaMinRad), rig.Deg(opts.AlphaMaxRad), minPts, ErrPolar)
 		}
 	} else {
 		var err error
-		if lo, hi, err = growLinear(pts, minPts); err != nil {
+		if glo, ghi, err = growLinear(pts, gs, minPts); err != nil {
 			return p, err
 		}
 	}
+	lo, hi := gs[glo].lo, gs[ghi].hi
 
 	// Fit twice: the second pass carries u(α) through the first slope.
 	lf, err := fitLine(pts[lo : hi+1])
@@ -280,66 +506,121 @@ func FitPolar(segs []Segment, opts PolarOptions) (Polar, error) {
 	if lf, err = fitLine(pts[lo : hi+1]); err != nil {
 		return p, err
 	}
+	addAngleShared(pts, lf.b)
 	for i := lo; i <= hi; i++ {
 		p.Linear = append(p.Linear, pts[i].idx)
 	}
 	p.LinearMinRad, p.LinearMaxRad = pts[lo].alpha, pts[hi].alpha
+	p.ChiSq, p.FitDof, p.Scaled = lf.chi2, hi-lo+1-2, lf.scaled
 	p.SlopeBudget = lf.addShared(pts[lo : hi+1])
 	p.SlopePerRad = calibrate.Value{X: lf.b, U: math.Sqrt(lf.varB), Dof: lf.dofB}
 	p.CLAtZeroAlpha = calibrate.Value{X: lf.a, U: math.Sqrt(lf.varA), Dof: lf.dofA}
 	p.AlphaZeroRad = lf.alphaZero()
-	p.ChiSq, p.FitDof, p.Scaled = lf.chi2, hi-lo+1-2, lf.scaled
 	if lf.scaled {
-		p.Warnings = append(p.Warnings, fmt.Sprintf("scatter about the lift line exceeds the stated uncertainties (χ²/ν = %.1f): the fit's uncertainties are scaled up; look for unsteady points or a wrong calibration u", lf.chi2/float64(p.FitDof)))
+		p.Warnings = append(p.Warnings, fmt.Sprintf("scatter about the lift line exceeds the points' own (Type A) uncertainties (χ²/ν = %.1f): the fit's uncertainties are scaled up; look for unsteady points, drift between sweeps or a wrong calibration u", lf.chi2/float64(p.FitDof)))
 	}
-	if hi-lo+1 == minPts && opts.AlphaMinRad == 0 && opts.AlphaMaxRad == 0 {
-		p.Warnings = append(p.Warnings, fmt.Sprintf("the linear range holds only %d points: add angle steps between %.1f° and %.1f°", minPts, rig.Deg(p.LinearMinRad), rig.Deg(p.LinearMaxRad)))
+	if ghi-glo+1 == minPts && opts.AlphaMinRad == 0 && opts.AlphaMaxRad == 0 {
+		p.Warnings = append(p.Warnings, fmt.Sprintf("the linear range holds only %d angles: add angle steps between %.1f° and %.1f°", minPts, rig.Deg(p.LinearMinRad), rig.Deg(p.LinearMaxRad)))
 	}
 
-	// Stall and C_L,max.
+	// Stall and C_L,max, judged set-point by set-point on the up sweeps.
+	reps := make([]calibrate.Value, len(gs))
 	best := 0
-	for i := range pts {
-		if pts[i].cl > pts[best].cl {
-			best = i
+	for k, g := range gs {
+		reps[k] = groupValue(pts, g, true)
+		if reps[k].X > reps[best].X {
+			best = k
 		}
 	}
-	runMax, bend := hi, -1
-	for j := hi + 1; j < len(pts); j++ {
-		below := lf.predict(pts[j].alpha) - pts[j].cl
-		if below > pts[j].u95CL && pts[j].cl <= pts[runMax].cl {
+	runMax, bend := ghi, -1
+	for k := ghi + 1; k < len(gs); k++ {
+		below := lf.predict(gs[k].alpha) - reps[k].X
+		if below > reps[k].U95() && reps[k].X <= reps[runMax].X {
 			p.Stalled = true
 			break
 		}
-		if below > pts[j].u95CL && bend < 0 {
-			bend = j
+		if below > reps[k].U95() && bend < 0 {
+			bend = k
 		}
-		if pts[j].cl > pts[runMax].cl {
-			runMax = j
+		if reps[k].X > reps[runMax].X {
+			runMax = k
 		}
 	}
 	if !p.Stalled && bend >= 0 {
-		p.Warnings = append(p.Warnings, fmt.Sprintf("C_L falls below the lift line from %.1f° while still rising: onset of stall; measure higher angles to find C_L,max", rig.Deg(pts[bend].alpha)))
+		p.Warnings = append(p.Warnings, fmt.Sprintf("C_L falls below the lift line from %.1f° while still rising: onset of stall; measure higher angles to find C_L,max", rig.Deg(gs[bend].alpha)))
 	}
 	if p.Stalled {
 		best = runMax
-		p.StallRad = pts[best].alpha
-	} else if len(pts) > 0 {
+		p.StallRad = gs[best].alpha
+	} else {
 		p.Warnings = append(p.Warnings, "no stall in the measured range: C_L,max is the largest measured C_L, a lower bound")
 	}
-	bp := pts[best]
-	p.CLMax = calibrate.Value{X: bp.cl, U: bp.uCL, Dof: bp.dofCL}
+	bp := pts[gs[best].lo]
+	for i := gs[best].lo; i <= gs[best].hi; i++ {
+		if pts[i].cl > bp.cl {
+			bp = pts[i]
+		}
+	}
+	p.CLMax = bp.full
 	p.AlphaCLMaxRad = bp.alpha
+
+	// Hysteresis from the top of the linear range upwards.
+	for k := ghi; k < len(gs); k++ {
+		if h, ok := hysteresisAt(pts, gs[k]); ok {
+			p.Hysteresis = append(p.Hysteresis, h)
+		}
+	}
 
 	p.fitDrag(pts[lo : hi+1])
 	return p, nil
 }
 
-// growLinear picks the automatic linear range (see FitPolar).
-func growLinear(pts []polarPoint, minPts int) (lo, hi int, err error) {
+// hysteresisAt compares the up-sweep and down-sweep points of g; ok is
+// false unless g has both.
+func hysteresisAt(pts []polarPoint, g angleGroup) (HysteresisStep, bool) {
+	mean := func(up bool) (calibrate.Value, bool) {
+		var sum, v float64
+		var cs []Contribution
+		n := 0
+		for i := g.lo; i <= g.hi; i++ {
+			if pts[i].up != up {
+				continue
+			}
+			n++
+			sum += pts[i].cl
+			v += pts[i].effU * pts[i].effU
+			cs = append(cs, Contribution{UY: pts[i].effU, Dof: pts[i].effDof})
+		}
+		if n == 0 {
+			return calibrate.Value{}, false
+		}
+		fn := float64(n)
+		return calibrate.Value{X: sum / fn, U: math.Sqrt(v) / fn, Dof: WelchSatterthwaite(cs)}, true
+	}
+	up, okU := mean(true)
+	down, okD := mean(false)
+	if !okU || !okD {
+		return HysteresisStep{}, false
+	}
+	diff := calibrate.Value{X: up.X - down.X, U: math.Hypot(up.U, down.U),
+		Dof: WelchSatterthwaite([]Contribution{{UY: up.U, Dof: up.Dof}, {UY: down.U, Dof: down.Dof}})}
+	return HysteresisStep{AlphaRad: g.alpha, CLUp: up, CLDown: down, CLDiff: diff}, true
+}
+
+// growLinear picks the automatic linear range over set-points (see
+// FitPolar).
+func growLinear(pts []polarPoint, gs []angleGroup, minPts int) (lo, hi int, err error) {
+	absMean := func(g angleGroup) float64 {
+		s := 0.0
+		for i := g.lo; i <= g.hi; i++ {
+			s += pts[i].cl
+		}
+		return math.Abs(s / float64(g.hi-g.lo+1))
+	}
 	c := 0
-	for i := range pts {
-		if math.Abs(pts[i].cl) < math.Abs(pts[c].cl) {
-			c = i
+	for k := range gs {
+		if absMean(gs[k]) < absMean(gs[c]) {
+			c = k
 		}
 	}
 	lo, hi = c-(minPts-1)/2, c+minPts/2
@@ -347,27 +628,35 @@ func growLinear(pts []polarPoint, minPts int) (lo, hi int, err error) {
 		hi -= lo
 		lo = 0
 	}
-	if hi > len(pts)-1 {
-		lo -= hi - (len(pts) - 1)
-		hi = len(pts) - 1
+	if hi > len(gs)-1 {
+		lo -= hi - (len(gs) - 1)
+		hi = len(gs) - 1
 	}
 	if lo < 0 {
-		return 0, 0, fmt.Errorf("%d points: %w", len(pts), ErrPolar)
+		return 0, 0, fmt.Errorf("%d distinct angles: %w", len(gs), ErrPolar)
 	}
-	downOK, upOK := lo > 0, hi < len(pts)-1
+	downOK, upOK := lo > 0, hi < len(gs)-1
 	for downOK || upOK {
-		lf, ferr := fitLine(pts[lo : hi+1])
+		lf, ferr := fitLine(pts[gs[lo].lo : gs[hi].hi+1])
 		if ferr != nil {
 			return 0, 0, ferr
 		}
-		inside := func(j int) bool {
-			k := calibrate.K95(pts[j].dofCL)
-			u := math.Hypot(pts[j].uCL, lf.predictU(pts[j].alpha))
-			return math.Abs(pts[j].cl-lf.predict(pts[j].alpha)) <= k*u
+		inside := func(k int) bool {
+			var sw, swr float64
+			dof := math.Inf(1)
+			for i := gs[k].lo; i <= gs[k].hi; i++ {
+				w := 1 / (pts[i].uCL * pts[i].uCL)
+				sw += w
+				swr += w * (pts[i].cl - lf.predict(pts[i].alpha))
+				dof = math.Min(dof, pts[i].dofCL)
+			}
+			u := math.Hypot(1/math.Sqrt(sw), lf.predictU(gs[k].alpha))
+			return math.Abs(swr/sw) <= calibrate.K95(dof)*u
 		}
-		// Try the side nearer in α first. A point outside is taken with
-		// the next one when that one is inside again: noise, not a bend.
-		down := downOK && (!upOK || pts[lo].alpha-pts[lo-1].alpha <= pts[hi+1].alpha-pts[hi].alpha)
+		// Try the side nearer in α first. A set-point outside is taken
+		// with the next one when that one is inside again: noise, not a
+		// bend.
+		down := downOK && (!upOK || gs[lo].alpha-gs[lo-1].alpha <= gs[hi+1].alpha-gs[hi].alpha)
 		if down {
 			switch {
 			case inside(lo - 1):
@@ -383,12 +672,12 @@ func growLinear(pts []polarPoint, minPts int) (lo, hi int, err error) {
 		switch {
 		case inside(hi + 1):
 			hi++
-		case hi+2 < len(pts) && inside(hi+2):
+		case hi+2 < len(gs) && inside(hi+2):
 			hi += 2
 		default:
 			upOK = false
 		}
-		upOK = upOK && hi < len(pts)-1
+		upOK = upOK && hi < len(gs)-1
 	}
 	return lo, hi, nil
 }

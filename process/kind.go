@@ -102,7 +102,7 @@ func (e *InputError) Unwrap() error { return e.Err }
 
 // LoadDesign returns the design lift curve the rig asks for in [lift]
 // design: "thin-airfoil" (2π/rad with the span correction on the rig's
-// aspect ratio, α_L0 = 0), a design-curve CSV (rig.Parse has resolved a
+// aspect ratio, α_L0 from [lift] design_alpha_zero_deg, default 0), a design-curve CSV (rig.Parse has resolved a
 // relative path against the rig file's folder), or nil for none. A missing
 // or malformed CSV gives an *InputError.
 func LoadDesign(r *rig.Rig) (estimate.Design, error) {
@@ -110,7 +110,7 @@ func LoadDesign(r *rig.Rig) (estimate.Design, error) {
 	case "":
 		return nil, nil
 	case rig.DesignThinAirfoil:
-		return estimate.ThinAirfoil{AspectRatio: r.Reference.AspectRatio()}, nil
+		return estimate.ThinAirfoil{AspectRatio: r.Reference.AspectRatio(), AlphaZeroRad: r.Lift.DesignAlphaZeroRad}, nil
 	default:
 		f, err := os.Open(d)
 		if err != nil {

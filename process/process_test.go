@@ -222,3 +222,19 @@ func TestRecorder_StoreFailureIsLoud(t *testing.T) {
 		t.Fatal("the recorder hung on a failed store")
 	}
 }
+
+// Ensure that LoadDesign gives the thin-airfoil design the rig file's
+// [lift] design_alpha_zero_deg (and 0 without it, as before).
+func TestLoadDesign_ThinAirfoilAlphaZero(t *testing.T) {
+	r, _ := loadRig(t, foilRig)
+	r.Lift.Design = rig.DesignThinAirfoil
+	d, err := process.LoadDesign(r)
+	require.NoError(t, err)
+	require.Equal(t, 0.0, d.(estimate.ThinAirfoil).AlphaZeroRad)
+	r.Lift.DesignAlphaZeroRad = rig.Rad(-2.077)
+	d, err = process.LoadDesign(r)
+	require.NoError(t, err)
+	cl, _, ok := d.At(rig.Rad(-2.077))
+	require.True(t, ok)
+	assert.InDelta(t, 0, cl.X, 1e-15, "C_L at the zero-lift angle")
+}

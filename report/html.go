@@ -301,6 +301,14 @@ func budgetOf(s estimate.Segment) *budgetView {
 	return b
 }
 
+// hysteresisNote marks a difference between the sweeps beyond its U95.
+func hysteresisNote(h estimate.HysteresisStep) string {
+	if h.Significant() {
+		return " (hysteresis)"
+	}
+	return ""
+}
+
 func (r *Report) polarView(v *view) {
 	p := r.Polar
 	if p == nil {
@@ -316,6 +324,7 @@ func (r *Report) polarView(v *view) {
 		{"Lift-curve slope a [1/°]", pm(p.SlopePerRad.X*perDeg, p.SlopePerRad.U95()*perDeg, 4)},
 		{"Zero-lift angle α_L0 [°]", pm(rig.Deg(p.AlphaZeroRad.X), rig.Deg(p.AlphaZeroRad.U95()), 2)},
 		{"C_L at α = 0", pm(p.CLAtZeroAlpha.X, p.CLAtZeroAlpha.U95(), 3)},
+		{"Points, angles, sweeps", plural(p.Points, "point", "points") + " at " + plural(p.Angles, "angle", "angles") + " in " + plural(p.Sweeps, "sweep", "sweeps")},
 		{"Linear range [°]", fix(rig.Deg(p.LinearMinRad), 1) + " to " + fix(rig.Deg(p.LinearMaxRad), 1) + " (" + plural(len(p.Linear), "point", "points") + ")"},
 		{"χ² of the lift fit, ν", fix(p.ChiSq, 2) + ", " + strconv.Itoa(p.FitDof) + scaledNote(p.Scaled)},
 	}
@@ -330,6 +339,9 @@ func (r *Report) polarView(v *view) {
 		v.PolarRows = append(v.PolarRows, row{"Stall", "not reached in the measured range"})
 	}
 	v.PolarRows = append(v.PolarRows, row{"C_L,max (at " + fix(rig.Deg(p.AlphaCLMaxRad), 1) + "°)", pm(p.CLMax.X, p.CLMax.U95(), 3) + lowerBound(p.Stalled)})
+	for _, h := range p.Hysteresis {
+		v.PolarRows = append(v.PolarRows, row{"C_L rising − falling at " + fix(rig.Deg(h.AlphaRad), 1) + "°", pm(h.CLDiff.X, h.CLDiff.U95(), 3) + hysteresisNote(h)})
+	}
 	if p.DragFitted {
 		v.PolarRows = append(v.PolarRows,
 			row{"Minimum drag C_D0", pm(p.CD0.X, p.CD0.U95(), 4)},

@@ -195,7 +195,7 @@ func (r *Report) loadDesign(rigDir string) {
 	}
 	d := r.Rig.Lift.Design
 	if d == rig.DesignThinAirfoil {
-		r.Design = estimate.ThinAirfoil{AspectRatio: r.Rig.Reference.AspectRatio()}
+		r.Design = estimate.ThinAirfoil{AspectRatio: r.Rig.Reference.AspectRatio(), AlphaZeroRad: r.Rig.Lift.DesignAlphaZeroRad}
 		return
 	}
 	path := d
@@ -238,7 +238,7 @@ func (r *Report) compare(rigDir string) {
 	if r.Design == nil || !r.section().design {
 		return
 	}
-	c := estimate.Compare(r.Segments, r.Design)
+	c := estimate.Compare(r.Segments, r.Design, r.Polar)
 	r.Comparison = &c
 }
 

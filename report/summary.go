@@ -14,6 +14,9 @@ import (
 func (r *Report) Summary() []string {
 	out := r.section().count(r)
 	if p := r.Polar; p != nil {
+		if p.Sweeps > 1 || p.Angles < p.Points {
+			out = append(out, fmt.Sprintf("The polar takes %s at %s in %s.", plural(p.Points, "point", "points"), plural(p.Angles, "angle", "angles"), plural(p.Sweeps, "sweep", "sweeps")))
+		}
 		out = append(out, fmt.Sprintf("Lift slope %s per rad (%s per degree), zero-lift angle %s°, fitted over %s from %s° to %s°.",
 			pm(p.SlopePerRad.X, p.SlopePerRad.U95(), 3),
 			pm(p.SlopePerRad.X*rig.Rad(1), p.SlopePerRad.U95()*rig.Rad(1), 4),
@@ -23,6 +26,9 @@ func (r *Report) Summary() []string {
 			out = append(out, fmt.Sprintf("Stall at about %s° with C_L,max = %s.", fix(rig.Deg(p.StallRad), 1), pm(p.CLMax.X, p.CLMax.U95(), 3)))
 		} else {
 			out = append(out, fmt.Sprintf("No stall in the measured range; the largest C_L measured is %s at %s°.", pm(p.CLMax.X, p.CLMax.U95(), 3), fix(rig.Deg(p.AlphaCLMaxRad), 1)))
+		}
+		if h, ok := p.MaxHysteresis(); ok {
+			out = append(out, capital(h.Describe())+".")
 		}
 	} else if r.PolarProblem != "" {
 		out = append(out, capital(r.PolarProblem)+".")

@@ -51,3 +51,54 @@ func TestParse_LiftDesign(t *testing.T) {
 		})
 	}
 }
+
+// Ensure that [lift] design_alpha_zero_deg is optional (0 when absent, so
+// every rig file of today reads the same), gives the thin-airfoil design's
+// zero-lift angle in rad, survives Format → Parse, and is refused at its line
+// with a design CSV (which states its own) or outside ±30°.
+func TestParse_DesignAlphaZero(t *testing.T) {
+	base, err := os.ReadFile(filepath.Join(rigsDir, "foil-towtank.toml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r, err := rig.Parse("rig.toml", base); err != nil || r.Lift.DesignAlphaZeroRad != 0 {
+		t.Fatalf("without the key: α_L0 %v, err %v; want 0", r.Lift.DesignAlphaZeroRad, err)
+	}
+	for _, c := range []struct {
+		name, lines string
+		wantDeg     float64
+		errText     string
+	}{
+		{"thin airfoil, cambered", "design = \"thin-airfoil\"\ndesign_alpha_zero_deg = -2.077\n", -2.077, ""},
+		{"with a csv", "design = \"fin.csv\"\ndesign_alpha_zero_deg = -2\n", 0, `design_alpha_zero_deg applies to design = "thin-airfoil" only`},
+		{"too large", "design = \"thin-airfoil\"\ndesign_alpha_zero_deg = 45\n", 0, "within -30 to 30 degrees"},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			text := string(base) + c.lines
+			line := strings.Count(text, "\n")
+			r, err := rig.Parse("rig.toml", []byte(text))
+			if c.errText == "" {
+				if err != nil {
+					t.Fatal(err)
+				}
+				near(t, "α_L0 (deg)", rig.Deg(r.Lift.DesignAlphaZeroRad), c.wantDeg, 1e-12)
+				r2, err := rig.Parse("rig.toml", rig.Format(r))
+				if err != nil {
+					t.Fatal(err)
+				}
+				if r2.Lift.DesignAlphaZeroRad != r.Lift.DesignAlphaZeroRad {
+					t.Errorf("round trip: %g, want %g", r2.Lift.DesignAlphaZeroRad, r.Lift.DesignAlphaZeroRad)
+				}
+				return
+			}
+			var errs rig.Errors
+			if !errors.As(err, &errs) || len(errs) != 1 {
+				t.Fatalf("err = %v, want one problem", err)
+			}
+			e := errs[0]
+			if !strings.Contains(e.Error(), c.errText) || !errors.Is(e, rig.ErrValue) || e.Line != line || e.Key != "lift.design_alpha_zero_deg" {
+				t.Errorf("got %v (line %d key %q), want %q at line %d", e, e.Line, e.Key, c.errText, line)
+			}
+		})
+	}
+}

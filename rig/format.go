@@ -106,6 +106,9 @@ func Format(r *Rig) []byte {
 			w("%s = %s\n", kv[0], quote(kv[1]))
 		}
 	}
+	if l.DesignAlphaZeroRad != 0 {
+		w("design_alpha_zero_deg = %s\n", num(Deg(l.DesignAlphaZeroRad)))
+	}
 
 	for _, t := range r.Taps {
 		w("\n[[tap]]\nname = %s\nchannel = %s\narea_m2 = %s\nzone = %s\nx_m = %s\ny_m = %s\n",

@@ -394,7 +394,7 @@ var (
 	channelKeys    = []string{"name", "quantity", "unit", "capacity", "calibration", "raw_range"}
 	publishKeys    = []string{"broker", "topic_prefix", "client_id", "username", "password_env", "ca_file"}
 	calKeys        = []string{"poly", "u", "id"}
-	liftKeys       = []string{"normal", "axial", "moment", "angle", "angle_u_deg", "dynamic_pressure", "pitot_coefficient", "speed", "spin", "direction", "temperature", "design"}
+	liftKeys       = []string{"normal", "axial", "moment", "angle", "angle_u_deg", "dynamic_pressure", "pitot_coefficient", "speed", "spin", "direction", "temperature", "design", "design_alpha_zero_deg"}
 	tapKeys        = []string{"name", "channel", "area_m2", "zone", "x_m", "y_m"}
 	zoneKeys       = []string{"name", "design_cp", "design_u"}
 	internalKeys   = []string{"channel", "cp"}
@@ -794,6 +794,9 @@ func (d *decoder) lift(t *table) Lift {
 	l.Direction, _ = t.str("direction")
 	l.Temperature, _ = t.str("temperature")
 	l.Design, _ = t.str("design")
+	if v, ok := t.num("design_alpha_zero_deg"); ok {
+		l.DesignAlphaZeroRad = Rad(v)
+	}
 	t.unknown()
 	return l
 }

@@ -188,6 +188,10 @@ type Lift struct {
 	Direction       string  // wind direction channel for roofs
 	Temperature     string  // fluid temperature channel (optional)
 	Design          string  // design-curve CSV path (optional)
+	// DesignAlphaZeroRad is the zero-lift angle of the "thin-airfoil"
+	// design, rad (key design_alpha_zero_deg; default 0, a symmetric
+	// section; negative for positive camber). A design CSV states its own.
+	DesignAlphaZeroRad float64
 }
 
 // Tap is one roof pressure tap.

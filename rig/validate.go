@@ -405,6 +405,11 @@ func (v *validator) lift() {
 	if d := l.Design; d != "" && d != DesignThinAirfoil && !strings.EqualFold(filepath.Ext(d), ".csv") {
 		v.add("lift.design", ErrValue, `lift: design %q: want a design-curve CSV file (columns alpha_deg,cl[,cl_u95]) or "thin-airfoil"`, d)
 	}
+	if a := l.DesignAlphaZeroRad; !finite(a) || math.Abs(a) > Rad(30) {
+		v.add("lift.design_alpha_zero_deg", ErrValue, "lift: design_alpha_zero_deg must be within -30 to 30 degrees (the design's zero-lift angle; negative for positive camber)")
+	} else if a != 0 && l.Design != DesignThinAirfoil {
+		v.add("lift.design_alpha_zero_deg", ErrValue, `lift: design_alpha_zero_deg applies to design = "thin-airfoil" only (a design CSV states its own zero-lift angle in a comment line "# alpha_zero_deg = -2.1")`)
+	}
 	needQ := func() {
 		if l.DynamicPressure == "" && l.Speed == "" {
 			v.add("lift.dynamic_pressure", ErrMissing, `lift: no flow reference (add dynamic_pressure = "<pitot channel>" or speed = "<speed channel>")`)

@@ -158,12 +158,18 @@ func printSummary(w io.Writer, store *storage.Store, runID uint64, r *rig.Rig) e
 		return err
 	}
 	fmt.Fprintf(w, "  %d steady segments\n", len(segs))
+	var fit *estimate.Polar
 	if p, err := estimate.FitPolar(segs, estimate.PolarOptions{}); err == nil {
+		fit = &p
+		fmt.Fprintf(w, "  %d points at %d angles in %d sweeps\n", p.Points, p.Angles, p.Sweeps)
 		fmt.Fprintf(w, "  lift slope %.4f ± %.4f /rad (%.5f /deg), zero-lift angle %.2f ± %.2f° (95 %%), linear %.1f° to %.1f°\n",
 			p.SlopePerRad.X, p.SlopePerRad.U95(), p.SlopePerDeg(), rig.Deg(p.AlphaZeroRad.X), rig.Deg(p.AlphaZeroRad.U95()),
 			rig.Deg(p.LinearMinRad), rig.Deg(p.LinearMaxRad))
 		if p.Stalled {
-			fmt.Fprintf(w, "  stall at %.1f°, C_L,max %.3f\n", rig.Deg(p.StallRad), p.CLMax.X)
+			fmt.Fprintf(w, "  stall at %.1f°, C_L,max %.3f ± %.3f (95 %%)\n", rig.Deg(p.StallRad), p.CLMax.X, p.CLMax.U95())
+		}
+		if h, ok := p.MaxHysteresis(); ok {
+			fmt.Fprintf(w, "  %s\n", h.Describe())
 		}
 		for _, warn := range p.Warnings {
 			fmt.Fprintf(w, "  note: %s\n", warn)
@@ -175,7 +181,7 @@ func printSummary(w io.Writer, store *storage.Store, runID uint64, r *rig.Rig) e
 	if err != nil || d == nil {
 		return nil
 	}
-	c := estimate.Compare(segs, d)
+	c := estimate.Compare(segs, d, fit)
 	fmt.Fprintf(w, "  design (%s): %s\n", c.Design, c.Verdict)
 	for _, reason := range c.Reasons {
 		fmt.Fprintf(w, "    %s\n", reason)

@@ -26,7 +26,8 @@ var dimensionless = map[string]bool{
 	"SpinRatio": true, "DesignCL": true, "DesignCp": true, "DesignU": true, "PitotCoeff": true,
 	"CD0": true, "K": true, "Mach": true,
 	"CLMax": true, "CLMinD": true, "CLAtZeroAlpha": true, "AspectRatio": true,
-	"ChiSq": true, // a fit's weighted sum of squared residuals
+	"ChiSq": true,                                                                       // a fit's weighted sum of squared residuals
+	"CLUp":  true, "CLDown": true, "CLDiff": true, "SlopeEn": true, "AlphaZeroEn": true, // polar hysteresis and design line tests
 	// ratios and fractions
 	"RelHumidity": true, "TurbulenceIntensity": true, "NoiseFrac": true, "QTolFrac": true,
 	// statistics: X and U take the unit of the field that holds the Value;
