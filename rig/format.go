@@ -131,6 +131,7 @@ func Format(r *Rig) []byte {
 			}
 		}
 	}
+	formatCorrections(w, r)
 	return []byte(b.String())
 }
 
