@@ -288,6 +288,9 @@ func (v *validator) corrections() {
 			key   string
 			names []string
 		}{{"outputs", b.Outputs}, {"components", b.Components}} {
+			if list.key == "components" && slices.Equal(b.Components, b.Outputs) {
+				continue // the default, or the outputs again: checked once
+			}
 			dup := map[string]bool{}
 			for _, n := range list.names {
 				forceLike("balance."+list.key, "balance "+list.key, n)
