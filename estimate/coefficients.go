@@ -96,7 +96,15 @@ type Point struct {
 //
 // One contribution per systematic input: normal and axial force calibration,
 // q calibration, angle, and reference area (c_S = −C_L/S). Their sensitivities
-// are the same c's.
+// are the same c's. The corrections applied to the loads before the window
+// (Window.Corrections: weight tare, balance matrix) add one line each on
+// the normal and the axial force, with c_N and c_A.
+//
+// # Blockage
+//
+// With Window.Blockage, q, V, Re, C_L and C_D are corrected last
+// (applyBlockage: q·(1 + ε)²), every coefficient line is scaled by
+// 1/(1 + ε)², and u(ε) adds its own line.
 //
 // # Combination
 //

@@ -29,17 +29,17 @@ type CorrectionInput struct {
 // so C_L,c = C_L,u/(1 + ε)², C_D,c = C_D,u/(1 + ε)², V_c = V·(1 + ε) and Re
 // with it (Barlow, Rae & Pope, Low-Speed Wind Tunnel Testing, 3rd ed. 1999,
 // ch. 10, closed test section; the equations from memory, docs/references.md
-// §14). A free surface (towing tank) only lessens the blockage of a closed
+// §16). A free surface (towing tank) only lessens the blockage of a closed
 // section, so on a tank's wetted cross-section the correction is an upper
 // bound (common practice); the depth Froude number effect that Schuster's
 // method treats is not corrected.
 //
-// Its uncertainty is u(ε) = UFraction·ε (common practice), one budget line.
+// Its uncertainty is u(ε) = UFrac·ε (common practice), one budget line.
 type Blockage struct {
-	SolidEps      float64 // ε_sb
+	SolidEpsFrac  float64 // ε_sb
 	Wake          bool    // add ε_wb from the window's own uncorrected C_D
 	SectionAreaM2 float64 // C, m²
-	UFraction     float64 // u(ε)/ε
+	UFrac         float64 // u(ε)/ε
 }
 
 // BlockageOf returns the correction the rig names, or nil for none.
@@ -47,14 +47,14 @@ func BlockageOf(r *rig.Rig) *Blockage {
 	if r == nil || r.Blockage == nil {
 		return nil
 	}
-	return &Blockage{SolidEps: r.Blockage.SolidEps(), Wake: r.Blockage.Wake,
-		SectionAreaM2: r.Blockage.SectionAreaM2, UFraction: r.Blockage.UFraction}
+	return &Blockage{SolidEpsFrac: r.Blockage.SolidEpsFrac(), Wake: r.Blockage.Wake,
+		SectionAreaM2: r.Blockage.SectionAreaM2, UFrac: r.Blockage.UFrac}
 }
 
 // Eps returns ε = ε_sb + ε_wb for the uncorrected drag coefficient cdU on
 // the reference area areaM2 (a NaN C_D gives no wake blockage).
 func (b *Blockage) Eps(areaM2, cdU float64) float64 {
-	eps := b.SolidEps
+	eps := b.SolidEpsFrac
 	if b.Wake && b.SectionAreaM2 > 0 && finite(cdU) {
 		eps += areaM2 / (4 * b.SectionAreaM2) * cdU
 	}
@@ -92,8 +92,8 @@ func applyBlockage(p *Point, b *Blockage, areaM2 float64) {
 	}
 	g := 1 + eps
 	f := g * g
-	uEps := b.UFraction * math.Abs(eps)
-	name := fmt.Sprintf("blockage ε = %.4g (u = %.0f %% of it)", eps, 100*b.UFraction)
+	uEps := b.UFrac * math.Abs(eps)
+	name := fmt.Sprintf("blockage ε = %.4g (u = %.0f %% of it)", eps, 100*b.UFrac)
 	scale := func(v float64, cs []Contribution, factor, dVdEps float64) (float64, []Contribution) {
 		out := make([]Contribution, 0, len(cs)+1)
 		for _, c := range cs {

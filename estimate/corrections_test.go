@@ -26,7 +26,7 @@ func steadyWindow(n int, normalN, axialN, qPa, areaM2 float64) estimate.Window {
 }
 
 // Ensure that the blockage correction gives the value computed by hand from
-// the closed-section formulas (docs/references.md §14; Barlow, Rae & Pope
+// the closed-section formulas (docs/references.md §16; Barlow, Rae & Pope
 // 1999 ch. 10, equations from memory, so the check is of our arithmetic on
 // the stated formulas): C = 1.5 m², V = 0.004 m³, K = 0.90, S = 0.3 m²,
 // C_D,u = 0.05, C_L,u = 0.6, q_u = 200 Pa:
@@ -42,7 +42,7 @@ func TestReduce_BlockageHandValue(t *testing.T) {
 	require.InDelta(t, 0.6, plain.CL.X, 1e-12)
 	require.InDelta(t, 0.05, plain.CD.X, 1e-12)
 
-	w.Blockage = &estimate.Blockage{SolidEps: 0.90 * 0.004 / math.Pow(1.5, 1.5), Wake: true, SectionAreaM2: 1.5, UFraction: 0.25}
+	w.Blockage = &estimate.Blockage{SolidEpsFrac: 0.90 * 0.004 / math.Pow(1.5, 1.5), Wake: true, SectionAreaM2: 1.5, UFrac: 0.25}
 	p, err := estimate.Reduce(&w)
 	require.NoError(t, err)
 	assert.InDelta(t, 0.59468408, p.CL.X, 1e-8)
@@ -72,14 +72,14 @@ func TestReduce_BlockageNone(t *testing.T) {
 	w := steadyWindow(50, 36, 3, 200, 0.3)
 	plain, err := estimate.Reduce(&w)
 	require.NoError(t, err)
-	w.Blockage = &estimate.Blockage{SectionAreaM2: 1.5, UFraction: 0.25}
+	w.Blockage = &estimate.Blockage{SectionAreaM2: 1.5, UFrac: 0.25}
 	p, err := estimate.Reduce(&w)
 	require.NoError(t, err)
 	assert.Equal(t, plain.CL, p.CL)
 	assert.Equal(t, plain.CLBudget, p.CLBudget)
 
 	off := steadyWindow(50, 0, 0, 0, 0.3)
-	off.Blockage = &estimate.Blockage{SolidEps: 0.01, Wake: true, SectionAreaM2: 1.5, UFraction: 0.25}
+	off.Blockage = &estimate.Blockage{SolidEpsFrac: 0.01, Wake: true, SectionAreaM2: 1.5, UFrac: 0.25}
 	q, err := estimate.Reduce(&off)
 	require.NoError(t, err)
 	assert.True(t, math.IsNaN(q.CL.X), "no flow: no coefficients to correct")

@@ -41,7 +41,7 @@ func (r *Report) corrections() []string {
 			wake = "wake blockage S/(4C)·C_D from each segment's drag"
 		}
 		out = append(out, fmt.Sprintf("Blockage (Barlow, Rae & Pope 1999, closed section): q·(1 + ε)² with solid blockage ε_sb = %s·V/C^1.5 = %s on C = %s m², and %s; u(ε) = %s %% of ε (budget line \"blockage\").",
-			short(b.SolidK), sig(b.SolidEps(), 3), short(b.SectionAreaM2), wake, short(100*b.UFraction)))
+			short(b.SolidK), sig(b.SolidEpsFrac(), 3), short(b.SectionAreaM2), wake, short(100*b.UFrac)))
 	} else {
 		out = append(out, "Blockage: none (free-stream q as measured).")
 	}

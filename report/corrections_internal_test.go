@@ -17,7 +17,7 @@ import (
 func TestCorrections_Listed(t *testing.T) {
 	g := &rig.Rig{Kind: rig.KindFoil,
 		Tare:     []rig.TareChannel{{Channel: "n_fore"}, {Channel: "n_aft"}},
-		Blockage: &rig.Blockage{SectionAreaM2: 2, ModelVolumeM3: 0.002, SolidK: 0.9, Wake: true, UFraction: 0.25}}
+		Blockage: &rig.Blockage{SectionAreaM2: 2, ModelVolumeM3: 0.002, SolidK: 0.9, Wake: true, UFrac: 0.25}}
 	r := &Report{Run: storage.Run{Kind: "foil"}, Rig: g}
 	got := r.corrections()
 	require.Len(t, got, 3)

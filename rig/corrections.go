@@ -69,7 +69,7 @@ type Blockage struct {
 	ModelVolumeM3 float64 // model volume for solid blockage, m³ (0: no solid blockage)
 	SolidK        float64 // shape factor K of ε_sb = K·V/C^{3/2} (default 0.90 for a foil, 0.96 otherwise)
 	Wake          bool    // wake blockage ε_wb = S/(4C)·C_D,u (default on)
-	UFraction     float64 // standard uncertainty of ε as a fraction of ε (default 0.25)
+	UFrac         float64 // standard uncertainty of ε as a fraction of ε (default 0.25)
 }
 
 // Defaults of [blockage].
@@ -79,15 +79,15 @@ const (
 	BlockageKWing = 0.90
 	// BlockageKBody is K for a body of revolution (same source, from memory).
 	BlockageKBody = 0.96
-	// BlockageUFraction is the default standard uncertainty of ε as a
+	// BlockageUFrac is the default standard uncertainty of ε as a
 	// fraction of ε (common practice: the classic corrections are trusted
 	// to about a quarter of their size).
-	BlockageUFraction = 0.25
+	BlockageUFrac = 0.25
 )
 
-// SolidEps returns the solid-blockage factor ε_sb = K·V/C^{3/2}, or 0 when
+// SolidEpsFrac returns the solid-blockage factor ε_sb = K·V/C^{3/2}, or 0 when
 // the section or the volume is not given.
-func (b *Blockage) SolidEps() float64 {
+func (b *Blockage) SolidEpsFrac() float64 {
 	if b == nil || !(b.SectionAreaM2 > 0) || !(b.ModelVolumeM3 > 0) {
 		return 0
 	}
@@ -220,7 +220,7 @@ func (d *decoder) blockage(t *table, kind Kind) *Blockage {
 		return nil
 	}
 	t.subject = "blockage"
-	b := &Blockage{SolidK: BlockageKBody, Wake: true, UFraction: BlockageUFraction}
+	b := &Blockage{SolidK: BlockageKBody, Wake: true, UFrac: BlockageUFrac}
 	if kind == KindFoil {
 		b.SolidK = BlockageKWing
 	}
@@ -250,7 +250,7 @@ func (d *decoder) blockage(t *table, kind Kind) *Blockage {
 		if v < 0 || v > 1 {
 			t.errf("u_fraction", ErrValue, "u_fraction must be within 0 to 1 (the standard uncertainty of the correction as a fraction of it), not %g", v)
 		}
-		b.UFraction = v
+		b.UFrac = v
 	}
 	if kind == KindRoof {
 		t.errf("section_area_m2", ErrValue, "a blockage correction applies to force-balance rigs (foil, body, rotor), not to a roof's pressure taps")
@@ -328,6 +328,6 @@ func formatCorrections(w func(string, ...any), r *Rig) {
 	}
 	if b := r.Blockage; b != nil {
 		w("\n[blockage]\nsection_area_m2 = %s\nmodel_volume_m3 = %s\nsolid_k = %s\nwake = %t\nu_fraction = %s\n",
-			num(b.SectionAreaM2), num(b.ModelVolumeM3), num(b.SolidK), b.Wake, num(b.UFraction))
+			num(b.SectionAreaM2), num(b.ModelVolumeM3), num(b.SolidK), b.Wake, num(b.UFrac))
 	}
 }

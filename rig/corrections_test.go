@@ -74,9 +74,9 @@ model_volume_m3 = 0.0015
 	require.NotNil(t, r.Blockage)
 	assert.Equal(t, rig.BlockageKWing, r.Blockage.SolidK, "a foil takes the wing factor")
 	assert.True(t, r.Blockage.Wake)
-	assert.Equal(t, rig.BlockageUFraction, r.Blockage.UFraction)
+	assert.Equal(t, rig.BlockageUFrac, r.Blockage.UFrac)
 	// ε_sb = 0.90·0.0015/2.5^1.5 = 0.000 341 53 (by hand).
-	assert.InDelta(t, 0.00034153, r.Blockage.SolidEps(), 1e-8)
+	assert.InDelta(t, 0.00034153, r.Blockage.SolidEpsFrac(), 1e-8)
 
 	again, err := rig.Parse("again.toml", rig.Format(r))
 	require.NoError(t, err, "%s", rig.Format(r))
