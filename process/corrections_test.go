@@ -310,3 +310,24 @@ u = [0, 0, 0]
 		assert.Equal(t, a[i].CLBudget, b[i].CLBudget, "segment %d budget", i)
 	}
 }
+
+// Ensure that [blockage] in the rig file reaches every segment: C_L is the
+// uncorrected C_L divided by (1 + ε)², ε from the volume and the segment's
+// own uncorrected C_D (docs/physics.md "Corrections").
+func TestCorrections_BlockageFromRigFile(t *testing.T) {
+	plain, err := rig.Parse("corr.toml", []byte(corrRig))
+	require.NoError(t, err)
+	blocked, err := rig.Parse("corr.toml", []byte(corrRig+"\n[blockage]\nsection_area_m2 = 1.2\nmodel_volume_m3 = 0.003\n"))
+	require.NoError(t, err)
+	record, _ := sweepRecord(t, plain, 4)
+	a := runSweep(t, plain, record)
+	b := runSweep(t, blocked, record)
+	require.NotEmpty(t, a)
+	require.Len(t, b, len(a))
+	epsSolid := 0.90 * 0.003 / math.Pow(1.2, 1.5)
+	for i := range a {
+		eps := epsSolid + 0.12/(4*1.2)*a[i].CD.X
+		assert.InDelta(t, a[i].CL.X/((1+eps)*(1+eps)), b[i].CL.X, 1e-12, "segment %d", i)
+		assert.Greater(t, b[i].CL.U, a[i].CL.U/((1+eps)*(1+eps)), "segment %d: the blockage line adds to u(C_L)", i)
+	}
+}
