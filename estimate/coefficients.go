@@ -39,6 +39,13 @@ type Window struct {
 	AreaM2, AreaUM2                     float64 // reference area S and its standard uncertainty, m²
 	LengthM                             float64 // reference length for Re, m (0: Re not computed)
 	Fluid                               Fluid   // fluid properties for speed and Re
+
+	// Corrections are the Type B inputs of the weight tare and the balance
+	// matrix applied to the loads before the window (own budget lines).
+	Corrections []CorrectionInput
+	// Blockage, when not nil, corrects q and the coefficients for solid
+	// and wake blockage (corrections.go), with its own budget line.
+	Blockage *Blockage
 }
 
 // Point is the reduced result of one Window: one polar point with its
@@ -89,7 +96,15 @@ type Point struct {
 //
 // One contribution per systematic input: normal and axial force calibration,
 // q calibration, angle, and reference area (c_S = −C_L/S). Their sensitivities
-// are the same c's.
+// are the same c's. The corrections applied to the loads before the window
+// (Window.Corrections: weight tare, balance matrix) add one line each on
+// the normal and the axial force, with c_N and c_A.
+//
+// # Blockage
+//
+// With Window.Blockage, q, V, Re, C_L and C_D are corrected last
+// (applyBlockage: q·(1 + ε)²), every coefficient line is scaled by
+// 1/(1 + ε)², and u(ε) adds its own line.
 //
 // # Combination
 //
@@ -174,6 +189,7 @@ func Reduce(w *Window) (Point, error) {
 		cs = typeB(cs, "normal force calibration", w.NormalUN, cN, w.NormalDof)
 		cs = typeB(cs, "axial force calibration", w.AxialUN, cA, w.AxialDof)
 		cs = typeB(cs, "angle of attack", w.AlphaURad, cAl, w.AlphaDof)
+		cs = correctionLines(cs, w.Corrections, cN, cA)
 		return Combine(cs)
 	}
 	p.LiftN = withX(lift, forceBudget(ls, cosA, -sinA, -drag, "lift"))
@@ -197,13 +213,14 @@ func Reduce(w *Window) (Point, error) {
 			cs = typeB(cs, "dynamic pressure calibration", w.QUPa, -c/qBar, w.QDof)
 			cs = typeB(cs, "angle of attack", w.AlphaURad, cAl/qs, w.AlphaDof)
 			cs = typeB(cs, "reference area", w.AreaUM2, -c/s, 0)
+			cs = correctionLines(cs, w.Corrections, cN/qs, cA/qs)
 			return withX(c, Combine(cs)), cs, ne
 		}
 		p.CL, p.CLBudget, p.NEff = coef(ls, cl, cosA, -sinA, -drag, "C_L")
 		p.CD, p.CDBudget, _ = coef(ds, cd, sinA, cosA, lift, "C_D")
 	}
 
-	// Speed and Reynolds number.
+	// Speed and Reynolds number (blockage corrects them below).
 	p.SpeedMPerS = calibrate.Value{X: math.NaN(), U: math.NaN(), Dof: math.NaN()}
 	p.Re = math.NaN()
 	if rho := w.Fluid.RhoKgPerM3; rho > 0 {
@@ -217,6 +234,7 @@ func Reduce(w *Window) (Point, error) {
 			p.Re = Reynolds(rho, math.Abs(v), w.LengthM, w.Fluid.MuPaS)
 		}
 	}
+	applyBlockage(&p, w.Blockage, s)
 	return p, nil
 }
 

@@ -38,6 +38,10 @@ type Config struct {
 	// in time order without overlap and no longer than MaxSegment
 	// (CheckMarks); NewEstimator refuses them otherwise.
 	Marks []Mark
+	// Corrections are the Type B inputs of the weight tare and the balance
+	// matrix that the pipeline applied to the loads (process builds them
+	// from the rig file); each gets its own budget line. Nil: none.
+	Corrections []CorrectionInput
 }
 
 // ErrRig is returned by NewEstimator when the rig lacks what the estimator
@@ -476,6 +480,7 @@ func (e *Estimator) window(buf *sampleBuf, fl Fluid) Window {
 		AlphaURad: e.uB.alphaU, AlphaDof: e.uB.alphaDof,
 		AreaM2: e.rig.Reference.AreaM2, AreaUM2: e.rig.Reference.AreaUM2,
 		LengthM: e.rig.Reference.LengthM, Fluid: fl,
+		Corrections: e.cfg.Corrections, Blockage: BlockageOf(e.rig),
 	}
 	if len(e.roles.axial) > 0 {
 		w.AxialN = buf.axialN

@@ -82,7 +82,7 @@ func balanceStage(r *rig.Rig, opt Options) (Stage, error) {
 	if err != nil {
 		return nil, err
 	}
-	return estimate.NewEstimator(r, estimate.Config{Design: d, Marks: opt.Marks, Now: opt.Now})
+	return estimate.NewEstimator(r, estimate.Config{Design: d, Marks: opt.Marks, Now: opt.Now, Corrections: correctionInputs(r)})
 }
 
 func roofStage(r *rig.Rig, opt Options) (Stage, error) {

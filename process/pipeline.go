@@ -39,7 +39,8 @@ type Step struct {
 }
 
 // Pipeline is the one processing chain of liftyard: clock alignment →
-// calibration → flow-off zero / zero drift → the rig kind's estimation
+// calibration → weight tare and balance matrix (when the rig names them) →
+// flow-off zero / zero drift → the rig kind's estimation
 // stage, with the channel-health and load monitors beside it. The live
 // recorder steps it block by block; import, reprocess, user marks and the
 // zero-drift correction Replay stored or file blocks through it. The same
@@ -55,6 +56,7 @@ type Pipeline struct {
 	zeros   *calibrate.ZeroWatch // nil when the kind or the rig takes no flow-off zero
 	drift   *calibrate.Drift     // fixed drift (Options.Drift), or nil
 	stage   Stage
+	corr    *corrections // weight tare and balance matrix; nil when the rig names neither
 	now     func() time.Time
 }
 
@@ -73,7 +75,7 @@ func New(r *rig.Rig, cal *calibrate.Calibrator, opt Options) (*Pipeline, error) 
 		return nil, err
 	}
 	p := &Pipeline{rig: r, cal: cal, chans: acquire.NewMonitor(r), loads: calibrate.NewLoadMonitor(r),
-		drift: opt.Drift, stage: st, now: opt.Now}
+		drift: opt.Drift, stage: st, now: opt.Now, corr: newCorrections(r)}
 	if k.flowOffZero {
 		p.zeros = calibrate.NewZeroWatch(r)
 	}
@@ -87,6 +89,8 @@ func (p *Pipeline) Step(b *acquire.Block) Step {
 	p.aligner.Align(b)
 	st.Events = append(st.Events, p.chans.Observe(b)...)
 	cb := p.cal.Apply(b)
+	p.corr.applyTare(&cb)    // weight tare at the measured angle (corrections.go)
+	p.corr.applyBalance(&cb) // interaction matrix: outputs → components
 	switch {
 	case p.drift != nil:
 		p.drift.Correct(&cb)

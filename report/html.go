@@ -111,6 +111,9 @@ type view struct {
 	EventCounts string
 
 	Notes []string
+
+	// Corrections lists the corrections applied to the run (corrections.go).
+	Corrections []string
 }
 
 // WriteHTML writes the report as one self-contained HTML page (inline CSS
@@ -140,6 +143,8 @@ func (r *Report) view() (*view, error) {
 		Water:     r.Run.Fluid == string(rig.FluidFreshWater) || r.Run.Fluid == string(rig.FluidSeaWater),
 		Spin:      r.section().spin,
 		Notes:     r.Notes,
+
+		Corrections: r.corrections(),
 	}
 	v.Facts = r.facts()
 	for _, f := range r.section().figures(r) {

@@ -134,6 +134,7 @@ func Format(r *Rig) []byte {
 			}
 		}
 	}
+	formatCorrections(w, r)
 	return []byte(b.String())
 }
 

@@ -387,7 +387,7 @@ var (
 
 // The keys of each table.
 var (
-	topKeys        = []string{"name", "kind", "fluid", "conditions", "reference", "source", "channel", "lift", "tap", "zone", "internal", "publish"}
+	topKeys        = []string{"name", "kind", "fluid", "conditions", "reference", "source", "channel", "lift", "tap", "zone", "internal", "publish", "tare", "balance", "blockage"}
 	conditionsKeys = []string{"temperature_c", "temperature", "pressure_pa", "pressure", "humidity_pct", "salinity_g_per_kg"}
 	referenceKeys  = []string{"area_m2", "area_u_m2", "area_kind", "length_m", "span_m", "radius_m"}
 	sourceKeys     = []string{"name", "type", "port", "baud", "data_bits", "parity", "stop_bits", "format", "channels", "delimiter", "columns", "broker", "topic", "client_id", "username", "password_env", "ca_file", "rate_hz"}
@@ -427,6 +427,7 @@ func (d *decoder) rig(doc map[string]any) *Rig {
 	}
 	r.Internal = d.internal(top.sub("internal", internalKeys...))
 	r.Publish = d.publish(top.sub("publish", publishKeys...))
+	d.corrections(top, r)
 	top.unknown()
 	return r
 }

@@ -57,6 +57,11 @@ type Rig struct {
 	Zones      []Zone
 	Internal   Internal
 	Publish    *Publish // nil: results are not published
+
+	// Corrections (rig/corrections.go); each is optional, absent = none.
+	Tare     []TareChannel // weight/buoyancy tare against the angle, per channel
+	Balance  *Balance      // balance interaction matrix; nil: channels are summed as they are
+	Blockage *Blockage     // solid and wake blockage; nil: no blockage correction
 }
 
 // Conditions are the fixed fluid conditions used when no channel gives them.

@@ -37,6 +37,7 @@ func validate(r *Rig, d *decoder) {
 	v.lift()
 	v.roof()
 	v.publish()
+	v.corrections()
 }
 
 // publish checks the [publish] table's broker URL.

@@ -35,7 +35,20 @@ type Config struct {
 	// ZeroDriftNPerS makes every load cell's zero drift linearly, N/s, as a
 	// warming bridge does: the flow-off zeros before and after show it.
 	ZeroDriftNPerS float64
-	Start          time.Time // device clock at the first sample (default: Now at Run, or the Unix epoch for Next)
+	// WeightTare adds, per balance channel (normal or axial cell, by
+	// name), the load of the model's weight less its buoyancy as it turns
+	// with the angle: w(α) = a + b·sin α + c·cos α, N. It is a real load,
+	// so Interaction acts on it too. Nil: a weightless model.
+	WeightTare map[string][3]float64
+	// Interaction is the balance's cross-talk: the outputs are o = X·f,
+	// with f the true loads of the normal cells, then the axial cells, in
+	// [lift] order, and X square of that size. Nil: each cell reads its
+	// own load only.
+	Interaction [][]float64
+	// FlowOff keeps the flow off for the whole record while the angle
+	// sweeps through its steps: a flow-off tare sweep.
+	FlowOff bool
+	Start   time.Time // device clock at the first sample (default: Now at Run, or the Unix epoch for Next)
 }
 
 // Foil is the simulator's true foil. Invented numbers: they describe no real
@@ -148,6 +161,16 @@ func New(r *rig.Rig, cfg Config, rhoKgPerM3 float64) (*Rig, error) {
 		cfg.NoiseFrac = 2e-4
 	}
 	cfg.Foil.defaults()
+	if x := cfg.Interaction; x != nil {
+		n := len(r.Lift.Normal) + len(r.Lift.Axial)
+		ok := len(x) == n
+		for _, row := range x {
+			ok = ok && len(row) == n
+		}
+		if !ok {
+			return nil, fmt.Errorf("sim: Interaction must be %d×%d (normal then axial cells)", n, n)
+		}
+	}
 	s := &Rig{
 		cfg:     cfg,
 		rng:     rand.New(rand.NewPCG(cfg.Seed, 0x5eed)),
@@ -315,7 +338,7 @@ func (s *Rig) Next() acquire.Block {
 		s.turb = phi*s.turb + innov*s.rng.NormFloat64()
 		q := s.cfg.QPa * (1 + s.turb) * (1 + s.turb)
 		sweepT := tS - s.cfg.FlowOffBefore.Seconds()
-		if sweepT < 0 || (s.cfg.Sweeps > 0 && sweepT >= float64(s.cfg.Sweeps)*s.SweepS()) {
+		if s.cfg.FlowOff || sweepT < 0 || (s.cfg.Sweeps > 0 && sweepT >= float64(s.cfg.Sweeps)*s.SweepS()) {
 			q = 0 // flow off: carriage at rest
 			sweepT = max(sweepT, 0)
 		}
@@ -330,11 +353,12 @@ func (s *Rig) Next() acquire.Block {
 			b.Series[col].Raw[i] = c.raw(si + s.noise(c))
 			col++
 		}
+		loads := s.cellLoads(normal, axial, alpha)
 		for k := range s.normal {
-			put(&s.normal[k], normal*s.shares[k]+zero)
+			put(&s.normal[k], loads[k]+zero)
 		}
 		for k := range s.axial {
-			put(&s.axial[k], axial/float64(len(s.axial))+zero)
+			put(&s.axial[k], loads[len(s.normal)+k]+zero)
 		}
 		if s.pitot != nil {
 			put(s.pitot, q/(s.pitotC*s.pitotC)) // the probe reads Δp = q/C²
@@ -351,6 +375,37 @@ func (s *Rig) Next() acquire.Block {
 	}
 	s.seq++
 	return b
+}
+
+// cellLoads returns what each balance cell reads, normal cells then axial
+// cells: its share of the aerodynamic load plus its weight tare at α,
+// through the interaction matrix.
+func (s *Rig) cellLoads(normal, axial, alphaRad float64) []float64 {
+	f := make([]float64, 0, len(s.normal)+len(s.axial))
+	tare := func(name string) float64 {
+		w, ok := s.cfg.WeightTare[name]
+		if !ok {
+			return 0
+		}
+		return w[0] + w[1]*math.Sin(alphaRad) + w[2]*math.Cos(alphaRad)
+	}
+	for k := range s.normal {
+		f = append(f, normal*s.shares[k]+tare(s.normal[k].name))
+	}
+	for k := range s.axial {
+		f = append(f, axial/float64(len(s.axial))+tare(s.axial[k].name))
+	}
+	x := s.cfg.Interaction
+	if x == nil {
+		return f
+	}
+	o := make([]float64, len(f))
+	for i := range o {
+		for j, v := range f {
+			o[i] += x[i][j] * v
+		}
+	}
+	return o
 }
 
 // noise is white sensor noise, a fraction of the channel's capacity.

@@ -15,7 +15,7 @@ import (
 // read as "S".
 var siSuffixes = []string{
 	"KgPerKg", "KgPerM3", "M2PerS", "MPerS", "RadPerS", "PerRad", "PaS", "NM",
-	"M2", "Pa", "Rad", "Hz", "Us", "N", "M", "K", "S", "V",
+	"M3", "M2", "Pa", "Rad", "Hz", "Us", "N", "M", "K", "S", "V",
 }
 
 // dimensionless lists field names that carry no unit: coefficients and
