@@ -119,3 +119,11 @@ func writeCompareText(w io.Writer, c *report.Comparison) error {
 	_, err := fmt.Fprintf(w, "verdict: %s.\n", c.Verdict())
 	return err
 }
+
+// comparer is the run-against-run capability of a dashboard over store
+// (dashboard.Config.Compare): the same comparison as `liftyard compare`.
+func comparer(store *storage.Store) func(ids []uint64) (*report.Comparison, error) {
+	return func(ids []uint64) (*report.Comparison, error) {
+		return report.BuildComparison(store, ids, report.Options{Version: version})
+	}
+}
