@@ -26,7 +26,7 @@ var dimensionless = map[string]bool{
 	"SpinRatio": true, "DesignCL": true, "DesignCp": true, "DesignU": true, "PitotCoeff": true,
 	"CD0": true, "K": true, "Mach": true,
 	"CLMax": true, "CLMinD": true, "CLAtZeroAlpha": true, "AspectRatio": true,
-	"ChiSq": true, // a fit's weighted sum of squared residuals
+	"ChiSq":   true,                                                                                                                                   // a fit's weighted sum of squared residuals
 	"DeltaCL": true, "DeltaCD": true, "EnCD": true, "CLRef": true, "CLOther": true, "SpinRatioOther": true, "CLOffset": true, "MaxGapSpinRatio": true, // run against run (estimate/runcompare.go)
 	// ratios and fractions
 	"RelHumidity": true, "TurbulenceIntensity": true, "NoiseFrac": true, "QTolFrac": true,
