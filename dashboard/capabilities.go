@@ -10,6 +10,7 @@ type caps struct {
 	EditMarks    bool // and may change them
 	Report       bool // run pages link to the printable report
 	Calibrations bool // the calibration pages exist
+	Compare      bool // the run-against-run page exists (compare.go)
 }
 
 func (s *Server) caps() caps {
@@ -19,6 +20,7 @@ func (s *Server) caps() caps {
 		EditMarks:    s.marks != nil && s.apply != nil,
 		Report:       s.report != nil,
 		Calibrations: s.cals != nil,
+		Compare:      s.compare != nil,
 	}
 }
 
@@ -28,6 +30,7 @@ const (
 	offMarks        = "marks are off on this dashboard: it was started without a mark store (liftyard serve --db FILE shows and edits marks)"
 	offReport       = "the report is off on this dashboard: it was started without a report writer (liftyard report --db FILE --run ID writes one)"
 	offCalibrations = "calibrations are off on this dashboard: it was started without a calibration store"
+	offCompare      = "run against run is off on this dashboard: it was started without a run store to compare from (liftyard compare --db FILE --runs 3,5 prints it)"
 )
 
 // need returns h when on, else a handler that answers 404 with msg (JSON

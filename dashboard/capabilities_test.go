@@ -38,6 +38,8 @@ func TestCapabilities_Off(t *testing.T) {
 		{"GET", "/api/v1/stream", "the live feed is off"},
 		{"GET", "/calibrations", "calibrations are off"},
 		{"GET", "/api/v1/calibrations/x", "calibrations are off"},
+		{"GET", "/compare?runs=1,2", "run against run is off"},
+		{"GET", "/api/v1/compare?runs=1,2", "run against run is off"},
 	} {
 		var rec interface {
 			Result() *http.Response

@@ -60,6 +60,11 @@ func (s *Server) routes() http.Handler {
 	mux.HandleFunc("GET /calibrations/{id}/residuals.svg", s.need(c.Calibrations, offCalibrations, false, s.calibrationResidualSVG))
 	mux.HandleFunc("GET /api/v1/calibrations", s.need(c.Calibrations, offCalibrations, true, s.apiCalibrations))
 	mux.HandleFunc("GET /api/v1/calibrations/{id}", s.need(c.Calibrations, offCalibrations, true, s.apiCalibration))
+	// Run against run (compare.go).
+	mux.HandleFunc("GET /compare", s.need(c.Compare, offCompare, false, s.comparePage))
+	mux.HandleFunc("GET /compare/lift.svg", s.need(c.Compare, offCompare, false, s.compareSVG(false)))
+	mux.HandleFunc("GET /compare/drag.svg", s.need(c.Compare, offCompare, false, s.compareSVG(true)))
+	mux.HandleFunc("GET /api/v1/compare", s.need(c.Compare, offCompare, true, s.apiCompare))
 	// User marks (marks.go): shown with Config.Marks, changed only with
 	// Config.ApplyMarks too (editMarks answers 405 without it).
 	mux.HandleFunc("GET /api/v1/runs/{id}/marks", s.need(c.Marks, offMarks, true, s.apiMarks))

@@ -22,6 +22,7 @@ var webFS embed.FS
 type pages struct {
 	live, runs, run *template.Template
 	cal             *template.Template // calibration list and detail (calibration.go)
+	compare         *template.Template // run against run (compare.go)
 }
 
 func parsePages() (*pages, error) {
@@ -46,12 +47,21 @@ func parsePages() (*pages, error) {
 	if p.cal, err = parse("calibration.html"); err != nil {
 		return nil, err
 	}
+	if p.compare, err = parse("compare.html"); err != nil {
+		return nil, err
+	}
 	return &p, nil
 }
 
 // render executes a page into a buffer first, so a template error becomes
 // a clean 500 instead of half a page.
 func (s *Server) render(w http.ResponseWriter, r *http.Request, t *template.Template, data pageData) {
+	s.renderStatus(w, r, t, http.StatusOK, data)
+}
+
+// renderStatus is render with a status other than 200 (a page that says
+// what to fix in a request).
+func (s *Server) renderStatus(w http.ResponseWriter, r *http.Request, t *template.Template, status int, data pageData) {
 	data.Caps = s.caps()
 	var buf bytes.Buffer
 	if err := t.ExecuteTemplate(&buf, "base", data); err != nil {
@@ -62,6 +72,7 @@ func (s *Server) render(w http.ResponseWriter, r *http.Request, t *template.Temp
 	h.Set("Content-Type", "text/html; charset=utf-8")
 	h.Set("Cache-Control", "no-store")
 	h.Set("Content-Security-Policy", "default-src 'self'; img-src 'self'; style-src 'self'; script-src 'self'; connect-src 'self'; base-uri 'none'; form-action 'self'; frame-ancestors 'none'")
+	w.WriteHeader(status)
 	buf.WriteTo(w)
 }
 
@@ -83,7 +94,8 @@ type livePageData struct {
 }
 
 type runsPageData struct {
-	Runs []runRow
+	Runs    []runRow
+	Compare bool // offer the run-against-run form (Config.Compare)
 }
 
 type runRow struct {
@@ -125,7 +137,7 @@ func (s *Server) runsPage(w http.ResponseWriter, r *http.Request) {
 	}
 	s.render(w, r, s.pages.runs, pageData{
 		Title: "Runs", Nav: "runs", Token: !s.loopback.Load(),
-		Content: runsPageData{Runs: rows},
+		Content: runsPageData{Runs: rows, Compare: s.compare != nil},
 	})
 }
 

@@ -17,6 +17,7 @@ import (
 	"liftyard/acquire"
 	"liftyard/calibrate"
 	"liftyard/estimate"
+	"liftyard/report"
 	"liftyard/storage"
 )
 
@@ -98,6 +99,14 @@ type Config struct {
 	// 404.
 	Calibrations CalibrationStore
 
+	// Compare builds run against run for runIDs, the first the reference
+	// (report.BuildComparison over a store): GET /compare, its plots and
+	// GET /api/v1/compare. It may be called concurrently. An unknown run
+	// gives an error wrapping storage.ErrNotFound (404), a list that cannot
+	// be compared report.ErrCompareUsage (400). Nil: the runs page has no
+	// compare form and those routes answer 404.
+	Compare func(runIDs []uint64) (*report.Comparison, error)
+
 	// Logger receives request errors (the detail that a 500 response does
 	// not show) and dropped stream clients. Nil means slog.Default().
 	Logger *slog.Logger
@@ -125,6 +134,7 @@ type Server struct {
 	apply    func(ctx context.Context, runID uint64) (MarksApplied, error)
 	report   func(w io.Writer, runID uint64) error
 	cals     CalibrationStore
+	compare  func(runIDs []uint64) (*report.Comparison, error)
 	log      *slog.Logger
 	now      func() time.Time
 	hub      *hub
@@ -177,18 +187,19 @@ func New(cfg Config) (*Server, error) {
 		return nil, err
 	}
 	s := &Server{
-		token:  cfg.Token,
-		store:  cfg.Runs,
-		live:   cfg.Live,
-		marks:  cfg.Marks,
-		apply:  cfg.ApplyMarks,
-		report: cfg.Report,
-		cals:   cfg.Calibrations,
-		log:    cfg.Logger.With("component", "dashboard"),
-		now:    cfg.Now,
-		hub:    newHub(strconv.FormatInt(cfg.Now().UnixNano(), 36)),
-		pages:  pg,
-		polars: newPolarCache(),
+		token:   cfg.Token,
+		store:   cfg.Runs,
+		live:    cfg.Live,
+		marks:   cfg.Marks,
+		apply:   cfg.ApplyMarks,
+		report:  cfg.Report,
+		cals:    cfg.Calibrations,
+		compare: cfg.Compare,
+		log:     cfg.Logger.With("component", "dashboard"),
+		now:     cfg.Now,
+		hub:     newHub(strconv.FormatInt(cfg.Now().UnixNano(), 36)),
+		pages:   pg,
+		polars:  newPolarCache(),
 	}
 	s.loopback.Store(loop)
 	s.port.Store(int64(port))

@@ -59,6 +59,10 @@ type Foil struct {
 	StallRad        float64 // stall angle, rad (default 11°)
 	CD0             float64 // zero-lift drag coefficient (default 0.012)
 	K               float64 // induced-drag factor: C_D = CD0 + K·C_L² (default 0.08)
+	// CLOffset is added to C_L at every angle, the drag left as it is: a
+	// known change of configuration (a trim tab, say) for run-against-run
+	// comparison tests. 0: none.
+	CLOffset float64
 }
 
 func (f *Foil) defaults() {
@@ -81,7 +85,13 @@ func (f *Foil) defaults() {
 
 // Truth returns the foil's true C_L and C_D at angle of attack α. Past the
 // stall angle the lift falls off and the drag rises, as a stalled foil does.
+// CLOffset is added to C_L after the drag is found.
 func (f Foil) Truth(alphaRad float64) (cl, cd float64) {
+	cl, cd = f.truth(alphaRad)
+	return cl + f.CLOffset, cd
+}
+
+func (f Foil) truth(alphaRad float64) (cl, cd float64) {
 	a := alphaRad
 	if a <= f.StallRad {
 		cl = f.LiftSlopePerRad * (a - f.AlphaZeroRad)

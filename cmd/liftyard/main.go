@@ -55,6 +55,7 @@ func verbs() []verb {
 		{"simulate", "emit synthetic sensor traffic (MQTT blocks or serial frames) for dry runs", runSimulate},
 		{"serve", "serve the dashboard for a stored database (runs, calibrations, marks) without recording", runServe},
 		{"marks", "set steady segments of a run by hand and recompute its segments with them", runMarks},
+		{"compare", compareSummary, runCompare},
 		{"report", "write a printable HTML report of a run: plots, segments, uncertainty budgets, record quality", runReport},
 		{"reprocess", "re-process a run from its stored raw samples as a new run (e.g. with a corrected rig file)", runReprocess},
 	}

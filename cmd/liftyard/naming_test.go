@@ -28,6 +28,7 @@ var dimensionless = map[string]bool{
 	"CLMax": true, "CLMinD": true, "CLAtZeroAlpha": true, "AspectRatio": true,
 	"ChiSq": true,                                                                       // a fit's weighted sum of squared residuals
 	"CLUp":  true, "CLDown": true, "CLDiff": true, "SlopeEn": true, "AlphaZeroEn": true, // polar hysteresis and design line tests
+	"DeltaCL": true, "DeltaCD": true, "EnCD": true, "CLRef": true, "CLOther": true, "SpinRatioOther": true, "CLOffset": true, "MaxGapSpinRatio": true, // run against run (estimate/runcompare.go)
 	// ratios and fractions
 	"RelHumidity": true, "TurbulenceIntensity": true, "NoiseFrac": true, "QTolFrac": true,
 	// statistics: X and U take the unit of the field that holds the Value;

@@ -96,6 +96,7 @@ func serve(ctx context.Context, o serveOptions, stderr io.Writer) error {
 			return process.ApplyMarks(ctx, store, id)
 		},
 		Report:       reportWriter(store, ""),
+		Compare:      comparer(store),
 		Calibrations: store,
 		Logger:       newLogger(stderr, o.verbose)})
 	if err != nil {
