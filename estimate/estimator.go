@@ -389,7 +389,7 @@ func (e *Estimator) Flush() []Segment {
 // when it joins.
 func (e *Estimator) endTick(out []Segment) []Segment {
 	a, q := nanMean(e.tick.alphaRad), nanMean(e.tick.qPa)
-	closeSeg, join := e.det.step(a, q)
+	closeSeg, join := e.det.step(a, q, nanMean(e.tick.spinRadPerS))
 	if e.marked() {
 		// The steady test still runs for the live display; marks set the
 		// segments (markSample).
