@@ -514,6 +514,9 @@ func (e *Estimator) Live() (lv Live, ok bool) {
 		lv.Steady = false
 		lv.Warnings = append(lv.Warnings, "q below 5 % of the run's maximum: flow off, coefficients meaningless")
 	}
+	if FewIndependent(p.NEff) {
+		lv.Warnings = append(lv.Warnings, fmt.Sprintf("C_L from %.0f independent samples (N_eff < %d): the window is short against the flow's correlation time, so its U95 is wide and rests on few degrees of freedom", p.NEff, MinNEff))
+	}
 	if e.rig.Fluid == rig.FluidAir {
 		tK := nanMean(buf.tempK)
 		if math.IsNaN(tK) {

@@ -2,6 +2,7 @@ package estimate_test
 
 import (
 	"math"
+	"math/rand/v2"
 	"slices"
 	"testing"
 	"time"
@@ -108,5 +109,50 @@ func TestEstimator_GustySweepOneSegmentPerStep(t *testing.T) {
 	t.Logf("mean U95 %.5f, true 95 %% spread %.5f (%d steps)", meanU95, spread95, len(errs))
 	if ratio := meanU95 / spread95; ratio < 0.5 || ratio > 2 {
 		t.Errorf("mean U95 / true 95 %% spread = %.2f, want within 2×", ratio)
+	}
+}
+
+// Ensure that a segment and a live window whose loads wander slowly
+// against their length (buffeting with τ = 1 s over a 4 s plateau) are
+// flagged: Segment.FewIndependent, the n_eff_low column, and a Live warning.
+func TestEstimator_FewIndependentFlagged(t *testing.T) {
+	r := rand.New(rand.NewPCG(8, 8))
+	const rate, n = 200, 800
+	phi := math.Exp(-1.0 / rate) // τ = 1 s
+	buf := ar1(r, n, phi, math.Sqrt(1-phi*phi))
+	e, err := estimate.NewEstimator(testRig(), estimate.Config{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var segs []estimate.Segment
+	inf := math.Inf(1)
+	for start := 0; start < n; start += 20 {
+		nf, na, ax, pt, al := make([]float64, 20), make([]float64, 20), make([]float64, 20), make([]float64, 20), make([]float64, 20)
+		for i := range 20 {
+			l := 0.4*350*0.1 + 2*buf[start+i] // C_L 0.4 plus buffeting of 2 N rms
+			nf[i], na[i] = 0.6*l+0.01*r.NormFloat64(), 0.4*l+0.01*r.NormFloat64()
+			pt[i] = 350 + 0.5*r.NormFloat64()
+			al[i] = rig.Rad(2)
+		}
+		b := &calibrate.Block{Source: "balance", T0Us: 1_700_000_000_000_000 + int64(start)*5000, DtUs: 5000, Series: []calibrate.Series{
+			{Channel: "n_fore", Values: nf, Dof: inf}, {Channel: "n_aft", Values: na, Dof: inf}, {Channel: "axial", Values: ax, Dof: inf},
+			{Channel: "alpha", Values: al, Dof: inf}, {Channel: "pitot", Values: pt, Dof: inf}}}
+		segs = append(segs, e.Add(b)...)
+	}
+	lv, ok := e.Live()
+	if !ok || !hasWarning(lv.Warnings, "independent samples") {
+		t.Errorf("live: ok %v, warnings %q", ok, lv.Warnings)
+	}
+	segs = append(segs, e.Flush()...)
+	if len(segs) != 1 {
+		t.Fatalf("%d segments, want 1", len(segs))
+	}
+	sg := segs[0]
+	if !sg.FewIndependent() || !(sg.NEff < estimate.MinNEff) {
+		t.Errorf("N_eff %.1f of N %d not flagged", sg.NEff, sg.N)
+	}
+	row := estimate.NewRow(1, "", &sg)
+	if v, _ := row.Value("n_eff_low"); v != true {
+		t.Errorf("n_eff_low = %v", v)
 	}
 }
