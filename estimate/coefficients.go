@@ -88,9 +88,10 @@ type Point struct {
 // has mean-of-z variance equal to the first-order variance of C_L including
 // every covariance between the inputs (JCGM 100 §5.2: the load follows the
 // gusts in q, so N and q are strongly correlated and must not be combined as
-// independent). Its standard error is s_z/√N_eff with N_eff from the
-// autocorrelation of z (NEff) and ν = N_eff − 1. C_D, L, D, q and α are
-// treated the same way with their own sensitivities.
+// independent). Its standard error and degrees of freedom come from the
+// autocorrelation of z by TypeAMean (integrated autocorrelation time with
+// Sokal's automatic window, bias-corrected; ν = N/(2W+1)). C_D, L, D, q and
+// α are treated the same way with their own sensitivities.
 //
 // # Type B (calibration, geometry)
 //
@@ -171,21 +172,18 @@ func Reduce(w *Window) (Point, error) {
 	}
 
 	// q
-	qA, qNeff := typeA(qq)
-	p.QBudget = []Contribution{typeAContribution("dynamic pressure scatter", qA, qNeff)}
+	p.QBudget = []Contribution{typeAContribution("dynamic pressure scatter", TypeAMean(qq))}
 	p.QBudget = typeB(p.QBudget, "dynamic pressure calibration", w.QUPa, 1, w.QDof)
 	p.QPa = withX(qBar, Combine(p.QBudget))
 
 	// α
-	alA, alNeff := typeA(al)
-	alBudget := []Contribution{typeAContribution("angle scatter", alA, alNeff)}
+	alBudget := []Contribution{typeAContribution("angle scatter", TypeAMean(al))}
 	alBudget = typeB(alBudget, "angle calibration", w.AlphaURad, 1, w.AlphaDof)
 	p.AlphaRad = withX(alBar, Combine(alBudget))
 
 	// L and D in newtons.
 	forceBudget := func(series []float64, cN, cA, cAl float64, what string) calibrate.Value {
-		u, ne := typeA(series)
-		cs := []Contribution{typeAContribution(what+" scatter", u, ne)}
+		cs := []Contribution{typeAContribution(what+" scatter", TypeAMean(series))}
 		cs = typeB(cs, "normal force calibration", w.NormalUN, cN, w.NormalDof)
 		cs = typeB(cs, "axial force calibration", w.AxialUN, cA, w.AxialDof)
 		cs = typeB(cs, "angle of attack", w.AlphaURad, cAl, w.AlphaDof)
@@ -206,15 +204,15 @@ func Reduce(w *Window) (Point, error) {
 			for i := range m {
 				z[i] = lin[i]/qs - c*qq[i]/qBar
 			}
-			u, ne := typeA(z)
-			cs := []Contribution{typeAContribution(what+" scatter (loads and q together)", u, ne)}
+			a := TypeAMean(z)
+			cs := []Contribution{typeAContribution(what+" scatter (loads and q together)", a)}
 			cs = typeB(cs, "normal force calibration", w.NormalUN, cN/qs, w.NormalDof)
 			cs = typeB(cs, "axial force calibration", w.AxialUN, cA/qs, w.AxialDof)
 			cs = typeB(cs, "dynamic pressure calibration", w.QUPa, -c/qBar, w.QDof)
 			cs = typeB(cs, "angle of attack", w.AlphaURad, cAl/qs, w.AlphaDof)
 			cs = typeB(cs, "reference area", w.AreaUM2, -c/s, 0)
 			cs = correctionLines(cs, w.Corrections, cN/qs, cA/qs)
-			return withX(c, Combine(cs)), cs, ne
+			return withX(c, Combine(cs)), cs, a.NEff
 		}
 		p.CL, p.CLBudget, p.NEff = coef(ls, cl, cosA, -sinA, -drag, "C_L")
 		p.CD, p.CDBudget, _ = coef(ds, cd, sinA, cosA, lift, "C_D")
@@ -238,21 +236,10 @@ func Reduce(w *Window) (Point, error) {
 	return p, nil
 }
 
-// typeA returns the Type A standard uncertainty of the mean of x,
-// s/√N_eff, and N_eff.
-func typeA(x []float64) (u, neff float64) {
-	neff = NEff(x)
-	mu := mean(x)
-	ss := 0.0
-	for _, v := range x {
-		ss += (v - mu) * (v - mu)
-	}
-	sd := math.Sqrt(ss / float64(len(x)-1))
-	return sd / math.Sqrt(neff), neff
-}
-
-func typeAContribution(name string, u, neff float64) Contribution {
-	return Contribution{Input: name + " (type A)", U: u, Sensitivity: 1, UY: u, Dof: math.Max(1, neff-1), TypeA: true}
+// typeAContribution is the budget line of a Type A evaluation (TypeAMean):
+// u of the mean with its degrees of freedom.
+func typeAContribution(name string, a TypeA) Contribution {
+	return Contribution{Input: name + " (type A)", U: a.U, Sensitivity: 1, UY: a.U, Dof: a.Dof, TypeA: true}
 }
 
 func withX(x float64, v calibrate.Value) calibrate.Value {

@@ -86,6 +86,8 @@ var columns = []Column{
 		Read: func(_ uint64, s *Segment) (any, bool) { return int64(s.N), true }},
 	{Name: "n_eff", Type: TypeFloat, Kinds: kindsAll, Doc: "effective number of independent samples (autocorrelation); absent when it could not be estimated",
 		Read: number(func(s *Segment) float64 { return s.NEff })},
+	{Name: "n_eff_low", Type: TypeBool, Kinds: kindsAll, Doc: "n_eff below 12 (MinNEff): the segment is too short for its own correlation time, and its U95 rests on few degrees of freedom; hold the step longer",
+		Read: func(_ uint64, s *Segment) (any, bool) { return s.FewIndependent(), !math.IsNaN(s.NEff) }},
 	{Name: "zone", Type: TypeText, Kinds: kindsRoof, Doc: "roof zone of the row",
 		Read: func(_ uint64, s *Segment) (any, bool) { return s.Zone, s.Zone != "" }},
 	{Name: "alpha_deg", Unit: "°", Type: TypeFloat, Kinds: kindsBalance, Doc: "angle of attack, mean over the segment",

@@ -78,6 +78,7 @@ func TestColumns_Table(t *testing.T) {
 		{"t_end", all, true, true, true, true},
 		{"n", all, true, true, true, true},
 		{"n_eff", all, true, true, false, false}, // NaN on the roof rows
+		{"n_eff_low", all, true, true, false, false},
 		{"zone", roof, false, false, true, true},
 		{"alpha_deg", balance, true, false, false, false}, // no angle channel on the rotor
 		{"alpha_u95_deg", balance, true, false, false, false},

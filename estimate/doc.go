@@ -24,8 +24,8 @@
 //
 // Type A from the samples by the delta method (the loads and q are
 // propagated together, so their gust-driven correlation is kept), with the
-// effective number of independent samples N_eff from the autocorrelation
-// (NEff); Type B from the calibrations (calibrate.Series.U, systematic),
+// uncertainty of each mean from its autocorrelation (TypeAMean: automatic
+// window, bias-corrected, flagged below MinNEff); Type B from the calibrations (calibrate.Series.U, systematic),
 // angle and reference area; combined in quadrature, Welch–Satterthwaite
 // degrees of freedom, U95 = t_0.975(ν_eff)·u_c. MonteCarlo (JCGM 101) checks
 // the linear propagation in the tests.

@@ -393,7 +393,7 @@ func (e *Estimator) Flush() []Segment {
 // when it joins.
 func (e *Estimator) endTick(out []Segment) []Segment {
 	a, q := nanMean(e.tick.alphaRad), nanMean(e.tick.qPa)
-	closeSeg, join := e.det.step(a, q)
+	closeSeg, join := e.det.step(a, q, nanMean(e.tick.spinRadPerS))
 	if e.marked() {
 		// The steady test still runs for the live display; marks set the
 		// segments (markSample).
@@ -518,6 +518,9 @@ func (e *Estimator) Live() (lv Live, ok bool) {
 	if qMax := e.det.qMaxRunPa; p.QPa.X <= flowOffFrac*qMax || p.QPa.X <= 0 {
 		lv.Steady = false
 		lv.Warnings = append(lv.Warnings, "q below 5 % of the run's maximum: flow off, coefficients meaningless")
+	}
+	if FewIndependent(p.NEff) {
+		lv.Warnings = append(lv.Warnings, fmt.Sprintf("C_L from %.0f independent samples (N_eff < %d): the window is short against the flow's correlation time, so its U95 is wide and rests on few degrees of freedom", p.NEff, MinNEff))
 	}
 	if e.rig.Fluid == rig.FluidAir {
 		tK := nanMean(buf.tempK)

@@ -58,6 +58,11 @@ type Segment struct {
 	DesignCp calibrate.Value // the zone's design net Cp (U from its expanded design_u); zero Value when none
 }
 
+// FewIndependent reports whether the segment's N_eff is below MinNEff: its
+// Type A uncertainty comes from too few independent samples to trust (a
+// NaN N_eff is not flagged).
+func (s *Segment) FewIndependent() bool { return FewIndependent(s.NEff) }
+
 // Live is the moving-window estimate shown on the dashboard. It is computed
 // by the same code as Segment, over the most recent window of samples.
 type Live struct {

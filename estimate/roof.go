@@ -53,8 +53,8 @@ type RoofConfig struct {
 // internal channel) has no value, gives no value for that zone.
 //
 // Per zone per block: CpMean is the mean of C_Z with a standard
-// uncertainty combining Type A, s/√N_eff with N_eff from the series'
-// autocorrelation (NEff) and ν = N_eff − 1, and Type B, the calibration
+// uncertainty combining Type A (TypeAMean: integrated autocorrelation time
+// with Sokal's automatic window, bias-corrected, ν = N/(2W+1)), and Type B, the calibration
 // uncertainties of the taps (sensitivity A_i/(A_Z·q̄)), of q (−(C̄ + Cp_int)/q̄
 // for a fixed internal cp, −C̄/q̄ with an internal channel) and of the
 // internal channel (−1/q̄), combined by JCGM 100 eq. 10 with ν by
@@ -552,23 +552,21 @@ func (e *RoofEstimator) reduceZone(buf *roofBuf, z int, withPeak bool) (r zoneRe
 	}
 	nf := float64(r.n)
 	mean, meanF, qBar := sum/nf, sumF/nf, sumQ/nf
-	var ss, ssF, ssQ float64
-	for k, c := range cps {
+	var ss float64
+	for _, c := range cps {
 		if !finite(c) {
 			continue
 		}
 		ss += (c - mean) * (c - mean)
-		ssF += (fs[k] - meanF) * (fs[k] - meanF)
-		ssQ += (buf.qPa[k] - qBar) * (buf.qPa[k] - qBar)
 	}
 	r.rms = math.Sqrt(ss / (nf - 1))
-	r.nEff = NEff(cps)
-	dofA := math.Max(1, r.nEff-1)
-	r.typeACpU = r.rms / math.Sqrt(r.nEff)
+	aCp := TypeAMean(cps)
+	r.nEff = aCp.NEff
+	r.typeACpU = aCp.U
 
 	// Type B: calibrations of the taps, q and the internal channel.
 	qU, qDof := e.qTypeB(qBar)
-	cpB := []Contribution{{Input: "net Cp (type A)", U: r.rms, Sensitivity: 1 / math.Sqrt(r.nEff), UY: r.typeACpU, Dof: dofA, TypeA: true}}
+	cpB := []Contribution{{Input: "net Cp (type A)", U: aCp.S(), Sensitivity: 1 / math.Sqrt(r.nEff), UY: r.typeACpU, Dof: aCp.Dof, TypeA: true}}
 	fB := []Contribution{}
 	for j, c := range zn.chans {
 		h := e.uB[c]
@@ -589,16 +587,16 @@ func (e *RoofEstimator) reduceZone(buf *roofBuf, z int, withPeak bool) (r zoneRe
 	cv.X = mean
 	r.cp = cv
 
-	nEffF := NEff(maskLike(fs, cps))
-	r.typeAForce = math.Sqrt(ssF/(nf-1)) / math.Sqrt(nEffF)
-	fB = append(fB, Contribution{Input: "net force (type A)", UY: r.typeAForce, Dof: math.Max(1, nEffF-1), TypeA: true})
+	aF := TypeAMean(maskLike(fs, cps))
+	r.typeAForce = aF.U
+	fB = append(fB, Contribution{Input: "net force (type A)", UY: r.typeAForce, Dof: aF.Dof, TypeA: true})
 	fv := Combine(fB)
 	fv.X = meanF
 	r.force = fv
 
-	nEffQ := NEff(maskLike(buf.qPa, cps))
+	aQ := TypeAMean(maskLike(buf.qPa, cps))
 	qv := Combine([]Contribution{
-		{UY: math.Sqrt(ssQ/(nf-1)) / math.Sqrt(nEffQ), Dof: math.Max(1, nEffQ-1), TypeA: true},
+		{UY: aQ.U, Dof: aQ.Dof, TypeA: true},
 		{UY: qU, Dof: qDof},
 	})
 	qv.X = qBar

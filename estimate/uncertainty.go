@@ -11,25 +11,75 @@ import (
 	"liftyard/calibrate"
 )
 
-// NEff returns the effective number of independent samples of the mean of x,
-// a stationary series sampled at equal spacing:
+// Window rule and limits of the Type A evaluation (TypeAMean).
+const (
+	// sokalC is c of the window rule W ≥ c·τ̂_int(W). Sokal (1997) finds
+	// c ≈ 4–5 enough for a near-exponential autocorrelation and advises more
+	// otherwise; gusts are a sum of exponentials of very different time
+	// scales, and c = 8 keeps the coverage of the sum-of-AR(1) test above
+	// 0.90 (docs/physics.md "Type A of a segment").
+	sokalC = 8
+	// windowCapFrac caps the window at N/3: the bias correction divides by
+	// N − (2W+1), which stays above N/3.
+	windowCapFrac = 3
+	// MinNEff is the N_eff below which a result is flagged: the window rule
+	// W ≥ 8·τ_int inside W ≤ N/3 needs N ≥ 24·τ_int, i.e. N_eff =
+	// N/(2τ_int) ≥ 12. Below it the segment does not resolve its own
+	// correlation time, and the U95 rests on a t factor of very few
+	// degrees of freedom.
+	MinNEff = 12
+)
+
+// TypeA is the Type A evaluation of the mean of a series (TypeAMean).
+type TypeA struct {
+	N    int     // samples used (NaN skipped)
+	U    float64 // standard uncertainty of the mean, in the series' unit
+	NEff float64 // effective number of independent samples, σ̂²/u², in [1, N]
+	Dof  float64 // degrees of freedom of u: N/(2W+1), in [1, N−1]
+	// Window is the lag W where the autocorrelation sum stops.
+	Window int
+	// Settled is false when the window rule was not met below the cap N/3:
+	// the series is too short to resolve its own correlation time.
+	Settled bool
+}
+
+// S returns the bias-corrected standard deviation of one sample, u·√N_eff.
+func (a TypeA) S() float64 { return a.U * math.Sqrt(a.NEff) }
+
+// FewIndependent reports whether nEff is below MinNEff (a NaN nEff is not
+// flagged: nothing was estimated).
+func FewIndependent(nEff float64) bool { return nEff < MinNEff }
+
+// TypeAMean returns the standard uncertainty of the mean of x, a
+// stationary series sampled at equal spacing, by the integrated
+// autocorrelation time with Sokal's automatic window and the first-order
+// bias correction for the estimated mean.
 //
-//	N_eff = N / [1 + 2·Σ_{k=1}^{K} (1 − k/N)·ρ_k]
+// With d_i = x_i − x̄ and the autocovariance Γ̂(k) = (1/N)·Σ_i d_i·d_{i+k}
+// (its 1/N already carries the (1 − k/N) weight of the exact finite-N
+// variance of a mean, Var(x̄) = (1/N)·Σ_{|k|<N}(1 − |k|/N)·γ_k, so no
+// further taper is applied):
 //
-// where ρ_k is the sample autocorrelation at lag k (biased estimator,
-// c_k/c_0 with c_k = (1/N)·Σ (x_i − x̄)(x_{i+k} − x̄)). The identity
-// Var(x̄) = (σ²/N)·[1 + 2·Σ_{k=1}^{N−1} (1 − k/N)·ρ_k] is exact for a stationary
-// series (Bayley & Hammersley, J. R. Stat. Soc. Suppl. 8 (1946) 184; Bendat &
-// Piersol, Random Data, 4th ed. 2010, ch. 8). The sample ρ_k is noisy at long
-// lags, so the sum is truncated at K, the last lag before the first
-// non-positive ρ_k (the "first zero crossing" rule). Negative correlations
-// are thereby never counted, so N_eff ≤ N: an anti-correlated series is not
-// credited with more information than independent samples (a conservative
-// choice). The result is clamped to [1, N]. NaN samples are skipped (the
-// series is compacted). Fewer than 3 samples, or a constant series, give N.
+//	τ̂(W) = ½ + Σ_{k=1}^{W} Γ̂(k)/Γ̂(0)
+//	W    = the smallest W with W ≥ c·τ̂(W), c = 8, W ≤ N/3  (Sokal 1997, §3)
+//	C(W) = Γ̂(0) + 2·Σ_{k=1}^{W} Γ̂(k) = 2·τ̂(W)·Γ̂(0)
+//	u²   = C(W)/(N − (2W+1))
 //
-// Cost: O(N·K) for N ≤ 4096, otherwise O(N log N) by FFT.
-func NEff(x []float64) float64 {
+// The last line corrects the bias of the estimated mean: each Γ̂(k) is low
+// by about Var(x̄), so C(W) is low by (2W+1)·Var(x̄) (Wolff 2004, §3.3; it
+// also makes s² unbiased: σ̂² = Γ̂(0) + u²). N_eff = σ̂²/u², clamped to
+// [1, N]: an anti-correlated series is not credited with more than N
+// independent samples (u is then σ̂/√N). The degrees of freedom follow from
+// the variance of τ̂, Var(τ̂)/τ² ≈ 2(2W+1)/N (Madras & Sokal 1988, App. C):
+// matching it to a χ² gives ν = N/(2W+1), clamped to [1, N − 1].
+// Sources: docs/references.md §11.1.
+//
+// NaN samples are skipped (the series is compacted). Fewer than 3 samples,
+// or a constant series, give N_eff = N and ν = N − 1 (u from the plain
+// standard deviation, 0 for a constant).
+//
+// Cost: O(N·W) for N ≤ 4096, otherwise O(N log N) by FFT.
+func TypeAMean(x []float64) TypeA {
 	clean := x
 	for _, v := range x {
 		if math.IsNaN(v) {
@@ -43,52 +93,66 @@ func NEff(x []float64) float64 {
 		}
 	}
 	n := len(clean)
-	if n < 3 {
-		return float64(n)
+	nf := float64(n)
+	out := TypeA{N: n, NEff: nf, Dof: math.Max(1, nf-1), Settled: true}
+	if n == 0 {
+		return out
 	}
 	mean := 0.0
 	for _, v := range clean {
 		mean += v
 	}
-	mean /= float64(n)
+	mean /= nf
 	d := make([]float64, n)
-	c0 := 0.0
+	ss := 0.0
 	for i, v := range clean {
 		d[i] = v - mean
-		c0 += d[i] * d[i]
+		ss += d[i] * d[i]
 	}
-	if !(c0 > 0) || math.IsInf(c0, 0) {
-		return float64(n)
+	if n < 3 || !(ss > 0) || math.IsInf(ss, 0) {
+		if n >= 2 {
+			out.U = math.Sqrt(ss / (nf - 1) / nf)
+		}
+		return out
 	}
-	var rho func(k int) float64
+	var gamma func(k int) float64 // Γ̂(k)·N
 	if n <= 4096 {
-		rho = func(k int) float64 {
+		gamma = func(k int) float64 {
 			s := 0.0
 			for i := 0; i+k < n; i++ {
 				s += d[i] * d[i+k]
 			}
-			return s / c0
+			return s
 		}
 	} else {
 		acf := autocovFFT(d)
-		rho = func(k int) float64 { return acf[k] / acf[0] }
+		gamma = func(k int) float64 { return acf[k] }
 	}
-	return neffSum(n, rho)
-}
-
-// neffSum applies the truncated N_eff sum to autocorrelations rho(k), k ≥ 1.
-func neffSum(n int, rho func(k int) float64) float64 {
-	s := 0.0
-	for k := 1; k < n; k++ {
-		r := rho(k)
-		if !(r > 0) {
+	g0 := ss / nf
+	c := g0 // C(W)
+	w, maxW := 0, max(1, n/windowCapFrac)
+	out.Settled = false
+	for w < maxW {
+		w++
+		c += 2 * gamma(w) / nf
+		if float64(w) >= sokalC*c/(2*g0) {
+			out.Settled = true
 			break
 		}
-		s += (1 - float64(k)/float64(n)) * r
 	}
-	ne := float64(n) / (1 + 2*s)
-	return math.Max(1, math.Min(float64(n), ne))
+	out.Window = w
+	v := c / (nf - float64(2*w+1))
+	// N_eff ≤ N: u² ≥ σ̂²/N with σ̂² = Γ̂(0) + u², i.e. u² ≥ Γ̂(0)/(N − 1).
+	v = math.Max(v, g0/(nf-1))
+	out.U = math.Sqrt(v)
+	out.NEff = math.Max(1, math.Min(nf, (g0+v)/v))
+	out.Dof = math.Max(1, math.Min(nf-1, nf/float64(2*w+1)))
+	return out
 }
+
+// NEff returns the effective number of independent samples of the mean of
+// x: TypeAMean(x).NEff.
+func NEff(x []float64) float64 { return TypeAMean(x).NEff }
 
 // autocovFFT returns the unnormalised autocovariance Σ d_i·d_{i+k} for every
 // lag k of the zero-mean series d, by zero-padded FFT (Wiener–Khinchin).

@@ -85,7 +85,7 @@ func TestExportSegments_JSONFields(t *testing.T) {
 	for i, row := range rows {
 		want := strings.Fields(always)
 		if i != 2 {
-			want = append(want, "n_eff") // row 2 has a NaN n_eff
+			want = append(want, "n_eff", "n_eff_low") // row 2 has a NaN n_eff
 		}
 		if i == 1 {
 			want = append(want, "design_cl", "design_cl_u95", "en", "agrees")

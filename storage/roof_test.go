@@ -108,7 +108,7 @@ func TestExportSegments_RoofJSON(t *testing.T) {
 	if len(rows) != 3 {
 		t.Fatalf("%d rows", len(rows))
 	}
-	want := "run segment kind t_start t_end n n_eff zone q_pa q_u95_pa speed_m_s speed_u95_m_s rho_kg_m3 mu_pa_s " +
+	want := "run segment kind t_start t_end n n_eff n_eff_low zone q_pa q_u95_pa speed_m_s speed_u95_m_s rho_kg_m3 mu_pa_s " +
 		"cp_mean cp_u95 cp_rms cp_peak uplift_n uplift_u95_n"
 	for i, row := range rows {
 		w := strings.Fields(want)

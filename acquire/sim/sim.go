@@ -48,7 +48,18 @@ type Config struct {
 	// FlowOff keeps the flow off for the whole record while the angle
 	// sweeps through its steps: a flow-off tare sweep.
 	FlowOff bool
-	Start   time.Time // device clock at the first sample (default: Now at Run, or the Unix epoch for Next)
+	// Gusts add slower turbulence on top of TurbulenceIntensity: each is
+	// an AR(1) process of u′/U with its own intensity and integral time,
+	// so u′/U is a sum of AR(1) processes of very different τ, as an
+	// outdoor yard or a towing tank's residual motion gives. Nil: none.
+	Gusts []Gust
+	Start time.Time // device clock at the first sample (default: Now at Run, or the Unix epoch for Next)
+}
+
+// Gust is one AR(1) component of the simulated flow's u′/U (Config.Gusts).
+type Gust struct {
+	TurbulenceIntensity float64 // standard deviation of this component's u′/U
+	IntegralTimeS       float64 // its integral time scale, s (must be > 0)
 }
 
 // Foil is the simulator's true foil. Invented numbers: they describe no real
@@ -126,10 +137,11 @@ type Rig struct {
 	pitotC   float64
 	channels []string
 
-	n    int64   // samples generated so far
-	seq  uint64  // blocks generated so far
-	turb float64 // AR(1) state of u′/U
-	t0Us int64
+	n     int64     // samples generated so far
+	seq   uint64    // blocks generated so far
+	turb  float64   // AR(1) state of u′/U
+	gusts []float64 // AR(1) states of Config.Gusts
+	t0Us  int64
 }
 
 type chanInv struct {
@@ -170,6 +182,12 @@ func New(r *rig.Rig, cfg Config, rhoKgPerM3 float64) (*Rig, error) {
 	if cfg.NoiseFrac == 0 {
 		cfg.NoiseFrac = 2e-4
 	}
+	for i, g := range cfg.Gusts {
+		if !(g.IntegralTimeS > 0) || g.TurbulenceIntensity < 0 {
+			return nil, fmt.Errorf("sim: gust %d: integral time %g s must be > 0 and intensity %g ≥ 0", i+1, g.IntegralTimeS, g.TurbulenceIntensity)
+		}
+	}
+	cfg.Gusts = append([]Gust(nil), cfg.Gusts...)
 	cfg.Foil.defaults()
 	if x := cfg.Interaction; x != nil {
 		n := len(r.Lift.Normal) + len(r.Lift.Axial)
@@ -184,6 +202,7 @@ func New(r *rig.Rig, cfg Config, rhoKgPerM3 float64) (*Rig, error) {
 	s := &Rig{
 		cfg:     cfg,
 		rng:     rand.New(rand.NewPCG(cfg.Seed, 0x5eed)),
+		gusts:   make([]float64, len(cfg.Gusts)),
 		rhoForV: rhoKgPerM3,
 		tempK:   r.Conditions.TempK,
 		areaM2:  r.Reference.AreaM2,
@@ -346,7 +365,16 @@ func (s *Rig) Next() acquire.Block {
 	for i := 0; i < n; i++ {
 		tS := float64(s.n) * dtS
 		s.turb = phi*s.turb + innov*s.rng.NormFloat64()
-		q := s.cfg.QPa * (1 + s.turb) * (1 + s.turb)
+		u := s.turb
+		for k, g := range s.cfg.Gusts {
+			gp := math.Exp(-dtS / g.IntegralTimeS)
+			if s.n == 0 { // stationary start
+				s.gusts[k] = g.TurbulenceIntensity * s.rng.NormFloat64()
+			}
+			s.gusts[k] = gp*s.gusts[k] + g.TurbulenceIntensity*math.Sqrt(1-gp*gp)*s.rng.NormFloat64()
+			u += s.gusts[k]
+		}
+		q := s.cfg.QPa * (1 + u) * (1 + u)
 		sweepT := tS - s.cfg.FlowOffBefore.Seconds()
 		if s.cfg.FlowOff || sweepT < 0 || (s.cfg.Sweeps > 0 && sweepT >= float64(s.cfg.Sweeps)*s.SweepS()) {
 			q = 0 // flow off: carriage at rest
