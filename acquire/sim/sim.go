@@ -35,6 +35,18 @@ type Config struct {
 	// ZeroDriftNPerS makes every load cell's zero drift linearly, N/s, as a
 	// warming bridge does: the flow-off zeros before and after show it.
 	ZeroDriftNPerS float64
+	// FlowRamp is the time the flow takes to come on after FlowOffBefore
+	// (q rising linearly from 0) and to go off after the last sweep (q
+	// falling linearly to 0), as a carriage accelerates and brakes. 0: the
+	// flow steps on and off.
+	FlowRamp time.Duration
+	// NormalSpanFrac is a span error of the normal-force cells: each reads
+	// (1 + NormalSpanFrac) × its true force, as with a calibration whose
+	// slope is off by that fraction. 0: no span error.
+	NormalSpanFrac float64
+	// PitotSpanFrac is the same for the pitot (its Δp reads (1 + PitotSpanFrac)
+	// × the true one). 0: none.
+	PitotSpanFrac float64
 	Start          time.Time // device clock at the first sample (default: Now at Run, or the Unix epoch for Next)
 }
 
@@ -315,9 +327,19 @@ func (s *Rig) Next() acquire.Block {
 		s.turb = phi*s.turb + innov*s.rng.NormFloat64()
 		q := s.cfg.QPa * (1 + s.turb) * (1 + s.turb)
 		sweepT := tS - s.cfg.FlowOffBefore.Seconds()
-		if sweepT < 0 || (s.cfg.Sweeps > 0 && sweepT >= float64(s.cfg.Sweeps)*s.SweepS()) {
+		endT := float64(s.cfg.Sweeps) * s.SweepS()
+		if sweepT < 0 || (s.cfg.Sweeps > 0 && sweepT >= endT+s.cfg.FlowRamp.Seconds()) {
 			q = 0 // flow off: carriage at rest
 			sweepT = max(sweepT, 0)
+		}
+		if ramp := s.cfg.FlowRamp.Seconds(); ramp > 0 && q != 0 {
+			switch {
+			case sweepT < ramp:
+				q *= sweepT / ramp
+			case s.cfg.Sweeps > 0 && sweepT >= endT:
+				q *= 1 - (sweepT-endT)/ramp
+				sweepT = endT // the angle stays where the sweep ended
+			}
 		}
 		alpha, _ := s.AngleAt(sweepT)
 		zero := s.cfg.ZeroDriftNPerS * tS
@@ -331,13 +353,13 @@ func (s *Rig) Next() acquire.Block {
 			col++
 		}
 		for k := range s.normal {
-			put(&s.normal[k], normal*s.shares[k]+zero)
+			put(&s.normal[k], (1+s.cfg.NormalSpanFrac)*normal*s.shares[k]+zero)
 		}
 		for k := range s.axial {
 			put(&s.axial[k], axial/float64(len(s.axial))+zero)
 		}
 		if s.pitot != nil {
-			put(s.pitot, q/(s.pitotC*s.pitotC)) // the probe reads Δp = q/C²
+			put(s.pitot, (1+s.cfg.PitotSpanFrac)*q/(s.pitotC*s.pitotC)) // the probe reads Δp = q/C²
 		} else {
 			put(s.speed, math.Sqrt(2*q/s.rhoForV))
 		}
