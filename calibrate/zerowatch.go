@@ -163,21 +163,39 @@ func (z *ZeroWatch) chunkDone() {
 	}
 	rest := z.pre[:len(z.pre)-1]
 	base, sig := robustLevel(rest)
-	if c.qPa-base <= max(FlowOnSigma*sig, z.floorPa) {
+	thr := max(FlowOnSigma*sig, z.floorPa)
+	if base-c.qPa > thr && math.Abs(c.qPa) < RestFrac*math.Abs(base) {
+		// q fell to rest without having risen: the record began with the
+		// flow on, and there is no rest before the run to take a zero from.
+		z.on = true
+		for _, p := range z.pre {
+			z.flowQ = append(z.flowQ, p.qPa)
+		}
+		z.tail = z.pre
+		z.startNote = fmt.Sprintf("no proper flow-off rest before the run: the record began with the flow on (q %.3g Pa); start the record with the flow off", base)
+		z.notes = append(z.notes, z.startNote)
 		return
 	}
-	// The flow has come on. Trace the rest back to where q began to rise.
+	if c.qPa-base <= thr {
+		return
+	}
+	// The flow has come on. Trace back past the part of the ramp already
+	// seen (q off its rest level) to the steady rest before it.
 	z.on = true
 	z.flowQ = append(z.flowQ, c.qPa)
 	z.tail = append(z.tail, c)
 	tol := max(SteadySigma*sig, 1e-3*(c.qPa-base))
 	i := len(rest)
-	for i > 0 && math.Abs(rest[i-1].qPa-base) <= tol {
+	for i > 0 && math.Abs(rest[i-1].qPa-base) > tol {
 		i--
 	}
-	// rest[i:] is steady; rest[:i] is what came before a change (an earlier
-	// ramp, or the stretch being cut by restKeep), which is not this rest.
-	steady := dropTime(rest[i:], ZeroGuard, false)
+	j := i
+	for j > 0 && math.Abs(rest[j-1].qPa-base) <= tol {
+		j--
+	}
+	// rest[j:i] is steady; rest[:j] is what came before a change (an
+	// earlier ramp), which is not this rest.
+	steady := dropTime(rest[j:i], ZeroGuard, false)
 	z.startSeen = true
 	z.startQPa = base
 	z.start = restsOf(steady, false)

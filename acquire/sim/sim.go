@@ -331,6 +331,9 @@ func (s *Rig) Next() acquire.Block {
 		if sweepT < 0 || (s.cfg.Sweeps > 0 && sweepT >= endT+s.cfg.FlowRamp.Seconds()) {
 			q = 0 // flow off: carriage at rest
 			sweepT = max(sweepT, 0)
+			if s.cfg.Sweeps > 0 && sweepT > endT {
+				sweepT = endT // and the angle stays where the sweep ended
+			}
 		}
 		if ramp := s.cfg.FlowRamp.Seconds(); ramp > 0 && q != 0 {
 			switch {
