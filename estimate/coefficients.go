@@ -36,6 +36,10 @@ type Window struct {
 
 	NormalUN, AxialUN, QUPa, AlphaURad  float64 // Type B standard uncertainties
 	NormalDof, AxialDof, QDof, AlphaDof float64 // their degrees of freedom; 0 = +Inf
+	// Span (relative) Type B standard uncertainties, calibrate.Series.URel:
+	// each gives u = URel·|mean| of its input (0: none). QCoeffURel is the
+	// relative u of q from the pitot coefficient, 2·u(C)/C for q = C²·Δp.
+	NormalSpanURel, AxialSpanURel, QSpanURel, QCoeffURel float64
 	AreaM2, AreaUM2                     float64 // reference area S and its standard uncertainty, m²
 	LengthM                             float64 // reference length for Re, m (0: Re not computed)
 	Fluid                               Fluid   // fluid properties for speed and Re
@@ -87,9 +91,13 @@ type Point struct {
 //
 // # Type B (calibration, geometry)
 //
-// One contribution per systematic input: normal and axial force calibration,
-// q calibration, angle, and reference area (c_S = −C_L/S). Their sensitivities
-// are the same c's.
+// One contribution per systematic input: normal and axial force calibration
+// (absolute u, and span u = URel·|N̄| or URel·|Ā| when the calibration states
+// one), q calibration (absolute and span, u = URel·q̄), the pitot coefficient
+// (u = 2·u(C)/C·q̄), angle, and reference area (c_S = −C_L/S). Their
+// sensitivities are the same c's. Span errors of the load cells summed into
+// one force are taken as one relative u of the sum (the largest of the
+// cells', the conservative choice when the cells carry loads of one sign).
 //
 // # Combination
 //
@@ -159,6 +167,10 @@ func Reduce(w *Window) (Point, error) {
 	qA, qNeff := typeA(qq)
 	p.QBudget = []Contribution{typeAContribution("dynamic pressure scatter", qA, qNeff)}
 	p.QBudget = typeB(p.QBudget, "dynamic pressure calibration", w.QUPa, 1, w.QDof)
+	uQSpan, uQCoeff := w.QSpanURel*math.Abs(qBar), w.QCoeffURel*math.Abs(qBar)
+	uNSpan, uASpan := w.NormalSpanURel*math.Abs(nBar), w.AxialSpanURel*math.Abs(aBar)
+	p.QBudget = typeB(p.QBudget, "dynamic pressure span", uQSpan, 1, 0)
+	p.QBudget = typeB(p.QBudget, "pitot coefficient", uQCoeff, 1, 0)
 	p.QPa = withX(qBar, Combine(p.QBudget))
 
 	// α
@@ -173,6 +185,8 @@ func Reduce(w *Window) (Point, error) {
 		cs := []Contribution{typeAContribution(what+" scatter", u, ne)}
 		cs = typeB(cs, "normal force calibration", w.NormalUN, cN, w.NormalDof)
 		cs = typeB(cs, "axial force calibration", w.AxialUN, cA, w.AxialDof)
+		cs = typeB(cs, "normal force span", uNSpan, cN, 0)
+		cs = typeB(cs, "axial force span", uASpan, cA, 0)
 		cs = typeB(cs, "angle of attack", w.AlphaURad, cAl, w.AlphaDof)
 		return Combine(cs)
 	}
@@ -195,6 +209,10 @@ func Reduce(w *Window) (Point, error) {
 			cs = typeB(cs, "normal force calibration", w.NormalUN, cN/qs, w.NormalDof)
 			cs = typeB(cs, "axial force calibration", w.AxialUN, cA/qs, w.AxialDof)
 			cs = typeB(cs, "dynamic pressure calibration", w.QUPa, -c/qBar, w.QDof)
+			cs = typeB(cs, "normal force span", uNSpan, cN/qs, 0)
+			cs = typeB(cs, "axial force span", uASpan, cA/qs, 0)
+			cs = typeB(cs, "dynamic pressure span", uQSpan, -c/qBar, 0)
+			cs = typeB(cs, "pitot coefficient", uQCoeff, -c/qBar, 0)
 			cs = typeB(cs, "angle of attack", w.AlphaURad, cAl/qs, w.AlphaDof)
 			cs = typeB(cs, "reference area", w.AreaUM2, -c/s, 0)
 			return withX(c, Combine(cs)), cs, ne
