@@ -36,13 +36,14 @@ type Window struct {
 
 	NormalUN, AxialUN, QUPa, AlphaURad  float64 // Type B standard uncertainties
 	NormalDof, AxialDof, QDof, AlphaDof float64 // their degrees of freedom; 0 = +Inf
+	AreaM2, AreaUM2                     float64 // reference area S and its standard uncertainty, m²
+	LengthM                             float64 // reference length for Re, m (0: Re not computed)
+	Fluid                               Fluid   // fluid properties for speed and Re
+
 	// Span (relative) Type B standard uncertainties, calibrate.Series.URel:
 	// each gives u = URel·|mean| of its input (0: none). QCoeffURel is the
 	// relative u of q from the pitot coefficient, 2·u(C)/C for q = C²·Δp.
 	NormalSpanURel, AxialSpanURel, QSpanURel, QCoeffURel float64
-	AreaM2, AreaUM2                     float64 // reference area S and its standard uncertainty, m²
-	LengthM                             float64 // reference length for Re, m (0: Re not computed)
-	Fluid                               Fluid   // fluid properties for speed and Re
 }
 
 // Point is the reduced result of one Window: one polar point with its

@@ -172,7 +172,7 @@ type Calibration struct {
 	// span (its slope): a span error scales with the value, u = SpanURel·|value|,
 	// on top of U. Rig key span_u_pct (in %), default 0.
 	SpanURel float64
-	ID   string    // stored calibration id; empty for inline
+	ID       string // stored calibration id; empty for inline
 }
 
 // Lift says how channels combine into forces, flow and angle.

@@ -47,7 +47,7 @@ type Config struct {
 	// PitotSpanFrac is the same for the pitot (its Δp reads (1 + PitotSpanFrac)
 	// × the true one). 0: none.
 	PitotSpanFrac float64
-	Start          time.Time // device clock at the first sample (default: Now at Run, or the Unix epoch for Next)
+	Start         time.Time // device clock at the first sample (default: Now at Run, or the Unix epoch for Next)
 }
 
 // Foil is the simulator's true foil. Invented numbers: they describe no real
