@@ -321,3 +321,30 @@ func TestSpanUncertainty_Covered(t *testing.T) {
 	assert.GreaterOrEqual(t, frac, 0.90)
 	assert.Less(t, covered[false], covered[true], "undeclared, the span error is covered less often")
 }
+
+// Ensure that the angle's uncertainty is stated once (issue 10: the angle
+// channel's u and angle_u_deg were added in quadrature): with both, the
+// angle's u is angle_u_deg alone (docs/physics.md "Type B inputs"); without
+// angle_u_deg it is the channel's calibration u.
+func TestAngleU_StatedOnce(t *testing.T) {
+	gen := airFoilRig(t, "1 kPa")
+	s, err := sim.New(gen, sim.Config{QPa: 74, Seed: 2, StepsDeg: []float64{4}, Hold: 4 * time.Second,
+		FlowOffBefore: 2 * time.Second, TurbulenceIntensity: 0.002}, 0)
+	require.NoError(t, err)
+	rec := record(s, 6*time.Second)
+	angleU := func(uDeg float64) float64 {
+		r := airFoilRig(t, "1 kPa") // the channel states u = 0.02°
+		r.Lift.AngleURad = rig.Rad(uDeg)
+		_, segs, _ := replay(t, r, rec)
+		require.NotEmpty(t, segs)
+		for _, c := range segs[0].CLBudget {
+			if c.Input == "angle of attack" {
+				return rig.Deg(c.U)
+			}
+		}
+		t.Fatal("no angle line in the budget")
+		return 0
+	}
+	assert.InDelta(t, 0.05, angleU(0.05), 1e-12, "angle_u_deg wins")
+	assert.InDelta(t, 0.02, angleU(0), 1e-12, "the channel's u stands alone")
+}
