@@ -82,3 +82,28 @@ func (s *StoredRun) Replay(ctx context.Context, fn func(Block) error) error {
 		return fn(b)
 	})
 }
+
+// Blocks is a record held in memory, replayed in order. Each Replay hands
+// fn copies of the blocks (their series and readings cloned), so a
+// pipeline that aligns or corrects a block in place leaves the record as it
+// was for the next Replay.
+type Blocks []Block
+
+// Replay implements Replayer.
+func (bs Blocks) Replay(ctx context.Context, fn func(Block) error) error {
+	for _, b := range bs {
+		if err := ctx.Err(); err != nil {
+			return err
+		}
+		ss := make([]Series, len(b.Series))
+		for i, s := range b.Series {
+			ss[i] = s
+			ss[i].Raw = append([]float64(nil), s.Raw...)
+		}
+		b.Series = ss
+		if err := fn(b); err != nil {
+			return err
+		}
+	}
+	return nil
+}

@@ -21,6 +21,7 @@ type Series struct {
 	Channel string
 	Values  []float64 // SI; NaN = no sample
 	U       float64   // standard uncertainty of one value from the calibration, SI
+	URel    float64   // relative standard uncertainty of the calibration's span: u = URel·|value|, on top of U (0: none)
 	Dof     float64   // degrees of freedom of U (+Inf when stated without doubt)
 }
 

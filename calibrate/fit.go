@@ -356,18 +356,45 @@ func (f Fit) fitVar(x float64) float64 {
 }
 
 // Apply calibrates one raw reading with the record's fit: the value in the
-// record's Unit, its standard uncertainty (Fit.ValueU with the record's
-// ReferenceU) and the degrees of freedom of that uncertainty by the
-// Welch–Satterthwaite formula (JCGM 100 eq. G.2b), taking the fit part with
-// ν = Fit.Dof and the reference standard's u as exactly known (ν = ∞):
-// ν_eff = u⁴/(u_fit⁴/ν) ≥ Fit.Dof. With ReferenceU = 0, ν_eff = Fit.Dof.
+// record's Unit and its standard uncertainty as a calibrated value of a run,
+//
+//	u² = u_fit² + referenceU² + s² + u_h²,  u_h = H/(2√3)
+//
+// with u_fit² = gᵀ·Cov·g (Fit.ValueU), s the fit's residual SD and H the
+// hysteresis (Fit.HysteresisPctFS of the span of values over the
+// calibration points), taken as a rectangular distribution of half-width
+// H/2 (JCGM 100 §4.3.7). The residual scatter is in because a calibration
+// point's departure from the curve (lack of fit, the cell's own
+// non-repeatability at that load) is the same for every sample of a run at
+// that load: averaging the run does not reduce it, unlike the run's own
+// scatter (issue 10). The span term (SpanURel) is left to the caller, as it
+// scales with the value. Degrees of freedom by Welch–Satterthwaite (JCGM 100
+// eq. G.2b): u_fit and s with ν = Fit.Dof, the rest exactly known (ν = ∞).
 func (r Record) Apply(reading float64) Value {
 	x := Poly{Coef: r.Fit.Poly}.Eval(reading)
 	uf2 := r.Fit.fitVar(reading)
-	u := math.Sqrt(uf2 + r.ReferenceU*r.ReferenceU)
+	s2 := r.Fit.ResidualSD * r.Fit.ResidualSD
+	uh := r.hysteresisU()
+	u := math.Sqrt(uf2 + s2 + r.ReferenceU*r.ReferenceU + uh*uh)
 	dof := math.Inf(1)
-	if uf2 > 0 && r.Fit.Dof > 0 {
-		dof = u * u * u * u / (uf2 * uf2 / float64(r.Fit.Dof))
+	if uf2+s2 > 0 && r.Fit.Dof > 0 {
+		dof = u * u * u * u / ((uf2*uf2 + s2*s2) / float64(r.Fit.Dof))
 	}
 	return Value{X: x, U: u, Dof: dof}
+}
+
+// hysteresisU is H/(2√3) in Unit: the hysteresis (HysteresisPctFS of the
+// span of fitted values over the calibration points) as a rectangular
+// distribution of half-width H/2. 0 without hysteresis.
+func (r Record) hysteresisU() float64 {
+	if r.Fit.HysteresisPctFS <= 0 || len(r.Points) < 2 {
+		return 0
+	}
+	p := Poly{Coef: r.Fit.Poly}
+	lo, hi := math.Inf(1), math.Inf(-1)
+	for _, pt := range r.Points {
+		v := p.Eval(pt.Reading)
+		lo, hi = min(lo, v), max(hi, v)
+	}
+	return r.Fit.HysteresisPctFS / 100 * (hi - lo) / (2 * math.Sqrt(3))
 }

@@ -305,22 +305,37 @@ func TestFit_ValueU_AtMeanIsSOverRootN(t *testing.T) {
 	assert.InEpsilon(t, 0.884796396144373/6, f.ValueU(xm, 0), 1e-9) // n = 36
 }
 
-// Ensure that a record calibrates a reading with its fit, combines the
-// reference standard's u, and gives the Welch–Satterthwaite degrees of
-// freedom (JCGM 100 eq. G.2b): ν_eff = u⁴/(u_fit⁴/ν).
+// Ensure that a record calibrates a reading with its fit, combines the fit
+// curve's u, the residual scatter s (issue 10: a value's u sat below the
+// residual SD), the hysteresis and the reference standard's u, and gives
+// the Welch–Satterthwaite degrees of freedom (JCGM 100 eq. G.2b):
+// ν_eff = u⁴/((u_fit⁴ + s⁴)/ν). Norris: certified residual SD 0.884 796 396 144 373
+// (NIST StRD).
 func TestRecord_Apply(t *testing.T) {
 	f, err := calibrate.FitPoly(readPoints(t, "norris.csv"), 1)
 	require.NoError(t, err)
+	assert.InEpsilon(t, 0.884796396144373, f.ResidualSD, 1e-9)
+	f.HysteresisPctFS = 0
 	r := calibrate.Record{Fit: f, ReferenceU: 0.2}
 	v := r.Apply(500)
 	assert.InDelta(t, f.Poly[0]+500*f.Poly[1], v.X, 1e-12)
-	uf := f.ValueU(500, 0)
-	assert.InDelta(t, math.Sqrt(uf*uf+0.04), v.U, 1e-15)
-	assert.InEpsilon(t, math.Pow(v.U, 4)/(math.Pow(uf, 4)/34), v.Dof, 1e-12)
+	uf, s := f.ValueU(500, 0), f.ResidualSD
+	assert.InDelta(t, math.Sqrt(uf*uf+s*s+0.04), v.U, 1e-12)
+	assert.GreaterOrEqual(t, v.U, s, "a value's u is never below the residual SD")
+	assert.InEpsilon(t, math.Pow(v.U, 4)/((math.Pow(uf, 4)+math.Pow(s, 4))/34), v.Dof, 1e-12)
 	assert.Greater(t, v.Dof, 34.0)
 
 	r.ReferenceU = 0
-	assert.InDelta(t, 34.0, r.Apply(500).Dof, 1e-9, "no reference u: ν_eff = ν of the fit")
+	assert.InDelta(t, 34.0, r.Apply(500).Dof, 3, "no reference u: ν_eff near ν of the fit")
+	assert.GreaterOrEqual(t, r.Apply(500).Dof, 34.0)
+
+	// Hysteresis H = 1 % of the span of values: u_h = H/(2√3) adds in
+	// quadrature (rectangular, half-width H/2, JCGM 100 §4.3.7).
+	r.Points = []calibrate.Point{{Reading: 0}, {Reading: 1000}}
+	r.Fit.HysteresisPctFS = 1
+	spanV := math.Abs(1000 * f.Poly[1])
+	uh := 0.01 * spanV / (2 * math.Sqrt(3))
+	assert.InDelta(t, math.Sqrt(uf*uf+s*s+uh*uh), r.Apply(500).U, 1e-12)
 }
 
 // Ensure that no input makes FitPoly panic: random junk with NaN, ±Inf,

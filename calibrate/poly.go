@@ -38,6 +38,7 @@ type channelCal struct {
 	poly  Poly
 	toSI  rig.Affine
 	uSI   float64
+	uRel  float64 // relative span uncertainty
 	dof   float64
 	calID string // stored calibration id; "" for inline
 }
@@ -62,6 +63,8 @@ func NewCalibrator(r *rig.Rig) (*Calibrator, error) { return NewCalibratorFrom(r
 //   - values: the record's Fit.Poly, in the record's Unit, converted to SI
 //     with that unit (rig.UnitToSI for the channel's quantity), so a record
 //     made in kgf serves a channel declared in N;
+//   - span: the record's SpanURel (Series.URel), unless the rig file's
+//     span_u_pct replaces it;
 //   - uncertainty: one u per series (Series.U), so the largest standard
 //     uncertainty of a calibrated value over the calibrated range is used:
 //     Record.Apply (fit curve plus reference standard) evaluated at every
@@ -89,6 +92,9 @@ func NewCalibratorFrom(r *rig.Rig, lookup Lookup) (*Calibrator, error) {
 			if err != nil {
 				return nil, fmt.Errorf("channel %q: stored calibration %q: %w", ch.Name, id, err)
 			}
+			if ch.Calibration.SpanURel > 0 {
+				cal.uRel = ch.Calibration.SpanURel // the rig file's word replaces the record's
+			}
 			c.channels[ch.Name] = cal
 			c.stored = append(c.stored, rec)
 			continue
@@ -97,7 +103,8 @@ func NewCalibratorFrom(r *rig.Rig, lookup Lookup) (*Calibrator, error) {
 		if len(p.Coef) == 0 {
 			p.Coef = []float64{0, 1}
 		}
-		c.channels[ch.Name] = channelCal{poly: p, toSI: ch.ToSI, uSI: math.Abs(ch.ToSI.Scale) * ch.Calibration.U, dof: math.Inf(1)}
+		c.channels[ch.Name] = channelCal{poly: p, toSI: ch.ToSI, uSI: math.Abs(ch.ToSI.Scale) * ch.Calibration.U,
+			uRel: ch.Calibration.SpanURel, dof: math.Inf(1)}
 	}
 	return c, nil
 }
@@ -150,6 +157,7 @@ func storedCal(ch rig.Channel, rec Record) (channelCal, error) {
 		poly:  Poly{Coef: slices.Clone(rec.Fit.Poly)},
 		toSI:  toSI,
 		uSI:   math.Abs(toSI.Scale) * worst.U,
+		uRel:  rec.SpanURel,
 		dof:   worst.Dof,
 		calID: rec.ID,
 	}, nil
@@ -178,7 +186,7 @@ func (c *Calibrator) Apply(b *acquire.Block) Block {
 		for i, r := range s.Raw {
 			vals[i] = cal.toSI.Apply(cal.poly.Eval(r))
 		}
-		out.Series = append(out.Series, Series{Channel: s.Channel, Values: vals, U: cal.uSI, Dof: cal.dof})
+		out.Series = append(out.Series, Series{Channel: s.Channel, Values: vals, U: cal.uSI, URel: cal.uRel, Dof: cal.dof})
 	}
 	return out
 }

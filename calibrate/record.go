@@ -31,6 +31,11 @@ type Record struct {
 	Who        string    `json:"who,omitempty"`
 	Reference  string    `json:"reference,omitempty"` // the reference standard, e.g. "M1 dead weights, cert. 4711"
 	ReferenceU float64   `json:"reference_u"`         // standard uncertainty of the applied values, in Unit
+	// SpanURel is the relative standard uncertainty of the span (a span
+	// error scales with the value: u = SpanURel·|value|), e.g. from the
+	// reference standard's certificate stated in % of reading. Records
+	// written before it existed read 0 (no span term).
+	SpanURel   float64   `json:"span_u_rel,omitempty"`
 	ValidUntil time.Time `json:"valid_until,omitzero"`
 	Note       string    `json:"note,omitempty"`
 	Points     []Point   `json:"points"`

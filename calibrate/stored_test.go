@@ -1,6 +1,7 @@
 package calibrate_test
 
 import (
+	"encoding/json"
 	"errors"
 	"math"
 	"os"
@@ -128,4 +129,27 @@ func TestNewCalibratorFrom_Refused(t *testing.T) {
 			assert.Contains(t, err.Error(), tt.want)
 		})
 	}
+}
+
+// Ensure that a calibration record written before records carried a span
+// uncertainty (today's JSON, no span_u_rel) reads with SpanURel 0, and that
+// the span stated on a record reaches the calibrated series (issue 10).
+func TestRecord_SpanURel_OlderRecordReadsZero(t *testing.T) {
+	old := `{"id":"n-1","channel":"n","unit":"N","created":"2026-11-30T10:00:00Z","reference_u":0.01,` +
+		`"points":[{"applied":0,"reading":0},{"applied":10,"reading":1000},{"applied":20,"reading":2000}],` +
+		`"fit":{"order":1,"poly":[0,0.01],"poly_u":[0,0],"cov":[[0,0],[0,0]],"residual_sd":0,"dof":1,"nonlinearity_pct_fs":0,"hysteresis_pct_fs":0}}`
+	var rec calibrate.Record
+	require.NoError(t, json.Unmarshal([]byte(old), &rec))
+	assert.Zero(t, rec.SpanURel)
+	rec.SpanURel = 0.005
+	data, err := json.Marshal(rec)
+	require.NoError(t, err)
+	assert.Contains(t, string(data), `"span_u_rel":0.005`)
+	r := &rig.Rig{Channels: []rig.Channel{{Name: "n", Quantity: rig.QuantityForce, Unit: "N", ToSI: rig.Affine{Scale: 1},
+		Calibration: rig.Calibration{ID: "n-1"}}}}
+	cal, err := calibrate.NewCalibratorFrom(r, func(string) (calibrate.Record, error) { return rec, nil })
+	require.NoError(t, err)
+	b := cal.Apply(&acquire.Block{Series: []acquire.Series{{Channel: "n", Raw: []float64{1000}}}})
+	assert.InDelta(t, 10, b.Series[0].Values[0], 1e-12)
+	assert.Equal(t, 0.005, b.Series[0].URel)
 }

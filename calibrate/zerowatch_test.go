@@ -30,7 +30,7 @@ func TestZeroWatch_BeforeAndAfter(t *testing.T) {
 			{Channel: "n", Values: vals(n)}, {Channel: "q", Values: vals(q)}, {Channel: "alpha", Values: vals(0.1)}}}
 	}
 	k := 0
-	for range 10 { // 1 s at rest: n reads 2 N (its zero), q 10 Pa (below 2 % of 5 kPa)
+	for range 10 { // 1 s at rest: n reads 2 N (its zero), q 10 Pa (0.5 % of the flow)
 		z.Observe(block(k, 2, 10))
 		k++
 	}
@@ -59,11 +59,16 @@ func TestZeroWatch_BeforeAndAfter(t *testing.T) {
 	assert.InDelta(t, 1, rep[0].ChangeSI, 1e-12)
 	assert.Equal(t, "q", rep[1].Channel)
 	assert.InDelta(t, -5, rep[1].ChangeSI, 1e-12)
-	// Half-way between the two zeros (mid-points at 0.5 s and 4.5 s), the
-	// zero is half-way too.
+	// Half-way between the two zeros, the zero is half-way too: the rest
+	// stretches lose ZeroGuard on the side of the flow (0–0.5 s and 4.5–5 s,
+	// mid-points 0.25 s and 4.75 s).
 	assert.InDelta(t, 2.5, d.At("n", time.UnixMicro(t0+2_500_000)), 1e-9)
 
-	// A rig without a rated pitot cannot tell flow-off.
+	// issue 10: rest is judged against the run's own flow, not the pitot's
+	// rated range, so a pitot without one still gives a zero; a rig with no
+	// dynamic-pressure channel cannot tell flow-off.
 	r.Channels[1].CapacitySI = 0
+	assert.NotNil(t, calibrate.NewZeroWatch(r))
+	r.Lift.DynamicPressure = ""
 	assert.Nil(t, calibrate.NewZeroWatch(r))
 }

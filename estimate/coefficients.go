@@ -46,6 +46,10 @@ type Window struct {
 	// Blockage, when not nil, corrects q and the coefficients for solid
 	// and wake blockage (corrections.go), with its own budget line.
 	Blockage *Blockage
+	// Span (relative) Type B standard uncertainties, calibrate.Series.URel:
+	// each gives u = URel·|mean| of its input (0: none). QCoeffURel is the
+	// relative u of q from the pitot coefficient, 2·u(C)/C for q = C²·Δp.
+	NormalSpanURel, AxialSpanURel, QSpanURel, QCoeffURel float64
 }
 
 // Point is the reduced result of one Window: one polar point with its
@@ -95,9 +99,15 @@ type Point struct {
 //
 // # Type B (calibration, geometry)
 //
-// One contribution per systematic input: normal and axial force calibration,
-// q calibration, angle, and reference area (c_S = −C_L/S). Their sensitivities
-// are the same c's. The corrections applied to the loads before the window
+// One contribution per systematic input: normal and axial force calibration
+// (absolute u, and span u = URel·|N̄| or URel·|Ā| when the calibration states
+// one), q calibration (absolute and span, u = URel·q̄), the pitot coefficient
+// (u = 2·u(C)/C·q̄), angle, and reference area (c_S = −C_L/S). Their
+// sensitivities are the same c's. Span errors of the load cells summed into
+// one force are taken as one relative u of the sum (the largest of the
+// cells', the conservative choice when the cells carry loads of one sign).
+//
+// The corrections applied to the loads before the window
 // (Window.Corrections: weight tare, balance matrix) add one line each on
 // the normal and the axial force, with c_N and c_A.
 //
@@ -174,6 +184,10 @@ func Reduce(w *Window) (Point, error) {
 	// q
 	p.QBudget = []Contribution{typeAContribution("dynamic pressure scatter", TypeAMean(qq))}
 	p.QBudget = typeB(p.QBudget, "dynamic pressure calibration", w.QUPa, 1, w.QDof)
+	uQSpan, uQCoeff := w.QSpanURel*math.Abs(qBar), w.QCoeffURel*math.Abs(qBar)
+	uNSpan, uASpan := w.NormalSpanURel*math.Abs(nBar), w.AxialSpanURel*math.Abs(aBar)
+	p.QBudget = typeB(p.QBudget, "dynamic pressure span", uQSpan, 1, 0)
+	p.QBudget = typeB(p.QBudget, "pitot coefficient", uQCoeff, 1, 0)
 	p.QPa = withX(qBar, Combine(p.QBudget))
 
 	// α
@@ -186,6 +200,8 @@ func Reduce(w *Window) (Point, error) {
 		cs := []Contribution{typeAContribution(what+" scatter", TypeAMean(series))}
 		cs = typeB(cs, "normal force calibration", w.NormalUN, cN, w.NormalDof)
 		cs = typeB(cs, "axial force calibration", w.AxialUN, cA, w.AxialDof)
+		cs = typeB(cs, "normal force span", uNSpan, cN, 0)
+		cs = typeB(cs, "axial force span", uASpan, cA, 0)
 		cs = typeB(cs, "angle of attack", w.AlphaURad, cAl, w.AlphaDof)
 		cs = correctionLines(cs, w.Corrections, cN, cA)
 		return Combine(cs)
@@ -209,6 +225,10 @@ func Reduce(w *Window) (Point, error) {
 			cs = typeB(cs, "normal force calibration", w.NormalUN, cN/qs, w.NormalDof)
 			cs = typeB(cs, "axial force calibration", w.AxialUN, cA/qs, w.AxialDof)
 			cs = typeB(cs, "dynamic pressure calibration", w.QUPa, -c/qBar, w.QDof)
+			cs = typeB(cs, "normal force span", uNSpan, cN/qs, 0)
+			cs = typeB(cs, "axial force span", uASpan, cA/qs, 0)
+			cs = typeB(cs, "dynamic pressure span", uQSpan, -c/qBar, 0)
+			cs = typeB(cs, "pitot coefficient", uQCoeff, -c/qBar, 0)
 			cs = typeB(cs, "angle of attack", w.AlphaURad, cAl/qs, w.AlphaDof)
 			cs = typeB(cs, "reference area", w.AreaUM2, -c/s, 0)
 			cs = correctionLines(cs, w.Corrections, cN/qs, cA/qs)

@@ -96,6 +96,7 @@ type roles struct {
 	q             string
 	qIsSpeed      bool
 	pitotC        float64
+	pitotCU       float64 // standard uncertainty of pitotC
 	angle         string
 	angleFixedRad float64
 	angleURad     float64
@@ -104,7 +105,7 @@ type roles struct {
 }
 
 type heldValue struct {
-	v, u, dof float64
+	v, u, dof, uRel float64
 }
 
 // typeBInputs are the Type B standard uncertainties of one sample of each
@@ -114,6 +115,9 @@ type typeBInputs struct {
 	axialU, axialDof   float64
 	qU, qDof           float64 // for a speed channel: u of V, m/s
 	alphaU, alphaDof   float64
+	// relative span uncertainties (calibrate.Series.URel) and the pitot
+	// coefficient's relative u of q
+	normalRel, axialRel, qRel, qCoeffRel float64
 }
 
 // sample is one joined sample time.
@@ -143,7 +147,7 @@ func NewEstimator(r *rig.Rig, cfg Config) (*Estimator, error) {
 	}
 	ro := roles{normal: r.Lift.Normal, axial: r.Lift.Axial, angle: r.Lift.AngleChannel,
 		angleFixedRad: r.Lift.AngleRad, angleURad: r.Lift.AngleURad, temp: r.Lift.Temperature,
-		spin: r.Lift.Spin, pitotC: r.Lift.PitotCoeff}
+		spin: r.Lift.Spin, pitotC: r.Lift.PitotCoeff, pitotCU: r.Lift.PitotCoeffU}
 	if len(ro.normal) == 0 {
 		problems = append(problems, errors.New("lift.normal is empty: name the normal-force channel(s)"))
 	}
@@ -478,6 +482,7 @@ func (e *Estimator) window(buf *sampleBuf, fl Fluid) Window {
 		AxialUN: e.uB.axialU, AxialDof: e.uB.axialDof,
 		QUPa: e.uB.qU, QDof: e.uB.qDof,
 		AlphaURad: e.uB.alphaU, AlphaDof: e.uB.alphaDof,
+		NormalSpanURel: e.uB.normalRel, AxialSpanURel: e.uB.axialRel, QSpanURel: e.uB.qRel, QCoeffURel: e.uB.qCoeffRel,
 		AreaM2: e.rig.Reference.AreaM2, AreaUM2: e.rig.Reference.AreaUM2,
 		LengthM: e.rig.Reference.LengthM, Fluid: fl,
 		Corrections: e.cfg.Corrections, Blockage: BlockageOf(e.rig),
@@ -630,7 +635,7 @@ func (e *Estimator) recordOther(b *calibrate.Block) {
 		for i, v := range s.Values {
 			if finite(v) {
 				h.push(at0+int64(i)*b.DtUs, v)
-				e.held[s.Channel] = heldValue{v: v, u: s.U, dof: s.Dof}
+				e.held[s.Channel] = heldValue{v: v, u: s.U, dof: s.Dof, uRel: s.URel}
 			}
 		}
 	}
@@ -691,8 +696,30 @@ func (e *Estimator) readTypeB(b *calibrate.Block) {
 		v := Combine(cs)
 		return v.U, v.Dof
 	}
+	relOf := func(name string) float64 {
+		if s := b.Find(name); s != nil {
+			return s.URel
+		}
+		return e.held[name].uRel
+	}
+	groupRel := func(names []string) float64 {
+		r := 0.0
+		for _, n := range names {
+			r = max(r, relOf(n))
+		}
+		return r
+	}
 	e.uB.normalU, e.uB.normalDof = group(e.roles.normal)
 	e.uB.axialU, e.uB.axialDof = group(e.roles.axial)
+	e.uB.normalRel, e.uB.axialRel = groupRel(e.roles.normal), groupRel(e.roles.axial)
+	if e.roles.q != "" {
+		e.uB.qRel = relOf(e.roles.q)
+		if e.roles.qIsSpeed {
+			e.uB.qRel *= 2 // q = ½ρV²: twice the relative u of V
+		} else if c := e.roles.pitotC; c > 0 {
+			e.uB.qCoeffRel = 2 * e.roles.pitotCU / c // q = C²·Δp
+		}
+	}
 	if u, d, ok := uOf(e.roles.q); ok {
 		if e.roles.qIsSpeed {
 			e.uB.qU, e.uB.qDof = u, dofOrInf(d)
@@ -704,10 +731,17 @@ func (e *Estimator) readTypeB(b *calibrate.Block) {
 			e.uB.qU, e.uB.qDof = u*c*c, dofOrInf(d)
 		}
 	}
+	// The angle's u is stated once (docs/physics.md "Type B inputs"): with an
+	// angle channel, [lift] angle_u_deg, when given, is the angle's whole
+	// standard uncertainty and replaces the channel calibration's u (both
+	// describe the same reading; adding them counted it twice, issue 10);
+	// without it the channel's u stands. A fixed angle has angle_u_deg only.
 	if e.roles.angle != "" {
 		if u, d, ok := uOf(e.roles.angle); ok {
-			v := Combine([]Contribution{{UY: u, Dof: dofOrInf(d)}, {UY: e.roles.angleURad, Dof: math.Inf(1)}})
-			e.uB.alphaU, e.uB.alphaDof = v.U, v.Dof
+			e.uB.alphaU, e.uB.alphaDof = u, dofOrInf(d)
+			if e.roles.angleURad > 0 {
+				e.uB.alphaU, e.uB.alphaDof = e.roles.angleURad, math.Inf(1)
+			}
 		}
 	}
 }

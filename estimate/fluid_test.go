@@ -126,11 +126,14 @@ func TestWaterProperties_ITTC(t *testing.T) {
 		{"fresh 15 °C", rig.FluidFreshWater, 15, 999.1026, 1.1386e-6, 5e-5, 5e-11},
 		{"fresh 20 °C", rig.FluidFreshWater, 20, 998.2072, 1.0034e-6, 5e-5, 5e-11},
 		{"fresh 25 °C", rig.FluidFreshWater, 25, 997.0476, 8.9266e-7, 5e-5, 5e-12},
-		// §4.2 standard seawater (S_A = 35.165 04 g/kg): ITTC Table 3 and ν list [C].
-		{"sea 10 °C", rig.FluidSeaWater, 10, 1027.0000, 1.3604e-6, 5e-5, 5e-11},
-		{"sea 15 °C", rig.FluidSeaWater, 15, 1026.0210, 1.1892e-6, 5e-5, 5e-11},
-		{"sea 20 °C", rig.FluidSeaWater, 20, 1024.8103, 1.0508e-6, 5e-5, 5e-11},
-		{"sea 25 °C", rig.FluidSeaWater, 25, 1023.3873, 9.3713e-7, 5e-5, 5e-12},
+		// §4.2 standard seawater (S_A = 35.165 04 g/kg) at one atmosphere:
+		// ρ TEOS-10 gsw_rho_t_exact(S_A, t, 0), GSW-Python 3.6.16 [R]; ν is the
+		// ITTC list [C] moved to the same density basis, ν·ρ_ITTC/ρ (the ITTC
+		// table is at two atmospheres, 4.4e-5 denser), to its printed digits.
+		{"sea 10 °C", rig.FluidSeaWater, 10, 1026.9541, 1.36046e-6, 5e-5, 1e-10},
+		{"sea 15 °C", rig.FluidSeaWater, 15, 1025.9760, 1.18925e-6, 5e-5, 1e-10},
+		{"sea 20 °C", rig.FluidSeaWater, 20, 1024.7660, 1.05085e-6, 5e-5, 1e-10},
+		{"sea 25 °C", rig.FluidSeaWater, 25, 1023.3436, 9.3717e-7, 5e-5, 1e-11},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
@@ -162,14 +165,30 @@ func TestWaterDensity_TableRows(t *testing.T) {
 		// the ITTC print and the IAPWS-95 values of the NIST table.
 		near(t, "fresh", estimate.FreshWaterDensity(tC+273.15), want, 1.1e-4)
 	}
+	// ITTC Table 3 is TEOS-10 at a sea pressure of 10.1325 dbar (two
+	// atmospheres absolute); liftyard's seawater is at one atmosphere like its
+	// fresh water. Each row must sit below the table by the compression
+	// ρ·κ_T·Δp with Δp = 101 325 Pa: κ_T of standard seawater falls from
+	// 4.60e-10 /Pa at 1 °C to 4.10e-10 /Pa at 30 °C (TEOS-10
+	// gsw_kappa_t_exact, GSW-Python 3.6.16) [R], i.e. 0.043–0.048 kg/m³.
 	sea := []float64{1028.0941, 1028.0197, 1027.9327, 1027.8336, 1027.7225, 1027.6000,
 		1027.4662, 1027.3214, 1027.1659, 1027.0000, 1026.8238, 1026.6376,
 		1026.4416, 1026.2360, 1026.0210, 1025.7967, 1025.5633, 1025.3210,
 		1025.0700, 1024.8103, 1024.5421, 1024.2656, 1023.9808, 1023.6881,
 		1023.3873, 1023.0788, 1022.7626, 1022.4389, 1022.1078, 1021.7694}
-	for i, want := range sea {
+	for i, ittc := range sea {
 		tC := 1 + float64(i)
-		near(t, "sea", estimate.SeaWaterDensity(tC+273.15, estimate.StandardSalinityKgPerKg), want, 5e-5)
+		got := estimate.SeaWaterDensity(tC+273.15, estimate.StandardSalinityKgPerKg)
+		if d := ittc - got; d < 0.040 || d > 0.051 {
+			t.Errorf("sea %g °C: ITTC Table 3 %.4f − ours %.4f = %.4f kg/m³, want the 1-atm compression 0.040–0.051", tC, ittc, got, d)
+		}
+	}
+	// TEOS-10 at sea pressure 0, gsw_rho_t_exact(35.165 04 g/kg, t, 0) from
+	// GSW-Python 3.6.16 (docs/references.md §4.2) [R], every fifth degree.
+	teos := map[float64]float64{1: 1028.0461, 5: 1027.6756, 10: 1026.9541, 15: 1025.9760,
+		20: 1024.7660, 25: 1023.3436, 30: 1021.7261, 35: 1019.9298, 40: 1017.9715}
+	for tC, want := range teos {
+		near(t, "sea 1 atm", estimate.SeaWaterDensity(tC+273.15, estimate.StandardSalinityKgPerKg), want, 5e-5)
 	}
 	// Mid-interval: the mean of neighbours minus the curvature term; a cubic
 	// through the table must land between the chord and the true curve.
@@ -182,10 +201,17 @@ func TestWaterDensity_TableRows(t *testing.T) {
 	}
 }
 
-// Ensure that seawater at other salinities follows ITTC 7.5-02-01-03 (2011)
-// Table 4 (15 °C, S_A = 10–40 g/kg, pp. 10–11, as quoted in a public test
-// suite) within the 0.035 kg/m³ stated for the EOS-80 scaling.
+// Ensure that seawater at other salinities follows TEOS-10 at one
+// atmosphere within the 0.035 kg/m³ stated for the EOS-80 scaling. The rows
+// are ITTC 7.5-02-01-03 (2011) Table 4 (15 °C, S_A = 10–40 g/kg, pp. 10–11,
+// as quoted in a public test suite) [C], less their two-atmosphere
+// compression: Table 4, like Table 3, is TEOS-10 at 10.1325 dbar, and
+// gsw_rho_t_exact(S_A, 15, 10.1325) − gsw_rho_t_exact(S_A, 15, 0) is
+// 0.0466 kg/m³ at 10 g/kg and 0.0447 kg/m³ at 40 g/kg (GSW-Python 3.6.16,
+// docs/references.md §4.2) [R]; 0.046 kg/m³ is taken for every row, within
+// 0.002 kg/m³ of the exact shift.
 func TestSeaWaterDensity_Salinity(t *testing.T) {
+	const compression = 0.046
 	table4 := []float64{1006.7950, 1007.5571, 1008.3191, 1009.0812, 1009.8434, 1010.6056,
 		1011.3680, 1012.1305, 1012.8932, 1013.6561, 1014.4192, 1015.1824,
 		1015.9459, 1016.7097, 1017.4736, 1018.2379, 1019.0023, 1019.7670,
@@ -193,7 +219,7 @@ func TestSeaWaterDensity_Salinity(t *testing.T) {
 		1025.1275, 1025.8944, 1026.6615, 1027.4289, 1028.1966, 1028.9646, 1029.7328}
 	for i, want := range table4 {
 		s := (10 + float64(i)) / 1000
-		near(t, "rho(15 °C, S)", estimate.SeaWaterDensity(288.15, s), want, 0.035)
+		near(t, "rho(15 °C, S)", estimate.SeaWaterDensity(288.15, s), want-compression, 0.035)
 	}
 }
 

@@ -41,25 +41,27 @@ var freshWater1Atm = [][3]float64{
 }
 
 // seaWaterStd holds the density of standard seawater (S_A = 35.165 04 g/kg) at
-// 0.101 325 MPa: {t °C, ρ kg/m³}.
+// 0.101 325 MPa absolute (sea pressure 0, the same one-atmosphere basis as
+// freshWater1Atm): {t °C, ρ kg/m³}.
 //
-// Source: 1–30 °C are ITTC 7.5-02-01-03 Rev 02 (2011) Table 3, pp. 7–8 (TEOS-10),
-// as quoted in a public C# test suite and found with the search tool (the
-// 23 and 24 °C rows are 1023.9808 and 1023.6881: a known copy with 1024.x
-// there is a typo). The 0.1 °C and 31–40 °C rows come from the 0.1 °C-step
-// seawater table of a public ISO 19030 implementation, which equals Table 3
-// at every 1–30 °C row; they were not checked against the ITTC PDF itself.
-// 0–0.1 °C is a linear extrapolation.
+// Source: TEOS-10 (IOC, SCOR and IAPSO 2010), gsw_rho_t_exact(S_A, t, p = 0)
+// as computed by GSW-Python 3.6.16 (the Debian package python3-gsw), rounded
+// to 4 decimals (docs/references.md §4.2). ITTC 7.5-02-01-03 Rev 02 (2011)
+// Table 3 prints the same TEOS-10 function evaluated at a sea pressure of
+// 10.1325 dbar, i.e. at two atmospheres absolute: every one of its 1–30 °C
+// rows is this table plus the compression ρ·κ·Δp of 0.043–0.048 kg/m³
+// (4.4·10⁻⁵ relative), so liftyard's seawater and fresh water now share one
+// pressure basis.
 var seaWaterStd = [][2]float64{
-	{0.1, 1028.1499}, {1, 1028.0941}, {2, 1028.0197}, {3, 1027.9327}, {4, 1027.8336},
-	{5, 1027.7225}, {6, 1027.6000}, {7, 1027.4662}, {8, 1027.3214}, {9, 1027.1659},
-	{10, 1027.0000}, {11, 1026.8238}, {12, 1026.6376}, {13, 1026.4416}, {14, 1026.2360},
-	{15, 1026.0210}, {16, 1025.7967}, {17, 1025.5633}, {18, 1025.3210}, {19, 1025.0700},
-	{20, 1024.8103}, {21, 1024.5421}, {22, 1024.2656}, {23, 1023.9808}, {24, 1023.6881},
-	{25, 1023.3873}, {26, 1023.0788}, {27, 1022.7626}, {28, 1022.4389}, {29, 1022.1078},
-	{30, 1021.7694}, {31, 1021.4238}, {32, 1021.0712}, {33, 1020.7118}, {34, 1020.3456},
-	{35, 1019.9727}, {36, 1019.5934}, {37, 1019.2078}, {38, 1018.8159}, {39, 1018.4180},
-	{40, 1018.0142},
+	{0.1, 1028.1017}, {1, 1028.0461}, {2, 1027.9720}, {3, 1027.8853}, {4, 1027.7864},
+	{5, 1027.6756}, {6, 1027.5533}, {7, 1027.4197}, {8, 1027.2751}, {9, 1027.1198},
+	{10, 1026.9541}, {11, 1026.7781}, {12, 1026.5921}, {13, 1026.3963}, {14, 1026.1909},
+	{15, 1025.9760}, {16, 1025.7519}, {17, 1025.5187}, {18, 1025.2765}, {19, 1025.0256},
+	{20, 1024.7660}, {21, 1024.4979}, {22, 1024.2215}, {23, 1023.9369}, {24, 1023.6442},
+	{25, 1023.3436}, {26, 1023.0352}, {27, 1022.7191}, {28, 1022.3955}, {29, 1022.0644},
+	{30, 1021.7261}, {31, 1021.3806}, {32, 1021.0281}, {33, 1020.6687}, {34, 1020.3026},
+	{35, 1019.9298}, {36, 1019.5505}, {37, 1019.1649}, {38, 1018.7731}, {39, 1018.3753},
+	{40, 1017.9715},
 }
 
 // interpTable interpolates y(x) on nodes xs by a cubic Lagrange polynomial
@@ -132,10 +134,12 @@ func FreshWaterMuPaS(tempK float64) float64 {
 	return math.Exp(interpTable(fwT, fwLnMu, tempK-273.15))
 }
 
-// SeaWaterDensity returns the density of seawater at 0.101 325 MPa in kg/m³
-// for 0–40 °C and absolute salinity s in kg/kg.
+// SeaWaterDensity returns the density of seawater at 0.101 325 MPa absolute
+// (one atmosphere, as fresh water) in kg/m³ for 0–40 °C and absolute
+// salinity s in kg/kg.
 //
-// At standard salinity it is ITTC 7.5-02-01-03 Table 3 (see seaWaterStd). At
+// At standard salinity it is TEOS-10 at sea pressure 0 (see seaWaterStd;
+// ITTC 7.5-02-01-03 Table 3 is the same at two atmospheres). At
 // other salinities the salt part is scaled by the shape of the one-atmosphere
 // equation of state of Millero & Poisson (Deep-Sea Res. 28A (1981) 625,
 // EOS-80):
@@ -143,9 +147,11 @@ func FreshWaterMuPaS(tempK float64) float64 {
 //	ρ(t,S) = ρ_fw(t) + [ρ_sw(t) − ρ_fw(t)]·g(t,S)/g(t,S_std)
 //	g(t,S) = A(t)·S + B(t)·S^{3/2} + C·S²   (S practical salinity ≈ S_A·35/35.165 04)
 //
-// so that S = 0 gives fresh water and S = S_std gives Table 3 exactly. Against
-// ITTC Table 4 (15 °C, 10–40 g/kg) this is within 0.035 kg/m³ (3.5·10⁻⁵
-// relative), negligible beside the other inputs of a lift coefficient.
+// so that S = 0 gives fresh water and S = S_std gives seaWaterStd exactly.
+// Against TEOS-10 at 15 °C and sea pressure 0 for 10–40 g/kg (the rows of
+// ITTC Table 4 less their two-atmosphere compression) this is within
+// 0.035 kg/m³ (3.5·10⁻⁵ relative), negligible beside the other inputs of a
+// lift coefficient.
 func SeaWaterDensity(tempK, salinityKgPerKg float64) float64 {
 	tC := tempK - 273.15
 	fw := FreshWaterDensity(tempK)

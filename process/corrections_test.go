@@ -1,7 +1,6 @@
 package process_test
 
 import (
-	"context"
 	"fmt"
 	"math"
 	"math/rand/v2"
@@ -19,21 +18,6 @@ import (
 	"liftyard/process"
 	"liftyard/rig"
 )
-
-// blocks replays a slice of blocks (an acquire.Replayer).
-type blocks []acquire.Block
-
-func (bs blocks) Replay(ctx context.Context, fn func(acquire.Block) error) error {
-	for _, b := range bs {
-		if err := ctx.Err(); err != nil {
-			return err
-		}
-		if err := fn(b); err != nil {
-			return err
-		}
-	}
-	return nil
-}
 
 // corrRig is an invented wind-tunnel foil on a three-cell balance whose
 // channels are calibrated one by one in N (identity polynomials): the
@@ -212,7 +196,7 @@ func runSweep(t *testing.T, r *rig.Rig, record []acquire.Block) []estimate.Segme
 	require.NoError(t, err)
 	p, err := process.New(r, cal, process.Options{Now: func() time.Time { return time.Unix(0, 0) }})
 	require.NoError(t, err)
-	segs, err := process.Replay(t.Context(), blocks(record), p, nil)
+	segs, err := process.Replay(t.Context(), acquire.Blocks(record), p, nil)
 	require.NoError(t, err)
 	return segs
 }

@@ -99,6 +99,9 @@ func (p *Pipeline) Step(b *acquire.Block) Step {
 		if z := p.zeros.Live(); z != nil {
 			z.Correct(&cb) // the flow-off zero taken before the run
 		}
+		for _, n := range p.zeros.Notes() {
+			st.Events = append(st.Events, acquire.Event{T: b.Received, Source: b.Source, Kind: EventFlowOffZero, Message: n})
+		}
 	}
 	for _, l := range p.loads.Observe(&cb) {
 		st.Events = append(st.Events, acquire.Event{T: b.Received, Source: b.Source, Kind: EventOverload,
@@ -107,6 +110,11 @@ func (p *Pipeline) Step(b *acquire.Block) Step {
 	st.Segments = p.stage.Add(&cb)
 	return st
 }
+
+// EventFlowOffZero is the kind of the event raised when a run has no
+// proper flow-off zero (no steady rest before the flow came on, or after it
+// went off): its values carry the balance's zero offsets.
+const EventFlowOffZero acquire.EventKind = "flow_off_zero"
 
 // EventOverload is the kind of the event a channel loaded past its warning
 // or alarm level raises.
@@ -132,6 +140,17 @@ func (p *Pipeline) Drift() (calibrate.Drift, error) {
 		return calibrate.Drift{}, fmt.Errorf("rig kind %q takes no flow-off zero", p.rig.Kind)
 	}
 	return p.zeros.Drift()
+}
+
+// Rests returns the flow-off rest stretches seen so far, one per angle,
+// before the flow came on and (at the end of the data) after it went off:
+// the inputs of a flow-off weight tare. Nil when the kind takes no flow-off
+// zero.
+func (p *Pipeline) Rests() []calibrate.Rest {
+	if p.zeros == nil {
+		return nil
+	}
+	return p.zeros.Rests()
 }
 
 // UnusedMarks returns the user marks that held too few samples to give a

@@ -252,13 +252,20 @@ func (rec *Recorder) Finish(ctx context.Context, runErr error, sources []acquire
 		return Finished{}, nil
 	}
 	rec.done = true
+	if errors.Is(runErr, context.Canceled) || errors.Is(runErr, context.DeadlineExceeded) {
+		runErr = nil
+	}
+	if rec.p.zeros != nil && runErr == nil {
+		// Say in the run's log, which the report shows, when the run has no
+		// proper flow-off zero; the values then carry the zero offsets.
+		if _, err := rec.p.Drift(); err != nil {
+			rec.Event(acquire.Event{Kind: EventFlowOffZero, Message: "no zero-drift correction: " + err.Error()})
+		}
+	}
 	close(rec.items)
 	werr := <-rec.werr
 	if n := rec.lost.Load(); werr != nil && n > 0 {
 		werr = fmt.Errorf("%w; %d results and events after it were not stored", werr, n)
-	}
-	if errors.Is(runErr, context.Canceled) || errors.Is(runErr, context.DeadlineExceeded) {
-		runErr = nil
 	}
 	fin := Finished{Status: storage.StatusComplete}
 	if runErr != nil || werr != nil {

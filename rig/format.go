@@ -74,15 +74,19 @@ func Format(r *Rig) []byte {
 			w("raw_range = [%s, %s]\n", num(ch.RawMin), num(ch.RawMax))
 		}
 		cal := ch.Calibration
+		span := ""
+		if cal.SpanURel != 0 {
+			span = ", span_u_pct = " + num(100*cal.SpanURel)
+		}
 		switch {
 		case cal.ID != "":
-			w("calibration = { id = %s }\n", quote(cal.ID))
+			w("calibration = { id = %s%s }\n", quote(cal.ID), span)
 		case cal.Poly != nil:
 			parts := make([]string, len(cal.Poly))
 			for i, p := range cal.Poly {
 				parts[i] = num(p)
 			}
-			w("calibration = { poly = [%s], u = %s }\n", strings.Join(parts, ", "), num(cal.U))
+			w("calibration = { poly = [%s], u = %s%s }\n", strings.Join(parts, ", "), num(cal.U), span)
 		}
 	}
 
@@ -100,6 +104,9 @@ func Format(r *Rig) []byte {
 		w("angle = %s\n", num(Deg(l.AngleRad)))
 	}
 	w("angle_u_deg = %s\npitot_coefficient = %s\n", num(Deg(l.AngleURad)), num(l.PitotCoeff))
+	if l.PitotCoeffU != 0 {
+		w("pitot_coefficient_u = %s\n", num(l.PitotCoeffU))
+	}
 	for _, kv := range [][2]string{{"moment", l.Moment}, {"dynamic_pressure", l.DynamicPressure}, {"speed", l.Speed},
 		{"spin", l.Spin}, {"direction", l.Direction}, {"temperature", l.Temperature}, {"design", l.Design}} {
 		if kv[1] != "" {

@@ -393,8 +393,8 @@ var (
 	sourceKeys     = []string{"name", "type", "port", "baud", "data_bits", "parity", "stop_bits", "format", "channels", "delimiter", "columns", "broker", "topic", "client_id", "username", "password_env", "ca_file", "rate_hz"}
 	channelKeys    = []string{"name", "quantity", "unit", "capacity", "calibration", "raw_range"}
 	publishKeys    = []string{"broker", "topic_prefix", "client_id", "username", "password_env", "ca_file"}
-	calKeys        = []string{"poly", "u", "id"}
-	liftKeys       = []string{"normal", "axial", "moment", "angle", "angle_u_deg", "dynamic_pressure", "pitot_coefficient", "speed", "spin", "direction", "temperature", "design", "design_alpha_zero_deg"}
+	calKeys        = []string{"poly", "u", "id", "span_u_pct"}
+	liftKeys       = []string{"normal", "axial", "moment", "angle", "angle_u_deg", "dynamic_pressure", "pitot_coefficient", "pitot_coefficient_u", "speed", "spin", "direction", "temperature", "design", "design_alpha_zero_deg"}
 	tapKeys        = []string{"name", "channel", "area_m2", "zone", "x_m", "y_m"}
 	zoneKeys       = []string{"name", "design_cp", "design_u"}
 	internalKeys   = []string{"channel", "cp"}
@@ -750,6 +750,12 @@ func (d *decoder) calibration(t *table, c Channel) Calibration {
 		}
 	}
 	cal.U, _ = t.num("u")
+	if v, ok := t.num("span_u_pct"); ok {
+		if !(v >= 0 && v < 100) {
+			t.errf("span_u_pct", ErrValue, "calibration span_u_pct must be a percentage from 0 to 100 (the relative standard uncertainty of the span), not %g", v)
+		}
+		cal.SpanURel = v / 100
+	}
 	if t.has("poly") && !t.has("u") && !t.has("id") {
 		unit := c.Unit
 		if unit == "" {
@@ -789,6 +795,9 @@ func (d *decoder) lift(t *table) Lift {
 	l.DynamicPressure, _ = t.str("dynamic_pressure")
 	if v, ok := t.num("pitot_coefficient"); ok {
 		l.PitotCoeff = v
+	}
+	if v, ok := t.num("pitot_coefficient_u"); ok {
+		l.PitotCoeffU = v
 	}
 	l.Speed, _ = t.str("speed")
 	l.Spin, _ = t.str("spin")

@@ -177,7 +177,7 @@ func TestParse_ErrorPositions(t *testing.T) {
 			{9, 1, "reference.chord_m", rig.ErrUnknownKey, `unknown key "chord_m" in [reference]`},
 			{11, 1, "channel[0].capacity", rig.ErrMissing, "capacity missing"},
 			{15, 1, "channel[0].capcity", rig.ErrUnknownKey, `unknown key "capcity" in [[channel]] (did you mean capacity?)`},
-			{16, 41, "channel[0].calibration.uu", rig.ErrUnknownKey, `unknown key "uu" in [[channel]] calibration (known keys: poly, u, id)`},
+			{16, 41, "channel[0].calibration.uu", rig.ErrUnknownKey, `unknown key "uu" in [[channel]] calibration (known keys: poly, u, id, span_u_pct)`},
 			{30, 1, "lifts", rig.ErrUnknownKey, `(did you mean lift?)`},
 		}},
 		{"references.toml", []want{

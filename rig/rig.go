@@ -173,7 +173,11 @@ func (a Affine) Apply(v float64) float64 { return a.Scale*v + a.Offset }
 type Calibration struct {
 	Poly []float64 // c0, c1, ... ascending powers; value = Σ c_k·reading^k, in Unit
 	U    float64   // standard uncertainty of one calibrated value, in Unit
-	ID   string    // stored calibration id; empty for inline
+	// SpanURel is the relative standard uncertainty of the calibration's
+	// span (its slope): a span error scales with the value, u = SpanURel·|value|,
+	// on top of U. Rig key span_u_pct (in %), default 0.
+	SpanURel float64
+	ID       string // stored calibration id; empty for inline
 }
 
 // Lift says how channels combine into forces, flow and angle.
@@ -188,6 +192,7 @@ type Lift struct {
 
 	DynamicPressure string  // pitot-static Δp channel (q = Δp)
 	PitotCoeff      float64 // pitot coefficient C: V = C·√(2Δp/ρ), so q = C²·Δp (default 1)
+	PitotCoeffU     float64 // standard uncertainty of C (rig key pitot_coefficient_u, default 0)
 	Speed           string  // speed channel (q = ½ρV²) when there is no pitot
 	Spin            string  // rotation channel for rotors
 	Direction       string  // wind direction channel for roofs

@@ -400,6 +400,9 @@ func (v *validator) lift() {
 	if !finite(l.AngleURad) || l.AngleURad < 0 {
 		v.add("lift.angle_u_deg", ErrValue, "lift: angle_u_deg must be ≥ 0 (a standard uncertainty in degrees)")
 	}
+	if !finite(l.PitotCoeffU) || l.PitotCoeffU < 0 {
+		v.add("lift.pitot_coefficient_u", ErrValue, "lift: pitot_coefficient_u must be ≥ 0 (the standard uncertainty of the pitot coefficient)")
+	}
 	if !finite(l.PitotCoeff) || l.PitotCoeff <= 0 {
 		v.add("lift.pitot_coefficient", ErrValue, "lift: pitot_coefficient must be > 0 (1 for a standard pitot-static tube)")
 	}

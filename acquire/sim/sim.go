@@ -53,7 +53,19 @@ type Config struct {
 	// so u′/U is a sum of AR(1) processes of very different τ, as an
 	// outdoor yard or a towing tank's residual motion gives. Nil: none.
 	Gusts []Gust
-	Start time.Time // device clock at the first sample (default: Now at Run, or the Unix epoch for Next)
+	// FlowRamp is the time the flow takes to come on after FlowOffBefore
+	// (q rising linearly from 0) and to go off after the last sweep (q
+	// falling linearly to 0), as a carriage accelerates and brakes. 0: the
+	// flow steps on and off.
+	FlowRamp time.Duration
+	// NormalSpanFrac is a span error of the normal-force cells: each reads
+	// (1 + NormalSpanFrac) × its true force, as with a calibration whose
+	// slope is off by that fraction. 0: no span error.
+	NormalSpanFrac float64
+	// PitotSpanFrac is the same for the pitot (its Δp reads (1 + PitotSpanFrac)
+	// × the true one). 0: none.
+	PitotSpanFrac float64
+	Start         time.Time // device clock at the first sample (default: Now at Run, or the Unix epoch for Next)
 }
 
 // Gust is one AR(1) component of the simulated flow's u′/U (Config.Gusts).
@@ -376,9 +388,22 @@ func (s *Rig) Next() acquire.Block {
 		}
 		q := s.cfg.QPa * (1 + u) * (1 + u)
 		sweepT := tS - s.cfg.FlowOffBefore.Seconds()
-		if s.cfg.FlowOff || sweepT < 0 || (s.cfg.Sweeps > 0 && sweepT >= float64(s.cfg.Sweeps)*s.SweepS()) {
+		endT := float64(s.cfg.Sweeps) * s.SweepS()
+		if s.cfg.FlowOff || sweepT < 0 || (s.cfg.Sweeps > 0 && sweepT >= endT+s.cfg.FlowRamp.Seconds()) {
 			q = 0 // flow off: carriage at rest
 			sweepT = max(sweepT, 0)
+			if s.cfg.Sweeps > 0 && sweepT > endT {
+				sweepT = endT // and the angle stays where the sweep ended
+			}
+		}
+		if ramp := s.cfg.FlowRamp.Seconds(); ramp > 0 && q != 0 {
+			switch {
+			case sweepT < ramp:
+				q *= sweepT / ramp
+			case s.cfg.Sweeps > 0 && sweepT >= endT:
+				q *= 1 - (sweepT-endT)/ramp
+				sweepT = endT // the angle stays where the sweep ended
+			}
 		}
 		alpha, _ := s.AngleAt(sweepT)
 		zero := s.cfg.ZeroDriftNPerS * tS
@@ -393,13 +418,13 @@ func (s *Rig) Next() acquire.Block {
 		}
 		loads := s.cellLoads(normal, axial, alpha)
 		for k := range s.normal {
-			put(&s.normal[k], loads[k]+zero)
+			put(&s.normal[k], (1+s.cfg.NormalSpanFrac)*loads[k]+zero)
 		}
 		for k := range s.axial {
 			put(&s.axial[k], loads[len(s.normal)+k]+zero)
 		}
 		if s.pitot != nil {
-			put(s.pitot, q/(s.pitotC*s.pitotC)) // the probe reads Δp = q/C²
+			put(s.pitot, (1+s.cfg.PitotSpanFrac)*q/(s.pitotC*s.pitotC)) // the probe reads Δp = q/C²
 		} else {
 			put(s.speed, math.Sqrt(2*q/s.rhoForV))
 		}

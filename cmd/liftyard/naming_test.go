@@ -24,6 +24,7 @@ var dimensionless = map[string]bool{
 	// coefficients and numbers of the trade
 	"CL": true, "CD": true, "CM": true, "Cp": true, "CpMean": true, "CpPeak": true, "CpMin": true, "CpRMS": true, "Re": true, "Fn": true, "En": true,
 	"SpinRatio": true, "DesignCL": true, "DesignCp": true, "DesignU": true, "PitotCoeff": true,
+	"PitotCoeffU": true, "URel": true, // the pitot coefficient's standard uncertainty; a relative one
 	"CD0": true, "K": true, "Mach": true,
 	"CLMax": true, "CLMinD": true, "CLAtZeroAlpha": true, "AspectRatio": true,
 	"ChiSq": true,                                                                       // a fit's weighted sum of squared residuals
@@ -116,7 +117,9 @@ func isQuantityType(e ast.Expr) bool {
 // dimensionlessSuffixes end names of dimensionless quantities: degrees of
 // freedom, fractions, coefficients. "SI" ends a value in the SI unit of its
 // channel's quantity (N for a force channel, Pa for a pressure channel).
-var dimensionlessSuffixes = []string{"Dof", "Frac", "Coeff", "SI", "PctFS"}
+var dimensionlessSuffixes = []string{"Dof", "Frac", "Coeff", "SI", "PctFS",
+	"URel", // a relative standard uncertainty (issue 10: span)
+}
 
 func hasUnit(name string) bool {
 	if dimensionless[name] {
