@@ -75,9 +75,12 @@ type Estimator struct {
 	seg  sampleBuf // samples of the open segment
 	// lastJoinN is the sample count of the last tick that joined seg.
 	lastJoinN int
-	det       detector    //
-	capN      int         // max samples per segment
-	uB        typeBInputs // latest Type B inputs
+	// joined is the mean angle and sample count of each tick of seg, for
+	// trimming the start of a move off its end.
+	joined []joinedTick
+	det    detector    //
+	capN   int         // max samples per segment
+	uB     typeBInputs // latest Type B inputs
 
 	segments  int
 	ignored   int // blocks ignored as unusable
@@ -408,7 +411,7 @@ func (e *Estimator) endTick(out []Segment) []Segment {
 		// The tick that left the bands shows the rig already moving, so the
 		// tick before it straddles the start of the move: drop it too
 		// (a 4°/s angle ramp stays inside a ±0.25° band for 60 ms).
-		e.seg.truncate(e.seg.len() - e.lastJoinN)
+		e.seg.truncate(e.seg.len() - e.lastJoinN - e.movingTail())
 		out = e.closeSegment(out)
 	}
 	e.lastJoinN = 0
@@ -418,14 +421,43 @@ func (e *Estimator) endTick(out []Segment) []Segment {
 		}
 		e.seg.appendBuf(&e.tick)
 		e.lastJoinN = e.tick.len()
+		e.joined = append(e.joined, joinedTick{alphaRad: a, n: e.tick.len()})
 	}
 	e.tick.reset()
 	return out
 }
 
+// joinedTick is one tick of the open segment.
+type joinedTick struct {
+	alphaRad float64
+	n        int
+}
+
+// movingTail is the number of samples at the end of the open segment,
+// before its last tick, that belong to a move already under way: the
+// ticks whose angle was not still against the tick before (a slow move
+// stays inside the plateau band for a while), and the tick where that
+// motion began. The last tick is dropped by the caller in any case.
+func (e *Estimator) movingTail() int {
+	last := len(e.joined) - 2 // the caller drops the very last tick
+	i := last
+	for i >= 1 && !e.det.alpha.still(e.joined[i].alphaRad, e.joined[i-1].alphaRad) {
+		i--
+	}
+	if i == last {
+		return 0
+	}
+	n := 0
+	for j := max(i, 0); j <= last; j++ { // ticks i+1…last moved; i is where it began
+		n += e.joined[j].n
+	}
+	return n
+}
+
 // closeSegment reduces the open segment, appends it to out when it spans at
 // least MinDuration, and empties it.
 func (e *Estimator) closeSegment(out []Segment) []Segment {
+	defer func() { e.joined = e.joined[:0] }()
 	defer e.seg.reset()
 	n := e.seg.len()
 	if n < 2 || time.Duration(int64(n)*e.dtUs)*time.Microsecond < e.cfg.Steady.MinDuration {

@@ -87,6 +87,13 @@ func TestCompareRuns_RepeatRunsAgree(t *testing.T) {
 	if frac < 0.90 {
 		t.Errorf("|En| ≤ 1 at %.3f of the points, want ≥ 0.90", frac)
 	}
+	// An honest U95(Δ) gives RMS En ≈ 1/k95 ≈ 0.51 (En = Δ/(k·u) with Δ
+	// of spread u); the set-point term may widen it a little. RMS En far
+	// below that means U(Δ) is inflated and would hide real differences
+	// (it was 0.13 while segments kept the tails of angle moves).
+	if rms := math.Sqrt(en2 / float64(n)); rms < 0.3 || rms > 0.75 {
+		t.Errorf("RMS En %.3f: want 0.3–0.75 for an honest U95 of the difference", rms)
+	}
 }
 
 // Ensure that a run with a known +0.05 C_L offset is flagged (|En| > 1)

@@ -36,7 +36,9 @@ import (
 //
 // A segment starts when a tick arrives with the flow on. The first Settle
 // of ticks are discarded while the rig settles: each must stay within the
-// bands of the tick before it, or settling starts again. After that every
+// bands of the tick before it, and the angle must be still (within
+// stillFrac of its band of the tick before), or settling starts again, so
+// the tail of an angle move never opens a segment. After that every
 // tick joins while it stays within the bands of the references, the means
 // of the ticks joined so far. The first tick outside ends the segment (it
 // starts a new one, in settling), as does flow off (tick q ≤ 5 % of the
@@ -111,6 +113,12 @@ type setpoint struct {
 	scale      float64
 	scaleStale bool
 	sorted     []float64
+	// Tick-to-tick differences, for stillness (angle only).
+	diffs       [scaleTicks]float64
+	diffN       int
+	stillWidth  float64
+	stillStale  bool
+	sortedDiffs []float64
 }
 
 func (s *setpoint) dev(v, ref float64) float64 {
@@ -162,6 +170,50 @@ func (s *setpoint) within(v, ref float64) bool {
 	return s.dev(v, ref) <= s.halfWidth()
 }
 
+// Stillness of the angle: how far one tick's mean may move from the tick
+// before while the set-point counts as still. It is k·σ_d, σ_d the robust
+// spread of the tick-to-tick differences of the run's angle (1.4826 × the
+// median |difference| over the last scaleTicks ticks with the flow on:
+// moves are a minority of the ticks, so the median sees the sensor's noise,
+// not the moves), with a floor of stillFloorFrac of the band's floor
+// (0.01°) for a quantised or noise-free angle. Until stillMinTicks
+// differences are known it is stillFrac of the band's floor (0.06° a tick,
+// a move of 0.6°/s).
+const (
+	stillFrac      = 0.25
+	stillFloorFrac = 0.04
+	stillMinTicks  = 20
+)
+
+// pushDiff records one tick-to-tick difference of the set-point.
+func (s *setpoint) pushDiff(d float64) {
+	if math.IsNaN(d) {
+		return
+	}
+	s.diffs[s.diffN%scaleTicks] = math.Abs(d)
+	s.diffN++
+	s.stillStale = true
+}
+
+// still reports whether v has moved less than the stillness width from
+// the tick before (ref); NaN is always still.
+func (s *setpoint) still(v, ref float64) bool {
+	if math.IsNaN(v) || math.IsNaN(ref) {
+		return true
+	}
+	if s.diffN < stillMinTicks {
+		return s.dev(v, ref) <= stillFrac*s.floor
+	}
+	if s.stillStale {
+		n := min(s.diffN, scaleTicks)
+		s.sortedDiffs = append(s.sortedDiffs[:0], s.diffs[:n]...)
+		slices.Sort(s.sortedDiffs)
+		s.stillWidth = math.Max(stillFloorFrac*s.floor, s.k*1.4826*s.sortedDiffs[n/2])
+		s.stillStale = false
+	}
+	return s.dev(v, ref) <= s.stillWidth
+}
+
 // detectorState is where the steady test stands.
 type detectorState int
 
@@ -171,7 +223,9 @@ const (
 	stSteady                        // ticks join the open segment
 )
 
-// detector runs the steady test on tick means. It knows nothing of samples.
+// detector runs the steady test on tick means. It knows nothing of samples
+// beyond the tick angles it was given (joined, for trimming a segment's
+// end).
 type detector struct {
 	cfg         SteadyConfig
 	settleTicks int
@@ -184,6 +238,7 @@ type detector struct {
 	qMaxRunPa float64
 	qHist     [qSmoothTicks]float64 // recent tick q, for the smoothed q
 	qHistN    int
+	prevAlpha float64 // the last tick's angle with the flow on (NaN: none)
 }
 
 // qSmoothTicks is the number of ticks whose mean q is compared with the
@@ -193,9 +248,10 @@ const qSmoothTicks = 5
 
 func newDetector(cfg SteadyConfig) detector {
 	return detector{cfg: cfg, settleTicks: int(math.Ceil(float64(cfg.Settle) / float64(tickDuration))),
-		alpha: setpoint{floor: cfg.AngleTolRad, k: cfg.TurbulenceK},
-		q:     setpoint{floor: cfg.QTolFrac, k: cfg.TurbulenceK, rel: true},
-		spin:  setpoint{floor: cfg.SpinTolFrac, k: cfg.TurbulenceK, rel: true},
+		alpha:     setpoint{floor: cfg.AngleTolRad, k: cfg.TurbulenceK},
+		q:         setpoint{floor: cfg.QTolFrac, k: cfg.TurbulenceK, rel: true},
+		spin:      setpoint{floor: cfg.SpinTolFrac, k: cfg.TurbulenceK, rel: true},
+		prevAlpha: math.NaN(),
 	}
 }
 
@@ -207,6 +263,8 @@ func (d *detector) step(alphaRad, qPa, spinRadPerS float64) (closeSeg, join bool
 		return false, false
 	}
 	d.qMaxRunPa = math.Max(d.qMaxRunPa, qPa)
+	prev := d.prevAlpha
+	d.prevAlpha = alphaRad
 	d.qHist[d.qHistN%qSmoothTicks] = qPa
 	d.qHistN++
 	qPa = 0
@@ -218,8 +276,10 @@ func (d *detector) step(alphaRad, qPa, spinRadPerS float64) (closeSeg, join bool
 	if qPa <= 0 || qPa <= flowOffFrac*d.qMaxRunPa {
 		closeSeg = d.state == stSteady
 		d.state = stIdle
+		d.prevAlpha = math.NaN()
 		return closeSeg, false
 	}
+	d.alpha.pushDiff(alphaRad - prev)
 	within := func() bool {
 		return d.alpha.within(alphaRad, d.alpha.ref) && d.q.within(qPa, d.q.ref) && d.spin.within(spinRadPerS, d.spin.ref)
 	}
@@ -228,7 +288,11 @@ func (d *detector) step(alphaRad, qPa, spinRadPerS float64) (closeSeg, join bool
 		d.startSettling(alphaRad, qPa, spinRadPerS)
 		return false, d.promote(alphaRad, qPa, spinRadPerS)
 	case stSettling:
-		if !within() {
+		// While settling the angle must also be still: a tick-to-tick
+		// change inside the plateau band is still a move when it is more
+		// than stillFrac of the band (a ramp's tail 0.2° a tick would pass
+		// a 0.25° band, and its trend would bias the mean and shrink N_eff).
+		if !within() || !d.alpha.still(alphaRad, d.alpha.ref) {
 			d.startSettling(alphaRad, qPa, spinRadPerS)
 			return false, d.promote(alphaRad, qPa, spinRadPerS)
 		}
@@ -280,4 +344,4 @@ func (d *detector) promote(alphaRad, qPa, spinRadPerS float64) bool {
 
 // reset returns to idle (gap in the clock, change of sample spacing); the
 // run's maximum q and the robust scales are kept.
-func (d *detector) reset() { d.state = stIdle; d.qHistN = 0 }
+func (d *detector) reset() { d.state = stIdle; d.qHistN = 0; d.prevAlpha = math.NaN() }
