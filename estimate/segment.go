@@ -70,7 +70,12 @@ const flowOffFrac = 0.05
 // Until then the band of q and spin is startFloorFactor times its floor,
 // so the gusts of the run's first seconds do not split its first step
 // (the angle keeps its floor: angle noise does not come from the flow).
+//
+// The robust scales are sorted afresh every scaleRefresh ticks (5 s), not
+// every tick: a median over 60 s barely moves in 5 s more, and sorting
+// it each tick cost most of the estimator's time.
 const (
+	scaleRefresh     = 50
 	scaleTicks       = 600
 	scaleMinTicks    = 100
 	startFloorFactor = 3
@@ -136,7 +141,7 @@ func (s *setpoint) push(v float64) {
 	}
 	s.devs[s.devN%scaleTicks] = s.dev(v, s.ref)
 	s.devN++
-	s.scaleStale = true
+	s.scaleStale = s.scaleStale || s.devN%scaleRefresh == 0 || s.devN == scaleMinTicks
 }
 
 // halfWidth is the band's half-width (fraction of |ref| when rel).
@@ -192,7 +197,7 @@ func (s *setpoint) pushDiff(d float64) {
 	}
 	s.diffs[s.diffN%scaleTicks] = math.Abs(d)
 	s.diffN++
-	s.stillStale = true
+	s.stillStale = s.stillStale || s.diffN%scaleRefresh == 0 || s.diffN == stillMinTicks
 }
 
 // still reports whether v has moved less than the stillness width from
