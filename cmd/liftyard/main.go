@@ -57,6 +57,7 @@ func verbs() []verb {
 		{"marks", "set steady segments of a run by hand and recompute its segments with them", runMarks},
 		{"compare", compareSummary, runCompare},
 		{"report", "write a printable HTML report of a run: plots, segments, uncertainty budgets, record quality", runReport},
+		{"balance", "fit a balance interaction matrix to combined bench loadings (prints the [balance] table)", runBalance},
 		{"tare", "fit the weight tare against the angle from a recorded flow-off angle sweep (prints [[tare]] tables)", runTare},
 		{"reprocess", "re-process a run from its stored raw samples as a new run (e.g. with a corrected rig file)", runReprocess},
 	}
