@@ -23,7 +23,7 @@ func TestReadBalanceLoads(t *testing.T) {
 	}
 	for _, tc := range []struct {
 		name, text, want string
-		line         int
+		line             int
 	}{
 		{"unknown column", "n_fore,n_aft,applied_normal,extra\n", `column 4 "extra"`, 1},
 		{"missing applied", "n_fore,n_aft\n1,2\n", "no column applied_normal", 1},

@@ -21,7 +21,7 @@ import (
 // prints a [balance] table that parses with the rig file and holds X⁻¹.
 func TestBalance_PrintsRigTable(t *testing.T) {
 	x := mat.NewDense(3, 3, []float64{1.04, 0.03, 0.10, 0.02, 0.97, -0.06, 0.05, 0.04, 1.02}) // invented cross-talk
-	offset := []float64{0.3, -0.2, 0.1}                                                        // no-load reading, kgf
+	offset := []float64{0.3, -0.2, 0.1}                                                       // no-load reading, kgf
 	rng := rand.New(rand.NewPCG(8, 8))
 	var csv strings.Builder
 	csv.WriteString("# invented bench loadings of a three-cell balance, kgf\napplied_n_fore,applied_n_aft,applied_axial,n_fore,n_aft,axial\n")
