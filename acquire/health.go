@@ -12,10 +12,12 @@ const (
 	ReasonFieldCount               // wrong number of values
 	ReasonRange                    // value out of the representable or rated range
 	ReasonNaN                      // NaN or Inf reading
+	ReasonSize                     // a message larger than the source's limit, refused before decoding
+	ReasonChannel                  // a message with none of the rig's channels (unknown channels are dropped)
 	numReasons
 )
 
-var reasonNames = [numReasons]string{"crc", "parse", "field_count", "range", "nan"}
+var reasonNames = [numReasons]string{"crc", "parse", "field_count", "range", "nan", "size", "channel"}
 
 func (r Reason) String() string {
 	if r < 0 || r >= numReasons {
@@ -35,7 +37,13 @@ type Health struct {
 	Gaps           atomic.Uint64 // blocks found missing at jumps in seq (only increases)
 	Late           atomic.Uint64 // missing blocks that arrived later and filled a counted gap
 	Reconnects     atomic.Uint64 // re-established connections
-	rejected       [numReasons]atomic.Uint64
+	// ConnectFailures counts connection attempts that failed (the broker or
+	// the device could not be reached); 0 once a link has held is normal.
+	ConnectFailures atomic.Uint64
+	// UnknownChannels counts series dropped because the rig file does not
+	// declare their channel.
+	UnknownChannels atomic.Uint64
+	rejected        [numReasons]atomic.Uint64
 }
 
 // Reject counts one rejected frame or message.
@@ -66,20 +74,26 @@ type HealthSnapshot struct {
 	Gaps           uint64            `json:"gaps"`
 	Late           uint64            `json:"late"`
 	Reconnects     uint64            `json:"reconnects"`
+	// ConnectFailures and UnknownChannels are omitted when 0 (runs stored
+	// before they existed read as 0).
+	ConnectFailures uint64 `json:"connect_failures,omitempty"`
+	UnknownChannels uint64 `json:"unknown_channels,omitempty"`
 }
 
 // Snapshot copies the counters.
 func (h *Health) Snapshot(source string) HealthSnapshot {
 	s := HealthSnapshot{
-		Source:         source,
-		Frames:         h.Frames.Load(),
-		Samples:        h.Samples.Load(),
-		SamplesDropped: h.SamplesDropped.Load(),
-		BlocksDropped:  h.BlocksDropped.Load(),
-		Duplicates:     h.Duplicates.Load(),
-		Gaps:           h.Gaps.Load(),
-		Late:           h.Late.Load(),
-		Reconnects:     h.Reconnects.Load(),
+		Source:          source,
+		Frames:          h.Frames.Load(),
+		Samples:         h.Samples.Load(),
+		SamplesDropped:  h.SamplesDropped.Load(),
+		BlocksDropped:   h.BlocksDropped.Load(),
+		Duplicates:      h.Duplicates.Load(),
+		Gaps:            h.Gaps.Load(),
+		Late:            h.Late.Load(),
+		Reconnects:      h.Reconnects.Load(),
+		ConnectFailures: h.ConnectFailures.Load(),
+		UnknownChannels: h.UnknownChannels.Load(),
 	}
 	for r := Reason(0); r < numReasons; r++ {
 		n := h.rejected[r].Load()

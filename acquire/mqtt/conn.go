@@ -199,7 +199,7 @@ func refusal(broker string, err error) error {
 // refusalWatch returns a paho connection-notification handler that, until
 // the first successful connection, sends connect errors that retrying cannot
 // fix on fatal (without blocking) and logs the others at debug level.
-func refusalWatch(broker string, fatal chan<- error, log *slog.Logger, everUp func() bool) paho.ConnectionNotificationHandler {
+func refusalWatch(broker string, fatal chan<- error, log *slog.Logger, everUp func() bool, failed func(error)) paho.ConnectionNotificationHandler {
 	return func(_ paho.Client, n paho.ConnectionNotification) {
 		var err error
 		switch n := n.(type) {
@@ -218,5 +218,8 @@ func refusalWatch(broker string, fatal chan<- error, log *slog.Logger, everUp fu
 			return
 		}
 		log.Debug("broker connect attempt failed", "broker", broker, "err", err)
+		if failed != nil {
+			failed(err)
+		}
 	}
 }

@@ -3,7 +3,9 @@ package mqtt_test
 import (
 	"context"
 	"fmt"
+	"net"
 	"slices"
+	"strings"
 	"sync"
 	"testing"
 	"time"
@@ -479,8 +481,9 @@ func TestSource_FullQueueDropsOldest(t *testing.T) {
 	assert.NoError(t, <-done)
 }
 
-// Ensure that a wild seq jump is counted in full but gives no nonsense
-// duration, and that a counter restart is reported and recording goes on.
+// Ensure that a seq jump the device clock does not confirm is a counter
+// restart rather than a huge gap, that a confirmed jump is counted with its
+// duration, and that recording goes on.
 func TestSource_WildJumpAndRestart(t *testing.T) {
 	br := brokerKinds[0].start(t)
 	ctx, cancel := context.WithTimeout(t.Context(), 15*time.Second)
@@ -488,12 +491,88 @@ func TestSource_WildJumpAndRestart(t *testing.T) {
 	r := runSource(t, ctx, &mqtt.Source{Name: "s", Broker: br.URL(), Topic: "wild/raw", ClientID: "wild-sub"})
 	c := rawClient(t, br.URL(), "wild-pub")
 	const far = 1 << 62
-	publishRaw(t, c, "wild/raw", 0, far, 1, 2)
-	assert.Equal(t, []uint64{0, far, 1, 2}, r.next(t, ctx, 4))
-	assert.Equal(t, uint64(far-1), r.src.Health.Gaps.Load())
+	publishRaw(t, c, "wild/raw", 0, far, 1, 2, 50)
+	assert.Equal(t, []uint64{0, far, 1, 2, 50}, r.next(t, ctx, 5))
+	// issue 16: the device clock does not confirm the jump to far (its
+	// time wraps), so it is a counter restart, not 2^62 missing blocks;
+	// the jump from 2 to 50 is confirmed and counted.
+	assert.Equal(t, uint64(47), r.src.Health.Gaps.Load())
 	gaps := r.ev.of(acquire.EventGap)
-	require.Len(t, gaps, 2)
-	assert.Zero(t, gaps[0].Duration, "a jump too long for a Duration has an unknown duration")
+	require.Len(t, gaps, 3)
+	assert.Contains(t, gaps[0].Message, "restarted its counter")
 	assert.Contains(t, gaps[1].Message, "restarted its counter")
+	assert.Contains(t, gaps[2].Message, "47 block(s) missing")
+	assert.Equal(t, 47*blockLen, gaps[2].Duration)
 	assert.Zero(t, r.src.Health.Duplicates.Load())
+}
+
+// Ensure that hostile payloads leave good blocks flowing (issue 16): an
+// oversize payload is refused before it is decoded, a payload naming
+// 200 000 channels is refused by the same limit, series of channels the rig
+// does not declare are dropped and counted, and a payload with none of the
+// rig's channels is rejected.
+func TestSource_HostilePayloads(t *testing.T) {
+	br := brokerKinds[0].start(t)
+	ctx, cancel := context.WithTimeout(t.Context(), 15*time.Second)
+	defer cancel()
+	r := runSource(t, ctx, &mqtt.Source{Name: "s", Broker: br.URL(), Topic: "hostile/raw", ClientID: "hostile-sub",
+		Channels: []string{"a"}, MaxPayload: 64 << 10})
+	c := rawClient(t, br.URL(), "hostile-pub")
+	pub := func(data []byte) {
+		t.Helper()
+		require.NoError(t, paho.WaitTokenTimeout(c.Publish("hostile/raw", 1, false, data), 5*time.Second))
+	}
+	publishRaw(t, c, "hostile/raw", 0)
+	// 200 000 channels: about 3 MB of JSON.
+	var many strings.Builder
+	many.WriteString(`{"seq":1,"t_us":1000,"dt_us":100,"v":{`)
+	for i := range 200_000 {
+		if i > 0 {
+			many.WriteString(",")
+		}
+		fmt.Fprintf(&many, `"c%d":[1]`, i)
+	}
+	many.WriteString("}}")
+	for range 40 {
+		pub([]byte(many.String()))
+	}
+	// A known channel beside an unknown one, then only unknown ones.
+	pub([]byte(`{"seq":1,"t_us":1000,"dt_us":100,"v":{"a":[1,1.5],"zz":[7,8]}}`))
+	pub([]byte(`{"seq":2,"t_us":2000,"dt_us":100,"v":{"zz":[7,8]}}`))
+	publishRaw(t, c, "hostile/raw", 3, 4)
+	assert.Equal(t, []uint64{0, 1, 3, 4}, r.next(t, ctx, 4))
+	assert.Equal(t, uint64(40), r.src.Health.Rejected(acquire.ReasonSize))
+	assert.Equal(t, uint64(1), r.src.Health.Rejected(acquire.ReasonChannel))
+	assert.Equal(t, uint64(2), r.src.Health.UnknownChannels.Load(), `"zz" twice`)
+	assert.Zero(t, r.src.Health.BlocksDropped.Load(), "no good block was pushed out")
+	rej := r.ev.of(acquire.EventRejected)
+	require.NotEmpty(t, rej)
+	for _, ev := range rej {
+		assert.Less(t, len(ev.Message), 300, "messages quote an excerpt, not the payload")
+	}
+}
+
+// Ensure that a broker that cannot be reached at start is visible at once
+// (issue 16): a counter and an event from the first failed attempt.
+func TestSource_UnreachableBrokerIsVisible(t *testing.T) {
+	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	require.NoError(t, err)
+	addr := ln.Addr().String()
+	require.NoError(t, ln.Close()) // nothing listens there now
+	ctx, cancel := context.WithTimeout(t.Context(), 10*time.Second)
+	defer cancel()
+	src := &mqtt.Source{Name: "s", Broker: "tcp://" + addr, Topic: "x/raw", ClientID: "unreachable"}
+	ev := &events{}
+	src.OnEvent = ev.add
+	done := make(chan error, 1)
+	go func() { done <- src.Run(ctx, make(chan acquire.Block, 1)) }()
+	deadline := time.Now().Add(5 * time.Second)
+	for src.Health.ConnectFailures.Load() == 0 && time.Now().Before(deadline) {
+		time.Sleep(20 * time.Millisecond)
+	}
+	assert.Positive(t, src.Health.ConnectFailures.Load(), "a failed attempt is counted within 5 s")
+	require.Eventually(t, func() bool { return len(ev.of(acquire.EventDisconnected)) > 0 }, time.Second, 20*time.Millisecond)
+	assert.Contains(t, ev.of(acquire.EventDisconnected)[0].Message, "cannot reach")
+	cancel()
+	assert.NoError(t, <-done)
 }

@@ -133,7 +133,7 @@ func (o *Outbox) Run(ctx context.Context) error {
 	opts.SetConnectionLostHandler(func(_ paho.Client, err error) {
 		log.Warn("outbox lost the broker; queueing", "broker", broker, "err", err)
 	})
-	opts.SetConnectionNotificationHandler(refusalWatch(broker, fatal, log, everUp.Load))
+	opts.SetConnectionNotificationHandler(refusalWatch(broker, fatal, log, everUp.Load, nil))
 	client := paho.NewClient(opts)
 	client.Connect()
 	defer client.Disconnect(250)

@@ -54,7 +54,7 @@ func (p *Publisher) Run(ctx context.Context, in <-chan acquire.Block) error {
 	var up atomic.Bool
 	opts := l.options()
 	opts.SetOnConnectHandler(func(paho.Client) { up.Store(true) })
-	opts.SetConnectionNotificationHandler(refusalWatch(broker, fatal, log, up.Load))
+	opts.SetConnectionNotificationHandler(refusalWatch(broker, fatal, log, up.Load, nil))
 	client := paho.NewClient(opts)
 	tok := client.Connect()
 	defer client.Disconnect(250)

@@ -33,14 +33,24 @@ type seqTracker struct {
 	t0      [SeqWindow]int64
 }
 
-// observe classifies seq (with its device time t0Us) and records it. For
-// seqJump, missing is the number of seqs skipped.
-func (w *seqTracker) observe(seq uint64, t0Us int64) (v seqVerdict, missing uint64) {
+// observe classifies seq (with its device time t0Us; blockUs is the
+// block's length, 0 when unknown) and records it. For seqJump, missing is
+// the number of seqs skipped.
+//
+// A jump ahead must be confirmed by the device clock: when the blocks it
+// says are missing would span more than twice the device time that passed
+// since the highest seq (plus one block), the counter jumped, not the data
+// — a corrupted or reset counter is handled as a restart, not as hours of
+// missing data.
+func (w *seqTracker) observe(seq uint64, t0Us, blockUs int64) (v seqVerdict, missing uint64) {
 	i := seq % SeqWindow
 	switch {
 	case !w.started:
 		w.reset(seq)
 		v = seqNext
+	case seq > w.hi && !w.plausible(seq, t0Us, blockUs):
+		w.reset(seq)
+		v = seqRestart
 	case seq > w.hi:
 		d := seq - w.hi
 		if d >= SeqWindow {
@@ -72,6 +82,20 @@ func (w *seqTracker) observe(seq uint64, t0Us int64) (v seqVerdict, missing uint
 	}
 	w.seen[i], w.t0[i] = true, t0Us
 	return v, missing
+}
+
+// plausible reports whether a jump ahead to seq at device time t0Us agrees
+// with the device time since the highest seq seen.
+func (w *seqTracker) plausible(seq uint64, t0Us, blockUs int64) bool {
+	if blockUs <= 0 || seq-w.hi <= 1 {
+		return true
+	}
+	elapsed := t0Us - w.t0[w.hi%SeqWindow]
+	if elapsed <= 0 {
+		return false // the device clock did not move on: not a gap
+	}
+	skipped := seq - w.hi - 1
+	return float64(skipped)*float64(blockUs) <= 2*float64(elapsed)+float64(blockUs)
 }
 
 func (w *seqTracker) reset(seq uint64) {

@@ -12,9 +12,14 @@ func TestSeqTracker(t *testing.T) {
 		t0      int64
 		want    seqVerdict
 		missing uint64
+		blockUs int64 // 0: unknown (no device-time check)
 	}
 	t0 := func(seq uint64) int64 { return int64(seq) * 1000 }
-	s := func(seq uint64, want seqVerdict, missing uint64) step { return step{seq, t0(seq), want, missing} }
+	s := func(seq uint64, want seqVerdict, missing uint64) step { return step{seq, t0(seq), want, missing, 0} }
+	// c is a block of 1 ms whose device time follows its seq, so the
+	// device clock confirms jumps; bogus is a jump the clock does not.
+	c := func(seq uint64, want seqVerdict, missing uint64) step { return step{seq, t0(seq), want, missing, 1000} }
+	bogus := func(seq uint64, t0 int64) step { return step{seq, t0, seqRestart, 0, 1000} }
 	tests := []struct {
 		name  string
 		steps []step
@@ -30,15 +35,21 @@ func TestSeqTracker(t *testing.T) {
 		}},
 		{"far below restarts", []step{s(5000, seqNext, 0), s(0, seqRestart, 0), s(1, seqNext, 0), s(5000, seqJump, 4998)}},
 		{"same seq other time is a restart", []step{
-			s(0, seqNext, 0), s(1, seqNext, 0), s(2, seqNext, 0), {0, 99, seqRestart, 0}, {1, 100, seqNext, 0}, {1, 100, seqDuplicate, 0},
+			s(0, seqNext, 0), s(1, seqNext, 0), s(2, seqNext, 0), {0, 99, seqRestart, 0, 0}, {1, 100, seqNext, 0, 0}, {1, 100, seqDuplicate, 0, 0},
 		}},
 		{"below the first seq is early, not late", []step{s(10, seqNext, 0), s(12, seqJump, 1), s(8, seqEarly, 0), s(8, seqDuplicate, 0), s(11, seqLate, 0)}},
+		// issue 16: a jump from ~100 to 999009 recorded "998902 blocks missing".
+		{"jump the device clock confirms", []step{c(100, seqNext, 0), c(101, seqNext, 0), c(5101, seqJump, 4999)}},
+		{"jump the device clock denies is a restart", []step{
+			c(100, seqNext, 0), c(101, seqNext, 0), bogus(999009, t0(102)), {999010, t0(103), seqNext, 0, 1000},
+		}},
+		{"jump with the device clock standing still", []step{c(100, seqNext, 0), bogus(150, t0(100))}},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
 			var w seqTracker
 			for i, st := range tt.steps {
-				v, missing := w.observe(st.seq, st.t0)
+				v, missing := w.observe(st.seq, st.t0, st.blockUs)
 				if v != st.want || missing != st.missing {
 					t.Fatalf("step %d (seq %d): got verdict %d missing %d, want %d missing %d", i, st.seq, v, missing, st.want, st.missing)
 				}
@@ -75,7 +86,7 @@ func TestSeqTracker_ShuffledWithRepeats(t *testing.T) {
 		var gaps, late uint64
 		hi := arrivals[0]
 		for _, seq := range arrivals {
-			v, missing := w.observe(seq, int64(seq))
+			v, missing := w.observe(seq, int64(seq), 0)
 			switch v {
 			case seqDuplicate:
 				continue

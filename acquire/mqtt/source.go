@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"log/slog"
 	"math"
+	"strings"
 	"sync"
 	"sync/atomic"
 	"time"
@@ -20,6 +21,16 @@ import (
 // decoder. 256 blocks is about 25 s of data at 10 blocks/s: enough to ride
 // out a slow disk, small enough that a stuck consumer is noticed.
 const QueueSize = 256
+
+// QueueBytes bounds the same queue in bytes: 256 payloads at the size limit
+// would hold 256 MiB, 32 MiB is a few seconds of the largest honest blocks.
+const QueueBytes = 32 << 20
+
+// DefaultMaxPayload is the largest payload a Source decodes when its
+// MaxPayload is 0: 1 MiB holds 16 channels × 4096 samples of JSON numbers
+// with room to spare. A larger message is counted (reason "size") and
+// dropped before it is copied or decoded.
+const DefaultMaxPayload = 1 << 20
 
 // Source subscribes to a topic and turns each JSON block payload into an
 // acquire.Block. Its Health may be read while it runs. Build one with
@@ -59,15 +70,27 @@ type Source struct {
 	// reason. It is called from paho's and Run's goroutines; it must not block.
 	OnEvent acquire.EventFunc
 
+	// MaxPayload is the largest payload decoded, bytes; 0 means
+	// DefaultMaxPayload.
+	MaxPayload int
+	// Channels, when not nil, are the channels this source may carry (the
+	// rig file's): series of other channels are dropped and counted in
+	// Health.UnknownChannels, and a payload with none of them is rejected
+	// (reason "channel").
+	Channels []string
+
 	Health acquire.Health
 
 	readyOnce sync.Once
 	ready     chan struct{}
 	subs      atomic.Uint64 // subscriptions established (first one and after each reconnect)
 
-	mu    sync.Mutex
-	queue []received // bounded FIFO, guarded by mu
-	wake  chan struct{}
+	mu     sync.Mutex
+	queue  []received // bounded FIFO, guarded by mu
+	queued int        // bytes in queue, guarded by mu
+	wake   chan struct{}
+	known  map[string]bool // Channels as a set; nil: any
+	warned atomic.Bool     // an unknown channel was reported
 
 	link       sync.Mutex // guards the fields below (paho calls back from several goroutines)
 	everUp     bool       // connected at least once
@@ -125,15 +148,33 @@ func (s *Source) Run(ctx context.Context, out chan<- acquire.Block) error {
 	if id == "" {
 		id = "liftyard-" + s.Name
 	}
+	maxPayload := s.MaxPayload
+	if maxPayload <= 0 {
+		maxPayload = DefaultMaxPayload
+	}
+	if s.Channels != nil {
+		s.known = make(map[string]bool, len(s.Channels))
+		for _, c := range s.Channels {
+			s.known[c] = true
+		}
+	}
 	handler := func(_ paho.Client, m paho.Message) {
-		// Never block here: copy, queue, drop the oldest when full.
+		// Never block here: refuse what is too large before copying it,
+		// copy, queue, drop the oldest when full.
+		if n := len(m.Payload()); n > maxPayload {
+			s.reject(now(), acquire.ReasonSize, fmt.Errorf("payload of %d bytes, the limit is %d", n, maxPayload), log)
+			return
+		}
 		p := append([]byte(nil), m.Payload()...)
 		s.mu.Lock()
-		if len(s.queue) >= QueueSize {
+		for len(s.queue) > 0 && (len(s.queue) >= QueueSize || s.queued+len(p) > QueueBytes) {
+			s.queued -= len(s.queue[0].payload)
+			s.queue[0] = received{}
 			s.queue = s.queue[1:]
 			s.Health.BlocksDropped.Add(1)
 		}
 		s.queue = append(s.queue, received{at: now(), payload: p})
+		s.queued += len(p)
 		s.mu.Unlock()
 		select {
 		case s.wake <- struct{}{}:
@@ -211,10 +252,18 @@ func (s *Source) Run(ctx context.Context, out chan<- acquire.Block) error {
 		log.Warn("broker connection lost", "source", s.Name, "err", why)
 		s.emit(at, acquire.EventDisconnected, 0, fmt.Sprintf("lost %s: %s; reconnecting", broker, why))
 	})
-	opts.SetConnectionNotificationHandler(refusalWatch(broker, fatal, log, func() bool {
+	everUp := func() bool {
 		s.link.Lock()
 		defer s.link.Unlock()
 		return s.everUp
+	}
+	opts.SetConnectionNotificationHandler(refusalWatch(broker, fatal, log, everUp, func(err error) {
+		// Visible from the first failed attempt: an unreachable broker
+		// must not look like a quiet one.
+		if s.Health.ConnectFailures.Add(1) == 1 && !everUp() {
+			log.Warn("cannot reach the broker; retrying", "source", s.Name, "broker", broker, "err", err)
+			s.emit(now(), acquire.EventDisconnected, 0, fmt.Sprintf("cannot reach %s: %v; retrying until it answers", broker, err))
+		}
 	}))
 	client := paho.NewClient(opts)
 	client.AddRoute(s.Topic, handler)
@@ -239,6 +288,7 @@ func (s *Source) Run(ctx context.Context, out chan<- acquire.Block) error {
 			r := s.queue[0]
 			s.queue[0] = received{}
 			s.queue = s.queue[1:]
+			s.queued -= len(r.payload)
 			s.mu.Unlock()
 			b, ok := s.accept(r, log)
 			if !ok {
@@ -271,7 +321,18 @@ func (s *Source) readyChan() chan struct{} {
 	return s.ready
 }
 
-// accept decodes one payload and does the seq accounting.
+// reject counts a payload refused for reason; the first of each reason is
+// logged and reported as an event.
+func (s *Source) reject(at time.Time, reason acquire.Reason, err error, log *slog.Logger) {
+	if s.Health.Rejected(reason) == 0 {
+		log.Warn("rejected payload", "source", s.Name, "reason", reason, "err", err)
+		s.emit(at, acquire.EventRejected, 0, fmt.Sprintf("first payload rejected for %s: %v (later ones are counted)", reason, err))
+	}
+	s.Health.Reject(reason)
+}
+
+// accept decodes one payload, drops the channels the rig does not declare
+// and does the seq accounting.
 func (s *Source) accept(r received, log *slog.Logger) (acquire.Block, bool) {
 	b, err := acquire.DecodePayload(s.Name, r.payload)
 	if err != nil {
@@ -280,14 +341,33 @@ func (s *Source) accept(r received, log *slog.Logger) (acquire.Block, bool) {
 		if errors.As(err, &pe) {
 			reason = pe.Reason
 		}
-		if s.Health.Rejected(reason) == 0 {
-			log.Warn("rejected payload", "source", s.Name, "reason", reason, "err", err)
-			s.emit(r.at, acquire.EventRejected, 0, fmt.Sprintf("first payload rejected for %s: %v (later ones are counted)", reason, err))
-		}
-		s.Health.Reject(reason)
+		s.reject(r.at, reason, err, log)
 		return b, false
 	}
-	v, missing := s.seq.observe(b.Seq, b.T0Us)
+	if s.known != nil {
+		kept := b.Series[:0]
+		var unknown []string
+		for _, ser := range b.Series {
+			if s.known[ser.Channel] {
+				kept = append(kept, ser)
+			} else if len(unknown) < 3 {
+				unknown = append(unknown, ser.Channel)
+			}
+		}
+		if n := len(b.Series) - len(kept); n > 0 {
+			s.Health.UnknownChannels.Add(uint64(n))
+			if !s.warned.Swap(true) {
+				log.Warn("payload names channels the rig file does not declare; they are dropped", "source", s.Name, "channels", unknown)
+				s.emit(r.at, acquire.EventRejected, 0, fmt.Sprintf("%d channel(s) not in the rig file, e.g. %s, dropped (later ones are counted)", n, excerpt(unknown)))
+			}
+		}
+		b.Series = kept
+		if len(kept) == 0 {
+			s.reject(r.at, acquire.ReasonChannel, errors.New("none of its channels is declared in the rig file"), log)
+			return b, false
+		}
+	}
+	v, missing := s.seq.observe(b.Seq, b.T0Us, int64(b.Len())*b.DtUs)
 	switch v {
 	case seqDuplicate:
 		s.Health.Duplicates.Add(1)
@@ -312,4 +392,16 @@ func (s *Source) accept(r received, log *slog.Logger) (acquire.Block, bool) {
 	s.Health.Frames.Add(1)
 	s.Health.Samples.Add(uint64(b.Len()))
 	return b, true
+}
+
+// excerpt lists a few names for a message, each cut to 40 characters.
+func excerpt(names []string) string {
+	out := make([]string, len(names))
+	for i, n := range names {
+		if len(n) > 40 {
+			n = n[:40] + "…"
+		}
+		out[i] = fmt.Sprintf("%q", n)
+	}
+	return strings.Join(out, ", ")
 }

@@ -101,6 +101,9 @@ func buildSources(r *rig.Rig, logger *slog.Logger, rhoKgPerM3 float64, onEvent a
 				return nil, err
 			}
 			src.Logger, src.OnEvent = logger, onEvent
+			for _, c := range r.Channels { // only the rig's channels are recorded
+				src.Channels = append(src.Channels, c.Name)
+			}
 			out = append(out, Source{Name: s.Name, Src: src, Health: &src.Health})
 		case rig.SourceSimulated:
 			q := estimate.DynamicPressure(rhoKgPerM3, defaultSpeed(r.Fluid))
