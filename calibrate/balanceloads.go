@@ -81,7 +81,7 @@ func ReadBalanceLoads(r io.Reader, outputs, components []string) (loads []Balanc
 				iApp[i] = -1
 			}
 			for c, name := range rec {
-				name = strings.TrimSpace(name)
+				name = strings.TrimSpace(strings.TrimPrefix(name, "\ufeff")) // a spreadsheet's byte-order mark
 				if n, ok := strings.CutPrefix(name, AppliedPrefix); ok {
 					if k := slices.Index(components, n); k >= 0 && iApp[k] < 0 {
 						iApp[k] = c

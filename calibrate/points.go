@@ -85,7 +85,9 @@ func ReadPoints(r io.Reader) ([]Point, error) {
 			header = false
 			ncols = len(rec)
 			for i, f := range rec {
-				name := strings.ToLower(strings.TrimSpace(f))
+				// A byte-order mark from a spreadsheet export is not part of
+				// the first name (issue 16; the raw CSV reader takes one too).
+				name := strings.ToLower(strings.TrimSpace(strings.TrimPrefix(f, "\ufeff")))
 				var idx *int
 				switch name {
 				case colApplied:

@@ -32,6 +32,11 @@ func TestReadPoints(t *testing.T) {
 			want: []calibrate.Point{{Applied: 0, Reading: 12}, {Applied: 50, Reading: 1012.5}},
 		},
 		{
+			name: "byte-order mark of a spreadsheet export", // issue 16
+			in:   "\ufeffapplied,reading\n0,12\n50,1012.5\n",
+			want: []calibrate.Point{{Applied: 0, Reading: 12}, {Applied: 50, Reading: 1012.5}},
+		},
+		{
 			name: "directions any case, blank allowed, comments and blank lines",
 			in:   "# fore cell, dead weights\n\napplied,reading,direction\n0,10,UP\n  # indented comment\n50,510,Up\n\n50,512,down\n0,11,\n",
 			want: []calibrate.Point{

@@ -55,6 +55,9 @@ func Parse(filename string, data []byte) (*Rig, error) {
 		errFile = noFile
 	}
 	d := &decoder{file: errFile, reported: map[string]bool{}}
+	if err := guard(errFile, data); err != nil {
+		return nil, Errors{err.(*Error)}
+	}
 	var doc map[string]any
 	if _, err := toml.Decode(string(data), &doc); err != nil {
 		var pe toml.ParseError
