@@ -1,8 +1,12 @@
 package main
 
 import (
+	"bytes"
+	"context"
 	"os"
 	"path/filepath"
+	"strings"
+	"sync"
 	"testing"
 	"time"
 
@@ -11,7 +15,9 @@ import (
 
 	"liftyard/acquire/sim"
 	"liftyard/estimate"
+	"liftyard/internal/mosquittotest"
 	"liftyard/rig"
+	"liftyard/storage"
 )
 
 // rotorRig is the example rotating cylinder (an invented rig of our own).
@@ -68,4 +74,74 @@ func TestImport_RotorSpinSteps(t *testing.T) {
 		assert.Nil(t, row["alpha_deg_design"])
 	}
 	assert.GreaterOrEqual(t, inside, len(steps)-1, "C_L inside U95 of the truth for at least 6 of 7")
+}
+
+// Ensure the issue 12 "must show": `liftyard simulate --rig <rotor rig>`
+// publishing to a real broker (Debian mosquitto) and `liftyard record`
+// subscribed to it give stored segments with a spin ratio S > 0 and its
+// U95; the simulator publishes the tachometer channel.
+func TestSimulateRecord_Rotor(t *testing.T) {
+	br := mosquittotest.Start(t)
+	text, err := os.ReadFile(rotorRig)
+	require.NoError(t, err)
+	toml := strings.ReplaceAll(string(text), "tcp://127.0.0.1:1883", br.URL())
+	abs, err := filepath.Abs(filepath.Join("..", "..", "testdata", "design", "rotor-cylinder-design.csv"))
+	require.NoError(t, err)
+	toml = strings.ReplaceAll(toml, "../design/rotor-cylinder-design.csv", abs)
+	dir := t.TempDir()
+	rigPath := filepath.Join(dir, "rotor.toml")
+	require.NoError(t, os.WriteFile(rigPath, []byte(toml), 0o644))
+
+	db := filepath.Join(dir, "rotor.db")
+	ctx, cancel := context.WithTimeout(t.Context(), 9*time.Second)
+	defer cancel()
+	var wg sync.WaitGroup
+	var recOut, simOut bytes.Buffer
+	var recCode, simCode int
+	wg.Go(func() {
+		recCode = run(ctx, []string{"record", "--rig", rigPath, "--db", db, "--addr", "127.0.0.1:0"}, &recOut, &recOut)
+	})
+	wg.Go(func() {
+		time.Sleep(time.Second) // let the recorder subscribe first
+		simCode = run(ctx, []string{"simulate", "--rig", rigPath, "--mqtt", br.URL(), "--seed", "4"}, &simOut, &simOut)
+	})
+	wg.Wait()
+	require.Equal(t, 0, recCode, recOut.String())
+	require.Equal(t, 0, simCode, simOut.String())
+	assert.Contains(t, simOut.String(), "tach", "the simulator publishes the tachometer")
+
+	st, err := storage.Open(db, storage.Options{ReadOnly: true})
+	require.NoError(t, err)
+	defer st.Close()
+	r, err := st.LatestRun()
+	require.NoError(t, err)
+	segs, err := st.Segments(r.ID)
+	require.NoError(t, err)
+	require.NotEmpty(t, segs)
+	spinning := 0
+	for _, s := range segs {
+		t.Logf("segment %d: S %.3f ± %.3f, C_L %.3f ± %.3f", s.Index, s.SpinRatio, s.SpinRatioValue().U95(), s.CL.X, s.CL.U95())
+		if s.SpinRatio > 0.2 {
+			spinning++
+			assert.Greater(t, s.SpinRatioU, 0.0)
+			assert.Greater(t, s.CL.X, 0.5, "a spinning cylinder lifts")
+		}
+	}
+	assert.GreaterOrEqual(t, spinning, 1, "segments with S > 0")
+}
+
+// Ensure that a rig kind with no simulator is refused with a plain
+// message, never simulated with zeros (issue 12).
+func TestSimulate_KindWithoutSimulator(t *testing.T) {
+	r, err := rig.Load(rotorRig)
+	require.NoError(t, err)
+	r.Kind = "kite"
+	_, err = sim.ForRig(r, sim.Common{QPa: 40, RhoKgPerM3: 1.2})
+	require.ErrorIs(t, err, sim.ErrNoSimulator)
+	assert.ErrorContains(t, err, `rig kind "kite"`)
+	// A rotor rig without its tachometer is refused too, not run at S = 0.
+	r.Kind = rig.KindRotor
+	r.Lift.Spin = ""
+	_, err = sim.ForRig(r, sim.Common{QPa: 40, RhoKgPerM3: 1.2})
+	assert.ErrorContains(t, err, "tachometer")
 }
