@@ -55,6 +55,10 @@ func TestImport_RotorSpinSteps(t *testing.T) {
 	db := filepath.Join(t.TempDir(), "rotor.db")
 	code, _, errOut := runCLI(t, "import", "--rig", rotorRig, "--db", db, csvPath)
 	require.Equal(t, 0, code, errOut)
+	assert.Contains(t, errOut, "C_L(S): weighted least-squares cubic in S", "the summary states the fitted curve")
+	assert.Contains(t, errOut, "compared at each segment's spin ratio")
+	assert.NotContains(t, errOut, "lift slope", "no foil lift-curve lines for a rotor")
+	t.Log(errOut)
 
 	rows := exportRows(t, db, "1")
 	steps := s.Config().SpinSteps
