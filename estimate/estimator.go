@@ -593,6 +593,9 @@ func (e *Estimator) Live() (lv Live, ok bool) {
 		Re: p.Re, Fn: e.froude(p.SpeedMPerS.X), LiftN: p.LiftN, DragN: p.DragN, CL: p.CL, CD: p.CD,
 		Steady: e.det.state == stSteady && e.seg.len() > 0, Segments: e.segments,
 	}
+	if sr, ok := e.spinRatio(buf.spinRadPerS, p.SpeedMPerS); ok {
+		lv.SpinRatio, lv.OmegaRadPerS = sr, nanMean(buf.spinRadPerS)
+	}
 	if flErr != nil {
 		lv.Warnings = append(lv.Warnings, fmt.Sprintf("fluid temperature channel out of range (%v): using the rig's fixed conditions", flErr))
 	}

@@ -89,10 +89,15 @@ type Live struct {
 	DragN      calibrate.Value
 	CL         calibrate.Value
 	CD         calibrate.Value
-	Steady     bool // the window lies inside a steady segment
-	Segments   int  // segments completed so far in this run
-	Warnings   []string
-	Zones      []ZoneLive // roof rigs: each zone's net Cp over the window
+	// SpinRatio is a rotor's spin ratio ωR/V over the window with its
+	// standard uncertainty, and OmegaRadPerS its mean spin; both zero for
+	// other kinds (and when no spin sample is in the window).
+	SpinRatio    calibrate.Value
+	OmegaRadPerS float64
+	Steady       bool // the window lies inside a steady segment
+	Segments     int  // segments completed so far in this run
+	Warnings     []string
+	Zones        []ZoneLive // roof rigs: each zone's net Cp over the window
 }
 
 // ZoneLive is one roof zone's moving-window estimate.
