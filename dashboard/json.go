@@ -75,9 +75,14 @@ type liveJSON struct {
 	LiftU95N    num       `json:"lift_u95_n"`
 	DragN       num       `json:"drag_n"`
 	DragU95N    num       `json:"drag_u95_n"`
-	Steady      bool      `json:"steady"`
-	Segments    int       `json:"segments"`
-	Warnings    []string  `json:"warnings"`
+	// SpinRatio (± SpinRatioU95) and SpinRPM are a rotor's spin ratio
+	// and spin over the window (issue 12); absent for other kinds.
+	SpinRatio    *num     `json:"spin_ratio,omitempty"`
+	SpinRatioU95 *num     `json:"spin_ratio_u95,omitempty"`
+	SpinRPM      *num     `json:"spin_rpm,omitempty"`
+	Steady       bool     `json:"steady"`
+	Segments     int      `json:"segments"`
+	Warnings     []string `json:"warnings"`
 	// Zones is each roof zone over the window (roof rigs only; absent
 	// otherwise).
 	Zones []zoneLiveJSON `json:"zones,omitempty"`
@@ -130,7 +135,7 @@ func toLiveJSON(l estimate.Live) liveJSON {
 	if w == nil {
 		w = []string{}
 	}
-	return liveJSON{
+	out := liveJSON{
 		T:           l.T.UTC(),
 		WindowS:     num(l.Window.Seconds()),
 		N:           l.N,
@@ -156,6 +161,11 @@ func toLiveJSON(l estimate.Live) liveJSON {
 		Warnings:    w,
 		Zones:       toZonesJSON(l.Zones),
 	}
+	if l.SpinRatio != (calibrate.Value{}) {
+		s, u, rpm := num(l.SpinRatio.X), u95(l.SpinRatio), num(l.OmegaRadPerS*60/(2*math.Pi)) // rad/s → rpm for display
+		out.SpinRatio, out.SpinRatioU95, out.SpinRPM = &s, &u, &rpm
+	}
+	return out
 }
 
 // segmentJSON is one result row as the API (/api/v1/runs/{id}/segments),

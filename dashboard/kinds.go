@@ -45,6 +45,7 @@ func viewOf(kind string) kindView {
 		}
 	case rig.KindRotor:
 		v := balanceView()
+		v.Layout = "balance rotor" // the C_L tiles with S and rpm instead of α (style.css)
 		v.plotAlt = "C_L against spin ratio for run %d, with U95 error bars"
 		return v
 	}

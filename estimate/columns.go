@@ -128,6 +128,13 @@ var columns = []Column{
 		Read: valueU95(func(s *Segment) calibrate.Value { return s.CD }, nil)},
 	{Name: "spin_ratio", Type: TypeFloat, Kinds: kindsRotor, Doc: "spin ratio S = ωR/V",
 		Read: number(func(s *Segment) float64 { return s.SpinRatio })},
+	{Name: "spin_ratio_u95", Type: TypeFloat, Kinds: kindsRotor, Doc: "expanded uncertainty of spin_ratio (tachometer, radius, speed); absent in rows stored before it was computed",
+		Read: func(_ uint64, s *Segment) (any, bool) {
+			if !(s.SpinRatioU > 0) {
+				return nil, false
+			}
+			return finiteOK(s.SpinRatioValue().U95())
+		}},
 	{Name: "design_cl", Type: TypeFloat, Kinds: kindsBalance, Doc: "design C_L at the segment's angle; absent without a design value",
 		Read: valueX(func(s *Segment) calibrate.Value { return s.DesignCL }, nil)},
 	{Name: "design_cl_u95", Type: TypeFloat, Kinds: kindsBalance, Doc: "expanded uncertainty of design_cl",

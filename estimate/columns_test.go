@@ -40,6 +40,7 @@ func foilSeg() estimate.Segment {
 func rotorSeg() estimate.Segment {
 	s := foilSeg()
 	s.Kind, s.AlphaRad, s.Fn, s.SpinRatio, s.DesignCL, s.En = rig.KindRotor, calibrate.Value{}, 0, 1.5, calibrate.Value{}, math.NaN()
+	s.SpinRatioU, s.SpinRatioDof = 0.01, 50
 	return s
 }
 
@@ -99,6 +100,7 @@ func TestColumns_Table(t *testing.T) {
 		{"cd", balance, true, true, false, false},
 		{"cd_u95", balance, true, true, false, false},
 		{"spin_ratio", []rig.Kind{rig.KindRotor}, false, true, false, false},
+		{"spin_ratio_u95", []rig.Kind{rig.KindRotor}, false, true, false, false},
 		{"design_cl", balance, true, false, false, false},
 		{"design_cl_u95", balance, true, false, false, false},
 		{"cp_mean", roof, false, false, true, true},

@@ -85,6 +85,41 @@ func ParseDesignCurve(r io.Reader, name string) (*DesignCurve, error) {
 	if err != nil {
 		return nil, err
 	}
+	rows, err := readCurve(data, name, "alpha_deg")
+	if err != nil {
+		return nil, err
+	}
+	fail := func(line int, col, format string, args ...any) error {
+		return designCurveError(name, line, col, format, args...)
+	}
+	d := &DesignCurve{Name: name}
+	if a0, ok := settings["alpha_zero_deg"]; ok {
+		d.AlphaZeroRad = calibrate.Value{X: rig.Rad(a0), U: rig.Rad(settings["alpha_zero_u95_deg"]) / calibrate.K95(math.Inf(1)), Dof: math.Inf(1)}
+		d.HasAlphaZero = true
+	}
+	for i, rw := range rows {
+		if i > 0 && rw.a == rows[i-1].a {
+			return nil, fail(rw.line, "alpha_deg", "angle %g° is given twice (also on line %d)", rw.a, rows[i-1].line)
+		}
+		d.AlphaRad = append(d.AlphaRad, rig.Rad(rw.a))
+		d.CL = append(d.CL, rw.c)
+		d.CLU95 = append(d.CLU95, rw.u)
+	}
+	return d, nil
+}
+
+// curveRow is one data row of a design CSV: the set-point x (in the file's
+// unit), C_L and its expanded uncertainty.
+type curveRow struct {
+	a, c, u float64
+	line    int
+}
+
+// readCurve reads the header and rows of a design CSV whose set-point
+// column is xCol ("alpha_deg" or "spin_ratio"); a header with the other
+// set-point says which kind of rig it is for.
+func readCurve(data []byte, name, xCol string) ([]curveRow, error) {
+	want := xCol + ",cl[,cl_u95]"
 	cr := csv.NewReader(bytes.NewReader(data))
 	cr.FieldsPerRecord = -1
 	cr.TrimLeadingSpace = true
@@ -94,31 +129,34 @@ func ParseDesignCurve(r io.Reader, name string) (*DesignCurve, error) {
 	}
 	header, err := cr.Read()
 	if err == io.EOF {
-		return nil, fail(0, "", "empty file: want a header alpha_deg,cl[,cl_u95] and at least two rows")
+		return nil, fail(0, "", "empty file: want a header %s and at least two rows", want)
 	}
 	if err != nil {
 		return nil, csvFail(name, err)
 	}
-	iA, iC, iU := -1, -1, -1
+	iA, iC, iU, other := -1, -1, -1, ""
 	for i, h := range header {
-		switch strings.ToLower(strings.TrimSpace(strings.TrimPrefix(h, "\ufeff"))) {
-		case "alpha_deg":
+		switch k := strings.ToLower(strings.TrimSpace(strings.TrimPrefix(h, "\ufeff"))); k {
+		case xCol:
 			iA = i
 		case "cl":
 			iC = i
 		case "cl_u95":
 			iU = i
+		case "alpha_deg", "spin_ratio":
+			other = k
 		}
 	}
 	line, _ := cr.FieldPos(0)
-	if iA < 0 || iC < 0 {
-		return nil, fail(line, "", "header %q lacks alpha_deg and cl (want alpha_deg,cl[,cl_u95])", strings.Join(header, ","))
+	switch {
+	case iA < 0 && other == "spin_ratio":
+		return nil, fail(line, "", "header %q is against the spin ratio: such a design is for a rotor rig; a foil's or body's design is alpha_deg,cl[,cl_u95]", strings.Join(header, ","))
+	case iA < 0 && other == "alpha_deg":
+		return nil, fail(line, "", "header %q is against the angle of attack: a rotor's design is against the spin ratio, spin_ratio,cl[,cl_u95]", strings.Join(header, ","))
+	case iA < 0 || iC < 0:
+		return nil, fail(line, "", "header %q lacks %s and cl (want %s)", strings.Join(header, ","), xCol, want)
 	}
-	type row struct {
-		a, c, u float64
-		line    int
-	}
-	var rows []row
+	var rows []curveRow
 	for {
 		rec, err := cr.Read()
 		if err == io.EOF {
@@ -139,9 +177,9 @@ func ParseDesignCurve(r io.Reader, name string) (*DesignCurve, error) {
 			}
 			return v, nil
 		}
-		var rw row
+		var rw curveRow
 		rw.line = line
-		if rw.a, err = num(iA, "alpha_deg"); err != nil {
+		if rw.a, err = num(iA, xCol); err != nil {
 			return nil, err
 		}
 		if rw.c, err = num(iC, "cl"); err != nil {
@@ -161,20 +199,7 @@ func ParseDesignCurve(r io.Reader, name string) (*DesignCurve, error) {
 		return nil, fail(0, "", "%d data rows: a design curve needs at least two", len(rows))
 	}
 	sort.SliceStable(rows, func(i, j int) bool { return rows[i].a < rows[j].a })
-	d := &DesignCurve{Name: name}
-	if a0, ok := settings["alpha_zero_deg"]; ok {
-		d.AlphaZeroRad = calibrate.Value{X: rig.Rad(a0), U: rig.Rad(settings["alpha_zero_u95_deg"]) / calibrate.K95(math.Inf(1)), Dof: math.Inf(1)}
-		d.HasAlphaZero = true
-	}
-	for i, rw := range rows {
-		if i > 0 && rw.a == rows[i-1].a {
-			return nil, fail(rw.line, "alpha_deg", "angle %g° is given twice (also on line %d)", rw.a, rows[i-1].line)
-		}
-		d.AlphaRad = append(d.AlphaRad, rig.Rad(rw.a))
-		d.CL = append(d.CL, rw.c)
-		d.CLU95 = append(d.CLU95, rw.u)
-	}
-	return d, nil
+	return rows, nil
 }
 
 // designSettings reads the "# key = value" comment lines of a design CSV

@@ -28,6 +28,10 @@ type Config struct {
 	// DesignCL and En (DesignAt). The caller loads it (estimate does no
 	// I/O): a DesignCurve from the rig's [lift] design CSV, or ThinAirfoil.
 	Design Design
+	// SpinDesign, when set, is a rotor's design lift against the spin
+	// ratio: each segment is compared at its spin ratio (SpinDesignAt) and
+	// Design is not used.
+	SpinDesign *SpinDesignCurve
 	// Marks, when not empty, are steady segments set by hand ("user marks
 	// override", docs/design.md §4): the estimator makes exactly one segment per
 	// mark from the samples inside it (both ends included, on the clock of
@@ -118,9 +122,10 @@ type typeBInputs struct {
 	axialU, axialDof   float64
 	qU, qDof           float64 // for a speed channel: u of V, m/s
 	alphaU, alphaDof   float64
+	spinU, spinDof     float64 // the tachometer's calibration u, rad/s
 	// relative span uncertainties (calibrate.Series.URel) and the pitot
 	// coefficient's relative u of q
-	normalRel, axialRel, qRel, qCoeffRel float64
+	normalRel, axialRel, qRel, qCoeffRel, spinRel float64
 }
 
 // sample is one joined sample time.
@@ -421,7 +426,7 @@ func (e *Estimator) endTick(out []Segment) []Segment {
 		}
 		e.seg.appendBuf(&e.tick)
 		e.lastJoinN = e.tick.len()
-		e.joined = append(e.joined, joinedTick{alphaRad: a, n: e.tick.len()})
+		e.joined = append(e.joined, joinedTick{alphaRad: a, spinRadPerS: nanMean(e.tick.spinRadPerS), n: e.tick.len()})
 	}
 	e.tick.reset()
 	return out
@@ -429,19 +434,20 @@ func (e *Estimator) endTick(out []Segment) []Segment {
 
 // joinedTick is one tick of the open segment.
 type joinedTick struct {
-	alphaRad float64
-	n        int
+	alphaRad, spinRadPerS float64
+	n                     int
 }
 
 // movingTail is the number of samples at the end of the open segment,
 // before its last tick, that belong to a move already under way: the
-// ticks whose angle was not still against the tick before (a slow move
+// ticks whose angle or spin was not still against the tick before (a slow move
 // stays inside the plateau band for a while), and the tick where that
 // motion began. The last tick is dropped by the caller in any case.
 func (e *Estimator) movingTail() int {
 	last := len(e.joined) - 2 // the caller drops the very last tick
 	i := last
-	for i >= 1 && !e.det.alpha.still(e.joined[i].alphaRad, e.joined[i-1].alphaRad) {
+	for i >= 1 && (!e.det.alpha.still(e.joined[i].alphaRad, e.joined[i-1].alphaRad) ||
+		!e.det.spin.still(e.joined[i].spinRadPerS, e.joined[i-1].spinRadPerS)) {
 		i--
 	}
 	if i == last {
@@ -487,14 +493,52 @@ func (e *Estimator) reduceBuf(buf *sampleBuf) (Segment, bool) {
 		RhoKgPerM3: fl.RhoKgPerM3, MuPaS: fl.MuPaS, Re: p.Re, LiftN: p.LiftN, DragN: p.DragN,
 		CL: p.CL, CD: p.CD, En: math.NaN(), CLBudget: p.CLBudget, CDBudget: p.CDBudget,
 	}
-	if omega := nanMean(buf.spinRadPerS); !math.IsNaN(omega) && e.rig.Reference.RadiusM > 0 && p.SpeedMPerS.X != 0 {
-		seg.SpinRatio = omega * e.rig.Reference.RadiusM / math.Abs(p.SpeedMPerS.X)
+	if sr, ok := e.spinRatio(buf.spinRadPerS, p.SpeedMPerS); ok {
+		seg.SpinRatio, seg.SpinRatioU, seg.SpinRatioDof = sr.X, sr.U, sr.Dof
 	}
 	seg.Fn = e.froude(p.SpeedMPerS.X)
-	if dv, en, ok := DesignAt(e.cfg.Design, seg.AlphaRad, seg.CL); ok {
+	if e.cfg.SpinDesign != nil {
+		// A rotor is compared at its spin ratio, never at its angle.
+		if dv, en, ok := SpinDesignAt(e.cfg.SpinDesign, seg.SpinRatioValue(), seg.CL); ok {
+			seg.DesignCL, seg.En = dv, en
+		}
+	} else if dv, en, ok := DesignAt(e.cfg.Design, seg.AlphaRad, seg.CL); ok {
 		seg.DesignCL, seg.En = dv, en
 	}
 	return seg, true
+}
+
+// spinRatio returns the spin ratio S = ω̄R/V̄ of a segment with its
+// standard uncertainty (docs/physics.md "Spin ratio"): by the GUM law of
+// propagation for a product of powers (JCGM 100 eq. 12),
+//
+//	u(S)² = (R/V)²·u(ω̄)² + (ω̄/V)²·u(R)² + (S/V)²·u(V)²
+//	u(ω̄)² = u_A(ω̄)² + u_cal² + (u_rel·ω̄)²
+//
+// u_A is the Type A of the mean spin (TypeAMean), u_cal the tachometer
+// calibration's u (one error common to the whole segment, so not reduced
+// by averaging), u_rel its span uncertainty, u(R) the rig's radius_u_m and
+// u(V) the segment's speed u. At rest (ω̄ = 0) u(S) = R·u(ω̄)/V. The
+// degrees of freedom are Welch–Satterthwaite's. ok is false without a spin
+// channel, a radius or a speed.
+func (e *Estimator) spinRatio(omega []float64, v calibrate.Value) (calibrate.Value, bool) {
+	w := nanMean(omega)
+	rM, speed := e.rig.Reference.RadiusM, math.Abs(v.X)
+	if math.IsNaN(w) || !(rM > 0) || !(speed > 0) || !finite(speed) {
+		return calibrate.Value{}, false
+	}
+	s := w * rM / speed
+	ta := TypeAMean(omega)
+	cs := []Contribution{
+		{Input: "spin (type A)", U: ta.U, Sensitivity: rM / speed, UY: rM / speed * ta.U, Dof: ta.Dof, TypeA: true},
+		{Input: "tachometer calibration", U: e.uB.spinU, Sensitivity: rM / speed, UY: rM / speed * e.uB.spinU, Dof: dofOrInf(e.uB.spinDof)},
+		{Input: "tachometer span", U: e.uB.spinRel * math.Abs(w), Sensitivity: rM / speed, UY: e.uB.spinRel * math.Abs(s), Dof: math.Inf(1)},
+		{Input: "radius", U: e.rig.Reference.RadiusUM, Sensitivity: w / speed, UY: math.Abs(w/speed) * e.rig.Reference.RadiusUM, Dof: math.Inf(1)},
+		{Input: "speed", U: v.U, Sensitivity: -s / speed, UY: math.Abs(s/speed) * v.U, Dof: dofOrInf(v.Dof)},
+	}
+	out := Combine(cs)
+	out.X = s
+	return out, true
 }
 
 // froude is the Froude number on the reference length for water rigs (a
@@ -548,6 +592,9 @@ func (e *Estimator) Live() (lv Live, ok bool) {
 		AlphaRad: p.AlphaRad, QPa: p.QPa, SpeedMPerS: p.SpeedMPerS, RhoKgPerM3: fl.RhoKgPerM3,
 		Re: p.Re, Fn: e.froude(p.SpeedMPerS.X), LiftN: p.LiftN, DragN: p.DragN, CL: p.CL, CD: p.CD,
 		Steady: e.det.state == stSteady && e.seg.len() > 0, Segments: e.segments,
+	}
+	if sr, ok := e.spinRatio(buf.spinRadPerS, p.SpeedMPerS); ok {
+		lv.SpinRatio, lv.OmegaRadPerS = sr, nanMean(buf.spinRadPerS)
 	}
 	if flErr != nil {
 		lv.Warnings = append(lv.Warnings, fmt.Sprintf("fluid temperature channel out of range (%v): using the rig's fixed conditions", flErr))
@@ -762,6 +809,12 @@ func (e *Estimator) readTypeB(b *calibrate.Block) {
 			}
 			e.uB.qU, e.uB.qDof = u*c*c, dofOrInf(d)
 		}
+	}
+	if e.roles.spin != "" {
+		if u, d, ok := uOf(e.roles.spin); ok {
+			e.uB.spinU, e.uB.spinDof = u, dofOrInf(d)
+		}
+		e.uB.spinRel = relOf(e.roles.spin)
 	}
 	// The angle's u is stated once (docs/physics.md "Type B inputs"): with an
 	// angle channel, [lift] angle_u_deg, when given, is the angle's whole

@@ -42,11 +42,15 @@ type Segment struct {
 	DragN      calibrate.Value
 	CL         calibrate.Value
 	CD         calibrate.Value
-	SpinRatio  float64         // ωR/V for rotors; 0 otherwise
-	DesignCL   calibrate.Value // zero Value when no design curve applies
-	En         float64         // normalised error vs design; NaN when no design value
-	CLBudget   []Contribution
-	CDBudget   []Contribution
+	SpinRatio  float64 // ωR/V for rotors; 0 otherwise
+	// SpinRatioU is the standard uncertainty of SpinRatio (tachometer,
+	// radius, speed; Estimator docs) and SpinRatioDof its degrees of
+	// freedom; both 0 for other kinds and in rows stored before issue 12.
+	SpinRatioU, SpinRatioDof float64
+	DesignCL                 calibrate.Value // zero Value when no design curve applies
+	En                       float64         // normalised error vs design; NaN when no design value
+	CLBudget                 []Contribution
+	CDBudget                 []Contribution
 
 	// Roof rigs: one Segment is one zone in one block of time (docs/design.md §4).
 	// Zone is empty for force-balance rigs.
@@ -56,6 +60,12 @@ type Segment struct {
 	CpPeak   float64         // expected extreme (most negative) net Cp of the block, from a Gumbel fit of epoch minima
 	UpliftN  calibrate.Value // mean net force on the zone, N (negative = upward)
 	DesignCp calibrate.Value // the zone's design net Cp (U from its expanded design_u); zero Value when none
+}
+
+// SpinRatioValue returns the spin ratio with its standard uncertainty
+// (a zero U when none was computed).
+func (s *Segment) SpinRatioValue() calibrate.Value {
+	return calibrate.Value{X: s.SpinRatio, U: s.SpinRatioU, Dof: s.SpinRatioDof}
 }
 
 // FewIndependent reports whether the segment's N_eff is below MinNEff: its
@@ -79,10 +89,15 @@ type Live struct {
 	DragN      calibrate.Value
 	CL         calibrate.Value
 	CD         calibrate.Value
-	Steady     bool // the window lies inside a steady segment
-	Segments   int  // segments completed so far in this run
-	Warnings   []string
-	Zones      []ZoneLive // roof rigs: each zone's net Cp over the window
+	// SpinRatio is a rotor's spin ratio ωR/V over the window with its
+	// standard uncertainty, and OmegaRadPerS its mean spin; both zero for
+	// other kinds (and when no spin sample is in the window).
+	SpinRatio    calibrate.Value
+	OmegaRadPerS float64
+	Steady       bool // the window lies inside a steady segment
+	Segments     int  // segments completed so far in this run
+	Warnings     []string
+	Zones        []ZoneLive // roof rigs: each zone's net Cp over the window
 }
 
 // ZoneLive is one roof zone's moving-window estimate.

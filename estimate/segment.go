@@ -22,12 +22,15 @@ import (
 //
 //	angle: |α − α_ref| ≤ max(AngleTolRad, k·s_α)
 //	q:     |q − q_ref| ≤ max(QTolFrac, k·s_q)·q_ref
-//	spin:  |ω − ω_ref| ≤ max(SpinTolFrac, k·s_ω)·|ω_ref|
+//	spin:  |ω − ω_ref| ≤ max(SpinTolFrac, k·s_ω)·max(|ω_ref|, SpinTolRadPerS/SpinTolFrac)
 //
 // where k = TurbulenceK and s is a robust scale of the signal's own
 // short-term fluctuation: 1.4826 × the median absolute deviation of the
 // tick values from their segment's mean, over the last scaleTicks steady
-// ticks of the run (relative to the mean for q and spin). The fixed
+// ticks of the run (relative to the mean for q and spin; for the spin
+// relative to at least SpinTolRadPerS/SpinTolFrac, so a rotor at rest,
+// ω_ref = 0, has a band of SpinTolRadPerS and its tachometer's noise does
+// not split the step, issue 12). The fixed
 // tolerances are floors for quiet flows; in gusty flow the band widens with
 // the gusts, so a gust never splits a step while a set-point step larger
 // than the band still does. The scale is used once scaleMinTicks steady
@@ -36,9 +39,10 @@ import (
 //
 // A segment starts when a tick arrives with the flow on. The first Settle
 // of ticks are discarded while the rig settles: each must stay within the
-// bands of the tick before it, and the angle must be still (within
-// stillFrac of its band of the tick before), or settling starts again, so
-// the tail of an angle move never opens a segment. After that every
+// bands of the tick before it, and the angle and the spin must be still
+// (within stillFrac of their band of the tick before), or settling starts
+// again, so the tail of an angle move or of a spin-up never opens a
+// segment. After that every
 // tick joins while it stays within the bands of the references, the means
 // of the ticks joined so far. The first tick outside ends the segment (it
 // starts a new one, in settling), as does flow off (tick q ≤ 5 % of the
@@ -46,12 +50,16 @@ import (
 // end of the run (Flush). A segment is kept when its samples span at least
 // MinDuration. User marks (Config.Marks) replace the test.
 type SteadyConfig struct {
-	AngleTolRad float64       // floor of the angle band's half-width, rad (default 0.25° = 0.004 363 rad)
-	QTolFrac    float64       // floor of the q band's half-width, fraction of q (default 0.08)
-	SpinTolFrac float64       // floor of the spin band's half-width, fraction of the spin (default 0.03)
-	TurbulenceK float64       // band half-width in robust standard deviations of the tick fluctuation (default 6)
-	Settle      time.Duration // discarded at the start of each segment (default 0.3 s; negative: none)
-	MinDuration time.Duration // shortest segment kept (default 1.5 s)
+	AngleTolRad float64 // floor of the angle band's half-width, rad (default 0.25° = 0.004 363 rad)
+	QTolFrac    float64 // floor of the q band's half-width, fraction of q (default 0.08)
+	SpinTolFrac float64 // floor of the spin band's half-width, fraction of the spin (default 0.03)
+	// SpinTolRadPerS is the smallest half-width of the spin band, rad/s
+	// (default 2 rad/s ≈ 19 rpm): the band of a rotor at rest or turning
+	// slowly, where a fraction of the spin would be no band at all.
+	SpinTolRadPerS float64
+	TurbulenceK    float64       // band half-width in robust standard deviations of the tick fluctuation (default 6)
+	Settle         time.Duration // discarded at the start of each segment (default 0.3 s; negative: none)
+	MinDuration    time.Duration // shortest segment kept (default 1.5 s)
 }
 
 // tickDuration is the block length of the steady test: long enough to
@@ -91,6 +99,9 @@ func (c SteadyConfig) withDefaults() SteadyConfig {
 	if c.SpinTolFrac <= 0 {
 		c.SpinTolFrac = 0.03
 	}
+	if c.SpinTolRadPerS <= 0 {
+		c.SpinTolRadPerS = 2
+	}
 	if c.TurbulenceK <= 0 {
 		c.TurbulenceK = 6
 	}
@@ -110,6 +121,10 @@ func (c SteadyConfig) withDefaults() SteadyConfig {
 type setpoint struct {
 	floor, k float64
 	rel      bool // deviations relative to |ref| (q, spin) or absolute (angle)
+	// minRef is the smallest |ref| a relative deviation is taken against
+	// (spin: SpinTolRadPerS/SpinTolFrac; 0 for q, which is never near 0
+	// while the flow is on).
+	minRef float64
 
 	ref  float64 // settling: previous tick; steady: mean of joined ticks
 	devs [scaleTicks]float64
@@ -129,7 +144,7 @@ type setpoint struct {
 func (s *setpoint) dev(v, ref float64) float64 {
 	d := math.Abs(v - ref)
 	if s.rel {
-		d /= math.Abs(ref)
+		d /= math.Max(math.Abs(ref), s.minRef)
 	}
 	return d
 }
@@ -190,12 +205,13 @@ const (
 	stillMinTicks  = 20
 )
 
-// pushDiff records one tick-to-tick difference of the set-point.
-func (s *setpoint) pushDiff(d float64) {
-	if math.IsNaN(d) {
+// pushDiff records the tick-to-tick difference of the set-point from
+// prev to v (relative to prev when rel, as still compares it).
+func (s *setpoint) pushDiff(v, prev float64) {
+	if math.IsNaN(v) || math.IsNaN(prev) {
 		return
 	}
-	s.diffs[s.diffN%scaleTicks] = math.Abs(d)
+	s.diffs[s.diffN%scaleTicks] = s.dev(v, prev)
 	s.diffN++
 	s.stillStale = s.stillStale || s.diffN%scaleRefresh == 0 || s.diffN == stillMinTicks
 }
@@ -244,6 +260,7 @@ type detector struct {
 	qHist     [qSmoothTicks]float64 // recent tick q, for the smoothed q
 	qHistN    int
 	prevAlpha float64 // the last tick's angle with the flow on (NaN: none)
+	prevSpin  float64 // the last tick's spin with the flow on (NaN: none)
 }
 
 // qSmoothTicks is the number of ticks whose mean q is compared with the
@@ -255,8 +272,8 @@ func newDetector(cfg SteadyConfig) detector {
 	return detector{cfg: cfg, settleTicks: int(math.Ceil(float64(cfg.Settle) / float64(tickDuration))),
 		alpha:     setpoint{floor: cfg.AngleTolRad, k: cfg.TurbulenceK},
 		q:         setpoint{floor: cfg.QTolFrac, k: cfg.TurbulenceK, rel: true},
-		spin:      setpoint{floor: cfg.SpinTolFrac, k: cfg.TurbulenceK, rel: true},
-		prevAlpha: math.NaN(),
+		spin:      setpoint{floor: cfg.SpinTolFrac, k: cfg.TurbulenceK, rel: true, minRef: cfg.SpinTolRadPerS / cfg.SpinTolFrac},
+		prevAlpha: math.NaN(), prevSpin: math.NaN(),
 	}
 }
 
@@ -268,8 +285,8 @@ func (d *detector) step(alphaRad, qPa, spinRadPerS float64) (closeSeg, join bool
 		return false, false
 	}
 	d.qMaxRunPa = math.Max(d.qMaxRunPa, qPa)
-	prev := d.prevAlpha
-	d.prevAlpha = alphaRad
+	prev, prevSpin := d.prevAlpha, d.prevSpin
+	d.prevAlpha, d.prevSpin = alphaRad, spinRadPerS
 	d.qHist[d.qHistN%qSmoothTicks] = qPa
 	d.qHistN++
 	qPa = 0
@@ -281,10 +298,11 @@ func (d *detector) step(alphaRad, qPa, spinRadPerS float64) (closeSeg, join bool
 	if qPa <= 0 || qPa <= flowOffFrac*d.qMaxRunPa {
 		closeSeg = d.state == stSteady
 		d.state = stIdle
-		d.prevAlpha = math.NaN()
+		d.prevAlpha, d.prevSpin = math.NaN(), math.NaN()
 		return closeSeg, false
 	}
-	d.alpha.pushDiff(alphaRad - prev)
+	d.alpha.pushDiff(alphaRad, prev)
+	d.spin.pushDiff(spinRadPerS, prevSpin)
 	within := func() bool {
 		return d.alpha.within(alphaRad, d.alpha.ref) && d.q.within(qPa, d.q.ref) && d.spin.within(spinRadPerS, d.spin.ref)
 	}
@@ -297,7 +315,7 @@ func (d *detector) step(alphaRad, qPa, spinRadPerS float64) (closeSeg, join bool
 		// change inside the plateau band is still a move when it is more
 		// than stillFrac of the band (a ramp's tail 0.2° a tick would pass
 		// a 0.25° band, and its trend would bias the mean and shrink N_eff).
-		if !within() || !d.alpha.still(alphaRad, d.alpha.ref) {
+		if !within() || !d.alpha.still(alphaRad, d.alpha.ref) || !d.spin.still(spinRadPerS, d.spin.ref) {
 			d.startSettling(alphaRad, qPa, spinRadPerS)
 			return false, d.promote(alphaRad, qPa, spinRadPerS)
 		}
@@ -349,4 +367,8 @@ func (d *detector) promote(alphaRad, qPa, spinRadPerS float64) bool {
 
 // reset returns to idle (gap in the clock, change of sample spacing); the
 // run's maximum q and the robust scales are kept.
-func (d *detector) reset() { d.state = stIdle; d.qHistN = 0; d.prevAlpha = math.NaN() }
+func (d *detector) reset() {
+	d.state = stIdle
+	d.qHistN = 0
+	d.prevAlpha, d.prevSpin = math.NaN(), math.NaN()
+}

@@ -78,11 +78,17 @@ func MarksApply(r *rig.Rig) bool {
 }
 
 func balanceStage(r *rig.Rig, opt Options) (Stage, error) {
-	d, err := LoadDesign(r)
+	cfg := estimate.Config{Marks: opt.Marks, Now: opt.Now, Corrections: correctionInputs(r)}
+	var err error
+	if r.Kind == rig.KindRotor {
+		cfg.SpinDesign, err = LoadSpinDesign(r)
+	} else {
+		cfg.Design, err = LoadDesign(r)
+	}
 	if err != nil {
 		return nil, err
 	}
-	return estimate.NewEstimator(r, estimate.Config{Design: d, Marks: opt.Marks, Now: opt.Now, Corrections: correctionInputs(r)})
+	return estimate.NewEstimator(r, cfg)
 }
 
 func roofStage(r *rig.Rig, opt Options) (Stage, error) {
@@ -122,6 +128,50 @@ func LoadDesign(r *rig.Rig) (estimate.Design, error) {
 			return nil, &InputError{fmt.Errorf("[lift] design: %w", err)}
 		}
 		return c, nil
+	}
+}
+
+// LoadSpinDesign returns a rotor's design lift curve against the spin
+// ratio from the CSV that [lift] design names (spin_ratio,cl[,cl_u95]), or
+// nil for none. "thin-airfoil", a missing file or a file against α gives
+// an *InputError: a rotor is never compared at its angle (issue 12).
+func LoadSpinDesign(r *rig.Rig) (*estimate.SpinDesignCurve, error) {
+	switch d := r.Lift.Design; d {
+	case "":
+		return nil, nil
+	case rig.DesignThinAirfoil:
+		return nil, &InputError{fmt.Errorf("[lift] design: %q is a foil's design; a rotor's design is a CSV against the spin ratio (spin_ratio,cl[,cl_u95])", d)}
+	default:
+		f, err := os.Open(d)
+		if err != nil {
+			return nil, &InputError{fmt.Errorf("[lift] design: %w", err)}
+		}
+		defer f.Close()
+		c, err := estimate.ParseSpinDesignCurve(f, d)
+		if err != nil {
+			return nil, &InputError{fmt.Errorf("[lift] design: %w", err)}
+		}
+		return c, nil
+	}
+}
+
+// CheckDesign loads the design file r names for its kind — a CSV against
+// the spin ratio for a rotor, against α (or "thin-airfoil") for a foil or
+// body — so `check` finds a missing file or a header of the wrong kind
+// before a run. A roof's design values are its zones' design_cp: a [lift]
+// design on a roof rig is an error.
+func CheckDesign(r *rig.Rig) error {
+	switch {
+	case r.Lift.Design == "":
+		return nil
+	case r.Kind == rig.KindRoof:
+		return &InputError{fmt.Errorf("[lift] design: a roof's design values are its zones' design_cp, not a design curve")}
+	case r.Kind == rig.KindRotor:
+		_, err := LoadSpinDesign(r)
+		return err
+	default:
+		_, err := LoadDesign(r)
+		return err
 	}
 }
 

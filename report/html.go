@@ -372,6 +372,10 @@ func lowerBound(stalled bool) string {
 
 func (r *Report) designView(v *view) {
 	v.DesignProblem = r.DesignProblem
+	if r.SpinDesign != nil {
+		r.spinDesignView(v) // rotor.go
+		return
+	}
 	c := r.Comparison
 	if c == nil {
 		return

@@ -34,7 +34,10 @@ func sectionOf(kind string) section {
 	case rig.KindRotor:
 		s := balance()
 		s.spin, s.liftCurve, s.design, s.count = true, false, false, rotorCount
-		s.noLiftCurve = "A rotor's lift is reported against the spin ratio; no lift curve in α is fitted."
+		s.noLiftCurve = "A rotor's lift is reported against the spin ratio: C_L(S) is fitted instead of a lift curve in α."
+		s.figures = func(r *Report) []func() (*figure, error) {
+			return []func() (*figure, error){r.liftPlot, r.spinDragPlot, r.liftDragPlot, r.qPlot}
+		}
 		return s
 	case rig.KindRoof:
 		return section{

@@ -238,7 +238,7 @@ func (r *Report) drawLift() (p *plot.Plot, caption []string, left int, err error
 	for _, s := range r.Segments {
 		xv, ux := rig.Deg(s.AlphaRad.X), rig.Deg(u95Of(s.AlphaRad))
 		if spin {
-			xv, ux = s.SpinRatio, 0
+			xv, ux = s.SpinRatio, spinU95(&s)
 		}
 		if !finite(xv) || !measured(s.CL) {
 			left++
@@ -254,8 +254,14 @@ func (r *Report) drawLift() (p *plot.Plot, caption []string, left int, err error
 	p.X.Min, p.X.Max = pad(xmin, xmax)
 	p.Y.Min, p.Y.Max = padY(ymin, ymax)
 	caption = append(caption, "Points: segment means; bars: ± U95 of C_L (and of α).")
-	if err := addPoints(p, &pts, !spin, "measured C_L ± U95"); err != nil {
+	if err := addPoints(p, &pts, true, "measured C_L ± U95"); err != nil {
 		return nil, nil, left, fmt.Errorf("lift plot: %w", err)
+	}
+	if spin {
+		caption[0] = "Points: segment means; bars: ± U95 of C_L and of S."
+		if caption, err = r.drawSpinExtras(p, caption); err != nil {
+			return nil, nil, left, fmt.Errorf("lift plot: %w", err)
+		}
 	}
 	if pl := r.Polar; pl != nil {
 		line := plotter.XYs{}

@@ -82,6 +82,14 @@ type Report struct {
 	// Comparison of the points with Design; nil without a design.
 	Comparison *estimate.Comparison
 
+	// SpinDesign is a rotor's design against the spin ratio (its rows
+	// carry design_cl and En at their S); nil for other kinds or none.
+	SpinDesign *estimate.SpinDesignCurve
+	// SpinCurve is a rotor's fitted C_L(S); nil for other kinds or when it
+	// could not be made (SpinCurveProblem says why).
+	SpinCurve        *estimate.SpinCurve
+	SpinCurveProblem string
+
 	// Notes are what the report could not do, in plain words.
 	Notes []string
 }
@@ -135,6 +143,7 @@ func Build(store *storage.Store, runID uint64, opts Options) (*Report, error) {
 	}
 
 	r.fitPolar(opts.Polar)
+	r.fitSpin()
 	r.compare(opts.RigDir)
 	return r, nil
 }
@@ -194,6 +203,10 @@ func (r *Report) loadDesign(rigDir string) {
 		return
 	}
 	d := r.Rig.Lift.Design
+	if r.section().spin {
+		r.loadSpinDesign(rigDir)
+		return
+	}
 	if d == rig.DesignThinAirfoil {
 		r.Design = estimate.ThinAirfoil{AspectRatio: r.Rig.Reference.AspectRatio(), AlphaZeroRad: r.Rig.Lift.DesignAlphaZeroRad}
 		return

@@ -103,15 +103,6 @@ func balanceCount(r *Report) []string {
 	return []string{fmt.Sprintf("%s, none with a lift coefficient.", plural(len(r.Segments), "steady segment", "steady segments"))}
 }
 
-// rotorCount opens the summary of a rotor run: how many steady segments
-// have C_L (against the spin ratio, so no angle range).
-func rotorCount(r *Report) []string {
-	if len(r.Segments) == 0 {
-		return []string{noSegments}
-	}
-	return []string{fmt.Sprintf("%s with C_L.", plural(r.withCL(), "steady segment", "steady segments"))}
-}
-
 const noSegments = "No steady segments were found in this run, so there are no coefficients to report."
 
 // healthSentence sums the source counters in one sentence.

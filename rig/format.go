@@ -29,7 +29,7 @@ func Format(r *Rig) []byte {
 	for _, kv := range []struct {
 		k string
 		v float64
-	}{{"area_m2", ref.AreaM2}, {"area_u_m2", ref.AreaUM2}, {"length_m", ref.LengthM}, {"span_m", ref.SpanM}, {"radius_m", ref.RadiusM}} {
+	}{{"area_m2", ref.AreaM2}, {"area_u_m2", ref.AreaUM2}, {"length_m", ref.LengthM}, {"span_m", ref.SpanM}, {"radius_m", ref.RadiusM}, {"radius_u_m", ref.RadiusUM}} {
 		if kv.v != 0 {
 			w("%s = %s\n", kv.k, num(kv.v))
 		}

@@ -392,7 +392,7 @@ var (
 var (
 	topKeys        = []string{"name", "kind", "fluid", "conditions", "reference", "source", "channel", "lift", "tap", "zone", "internal", "publish", "tare", "balance", "blockage"}
 	conditionsKeys = []string{"temperature_c", "temperature", "pressure_pa", "pressure", "humidity_pct", "salinity_g_per_kg"}
-	referenceKeys  = []string{"area_m2", "area_u_m2", "area_kind", "length_m", "span_m", "radius_m"}
+	referenceKeys  = []string{"area_m2", "area_u_m2", "area_kind", "length_m", "span_m", "radius_m", "radius_u_m"}
 	sourceKeys     = []string{"name", "type", "port", "baud", "data_bits", "parity", "stop_bits", "format", "channels", "delimiter", "columns", "broker", "topic", "client_id", "username", "password_env", "ca_file", "rate_hz"}
 	channelKeys    = []string{"name", "quantity", "unit", "capacity", "calibration", "raw_range"}
 	publishKeys    = []string{"broker", "topic_prefix", "client_id", "username", "password_env", "ca_file"}
@@ -531,6 +531,7 @@ func (d *decoder) reference(t *table, kind Kind) Reference {
 	r.LengthM, _ = t.num("length_m")
 	r.SpanM, _ = t.num("span_m")
 	r.RadiusM, _ = t.num("radius_m")
+	r.RadiusUM, _ = t.num("radius_u_m") // issue 12: optional, default 0
 	t.unknown()
 	return r
 }

@@ -84,6 +84,7 @@ type Reference struct {
 	LengthM  float64 // reference length (chord) for Re and C_M, m
 	SpanM    float64 // span, m (aspect ratio = span²/area)
 	RadiusM  float64 // rotor radius for the spin ratio, m
+	RadiusUM float64 // standard uncertainty of RadiusM, m (key radius_u_m; 0: none given)
 }
 
 // AspectRatio returns b²/S, or 0 when span or area is missing.

@@ -134,6 +134,11 @@ func (v *validator) reference() {
 	if kind == KindFoil && ref.LengthM == 0 {
 		v.add("reference.length_m", ErrMissing, "reference: length_m missing (add length_m = the chord in m, for the Reynolds number and C_M)")
 	}
+	if !finite(ref.RadiusUM) || ref.RadiusUM < 0 {
+		v.add("reference.radius_u_m", ErrValue, "reference: radius_u_m must be ≥ 0 (a standard uncertainty), not %g", ref.RadiusUM)
+	} else if ref.RadiusUM > 0 && ref.RadiusUM >= ref.RadiusM {
+		v.add("reference.radius_u_m", ErrValue, "reference: radius_u_m = %g m is not smaller than radius_m = %g m", ref.RadiusUM, ref.RadiusM)
+	}
 	if kind == KindRotor && ref.RadiusM == 0 {
 		v.add("reference.radius_m", ErrMissing, "reference: radius_m missing (add radius_m = the rotor radius in m, for the spin ratio ωR/V)")
 	}

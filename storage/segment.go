@@ -40,27 +40,30 @@ type contributionRec struct {
 // segmentRec is an estimate.Segment as stored in results/<run>/<index>.
 // Field names follow the Go fields in snake_case (DEVELOPERS.md "Units in names").
 type segmentRec struct {
-	Index      int               `json:"index"`
-	TStart     time.Time         `json:"t_start"`
-	TEnd       time.Time         `json:"t_end"`
-	N          int               `json:"n"`
-	NEff       estimate.Num      `json:"n_eff"`
-	AlphaRad   valueRec          `json:"alpha_rad"`
-	QPa        valueRec          `json:"q_pa"`
-	SpeedMPerS valueRec          `json:"speed_m_s"`
-	RhoKgPerM3 estimate.Num      `json:"rho_kg_m3"`
-	MuPaS      estimate.Num      `json:"mu_pa_s"`
-	Re         estimate.Num      `json:"re"`
-	Fn         estimate.Num      `json:"fn,omitempty"`
-	LiftN      valueRec          `json:"lift_n"`
-	DragN      valueRec          `json:"drag_n"`
-	CL         valueRec          `json:"cl"`
-	CD         valueRec          `json:"cd"`
-	SpinRatio  estimate.Num      `json:"spin_ratio"`
-	DesignCL   valueRec          `json:"design_cl"`
-	En         estimate.Num      `json:"en"`
-	CLBudget   []contributionRec `json:"cl_budget,omitempty"`
-	CDBudget   []contributionRec `json:"cd_budget,omitempty"`
+	Index      int          `json:"index"`
+	TStart     time.Time    `json:"t_start"`
+	TEnd       time.Time    `json:"t_end"`
+	N          int          `json:"n"`
+	NEff       estimate.Num `json:"n_eff"`
+	AlphaRad   valueRec     `json:"alpha_rad"`
+	QPa        valueRec     `json:"q_pa"`
+	SpeedMPerS valueRec     `json:"speed_m_s"`
+	RhoKgPerM3 estimate.Num `json:"rho_kg_m3"`
+	MuPaS      estimate.Num `json:"mu_pa_s"`
+	Re         estimate.Num `json:"re"`
+	Fn         estimate.Num `json:"fn,omitempty"`
+	LiftN      valueRec     `json:"lift_n"`
+	DragN      valueRec     `json:"drag_n"`
+	CL         valueRec     `json:"cl"`
+	CD         valueRec     `json:"cd"`
+	SpinRatio  estimate.Num `json:"spin_ratio"`
+	// issue 12: the spin ratio's u and dof; absent in older records (0).
+	SpinRatioU   estimate.Num      `json:"spin_ratio_u,omitempty"`
+	SpinRatioDof estimate.Num      `json:"spin_ratio_dof,omitempty"`
+	DesignCL     valueRec          `json:"design_cl"`
+	En           estimate.Num      `json:"en"`
+	CLBudget     []contributionRec `json:"cl_budget,omitempty"`
+	CDBudget     []contributionRec `json:"cd_budget,omitempty"`
 
 	// Roof rows only (Zone set); absent on force-balance rows.
 	Zone     string       `json:"zone,omitempty"`
@@ -103,7 +106,7 @@ func encodeSegment(sg *estimate.Segment) ([]byte, error) {
 		AlphaRad: toValueRec(sg.AlphaRad), QPa: toValueRec(sg.QPa), SpeedMPerS: toValueRec(sg.SpeedMPerS),
 		RhoKgPerM3: estimate.Num(sg.RhoKgPerM3), MuPaS: estimate.Num(sg.MuPaS), Re: estimate.Num(sg.Re), Fn: estimate.Num(sg.Fn),
 		LiftN: toValueRec(sg.LiftN), DragN: toValueRec(sg.DragN), CL: toValueRec(sg.CL), CD: toValueRec(sg.CD),
-		SpinRatio: estimate.Num(sg.SpinRatio), DesignCL: toValueRec(sg.DesignCL), En: estimate.Num(sg.En),
+		SpinRatio: estimate.Num(sg.SpinRatio), SpinRatioU: estimate.Num(sg.SpinRatioU), SpinRatioDof: estimate.Num(sg.SpinRatioDof), DesignCL: toValueRec(sg.DesignCL), En: estimate.Num(sg.En),
 		CLBudget: budgetRec(sg.CLBudget), CDBudget: budgetRec(sg.CDBudget),
 	}
 	if sg.Zone != "" {
@@ -128,7 +131,7 @@ func decodeSegment(data []byte) (estimate.Segment, error) {
 		AlphaRad: rec.AlphaRad.value(), QPa: rec.QPa.value(), SpeedMPerS: rec.SpeedMPerS.value(),
 		RhoKgPerM3: float64(rec.RhoKgPerM3), MuPaS: float64(rec.MuPaS), Re: float64(rec.Re), Fn: float64(rec.Fn),
 		LiftN: rec.LiftN.value(), DragN: rec.DragN.value(), CL: rec.CL.value(), CD: rec.CD.value(),
-		SpinRatio: float64(rec.SpinRatio), DesignCL: rec.DesignCL.value(), En: float64(rec.En),
+		SpinRatio: float64(rec.SpinRatio), SpinRatioU: float64(rec.SpinRatioU), SpinRatioDof: float64(rec.SpinRatioDof), DesignCL: rec.DesignCL.value(), En: float64(rec.En),
 		CLBudget: budget(rec.CLBudget), CDBudget: budget(rec.CDBudget),
 		Zone: rec.Zone, CpRMS: float64(rec.CpRMS), CpPeak: float64(rec.CpPeak),
 	}

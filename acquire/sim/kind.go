@@ -2,6 +2,7 @@ package sim
 
 import (
 	"context"
+	"errors"
 	"fmt"
 
 	"liftyard/acquire"
@@ -30,7 +31,10 @@ type Common struct {
 }
 
 // ForRig builds the simulator for r's kind: the one place that maps a rig
-// kind to its simulator (a roof's tap scanner, else the force balance).
+// kind to its simulator (a roof's tap scanner; the force balance for a
+// foil or a body; the force balance with a tachometer stepping the spin
+// ratio for a rotor). A kind with no simulator is refused with
+// ErrNoSimulator, never simulated with zeros (issue 12).
 func ForRig(r *rig.Rig, c Common) (Simulator, error) {
 	switch r.Kind {
 	case rig.KindRoof:
@@ -39,10 +43,20 @@ func ForRig(r *rig.Rig, c Common) (Simulator, error) {
 			return nil, fmt.Errorf("roof simulator: %w", err)
 		}
 		return s, nil
+	case rig.KindFoil, rig.KindBody, rig.KindRotor:
+		s, err := New(r, Config{QPa: c.QPa, RateHz: c.RateHz, Seed: c.Seed}, c.RhoKgPerM3)
+		if err != nil {
+			return nil, fmt.Errorf("%s simulator: %w", r.Kind, err)
+		}
+		return s, nil
 	default:
-		return New(r, Config{QPa: c.QPa, RateHz: c.RateHz, Seed: c.Seed}, c.RhoKgPerM3)
+		return nil, fmt.Errorf("rig kind %q: %w (simulators exist for foil, body, rotor and roof rigs)", r.Kind, ErrNoSimulator)
 	}
 }
+
+// ErrNoSimulator is returned by ForRig when the rig's kind has no
+// simulator.
+var ErrNoSimulator = errors.New("no simulator for this kind of rig")
 
 // Stats implements Simulator.
 func (s *Rig) Stats() *acquire.Health { return &s.Health }

@@ -66,6 +66,12 @@ type Config struct {
 	// × the true one). 0: none.
 	PitotSpanFrac float64
 	Start         time.Time // device clock at the first sample (default: Now at Run, or the Unix epoch for Next)
+	// Rotor is the true spinning body of a rotor rig (defaults: see
+	// Rotor); SpinSteps are the spin ratios it steps through, up and down
+	// like StepsDeg (default DefaultSpinSteps). Both are ignored for other
+	// kinds; a rotor rig ignores StepsDeg and Foil.
+	Rotor     Rotor
+	SpinSteps []float64
 }
 
 // Gust is one AR(1) component of the simulated flow's u′/U (Config.Gusts).
@@ -143,11 +149,14 @@ type Rig struct {
 	speed    *chanInv
 	angle    *chanInv
 	temp     *chanInv
+	spin     *chanInv // rotor rigs: the tachometer (rotor.go)
 	rhoForV  float64
 	tempK    float64
 	areaM2   float64
 	pitotC   float64
 	channels []string
+
+	radiusM, speedMeanMPerS, fixedAlphaRad float64 // rotor rigs
 
 	n     int64     // samples generated so far
 	seq   uint64    // blocks generated so far
@@ -287,6 +296,11 @@ func New(r *rig.Rig, cfg Config, rhoKgPerM3 float64) (*Rig, error) {
 	if s.temp, err = look(r.Lift.Temperature); err != nil {
 		return nil, err
 	}
+	if r.Kind == rig.KindRotor {
+		if err := s.rotorSetup(r, rhoKgPerM3); err != nil {
+			return nil, err
+		}
+	}
 	return s, nil
 }
 
@@ -312,6 +326,9 @@ func (s *Rig) Config() Config { return s.cfg }
 // SweepS returns the length of one up-and-down sweep, s.
 func (s *Rig) SweepS() float64 {
 	n := len(s.cfg.StepsDeg)
+	if s.spin != nil {
+		n = len(s.cfg.SpinSteps)
+	}
 	if n > 1 {
 		n = 2*n - 2
 	}
@@ -323,8 +340,14 @@ func (s *Rig) SweepS() float64 {
 // whether the rig is holding a step (not moving).
 // The sweep runs up through the steps and back down, and repeats.
 func (s *Rig) AngleAt(tS float64) (alphaRad float64, holding bool) {
-	steps := s.cfg.StepsDeg
-	hold, move := s.cfg.Hold.Seconds(), s.cfg.Move.Seconds()
+	deg, holding := stepAt(s.cfg.StepsDeg, s.cfg.Hold.Seconds(), s.cfg.Move.Seconds(), tS)
+	return rig.Rad(deg), holding
+}
+
+// stepAt is the set-point schedule of AngleAt and SpinAt: hold each step
+// for hold seconds, ramp to the next in move seconds, up through steps and
+// back down, and repeat.
+func stepAt(steps []float64, hold, move, tS float64) (v float64, holding bool) {
 	period := hold + move
 	// Up then down: a sequence of 2n−2 steps (the ends are not repeated).
 	seq := len(steps)
@@ -342,11 +365,11 @@ func (s *Rig) AngleAt(tS float64) (alphaRad float64, holding bool) {
 	}
 	cur := steps[idx(k)]
 	if in < hold || len(steps) == 1 {
-		return rig.Rad(cur), true
+		return cur, true
 	}
 	next := steps[idx(k+1)]
 	f := (in - hold) / move
-	return rig.Rad(cur + (next-cur)*f), false
+	return cur + (next-cur)*f, false
 }
 
 // Next returns the next block of raw readings. The device clock starts at
@@ -405,12 +428,17 @@ func (s *Rig) Next() acquire.Block {
 				sweepT = endT // the angle stays where the sweep ended
 			}
 		}
-		alpha, _ := s.AngleAt(sweepT)
+		var alpha, normal, axial, omega float64
+		if s.spin != nil {
+			normal, axial, omega, alpha = s.rotorSample(sweepT, q)
+		} else {
+			alpha, _ = s.AngleAt(sweepT)
+			cl, cd := s.cfg.Foil.Truth(alpha)
+			lift, drag := cl*q*s.areaM2, cd*q*s.areaM2
+			normal = lift*math.Cos(alpha) + drag*math.Sin(alpha)
+			axial = drag*math.Cos(alpha) - lift*math.Sin(alpha)
+		}
 		zero := s.cfg.ZeroDriftNPerS * tS
-		cl, cd := s.cfg.Foil.Truth(alpha)
-		lift, drag := cl*q*s.areaM2, cd*q*s.areaM2
-		normal := lift*math.Cos(alpha) + drag*math.Sin(alpha)
-		axial := drag*math.Cos(alpha) - lift*math.Sin(alpha)
 		col := 0
 		put := func(c *chanInv, si float64) {
 			b.Series[col].Raw[i] = c.raw(si + s.noise(c))
@@ -433,6 +461,9 @@ func (s *Rig) Next() acquire.Block {
 		}
 		if s.temp != nil {
 			put(s.temp, s.tempK)
+		}
+		if s.spin != nil {
+			put(s.spin, omega)
 		}
 		s.n++
 	}

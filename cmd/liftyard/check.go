@@ -6,6 +6,7 @@ import (
 	"io"
 	"os"
 
+	"liftyard/process"
 	"liftyard/rig"
 )
 
@@ -25,6 +26,11 @@ func runCheck(_ context.Context, args []string, stdout, _ io.Writer) error {
 	}
 	r, err := rig.Parse(pos[0], data)
 	if err != nil {
+		return err
+	}
+	// The design file is read now, for every kind, so a missing file or a
+	// header of the wrong kind is found before a run (issue 12).
+	if err := process.CheckDesign(r); err != nil {
 		return err
 	}
 	fmt.Fprintf(stdout, "%s: ok: %q, %s in %s; %d sources, %d channels", pos[0], r.Name, r.Kind, r.Fluid, len(r.Sources), len(r.Channels))

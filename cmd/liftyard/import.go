@@ -158,6 +158,10 @@ func printSummary(w io.Writer, store *storage.Store, runID uint64, r *rig.Rig) e
 		return err
 	}
 	fmt.Fprintf(w, "  %d steady segments\n", len(segs))
+	if r.Kind == rig.KindRotor {
+		printRotorSummary(w, segs, r)
+		return nil
+	}
 	var fit *estimate.Polar
 	if p, err := estimate.FitPolar(segs, estimate.PolarOptions{}); err == nil {
 		fit = &p
@@ -187,4 +191,30 @@ func printSummary(w io.Writer, store *storage.Store, runID uint64, r *rig.Rig) e
 		fmt.Fprintf(w, "    %s\n", reason)
 	}
 	return nil
+}
+
+// printRotorSummary is printSummary for a rotor: each segment's spin
+// ratio and C_L, the fitted C_L(S) and the design against the spin ratio
+// (never the foil's lift-curve lines).
+func printRotorSummary(w io.Writer, segs []estimate.Segment, r *rig.Rig) {
+	for _, s := range segs {
+		line := fmt.Sprintf("  #%d  S %.3f ± %.3f  C_L %.3f ± %.3f  C_D %.3f ± %.3f", s.Index,
+			s.SpinRatio, s.SpinRatioValue().U95(), s.CL.X, s.CL.U95(), s.CD.X, s.CD.U95())
+		if agrees, ok := estimate.Agrees(s.En); ok {
+			verdict := "agrees"
+			if !agrees {
+				verdict = "disagrees"
+			}
+			line += fmt.Sprintf("  design %.3f, En %.2f (%s)", s.DesignCL.X, s.En, verdict)
+		}
+		fmt.Fprintln(w, line)
+	}
+	if c, err := estimate.FitSpinCurve(segs); err == nil {
+		fmt.Fprintf(w, "  C_L(S): %s\n", c.Describe())
+	} else {
+		fmt.Fprintf(w, "  no C_L(S) curve: %v\n", err)
+	}
+	if d, err := process.LoadSpinDesign(r); err == nil && d != nil {
+		fmt.Fprintf(w, "  design: %s, compared at each segment's spin ratio\n", d.Describe())
+	}
 }

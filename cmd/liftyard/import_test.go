@@ -53,14 +53,20 @@ func towtankSim(t *testing.T) *sim.Rig {
 // storage.ExportRaw, the same writer a user's export goes through.
 func generateRawCSV(t *testing.T, s *sim.Rig) []byte {
 	t.Helper()
+	return generateRawCSVN(t, s, importBlocks)
+}
+
+// generateRawCSVN is generateRawCSV for n blocks.
+func generateRawCSVN(t *testing.T, s *sim.Rig, n int) []byte {
+	t.Helper()
 	store, err := storage.Open(filepath.Join(t.TempDir(), "gen.db"), storage.Options{})
 	require.NoError(t, err)
 	defer store.Close()
 	id, err := store.CreateRun(storage.Run{Rig: "foil-towtank", Started: time.Date(2026, 3, 14, 9, 0, 0, 0, time.UTC)})
 	require.NoError(t, err)
 	w := store.NewWriter(id, storage.WriterConfig{})
-	in := make(chan storage.Item, importBlocks)
-	for range importBlocks {
+	in := make(chan storage.Item, n)
+	for range n {
 		b := s.Next()
 		in <- storage.Item{Block: &b}
 	}

@@ -23,7 +23,7 @@ var siSuffixes = []string{
 var dimensionless = map[string]bool{
 	// coefficients and numbers of the trade
 	"CL": true, "CD": true, "CM": true, "Cp": true, "CpMean": true, "CpPeak": true, "CpMin": true, "CpRMS": true, "Re": true, "Fn": true, "En": true,
-	"SpinRatio": true, "DesignCL": true, "DesignCp": true, "DesignU": true, "PitotCoeff": true,
+	"SpinRatio": true, "SpinRatioU": true, "SpinRatioDof": true, "SpinMin": true, "SpinMax": true, "SpinScale": true, "CDSpin": true, "DesignCL": true, "DesignCp": true, "DesignU": true, "PitotCoeff": true,
 	"PitotCoeffU": true, "URel": true, // the pitot coefficient's standard uncertainty; a relative one
 	"CD0": true, "K": true, "Mach": true,
 	"CLMax": true, "CLMinD": true, "CLAtZeroAlpha": true, "AspectRatio": true,

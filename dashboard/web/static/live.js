@@ -107,6 +107,7 @@
     set("v-q", fix(l.q_pa, 1)); set("u-q", ufix(l.q_u95_pa, 1));
     set("v-speed", fix(l.speed_m_s, 2)); set("u-speed", ufix(l.speed_u95_m_s, 2));
     set("v-alpha", fix(l.alpha_deg, 2)); set("u-alpha", ufix(l.alpha_u95_deg, 2));
+    set("v-spin", fix(l.spin_ratio, 3)); set("u-spin", ufix(l.spin_ratio_u95, 3)); set("v-rpm", fix(l.spin_rpm, 0));
     set("v-cl", fix(l.cl, 3)); set("u-cl", ufix(l.cl_u95, 3));
     set("v-cd", fix(l.cd, 3)); set("u-cd", ufix(l.cd_u95, 3));
     set("v-re", sci(l.re));
