@@ -58,6 +58,7 @@ func verbs() []verb {
 		{"compare", compareSummary, runCompare},
 		{"report", "write a printable HTML report of a run: plots, segments, uncertainty budgets, record quality", runReport},
 		{"reprocess", "re-process a run from its stored raw samples as a new run (e.g. with a corrected rig file)", runReprocess},
+		{"version", "print the module version and VCS revision of this build", runVersion},
 	}
 }
 
@@ -70,6 +71,9 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 			return 2
 		}
 		return 0
+	}
+	if args[0] == "--version" || args[0] == "-version" {
+		args = append([]string{"version"}, args[1:]...)
 	}
 	for _, v := range verbs() {
 		if v.name != args[0] {
@@ -107,7 +111,7 @@ func exitCode(err error, name string, stderr io.Writer) int {
 
 func printHelp(w io.Writer) {
 	fmt.Fprintln(w, "liftyard: lift measurement in the field (load cells, pitot, coefficients with uncertainty)")
-	fmt.Fprintln(w, "\nUsage: liftyard <command> [flags]   (liftyard <command> --help for its flags)")
+	fmt.Fprintln(w, "\nUsage: liftyard <command> [flags]   (liftyard <command> --help for its flags; liftyard --version)")
 	fmt.Fprintln(w, "\nCommands:")
 	for _, v := range verbs() {
 		fmt.Fprintf(w, "  %-10s %s\n", v.name, v.summary)
