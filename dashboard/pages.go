@@ -161,6 +161,8 @@ func (s *Server) runPage(w http.ResponseWriter, r *http.Request) {
 // funcs format numbers for the pages. They only round and label; every
 // number was computed by estimate (angles arrive in degrees, U95 expanded).
 var funcs = template.FuncMap{
+	// words shows an identifier as words: fresh_water → fresh water.
+	"words": func(v any) string { return strings.ReplaceAll(fmt.Sprint(v), "_", " ") },
 	"fix": func(v any, digits int) string {
 		switch v := v.(type) {
 		case num:
