@@ -19,7 +19,7 @@ const rateWindow = 2 * time.Second
 type ChannelHealth struct {
 	Channel   string    `json:"channel"`
 	Source    string    `json:"source"`
-	RateHz    float64   `json:"rate_hz"`   // samples per second over the last 2 s of host time
+	RateHz    float64   `json:"rate_hz"`   // finite samples per second of device time, over the blocks of the last 2 s
 	Samples   uint64    `json:"samples"`   // finite samples seen
 	Missing   uint64    `json:"missing"`   // NaN samples ("no sample")
 	Saturated uint64    `json:"saturated"` // samples at or beyond the raw range limits
@@ -43,8 +43,9 @@ type chanStat struct {
 }
 
 type recvMark struct {
-	t time.Time
-	n int
+	t      time.Time
+	n      int   // finite samples
+	spanUs int64 // device time the block covers, len × DtUs (0 when unknown)
 }
 
 // NewMonitor makes a Monitor for the channels of r (their raw ranges).
@@ -92,7 +93,7 @@ func (m *Monitor) Observe(b *Block) []Event {
 		st.satOn = sat > 0
 		if finite > 0 && !b.Received.IsZero() {
 			st.h.LastSeen = b.Received
-			st.recv = append(st.recv, recvMark{b.Received, finite})
+			st.recv = append(st.recv, recvMark{b.Received, finite, int64(len(s.Raw)) * b.DtUs})
 			cut := b.Received.Add(-rateWindow)
 			i := 0
 			for i < len(st.recv)-1 && st.recv[i].t.Before(cut) {
@@ -112,7 +113,24 @@ func (m *Monitor) Snapshot(now time.Time) []ChannelHealth {
 		st := m.chans[name]
 		h := st.h
 		h.Stale = h.LastSeen.IsZero() || now.Sub(h.LastSeen) > StaleAfter
-		if len(st.recv) >= 2 {
+		// The rate is finite samples per second of device time over the
+		// blocks received in the last rateWindow: the device's own clock,
+		// so bursts and jitter of arrival (an MQTT link) do not move it
+		// (issue 13: a 200 Hz channel showed 190 Hz). Blocks without a
+		// spacing fall back to host arrival times.
+		var nDev int
+		var devUs int64
+		for _, r := range st.recv {
+			if r.spanUs <= 0 {
+				devUs = 0
+				break
+			}
+			nDev += r.n
+			devUs += r.spanUs
+		}
+		if devUs > 0 {
+			h.RateHz = float64(nDev) / (float64(devUs) / 1e6)
+		} else if len(st.recv) >= 2 {
 			span := st.recv[len(st.recv)-1].t.Sub(st.recv[0].t).Seconds()
 			n := 0
 			for _, r := range st.recv[1:] { // samples that arrived after the first mark

@@ -57,3 +57,24 @@ func TestMonitor_ChannelHealth(t *testing.T) {
 	assert.True(t, later[0].Stale, "no sample for over a second")
 	assert.Zero(t, later[0].RateHz)
 }
+
+// Ensure that a 200 Hz channel whose blocks arrive with jitter (a broker
+// delaying every other block) shows 200 Hz exactly: the
+// rate comes from the device's own spacing, not from arrival times
+// (issue 13: a 200 Hz channel showed 190 Hz).
+func TestMonitor_RateIgnoresArrivalJitter(t *testing.T) {
+	m := acquire.NewMonitor(&rig.Rig{Channels: []rig.Channel{{Name: "n"}}})
+	t0 := time.Date(2026, 12, 1, 10, 0, 0, 0, time.UTC)
+	var at time.Time
+	for k := range 40 { // 4 s of 100 ms blocks at 200 Hz
+		// Even blocks arrive 2 ms after they end, odd ones 90 ms late.
+		delay := 2 * time.Millisecond
+		if k%2 == 1 {
+			delay = 90 * time.Millisecond
+		}
+		at = t0.Add(time.Duration(k+1)*100*time.Millisecond + delay)
+		b := acquire.Block{Source: "amp", DtUs: 5000, Received: at, Series: []acquire.Series{{Channel: "n", Raw: make([]float64, 20)}}}
+		m.Observe(&b)
+	}
+	assert.InDelta(t, 200, m.Snapshot(at)[0].RateHz, 1e-9)
+}

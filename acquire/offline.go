@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"os"
+	"time"
 )
 
 // Replayer is a source that is not live: a file recorded elsewhere or a run
@@ -27,6 +28,9 @@ type CSVFile struct {
 	// BlockN is the number of sample times per block; 0 means
 	// DefaultRawCSVBlock.
 	BlockN int
+	// Start is the UTC time of the file's first row (ReadRawCSVAt); zero
+	// takes the file's own "# start" line, or none.
+	Start time.Time
 	// Health counts the blocks (Frames) and sample times (Samples) handed
 	// to fn; it only grows, over every Replay.
 	Health Health
@@ -44,7 +48,7 @@ func (f *CSVFile) Replay(ctx context.Context, fn func(Block) error) error {
 	if n <= 0 {
 		n = DefaultRawCSVBlock
 	}
-	return ReadRawCSV(file, f.Source, n, func(b Block) error {
+	return ReadRawCSVAt(file, f.Source, n, f.Start, func(b Block) error {
 		if err := ctx.Err(); err != nil {
 			return err
 		}

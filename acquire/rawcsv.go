@@ -1,6 +1,7 @@
 package acquire
 
 import (
+	"bufio"
 	"encoding/csv"
 	"errors"
 	"fmt"
@@ -8,6 +9,7 @@ import (
 	"math"
 	"strconv"
 	"strings"
+	"time"
 
 	"liftyard/rig"
 )
@@ -56,20 +58,59 @@ const DefaultRawCSVBlock = 100
 // emitted. An error from emit stops the read and is returned as is. emit
 // owns each Block.
 func ReadRawCSV(r io.Reader, source string, blockSamples int, emit func(Block) error) error {
+	return ReadRawCSVAt(r, source, blockSamples, time.Time{}, emit)
+}
+
+// RelativeBeforeUs is the device time (µs) below which a raw CSV's t_s is
+// taken as relative (seconds from power-up or from the start of the file)
+// rather than Unix time: 2001-09-09, before any file this tool reads.
+const RelativeBeforeUs = 1_000_000_000 * 1_000_000
+
+// ReadRawCSVAt is ReadRawCSV with the file's wall-clock start: the UTC time
+// of its first row. A non-zero start, or else a first line
+//
+//	# start 2026-03-14T09:00:00Z
+//
+// before the header (RFC 3339; start overrides it), gives every block a
+// receive time: start + (its last sample time − the first row's time). The
+// pipeline's clock alignment (acquire.Aligner) then maps the file's t_s to
+// UTC, whatever its origin. Without either, blocks have no receive time and
+// t_s is taken as Unix time.
+func ReadRawCSVAt(r io.Reader, source string, blockSamples int, start time.Time, emit func(Block) error) error {
 	if blockSamples <= 0 {
 		blockSamples = DefaultRawCSVBlock
 	}
+	lineOff := 0 // lines before the header (the "# start" line)
 	fail := func(line int, col, format string, args ...any) error {
+		if line > 0 {
+			line += lineOff
+		}
 		return rawCSVError(source, line, col, format, args...)
 	}
-	cr := csv.NewReader(r)
+	br := bufio.NewReader(r)
+	if c, err := br.Peek(1); err == nil && c[0] == '#' {
+		first, err := br.ReadString('\n')
+		if err != nil && err != io.EOF {
+			return rawCSVError(source, 1, "", "%v", err)
+		}
+		lineOff = 1
+		t, err := parseStartLine(first)
+		if err != nil {
+			return rawCSVError(source, 1, "", "%v", err)
+		}
+		if start.IsZero() {
+			start = t
+		}
+	}
+	var firstUs int64 // device time of the first row
+	cr := csv.NewReader(br)
 	cr.ReuseRecord = true
 	header, err := cr.Read()
 	if err == io.EOF {
 		return fail(0, "", "empty file: want a header t_s,<channel>,... and rows of readings")
 	}
 	if err != nil {
-		return rawCSVParseError(source, err)
+		return rawCSVParseError(source, lineOff, err)
 	}
 	if len(header) < 2 || strings.TrimSpace(strings.TrimPrefix(header[0], "\ufeff")) != "t_s" {
 		return fail(1, "", "header %q: want t_s followed by channel names", strings.Join(header, ","))
@@ -116,6 +157,9 @@ func ReadRawCSV(r io.Reader, source string, blockSamples int, emit func(Block) e
 		lastDt = cur.DtUs
 		b := *cur
 		cur = nil
+		if !start.IsZero() {
+			b.Received = start.Add(time.Duration(b.T0Us+int64(b.Len()-1)*b.DtUs-firstUs) * time.Microsecond).UTC()
+		}
 		return emit(b)
 	}
 	vals := make([]float64, len(names))
@@ -125,7 +169,7 @@ func ReadRawCSV(r io.Reader, source string, blockSamples int, emit func(Block) e
 			break
 		}
 		if err != nil {
-			return rawCSVParseError(source, err)
+			return rawCSVParseError(source, lineOff, err)
 		}
 		line, _ := cr.FieldPos(0)
 		tUs, ok := parseSecondsUs(strings.TrimSpace(rec[0]))
@@ -172,7 +216,10 @@ func ReadRawCSV(r io.Reader, source string, blockSamples int, emit func(Block) e
 		for i, v := range vals {
 			cur.Series[i].Raw = append(cur.Series[i].Raw, v)
 		}
-		prevT, prevLn = tUs, line
+		if rows == 0 {
+			firstUs = tUs
+		}
+		prevT, prevLn = tUs, line+lineOff
 		rows++
 	}
 	if rows == 0 {
@@ -182,14 +229,14 @@ func ReadRawCSV(r io.Reader, source string, blockSamples int, emit func(Block) e
 }
 
 // rawCSVParseError turns an encoding/csv error into a positioned one.
-func rawCSVParseError(name string, err error) error {
+func rawCSVParseError(name string, lineOff int, err error) error {
 	var pe *csv.ParseError
 	if errors.As(err, &pe) {
 		msg := pe.Err.Error()
 		if errors.Is(pe.Err, csv.ErrFieldCount) {
 			msg = "wrong number of fields (every row has one cell per header column; leave a cell blank for no sample)"
 		}
-		return rawCSVError(name, pe.Line, "", "%s", msg)
+		return rawCSVError(name, pe.Line+lineOff, "", "%s", msg)
 	}
 	return rawCSVError(name, 0, "", "%v", err)
 }
@@ -242,6 +289,27 @@ func parseSecondsUs(s string) (int64, bool) {
 		return 0, false
 	}
 	return int64(math.Round(v * 1e6)), true
+}
+
+// parseStartLine reads "# start 2026-03-14T09:00:00Z" (a colon or "=" after
+// start is allowed too).
+func parseStartLine(line string) (time.Time, error) {
+	body := strings.TrimSpace(strings.TrimPrefix(strings.TrimSpace(strings.TrimPrefix(line, "\ufeff")), "#"))
+	key, val, _ := strings.Cut(body, " ")
+	key = strings.TrimRight(key, ":=")
+	if k, v, ok := strings.Cut(body, "="); ok && strings.TrimSpace(k) == "start" {
+		key, val = "start", v
+	} else if k, v, ok := strings.Cut(body, ":"); ok && strings.TrimSpace(k) == "start" {
+		key, val = "start", v
+	}
+	if key != "start" {
+		return time.Time{}, fmt.Errorf("comment line %q: the only line allowed before the header is \"# start 2026-03-14T09:00:00Z\" (the UTC time of the first row)", strings.TrimSpace(line))
+	}
+	t, err := time.Parse(time.RFC3339Nano, strings.TrimSpace(val))
+	if err != nil {
+		return time.Time{}, fmt.Errorf("start %q is not an RFC 3339 time (write 2026-03-14T09:00:00Z)", strings.TrimSpace(val))
+	}
+	return t.UTC(), nil
 }
 
 // formatUs writes µs as seconds with six decimals.

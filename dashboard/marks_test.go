@@ -329,3 +329,32 @@ func TestMarks_Browser(t *testing.T) {
 		t.Errorf("script exceptions: %q", ex)
 	}
 }
+
+// Ensure that where marks cannot be applied (the recorder's dashboard) the
+// marks form is really not shown: `hidden` is not overridden by a display
+// rule of the style sheet (issue 13).
+func TestMarks_BrowserFormHiddenWhereUnusable(t *testing.T) {
+	ctx := browsertest.Browser(t)
+	ctx, cancel := context.WithTimeout(ctx, 30*time.Second)
+	defer cancel()
+	s, _ := markServer(t, false)
+	ln := listen(t)
+	sctx, stop := context.WithCancel(context.Background())
+	errc := make(chan error, 1)
+	go func() { errc <- s.Serve(sctx, ln) }()
+	t.Cleanup(func() { stop(); <-errc })
+	if err := chromedp.Do(ctx, chromedp.Navigate("http://"+ln.Addr().String()+"/runs/1")); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := chromedp.Run(ctx, chromedp.Poll[bool](`!document.getElementById("marks-status").textContent.startsWith("Loading")`,
+		chromedp.WithPollingTimeout(10*time.Second))); err != nil {
+		t.Fatal(err)
+	}
+	shown, err := chromedp.Run(ctx, chromedp.Evaluate[string](`getComputedStyle(document.getElementById("mark-form")).display`))
+	if err != nil || shown != "none" {
+		t.Errorf("marks form display %q (%v), want none", shown, err)
+	}
+	if ex := browsertest.Exceptions(ctx); len(ex) > 0 {
+		t.Errorf("script exceptions: %q", ex)
+	}
+}

@@ -154,13 +154,15 @@ func (s *Server) runPage(w http.ResponseWriter, r *http.Request) {
 	}
 	s.render(w, r, s.pages.run, pageData{
 		Title: "Run " + strconv.FormatUint(id, 10), Nav: "runs", Token: !s.loopback.Load(),
-		Content: runPageData{Run: run, View: viewOf(run.Kind), Caps: s.caps(), Duration: runDuration(run, s.now()), Segments: segs, Health: run.Sources},
+		Content: runPageData{Run: run, View: viewOf(run.Kind), Caps: s.caps(), Duration: runDuration(run, s.now()), Segments: segs, Health: notAllZero(run.Sources)},
 	})
 }
 
 // funcs format numbers for the pages. They only round and label; every
 // number was computed by estimate (angles arrive in degrees, U95 expanded).
 var funcs = template.FuncMap{
+	// words shows an identifier as words: fresh_water → fresh water.
+	"words": func(v any) string { return strings.ReplaceAll(fmt.Sprint(v), "_", " ") },
 	"fix": func(v any, digits int) string {
 		switch v := v.(type) {
 		case num:
@@ -241,4 +243,18 @@ func whenStr(t time.Time) string {
 		return "—"
 	}
 	return t.Format("2006-01-02 15:04:05 MST")
+}
+
+// notAllZero drops source rows whose every counter is zero (the store's
+// own row on a clean run), which say nothing (issue 13).
+func notAllZero(hs []acquire.HealthSnapshot) []acquire.HealthSnapshot {
+	var out []acquire.HealthSnapshot
+	for _, h := range hs {
+		if h.Frames == 0 && h.Samples == 0 && h.Rejected == 0 && h.SamplesDropped == 0 && h.BlocksDropped == 0 &&
+			h.Duplicates == 0 && h.Gaps == 0 && h.Late == 0 && h.Reconnects == 0 {
+			continue
+		}
+		out = append(out, h)
+	}
+	return out
 }

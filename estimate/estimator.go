@@ -73,6 +73,11 @@ type Estimator struct {
 	dtUs        int64
 	nextTUs     int64 // device time expected for the next primary sample
 	started     bool
+	// wallOffUs maps the timeline source's device clock to UTC wall time
+	// (µs): AlignedT0Us − T0Us of the first timeline block, taken again
+	// after each gap or clock step. Held fixed in between, so sample times
+	// stay evenly spaced and marks select the same samples on every replay.
+	wallOffUs int64
 
 	ring ring      // live window
 	tick sampleBuf // samples of the tick being filled
@@ -93,7 +98,7 @@ type Estimator struct {
 
 	rhoCacheTK, rhoCache float64 // density at the last temperature asked (speed rigs)
 
-	spans   []markSpan // Config.Marks on the device clock; nil: automatic segments
+	spans   []markSpan // Config.Marks on the wall clock; nil: automatic segments
 	markIdx int        // the mark being filled
 }
 
@@ -235,6 +240,16 @@ func NewEstimator(r *rig.Rig, cfg Config) (*Estimator, error) {
 // or until the timeline has run JoinWait ahead of it, so a source that
 // arrives late is still joined at the right instant.
 //
+// # Wall-clock times
+//
+// Every time the estimator gives out (Segment.TStart/TEnd, Live.T) and every
+// Mark it takes is UTC wall time: timeline sample i is at T0Us + i·DtUs +
+// offset, where offset = AlignedT0Us − T0Us of the first timeline block
+// (acquire.Aligner's map of the device clock onto the host clock), taken
+// again after a gap or a clock step. A device that counts from power-up
+// therefore shows the time of day, not 1970. Blocks without a receive time
+// (a file with no start time) keep their device clock.
+//
 // Bad input never panics: a nil or empty block, a block without a positive
 // DtUs, or series of unequal length (missing samples read as NaN) give fewer
 // results, and unusable blocks are counted in a Live warning.
@@ -321,11 +336,15 @@ func (e *Estimator) addPrimary(b *calibrate.Block) []Segment {
 		if !e.marked() { // a mark is not split by a gap
 			out = e.closeSegment(out)
 		}
+		e.wallOffUs = alignedStart(b) - b.T0Us
 		e.tick.reset()
 		e.det.reset()
 		if b.DtUs != e.dtUs || b.T0Us < e.nextTUs {
 			e.ring = ring{}
 		}
+	}
+	if !e.started {
+		e.wallOffUs = alignedStart(b) - b.T0Us
 	}
 	if !e.started || b.DtUs != e.dtUs {
 		e.dtUs = b.DtUs
@@ -355,7 +374,7 @@ func (e *Estimator) addPrimary(b *calibrate.Block) []Segment {
 	tickN := max(1, int(int64(tickDuration/time.Microsecond)/e.dtUs))
 	at0 := alignedStart(b)
 	for i := range n {
-		sm := sample{tUs: b.T0Us + int64(i)*b.DtUs}
+		sm := sample{tUs: b.T0Us + int64(i)*b.DtUs + e.wallOffUs}
 		at := at0 + int64(i)*b.DtUs
 		sm.normalN = e.sum(e.roles.normal, normal, i, at)
 		sm.axialN = 0

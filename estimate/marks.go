@@ -12,7 +12,8 @@ import (
 // Mark is a steady segment set by hand: the operator knows the rig held
 // still from Start to End (e.g. the carriage ran steady from 12.0 s to
 // 15.5 s). Start and End are on the same clock as Segment.TStart and
-// Segment.TEnd (the timeline source's device clock); both ends are
+// Segment.TEnd: UTC wall time, the timeline source's device clock mapped
+// through acquire.Aligner (see Estimator.Add); both ends are
 // included. Label is free text for the operator's own notes (at most
 // MaxMarkLabel bytes, no control characters).
 type Mark struct {
@@ -71,7 +72,7 @@ func CheckMarks(marks []Mark, maxLen time.Duration) error {
 	return nil
 }
 
-// markSpan is a mark in device-clock microseconds, both ends included.
+// markSpan is a mark in wall-clock microseconds, both ends included.
 type markSpan struct {
 	startUs, endUs int64
 	used           bool // gave a segment

@@ -27,8 +27,8 @@ type Contribution struct {
 type Segment struct {
 	Index      int       // 0-based segment number within the run
 	Kind       rig.Kind  // rig kind that produced the row; "" in rows stored before it was recorded (KindOf)
-	TStart     time.Time // first sample used (device clock)
-	TEnd       time.Time // last sample used (device clock)
+	TStart     time.Time // first sample used, UTC wall time (device clock mapped by acquire.Aligner)
+	TEnd       time.Time // last sample used, UTC wall time
 	N          int       // samples used
 	NEff       float64   // effective number of independent samples of C_L (autocorrelation)
 	AlphaRad   calibrate.Value

@@ -109,6 +109,9 @@ type RoofEstimator struct {
 	gridT0Us int64 // start of the block grid
 	blkT0Us  int64 // start of the open block
 	nextTUs  int64 // device time expected for the next sample
+	// wallOffUs maps the device clock to UTC wall time (µs), as in
+	// Estimator: fixed at the first block and after a clock step.
+	wallOffUs int64
 
 	blk  roofBuf // open block
 	live roofBuf // live window
@@ -379,13 +382,14 @@ func (e *RoofEstimator) Add(b *calibrate.Block) []Segment {
 	}
 	if !e.started {
 		e.started, e.dtUs = true, b.DtUs
-		e.gridT0Us, e.blkT0Us = b.T0Us, b.T0Us
+		e.wallOffUs = alignedStart(b) - b.T0Us
+		e.gridT0Us, e.blkT0Us = b.T0Us+e.wallOffUs, b.T0Us+e.wallOffUs
 	}
 	blockUs := int64(e.cfg.Block / time.Microsecond)
 	cp := make([]float64, len(e.zones))
 	fN := make([]float64, len(e.zones))
 	for i := range n {
-		tUs := b.T0Us + int64(i)*b.DtUs
+		tUs := b.T0Us + int64(i)*b.DtUs + e.wallOffUs
 		if tUs >= e.blkT0Us+blockUs {
 			out = e.closeBlock(out)
 			e.blkT0Us = e.gridT0Us + (tUs-e.gridT0Us)/blockUs*blockUs

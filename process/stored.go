@@ -2,7 +2,6 @@ package process
 
 import (
 	"context"
-	"errors"
 	"fmt"
 	"slices"
 	"strconv"
@@ -36,42 +35,16 @@ func StoredRig(run storage.Run) (*rig.Rig, error) {
 	return r, nil
 }
 
-// errFound stops a replay early.
-var errFound = errors.New("found")
-
 // RunStart returns the time of run id's first sample on the clock of its
-// segments: sample 0 of the first stored block of the source that carries
-// the rig's first normal-force channel (the estimator's timeline source).
-// User marks are given in seconds from it.
+// segments (UTC wall time, storage.RunClock): sample 0 of the first stored
+// block of the estimator's timeline source. User marks are given in
+// seconds from it.
 func RunStart(store *storage.Store, id uint64) (time.Time, error) {
-	run, err := store.Run(id)
+	c, err := store.RunClock(id)
 	if err != nil {
 		return time.Time{}, err
 	}
-	r, err := StoredRig(run)
-	if err != nil {
-		return time.Time{}, err
-	}
-	if len(r.Lift.Normal) == 0 {
-		return time.Time{}, fmt.Errorf("run %d: the rig names no normal-force channel", id)
-	}
-	var t0 time.Time
-	err = store.ReplayBlocks(id, func(b acquire.Block) error {
-		for _, s := range b.Series {
-			if s.Channel == r.Lift.Normal[0] && b.Len() > 0 {
-				t0 = time.UnixMicro(b.T0Us).UTC()
-				return errFound
-			}
-		}
-		return nil
-	})
-	switch {
-	case errors.Is(err, errFound):
-		return t0, nil
-	case err != nil:
-		return time.Time{}, err
-	}
-	return time.Time{}, fmt.Errorf("run %d has no stored samples of %s", id, r.Lift.Normal[0])
+	return c.Wall, nil
 }
 
 // Recompute replays run's stored raw blocks through the pipeline of the rig

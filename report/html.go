@@ -2,6 +2,7 @@ package report
 
 import (
 	"bytes"
+	"cmp"
 	_ "embed"
 	"fmt"
 	"html/template"
@@ -42,6 +43,9 @@ type segRow struct {
 
 type budgetRow struct{ Input, U, C, UY, Share, Dof string }
 
+// budgetBrief is one segment's budget in one line.
+type budgetBrief struct{ Index, Alpha, CL, UC, DofEff, K, First, Second string }
+
 type budgetView struct {
 	Title                    string
 	Rows                     []budgetRow
@@ -79,6 +83,9 @@ type view struct {
 	Summary []string
 	Facts   []row
 
+	// Lead is the first plot (the lift curve, or the kind's main plot),
+	// shown on page one; Figures are the others.
+	Lead    *figure
 	Figures []*figure
 
 	// Spin adds the spin-ratio column S (rotor runs).
@@ -99,7 +106,12 @@ type view struct {
 	Reasons       []string
 	DesignProblem string
 
-	Budgets []budgetView
+	// Budgets are the full budgets of the representative segments
+	// (representative), BudgetWhich says which; BudgetBrief is every
+	// segment's budget in one line, for the appendix.
+	Budgets     []budgetView
+	BudgetWhich string
+	BudgetBrief []budgetBrief
 
 	Health      []healthRow
 	Channels    []chanRow
@@ -152,7 +164,11 @@ func (r *Report) view() (*view, error) {
 		if err != nil {
 			return nil, fmt.Errorf("report of run %d: %w", r.Run.ID, err)
 		}
-		if fig != nil {
+		switch {
+		case fig == nil:
+		case v.Lead == nil:
+			v.Lead = fig
+		default:
 			v.Figures = append(v.Figures, fig)
 		}
 	}
@@ -180,10 +196,17 @@ func (r *Report) view() (*view, error) {
 			s.DesignCL, s.En = pt.DesignCL, pt.En
 		}
 		v.Segments = append(v.Segments, r.segRow(s, linear[i]))
-		if b := budgetOf(s); b != nil {
+		if b := briefOf(s); b != nil {
+			v.BudgetBrief = append(v.BudgetBrief, *b)
+		}
+	}
+	picks, why := representative(r.Segments)
+	for _, i := range picks {
+		if b := budgetOf(r.Segments[i]); b != nil {
 			v.Budgets = append(v.Budgets, *b)
 		}
 	}
+	v.BudgetWhich = why
 	r.polarView(v)
 	r.designView(v)
 	r.recordView(v)
@@ -306,6 +329,75 @@ func budgetOf(s estimate.Segment) *budgetView {
 	return b
 }
 
+// representative picks the segments whose full budget the report prints:
+// the lowest and the highest angle (the ends of the polar) and the one with
+// the largest U95 of C_L, each once, in segment order. It returns their
+// positions in segs and a sentence saying which they are.
+func representative(segs []estimate.Segment) ([]int, string) {
+	lo, hi, big := -1, -1, -1
+	for i, s := range segs {
+		if len(s.CLBudget) == 0 {
+			continue
+		}
+		if lo < 0 || s.AlphaRad.X < segs[lo].AlphaRad.X {
+			lo = i
+		}
+		if hi < 0 || s.AlphaRad.X > segs[hi].AlphaRad.X {
+			hi = i
+		}
+		if big < 0 || u95Of(s.CL) > u95Of(segs[big].CL) {
+			big = i
+		}
+	}
+	if lo < 0 {
+		return nil, ""
+	}
+	var picks []int
+	for _, i := range []int{lo, hi, big} {
+		if !slices.Contains(picks, i) {
+			picks = append(picks, i)
+		}
+	}
+	slices.Sort(picks)
+	name := func(i int) string { return fmt.Sprintf("segment %d", segs[i].Index) }
+	why := fmt.Sprintf("the lowest angle (%s), the highest angle (%s) and the largest U95 of C_L (%s)", name(lo), name(hi), name(big))
+	return picks, why
+}
+
+// briefOf is s's budget in one line: u_c, ν_eff, k and the two largest
+// contributions.
+func briefOf(s estimate.Segment) *budgetBrief {
+	if len(s.CLBudget) == 0 {
+		return nil
+	}
+	var sum2 float64
+	for _, c := range s.CLBudget {
+		if finite(c.UY) {
+			sum2 += c.UY * c.UY
+		}
+	}
+	order := make([]int, len(s.CLBudget))
+	for i := range order {
+		order[i] = i
+	}
+	uy := func(i int) float64 {
+		if x := s.CLBudget[i].UY; finite(x) {
+			return math.Abs(x)
+		}
+		return -1
+	}
+	slices.SortStableFunc(order, func(a, b int) int { return cmp.Compare(uy(b), uy(a)) })
+	part := func(k int) string {
+		if k >= len(order) || sum2 <= 0 || uy(order[k]) < 0 {
+			return dash
+		}
+		c := s.CLBudget[order[k]]
+		return fmt.Sprintf("%s (%s %%)", c.Input, fix(100*c.UY*c.UY/sum2, 0))
+	}
+	return &budgetBrief{Index: fmt.Sprint(s.Index), Alpha: fix(rig.Deg(s.AlphaRad.X), 2), CL: pm(s.CL.X, u95Of(s.CL), 3),
+		UC: sig(s.CL.U, 2), DofEff: dof(s.CL.Dof), K: fix(calibrate.K95(s.CL.Dof), 2), First: part(0), Second: part(1)}
+}
+
 // hysteresisNote marks a difference between the sweeps beyond its U95.
 func hysteresisNote(h estimate.HysteresisStep) string {
 	if h.Significant() {
@@ -388,6 +480,10 @@ func (r *Report) designView(v *view) {
 
 func (r *Report) recordView(v *view) {
 	for _, h := range r.Sources {
+		if h.Frames == 0 && h.Samples == 0 && h.Rejected == 0 && h.SamplesDropped == 0 && h.BlocksDropped == 0 &&
+			h.Duplicates == 0 && h.Gaps == 0 && h.Late == 0 && h.Reconnects == 0 {
+			continue // an all-zero row (the store's own counters on a clean run) says nothing
+		}
 		hr := healthRow{Source: h.Source, Frames: u(h.Frames), Samples: u(h.Samples), Rejected: u(h.Rejected),
 			Dropped: u(h.SamplesDropped) + " samples, " + u(h.BlocksDropped) + " blocks", Duplicates: u(h.Duplicates),
 			Gaps: u(h.Gaps), Late: u(h.Late), Reconnects: u(h.Reconnects)}

@@ -286,8 +286,16 @@ func TestWriteHTML_Contents(t *testing.T) {
 	assert.Contains(t, html, "CIPM-2007")
 	assert.Contains(t, html, "JCGM 100")
 	assert.Contains(t, html, "Helmbold")
-	// Nine budgets, one per segment.
-	assert.Equal(t, 9, strings.Count(html, "<details open=\"open\">"))
+	// issue 13: full budgets only for the representative segments (lowest
+	// and highest angle, largest U95: here −4°, 12° and one of them or
+	// another), every segment's budget in brief in the appendix.
+	n := strings.Count(html, "<details open=\"open\">")
+	assert.True(t, n >= 2 && n <= 3, "%d full budgets", n)
+	assert.Contains(t, html, "Segment 0 at α = −4.00°")
+	assert.Contains(t, html, "Segment 8 at α = 12.00°")
+	app := html[strings.Index(html, "Appendix: the budget of every segment"):]
+	app = app[strings.Index(app, "<tbody>"):strings.Index(app, "</tbody>")]
+	assert.Equal(t, 9, strings.Count(app, "<tr>"), "one appendix row per segment")
 }
 
 // Ensure that a hostile rig name comes out escaped everywhere.

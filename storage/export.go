@@ -8,6 +8,7 @@ import (
 	"math"
 	"slices"
 	"strconv"
+	"time"
 
 	"liftyard/acquire"
 	"liftyard/estimate"
@@ -92,7 +93,11 @@ func exportSegmentsCSV(w io.Writer, run Run, rows []estimate.Row) error {
 // a header t_s,<channel>,..., then one row per sample time, in device time
 // order across all sources; a blank cell means that channel has no sample at
 // that time (another source's time, or a NaN reading). t_s is the device
-// clock in seconds with microsecond digits, written exactly from t_us.
+// clock in seconds with microsecond digits, written exactly from t_us. When
+// the device clock counts from power-up (t_s below acquire.RelativeBeforeUs)
+// and the run maps it to UTC, a first line "# start <RFC 3339>" gives the
+// wall time of the first row, which import reads back
+// (acquire.ReadRawCSVAt), so the round trip keeps the run's wall times.
 // Channels appear in the order of their sources' names, then as each source
 // first sends them. Blocks are read in short chunks, so a long run streams
 // with bounded memory; no read transaction is held while w is written.
@@ -120,10 +125,43 @@ func (s *Store) ExportRaw(w io.Writer, id uint64) error {
 		}
 		return sb
 	}
+	off, err := s.wallOffsets(id, sources)
+	if err != nil {
+		return fmt.Errorf("export raw run %d: %w", id, err)
+	}
+	if len(off) > 0 {
+		first, ok, err := s.firstSampleUs(id, sources)
+		if err != nil {
+			return fmt.Errorf("export raw run %d: %w", id, err)
+		}
+		if o, has := off[first.source]; ok && has {
+			if _, err := fmt.Fprintf(w, "# start %s\n", time.UnixMicro(first.tUs+o).UTC().Format(time.RFC3339Nano)); err != nil {
+				return err
+			}
+		}
+	}
 	if err := s.writeSampleCSV(w, id, sources, header, col, raw); err != nil {
 		return fmt.Errorf("export raw run %d: %w", id, err)
 	}
 	return nil
+}
+
+// firstSampleUs returns the earliest first-block device time over sources,
+// the first row ExportRaw writes.
+func (s *Store) firstSampleUs(id uint64, sources []string) (first struct {
+	source string
+	tUs    int64
+}, ok bool, err error) {
+	for _, src := range sources {
+		b, has, err := s.newBlockIter(id, src).next()
+		if err != nil {
+			return first, false, err
+		}
+		if has && b.Len() > 0 && (!ok || b.T0Us < first.tUs) {
+			first.source, first.tUs, ok = src, b.T0Us, true
+		}
+	}
+	return first, ok, nil
 }
 
 // sampleBlock is one block's series as the sample CSV exports write them.

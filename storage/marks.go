@@ -3,6 +3,7 @@ package storage
 import (
 	"encoding/json"
 	"fmt"
+	"time"
 
 	bolt "go.etcd.io/bbolt"
 
@@ -12,8 +13,22 @@ import (
 // Marks (steady segments set by hand) live in the meta bucket, one value
 // per run, so no new top-level bucket is needed:
 //
-//	meta/marks/<run id u64 BE>   JSON array of estimate.Mark, in time order
+//	meta/marks/<run id u64 BE>   {"clock":"utc","marks":[estimate.Mark, …]}, in time order
+//
+// Stores written before marks were on the wall clock hold a bare JSON
+// array of marks on the timeline source's device clock; Marks maps those
+// to UTC by the run's clock offset (RunClock), so they select the same
+// samples as before.
 var metaMarks = []byte("marks")
+
+// marksRecord is the stored value of a run's marks.
+type marksRecord struct {
+	Clock string          `json:"clock"` // "utc"
+	Marks []estimate.Mark `json:"marks"`
+}
+
+// marksClockUTC names the clock of marksRecord.Marks.
+const marksClockUTC = "utc"
 
 // PutMarks stores the user marks of run id, replacing any stored before;
 // nil or empty marks clear them. The marks must pass estimate.CheckMarks
@@ -29,7 +44,7 @@ func (s *Store) PutMarks(id uint64, marks []estimate.Mark) error {
 	var data []byte
 	if len(marks) > 0 {
 		var err error
-		if data, err = json.Marshal(marks); err != nil {
+		if data, err = json.Marshal(marksRecord{Clock: marksClockUTC, Marks: marks}); err != nil {
 			return fmt.Errorf("marks of run %d: %w: %w", id, ErrBadRecord, err)
 		}
 	}
@@ -59,6 +74,7 @@ func (s *Store) PutMarks(id uint64, marks []estimate.Mark) error {
 // slice when there are none. A run that does not exist gives ErrNotFound.
 func (s *Store) Marks(id uint64) (marks []estimate.Mark, err error) {
 	defer guard(&err, fmt.Sprintf("read marks of run %d", id))()
+	legacy := false
 	err = s.db.View(func(tx *bolt.Tx) error {
 		if tx.Bucket(bucketRuns).Get(u64(id)) == nil {
 			return fmt.Errorf("run %d: %w", id, ErrNotFound)
@@ -71,11 +87,35 @@ func (s *Store) Marks(id uint64) (marks []estimate.Mark, err error) {
 		if data == nil {
 			return nil
 		}
-		if err := json.Unmarshal(data, &marks); err != nil {
+		if len(data) > 0 && data[0] == '[' {
+			legacy = true
+			if err := json.Unmarshal(data, &marks); err != nil {
+				return fmt.Errorf("marks of run %d: %w: %w", id, ErrCorrupt, err)
+			}
+			return nil
+		}
+		var rec marksRecord
+		if err := json.Unmarshal(data, &rec); err != nil {
 			return fmt.Errorf("marks of run %d: %w: %w", id, ErrCorrupt, err)
 		}
+		if rec.Clock != marksClockUTC {
+			return fmt.Errorf("marks of run %d: %w: clock %q, want %q", id, ErrCorrupt, rec.Clock, marksClockUTC)
+		}
+		marks = rec.Marks
 		return nil
 	})
+	if err == nil && legacy && len(marks) > 0 {
+		// Device-clock marks of an older store: shift them onto the wall
+		// clock the estimator now uses.
+		c, cerr := s.RunClock(id)
+		if cerr != nil {
+			return nil, fmt.Errorf("marks of run %d are on the device clock and cannot be mapped to UTC: %w", id, cerr)
+		}
+		off := time.Duration(c.OffsetUs()) * time.Microsecond
+		for i := range marks {
+			marks[i].Start, marks[i].End = marks[i].Start.Add(off), marks[i].End.Add(off)
+		}
+	}
 	if err == nil && marks == nil {
 		marks = []estimate.Mark{}
 	}

@@ -35,7 +35,9 @@ func ValueColumn(ch rig.Channel) string {
 
 // ExportValues writes the calibrated values of run id as CSV: a header
 // t_s,<channel>_<SI unit>,... (ValueColumn), then one row per sample time
-// in device time order across all sources, like ExportRaw. Each raw block
+// in time order across all sources, like ExportRaw. t_s is Unix time: the
+// device clock, or for a device counting from power-up its clock mapped to
+// UTC wall time (wallOffsets), so no value is dated 1970. Each raw block
 // goes through cal (the calibrator built for r, with the stored
 // calibrations the run used), so the values are exactly those the
 // estimator saw. Columns are r's channels in the rig file's order, those
@@ -61,9 +63,13 @@ func (s *Store) ExportValues(w io.Writer, id uint64, r *rig.Rig, cal *calibrate.
 			header = append(header, ValueColumn(ch))
 		}
 	}
+	off, err := s.wallOffsets(id, sources)
+	if err != nil {
+		return fmt.Errorf("export values run %d: %w", id, err)
+	}
 	values := func(b acquire.Block) sampleBlock {
 		cb := cal.Apply(&b)
-		sb := sampleBlock{t0Us: cb.T0Us, dtUs: cb.DtUs, n: cb.Len()}
+		sb := sampleBlock{t0Us: cb.T0Us + off[b.Source], dtUs: cb.DtUs, n: cb.Len()}
 		for _, sr := range cb.Series {
 			sb.series = append(sb.series, sampleSeries{sr.Channel, sr.Values})
 		}

@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"strings"
 
 	"liftyard/process"
 	"liftyard/rig"
@@ -33,7 +34,8 @@ func runCheck(_ context.Context, args []string, stdout, _ io.Writer) error {
 	if err := process.CheckDesign(r); err != nil {
 		return err
 	}
-	fmt.Fprintf(stdout, "%s: ok: %q, %s in %s; %d sources, %d channels", pos[0], r.Name, r.Kind, r.Fluid, len(r.Sources), len(r.Channels))
+	fmt.Fprintf(stdout, "%s: ok: %q, %s in %s; %s, %s", pos[0], r.Name, r.Kind, strings.ReplaceAll(string(r.Fluid), "_", " "),
+		count(len(r.Sources), "source"), count(len(r.Channels), "channel"))
 	if r.Reference.AreaM2 > 0 {
 		fmt.Fprintf(stdout, "; reference area %g m²", r.Reference.AreaM2)
 		if r.Reference.AreaKind != "" {
@@ -42,4 +44,12 @@ func runCheck(_ context.Context, args []string, stdout, _ io.Writer) error {
 	}
 	fmt.Fprintln(stdout)
 	return nil
+}
+
+// count writes n with its noun, plural when n ≠ 1 ("1 source", "4 channels").
+func count(n int, noun string) string {
+	if n == 1 {
+		return "1 " + noun
+	}
+	return fmt.Sprintf("%d %ss", n, noun)
 }

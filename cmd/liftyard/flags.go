@@ -5,6 +5,9 @@ import (
 	"flag"
 	"fmt"
 	"io"
+	"strconv"
+	"strings"
+	"sync"
 )
 
 // errHelp is returned when the user asked for a verb's help: exit 0.
@@ -15,13 +18,37 @@ var errHelp = errors.New("help shown")
 func newFlags(name, usage, summary string, stdout io.Writer) *flag.FlagSet {
 	fs := flag.NewFlagSet(name, flag.ContinueOnError)
 	fs.SetOutput(io.Discard)
-	fs.Usage = func() {
+	// The flag package calls Usage on every parse error as well as on
+	// -h/--help; the help is printed by parseFlags, once, for help only.
+	fs.Usage = func() {}
+	helpOf.Store(fs, func() {
 		fmt.Fprintf(stdout, "liftyard %s: %s\n\nUsage: liftyard %s %s\n\nFlags:\n", name, summary, name, usage)
-		fs.SetOutput(stdout)
-		fs.PrintDefaults()
-		fs.SetOutput(io.Discard)
-	}
+		printFlags(stdout, fs)
+	})
 	return fs
+}
+
+// helpOf maps each verb's flag set to the function printing its help.
+var helpOf sync.Map // *flag.FlagSet → func()
+
+// printFlags lists fs's flags as they are written on the command line
+// (--name, never -name), with their argument and default.
+func printFlags(w io.Writer, fs *flag.FlagSet) {
+	fs.VisitAll(func(f *flag.Flag) {
+		arg, usage := flag.UnquoteUsage(f)
+		line := "  --" + f.Name
+		if arg != "" {
+			line += " " + strings.ToUpper(arg)
+		}
+		fmt.Fprintf(w, "%s\n    \t%s", line, strings.ReplaceAll(usage, "\n", "\n    \t"))
+		if d := f.DefValue; d != "" && d != "false" && d != "0" && d != "[]" {
+			if _, isString := f.Value.(interface{ String() string }); isString && arg == "string" {
+				d = strconv.Quote(d)
+			}
+			fmt.Fprintf(w, " (default %s)", d)
+		}
+		fmt.Fprintln(w)
+	})
 }
 
 // parseFlags parses args and turns flag errors into usage errors. Flags may
@@ -31,10 +58,15 @@ func parseFlags(fs *flag.FlagSet, args []string) ([]string, error) {
 	for {
 		if err := fs.Parse(args); err != nil {
 			if errors.Is(err, flag.ErrHelp) {
-				fs.Usage()
+				if h, ok := helpOf.Load(fs); ok {
+					h.(func())()
+				}
 				return nil, errHelp
 			}
-			return nil, usagef("%v (see liftyard %s --help)", err, fs.Name())
+			msg := strings.Replace(err.Error(), "flag provided but not defined: -", "unknown flag --", 1)
+			msg = strings.Replace(msg, "flag needs an argument: -", "flag needs an argument: --", 1)
+			msg = strings.Replace(msg, " for flag -", " for flag --", 1)
+			return nil, usagef("%s (see liftyard %s --help)", msg, fs.Name())
 		}
 		rest := fs.Args()
 		if len(rest) == 0 {

@@ -9,6 +9,7 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+	"time"
 
 	"liftyard/acquire"
 	"liftyard/estimate"
@@ -20,14 +21,20 @@ import (
 // checkRawCSV reads the whole file once before a run is made, so that a bad
 // file is refused (exit 2, with its line) and leaves no half-made run. It
 // returns the channels of the header.
-func checkRawCSV(path, source string, r *rig.Rig) (channels []string, samples int, err error) {
+func checkRawCSV(path, source string, r *rig.Rig, start time.Time) (channels []string, samples int, err error) {
 	f, err := os.Open(path)
 	if err != nil {
 		return nil, 0, usagef("raw CSV: %v", err)
 	}
 	defer f.Close()
-	err = acquire.ReadRawCSV(f, filepath.Base(path), 0, func(b acquire.Block) error {
+	var (
+		relative bool
+		firstUs  int64
+	)
+	err = acquire.ReadRawCSVAt(f, filepath.Base(path), 0, start, func(b acquire.Block) error {
 		if channels == nil {
+			relative = b.Received.IsZero() && b.T0Us < acquire.RelativeBeforeUs
+			firstUs = b.T0Us
 			for _, s := range b.Series {
 				channels = append(channels, s.Channel)
 			}
@@ -38,6 +45,13 @@ func checkRawCSV(path, source string, r *rig.Rig) (channels []string, samples in
 	if err != nil {
 		return nil, 0, usagef("%v", err)
 	}
+	defer func() {
+		if err == nil && relative {
+			// Relative t_s with no start: the run would be dated 1970.
+			err = usagef("%s: t_s starts at %.3f s, a relative time (not Unix time): give the UTC time of the first row with --start 2026-03-14T09:00:00Z, or a first line \"# start 2026-03-14T09:00:00Z\" in the file",
+				filepath.Base(path), float64(firstUs)/1e6)
+		}
+	}()
 	var known []string
 	for _, c := range channels {
 		if _, ok := r.Channel(c); ok {
@@ -66,12 +80,13 @@ func containsString(xs []string, s string) bool {
 
 // runImport is `liftyard import --rig RIG.toml --db FILE RAW.csv`.
 func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) error {
-	fs := newFlags("import", "--rig RIG.toml --db FILE [--source NAME] RAW.csv",
+	fs := newFlags("import", "--rig RIG.toml --db FILE [--source NAME] [--start TIME] RAW.csv",
 		"ingest a raw CSV recorded elsewhere as a new run, processed exactly as a live run", stdout)
 	rigPath := fs.String("rig", "", "rig file (TOML) of the rig that made the record")
 	db := fs.String("db", "liftyard.db", "bbolt store file")
 	source := fs.String("source", "", "rig source the file comes from (default: the rig's first [[source]])")
 	blockN := fs.Int("block", acquire.DefaultRawCSVBlock, "samples per block")
+	startS := fs.String("start", "", "UTC time of the file's first row, RFC 3339 (e.g. 2026-03-14T09:00:00Z); needed when t_s is relative and the file has no \"# start\" line")
 	verbose := fs.Bool("v", false, "log progress to stderr")
 	pos, err := parseFlags(fs, args)
 	if err != nil {
@@ -101,7 +116,14 @@ func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) err
 		}
 		name = r.Sources[0].Name
 	}
-	channels, samples, err := checkRawCSV(pos[0], name, r)
+	var start time.Time
+	if *startS != "" {
+		if start, err = time.Parse(time.RFC3339Nano, *startS); err != nil {
+			return usagef("--start %q: want an RFC 3339 time such as 2026-03-14T09:00:00Z", *startS)
+		}
+		start = start.UTC()
+	}
+	channels, samples, err := checkRawCSV(pos[0], name, r, start)
 	if err != nil {
 		return err
 	}
@@ -110,7 +132,7 @@ func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) err
 		return err
 	}
 	defer store.Close()
-	src := &acquire.CSVFile{Path: pos[0], Source: name, BlockN: *blockN}
+	src := &acquire.CSVFile{Path: pos[0], Source: name, BlockN: *blockN, Start: start}
 	id, fin, err := recordOffline(ctx, store, r, string(data), fmt.Sprintf("imported from %s", filepath.Base(pos[0])),
 		src, &src.Health, name, newLogger(stderr, *verbose))
 	if err != nil {

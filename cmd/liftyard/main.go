@@ -60,6 +60,7 @@ func verbs() []verb {
 		{"balance", "fit a balance interaction matrix to combined bench loadings (prints the [balance] table)", runBalance},
 		{"tare", "fit the weight tare against the angle from a recorded flow-off angle sweep (prints [[tare]] tables)", runTare},
 		{"reprocess", "re-process a run from its stored raw samples as a new run (e.g. with a corrected rig file)", runReprocess},
+		{"version", "print the module version and VCS revision of this build", runVersion},
 	}
 }
 
@@ -72,6 +73,9 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 			return 2
 		}
 		return 0
+	}
+	if args[0] == "--version" || args[0] == "-version" {
+		args = append([]string{"version"}, args[1:]...)
 	}
 	for _, v := range verbs() {
 		if v.name != args[0] {
@@ -109,7 +113,7 @@ func exitCode(err error, name string, stderr io.Writer) int {
 
 func printHelp(w io.Writer) {
 	fmt.Fprintln(w, "liftyard: lift measurement in the field (load cells, pitot, coefficients with uncertainty)")
-	fmt.Fprintln(w, "\nUsage: liftyard <command> [flags]   (liftyard <command> --help for its flags)")
+	fmt.Fprintln(w, "\nUsage: liftyard <command> [flags]   (liftyard <command> --help for its flags; liftyard --version)")
 	fmt.Fprintln(w, "\nCommands:")
 	for _, v := range verbs() {
 		fmt.Fprintf(w, "  %-10s %s\n", v.name, v.summary)

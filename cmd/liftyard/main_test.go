@@ -128,7 +128,7 @@ func TestCLI_ExitStatus(t *testing.T) {
 		{"help", []string{"help"}, 0, "demo", ""},
 		{"unknown verb", []string{"fly"}, 2, "", `unknown command "fly"`},
 		{"verb help", []string{"demo", "--help"}, 0, "--for", ""},
-		{"bad flag", []string{"runs", "--nope"}, 2, "", "flag provided but not defined: -nope"},
+		{"bad flag", []string{"runs", "--nope"}, 2, "", "unknown flag --nope"},
 		{"check good", []string{"check", "../../testdata/rigs/foil-towtank.toml"}, 0, "ok", ""},
 		{"check roof", []string{"check", "../../testdata/rigs/roof-yard.toml"}, 0, "ok", ""},
 		{"check bad", []string{"check", bad}, 2, "", "bad.toml:3:"},

@@ -12,9 +12,6 @@ import (
 	"liftyard/storage"
 )
 
-// version is the liftyard version printed in reports.
-const version = "dev"
-
 // runReport is `liftyard report --db FILE --run ID|latest --out FILE.html
 // [--rig-dir DIR]`: it writes the printable HTML report of one run and
 // prints the file's path.
