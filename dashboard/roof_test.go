@@ -18,6 +18,7 @@ import (
 	"liftyard/dashboard"
 	"liftyard/estimate"
 	"liftyard/internal/browsertest"
+	"liftyard/rig"
 	"liftyard/storage"
 )
 
@@ -33,11 +34,15 @@ func roofRun() (storage.Run, []estimate.Segment) {
 			Index: i, TStart: t0, TEnd: t0.Add(10 * time.Minute), N: 60000, NEff: 900,
 			QPa: v(96.4, 0.9), SpeedMPerS: v(12.5, 0.06), RhoKgPerM3: 1.232, En: math.NaN(),
 			Zone: z, CpMean: v(-0.9-0.4*float64(i%3), 0.05), CpRMS: 0.3, CpPeak: -2.6 + 0.5*float64(i%3),
-			UpliftN: v(-200, 10),
+			UpliftN: v(-200, 10), Block: i / 3, CpMin: -2.9 + 0.5*float64(i%3), CpMax: -0.2, CpPeakU: 0.1,
+			CpPeakMax: -0.25, CpPeakMaxU: 0.05, CpInt: calibrate.Value{X: 0.2, Dof: math.Inf(1)}, QAt: "mast",
+			TurbulenceIntensity: 0.15, DirectionRad: rig.Rad(245), DirectionSpreadRad: rig.Rad(11),
+			SectorRad: rig.Rad(240), SectorOutFrac: 0.04,
 		}
 		if z == "corner" {
 			sg.DesignCp = calibrate.Value{X: -2.2, U: 0.25 / 2, Dof: math.Inf(1)}
 			sg.En = (sg.CpMean.X - sg.DesignCp.X) / math.Hypot(sg.CpMean.U95(), 0.25)
+			sg.DesignVs = "cp_mean"
 		}
 		segs = append(segs, sg)
 	}

@@ -58,11 +58,22 @@ func constSeries(n int, v float64) []float64 {
 	return x
 }
 
-// zoneSeg returns the segment of the named zone.
+// zoneRows returns the zone rows of segs (no per-tap rows).
+func zoneRows(segs []estimate.Segment) []estimate.Segment {
+	var out []estimate.Segment
+	for _, s := range segs {
+		if s.Tap == "" {
+			out = append(out, s)
+		}
+	}
+	return out
+}
+
+// zoneSeg returns the zone row of the named zone.
 func zoneSeg(t *testing.T, segs []estimate.Segment, zone string) estimate.Segment {
 	t.Helper()
 	for _, s := range segs {
-		if s.Zone == zone {
+		if s.Zone == zone && s.Tap == "" {
 			return s
 		}
 	}
@@ -94,22 +105,30 @@ func TestRoof_ENNetPressure(t *testing.T) {
 		if len(segs) != 0 {
 			t.Fatalf("c_pi %+.1f: %d segments before the block ended", tc.cpi, len(segs))
 		}
-		segs = e.Flush()
-		if len(segs) != 2 {
-			t.Fatalf("c_pi %+.1f: got %d segments, want 2 (zone F and roof)", tc.cpi, len(segs))
+		all := e.Flush()
+		segs = zoneRows(all)
+		if len(segs) != 2 || len(all) != 4 {
+			t.Fatalf("c_pi %+.1f: got %d rows (%d zone rows), want 2 zone rows (F and roof) and 2 tap rows", tc.cpi, len(all), len(segs))
 		}
-		for _, s := range segs {
+		for _, s := range all {
 			if math.Abs(s.CpMean.X-tc.wantCp) > 1e-12 {
 				t.Errorf("c_pi %+.1f zone %s: CpMean %.15g, want %g", tc.cpi, s.Zone, s.CpMean.X, tc.wantCp)
 			}
-			if w := s.UpliftN.X / 2; math.Abs(w-tc.wantWPa) > 1e-9 {
+			area := 2.0 // zone F and the roof: two taps of 1 m²
+			if s.Tap != "" {
+				area = 1
+			}
+			if w := s.UpliftN.X / area; math.Abs(w-tc.wantWPa) > 1e-9 {
 				t.Errorf("c_pi %+.1f zone %s: uplift per m² %.12g Pa, want %g", tc.cpi, s.Zone, w, tc.wantWPa)
 			}
 			// A constant series: every epoch minimum is the same value.
 			if math.Abs(s.CpPeak-tc.wantCp) > 1e-12 || s.CpRMS != 0 {
 				t.Errorf("c_pi %+.1f zone %s: peak %g rms %g, want %g and 0", tc.cpi, s.Zone, s.CpPeak, s.CpRMS, tc.wantCp)
 			}
-			if s.QPa.X != 600 || s.N != n {
+			if math.Abs(s.CpMin-tc.wantCp) > 1e-12 || math.Abs(s.CpMax-tc.wantCp) > 1e-12 || s.CpInt.X != tc.cpi {
+				t.Errorf("zone %s tap %q: min %g max %g c_pi %g", s.Zone, s.Tap, s.CpMin, s.CpMax, s.CpInt.X)
+			}
+			if s.QPa.X != 600 || s.N != n || s.QAt != "mast" {
 				t.Errorf("zone %s: q %g N %d, want 600 and %d", s.Zone, s.QPa.X, s.N, n)
 			}
 		}
@@ -152,9 +171,10 @@ func TestRoof_AreaWeighting(t *testing.T) {
 		t.Fatal(err)
 	}
 	const n, q = 200, 400.0
-	segs := e.Add(block(0, 10000, 0, map[string][]float64{
+	all := e.Add(block(0, 10000, 0, map[string][]float64{
 		"p1": constSeries(n, -1*q), "p2": constSeries(n, -2*q), "p3": constSeries(n, -0.5*q), "q": constSeries(n, q)}))
-	if len(segs) != 3 {
+	segs := zoneRows(all)
+	if len(segs) != 3 || len(all) != 6 {
 		t.Fatalf("got %d segments, want 3 (F, H, roof) for the first complete 1 s block", len(segs))
 	}
 	for i, want := range []struct {
@@ -173,10 +193,21 @@ func TestRoof_AreaWeighting(t *testing.T) {
 			t.Errorf("zone %s: Cp %.15g force %.12g N, want %g and %g", s.Zone, s.CpMean.X, s.UpliftN.X, want.cp, want.f)
 		}
 	}
-	// The second second completes on Flush, with indices continuing.
+	// Then one row per tap, in rig order, with the tap's own Cp.
+	for i, want := range []struct {
+		tap, zone string
+		cp        float64
+	}{{"t1", "F", -1}, {"t2", "F", -2}, {"t3", "H", -0.5}} {
+		s := all[3+i]
+		if s.Tap != want.tap || s.Zone != want.zone || s.Index != 3+i || s.Block != 0 || math.Abs(s.CpMean.X-want.cp) > 1e-12 {
+			t.Errorf("row %d: tap %q zone %q index %d block %d Cp %g, want %s/%s Cp %g", 3+i, s.Tap, s.Zone, s.Index, s.Block, s.CpMean.X, want.tap, want.zone, want.cp)
+		}
+	}
+	// The second second completes on Flush, with indices continuing and
+	// the block number counting blocks, not rows.
 	segs = e.Flush()
-	if len(segs) != 3 || segs[0].Index != 3 || segs[2].Index != 5 {
-		t.Errorf("flush: %d segments, indices %v; want 3 with 3..5", len(segs), indices(segs))
+	if len(segs) != 6 || segs[0].Index != 6 || segs[5].Index != 11 || segs[0].Block != 1 || segs[5].Block != 1 {
+		t.Errorf("flush: %d segments, indices %v; want 6 with 6..11 in block 1", len(segs), indices(segs))
 	}
 }
 
@@ -246,7 +277,7 @@ func TestRoof_BadInput(t *testing.T) {
 	other := block(1_000_000, 10000, 1, map[string][]float64{"p1": constSeries(100, 99999), "q": constSeries(100, 1)})
 	other.Source = "elsewhere"
 	e.Add(other)
-	segs := e.Flush()
+	segs := zoneRows(e.Flush())
 	if len(segs) != 2 {
 		t.Fatalf("got %d segments, want 2", len(segs))
 	}
@@ -260,7 +291,7 @@ func TestRoof_BadInput(t *testing.T) {
 		t.Fatal("Live not ok")
 	}
 	joined := strings.Join(lv.Warnings, "\n")
-	for _, w := range []string{"1 blocks from sources other", "1 blocks ignored"} {
+	for _, w := range []string{"1 blocks from sources other", "1 blocks ignored", "101 samples fell in no result block"} {
 		if !strings.Contains(joined, w) {
 			t.Errorf("warnings %q lack %q", joined, w)
 		}
@@ -325,7 +356,7 @@ func runRoof(t testing.TB, r *rig.Rig, cfg sim.RoofConfig, ecfg estimate.RoofCon
 		segs = append(segs, e.Add(&cb)...)
 	}
 	segs = append(segs, e.Flush()...)
-	return s, e, segs
+	return s, e, zoneRows(segs)
 }
 
 // Ensure that a simulated yard roof streamed in 4 s blocks gives one
@@ -348,7 +379,7 @@ func TestRoof_StreamingSimulatedYard(t *testing.T) {
 		t.Fatalf("got %d segments, want %d (3 blocks × %d zones)", len(segs), 3*len(zones), len(zones))
 	}
 	for i, sg := range segs {
-		if sg.Index != i || sg.Zone != zones[i%len(zones)] {
+		if sg.Block != i/len(zones) || sg.Zone != zones[i%len(zones)] {
 			t.Errorf("segment %d: index %d zone %q", i, sg.Index, sg.Zone)
 		}
 		// Each interval misses 5 % of the time (TestRoof_Coverage checks
@@ -433,13 +464,16 @@ func TestRoof_Coverage(t *testing.T) {
 	}
 }
 
-// Ensure that CpPeak estimates the 78 % fractile of the epoch extremes:
-// for white Gaussian net Cp (mean m, sd σ) and epochs of M samples the
-// epoch minimum has the exact distribution P(min ≥ x) = Φ((m − x)/σ)^M
+// Ensure that CpPeak estimates the 78 % fractile of the block's own
+// extreme: for white Gaussian net Cp (mean m, sd σ) the minimum of a block
+// of N samples has the exact distribution P(min ≥ x) = Φ((m − x)/σ)^N
 // (order statistics of independent samples), so the Cook & Mayne fractile
-// p = exp(−e^{−1.4}) is x = m − σ·Φ⁻¹(p^{1/M}). A Gumbel fit to 16 epoch
-// extremes has a sampling error of about 0.1σ here: tolerance 0.35σ.
-func TestRoof_PeakMatchesGaussianExtremes(t *testing.T) {
+// p = exp(−e^{−1.4}) is x = m − σ·Φ⁻¹(p^{1/N}). The Gumbel fit of 16 epoch
+// extremes scaled to the block (mode + ln 16 dispersions) is a model, not
+// the exact law: Gaussian extremes approach the Gumbel slowly, so the
+// estimate is checked within 2.5 of its own standard uncertainties (and
+// 0.5σ), and the same on the positive side.
+func TestRoof_PeakMatchesGaussianBlockExtremes(t *testing.T) {
 	const m, sigma, q = -1.2, 0.3, 500.0
 	const epochs, perEpoch = 16, 625 // 10 000 samples: a 10 s block at 1 kHz
 	r := enRoof(0)
@@ -458,12 +492,22 @@ func TestRoof_PeakMatchesGaussianExtremes(t *testing.T) {
 	e.Add(block(0, 1000, 0, map[string][]float64{"p1": p1, "p2": p2, "q": constSeries(n, q)}))
 	segs := e.Flush()
 	f := zoneSeg(t, segs, "F")
-	p := math.Exp(-math.Exp(-1.4))
-	want := m - sigma*distuv.UnitNormal.Quantile(math.Pow(p, 1.0/perEpoch))
-	if d := math.Abs(f.CpPeak - want); d > 0.35*sigma {
-		t.Errorf("peak %.3f, want %.3f (Gaussian epoch extremes) ± %.3f", f.CpPeak, want, 0.35*sigma)
+	z := distuv.UnitNormal.Quantile(math.Pow(estimate.RoofPeakProb, 1/float64(n)))
+	for _, c := range []struct {
+		side      string
+		got, u, w float64
+	}{
+		{"suction", f.CpPeak, f.CpPeakU, m - sigma*z},
+		{"positive", f.CpPeakMax, f.CpPeakMaxU, m + sigma*z},
+	} {
+		if d := math.Abs(c.got - c.w); d > 2.5*c.u || d > 0.5*sigma || !(c.u > 0) {
+			t.Errorf("%s peak %.3f ± %.3f, want %.3f (exact 78 %% block fractile)", c.side, c.got, c.u, c.w)
+		}
+		t.Logf("%s peak %.4f ± %.4f, exact 78 %% block fractile %.4f", c.side, c.got, c.u, c.w)
 	}
-	t.Logf("peak %.4f, exact 78 %% epoch fractile %.4f", f.CpPeak, want)
+	if math.Abs(estimate.RoofPeakProb-0.7815) > 1e-4 {
+		t.Errorf("RoofPeakProb %g, want 0.7815 = exp(−e^{−1.4})", estimate.RoofPeakProb)
+	}
 }
 
 // BenchmarkRoofEstimator measures the streaming cost of the yard rig
@@ -540,4 +584,52 @@ func FuzzRoofEstimator_Add(f *testing.F) {
 			}
 		}
 	})
+}
+
+// Ensure that, on a record whose taps lag the mast gusts and follow them
+// only partly, the block means p̄/q̄ cover the truth and the block peaks are
+// exceeded by the blocks' own extremes at about their stated rate
+// (1 − RoofPeakProb ≈ 22 %). 12 seeded runs × 10 blocks of 5 s at 100 Hz,
+// 4 zone rows a block: 480 zone-blocks. Issue 11 "Must show".
+func TestRoof_LaggedTapsCoverageAndPeakRate(t *testing.T) {
+	r := yardRig(t)
+	hit, total, below, above := 0, 0, 0, 0
+	for seed := range uint64(12) {
+		s, _, segs := runRoof(t, r, sim.RoofConfig{QPa: 300, Seed: 100 + seed, CalibrationErrors: true,
+			IntegralTimeS: 0.02, TapGustCorrelation: 0.6, TapGustLagS: 0.05, TapIntegralTimeS: 0.01,
+			RateHz: 200, BlockSamples: 100},
+			estimate.RoofConfig{Block: 5 * time.Second}, 50)
+		for _, sg := range segs {
+			total++
+			if math.Abs(sg.CpMean.X-s.TrueCp(sg.Zone)) <= sg.CpMean.U95() {
+				hit++
+			}
+			if sg.CpMin < sg.CpPeak {
+				below++
+			}
+			if sg.CpMax > sg.CpPeakMax {
+				above++
+			}
+		}
+	}
+	if total != 480 {
+		t.Fatalf("%d zone-blocks, want 480", total)
+	}
+	cov := float64(hit) / float64(total)
+	rateMin, rateMax := float64(below)/float64(total), float64(above)/float64(total)
+	t.Logf("coverage %.3f; block extreme beyond the peak: suction %.3f, positive %.3f (stated %.3f)", cov, rateMin, rateMax, 1-estimate.RoofPeakProb)
+	if cov < 0.80 {
+		t.Errorf("coverage %.3f below 0.80", cov)
+	}
+	// The Gumbel of epoch extremes is conservative on a near-Gaussian side
+	// (docs/roof.md §5): measured 0.11 on the suction side, 0.02 on the
+	// positive side against the stated 0.22. The band asserts that the
+	// suction peak is a block value (an epoch value is exceeded in almost
+	// every block) and not optimistic.
+	if rateMin < 0.05 || rateMin > 0.35 {
+		t.Errorf("suction exceedance rate %.3f outside 0.05–0.35 (stated %.3f)", rateMin, 1-estimate.RoofPeakProb)
+	}
+	if rateMax > 0.35 {
+		t.Errorf("positive exceedance rate %.3f above 0.35 (stated %.3f)", rateMax, 1-estimate.RoofPeakProb)
+	}
 }
