@@ -1,6 +1,7 @@
 package dashboard
 
 import (
+	"fmt"
 	"math"
 	"time"
 
@@ -180,7 +181,9 @@ type segmentJSON struct {
 // zone plot: the zone's net Cp mean with U95, its rms over the block, the
 // Gumbel peak, the mean net force (negative = upward) and the design value.
 type roofView struct {
-	Zone                                                                     string
+	Zone, Tap, Block                                                         string
+	DirectionDeg, DirectionSpreadDeg, CpPeakMax                              num
+	SectorLeft                                                               bool
 	CpMean, CpU95, CpRMS, CpPeak, UpliftN, UpliftU95N, DesignCp, DesignCpU95 num
 	Agrees                                                                   *bool // nil without a design value
 }
@@ -223,6 +226,17 @@ func segmentView(r estimate.Row) segmentJSON {
 			UpliftN: f("uplift_n"), UpliftU95N: f("uplift_u95_n"), DesignCp: f("design_cp"), DesignCpU95: f("design_cp_u95"),
 		}
 		rv.Zone, _ = zone.(string)
+		if tap, ok := r.Value("tap"); ok {
+			rv.Tap, _ = tap.(string)
+		}
+		rv.Block = "#" + fmt.Sprint(s.Segment)
+		if b, ok := r.Value("block"); ok {
+			rv.Block = fmt.Sprint(b.(int64) + 1)
+		}
+		rv.DirectionDeg, rv.DirectionSpreadDeg, rv.CpPeakMax = f("direction_deg"), f("direction_spread_deg"), f("cp_peak_max")
+		if v, ok := r.Value("sector_left"); ok {
+			rv.SectorLeft, _ = v.(bool)
+		}
 		if v, ok := r.Value("agrees"); ok {
 			a, _ := v.(bool)
 			rv.Agrees = &a
