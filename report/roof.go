@@ -16,7 +16,7 @@ import (
 // roofRow is one zone in one block, rounded to text.
 type roofRow struct {
 	Index, Zone, Start, Dir, Q, Cp, RMS, Peak, Uplift, Design, En, Agrees string
-	Disagree                                                         bool
+	Disagree                                                              bool
 }
 
 // roofRows lists the roof segments in stored order (block by block, zone

@@ -53,7 +53,7 @@ func mustRoofStore(t *testing.T) (*storage.Store, uint64) {
 				QPa: calibrate.Value{X: 88.2 + float64(b), U: 0.8, Dof: 300}, SpeedMPerS: calibrate.Value{X: 12.0, U: 0.05, Dof: 300},
 				RhoKgPerM3: 1.225, Zone: zone, CpMean: cp, CpRMS: 0.31, CpPeak: cp.X - 1.1,
 				UpliftN: calibrate.Value{X: cp.X * 88.2 * 2, U: 8, Dof: 120}, DesignCp: d,
-				En: (cp.X - d.X) / math.Hypot(cp.U95(), designU[zone]),
+				En:        (cp.X - d.X) / math.Hypot(cp.U95(), designU[zone]),
 				CpPeakMax: cp.X + 0.9, CpPeakMaxU: 0.05, CpPeakU: 0.1, CpMin: cp.X - 1.3, CpMax: cp.X + 1.0, QAt: "mast",
 				DirectionRad: rig.Rad(240 + 10*float64(b)), DirectionSpreadRad: rig.Rad(9), SectorRad: rig.Rad(240),
 				SectorOutFrac: 0.2 * float64(b), TurbulenceIntensity: 0.15,
