@@ -633,3 +633,204 @@ func TestRoof_LaggedTapsCoverageAndPeakRate(t *testing.T) {
 		t.Errorf("positive exceedance rate %.3f above 0.35 (stated %.3f)", rateMax, 1-estimate.RoofPeakProb)
 	}
 }
+
+// Ensure that a scanner clock jittering by ±1 µs loses no block and no
+// sample: 12 s of the yard in 4 s blocks gives 3 blocks, each with every
+// sample, and nothing counted as unblocked (issue 11 "Must show").
+func TestRoof_TimestampJitterLosesNoBlock(t *testing.T) {
+	r := yardRig(t)
+	_, e, segs := runRoof(t, r, sim.RoofConfig{QPa: 300, Seed: 5, TimestampJitterUs: 1},
+		estimate.RoofConfig{Block: 4 * time.Second}, 12)
+	if len(segs) != 3*4 || e.Unblocked() != 0 {
+		t.Fatalf("%d zone rows, %d samples unblocked; want 12 and 0", len(segs), e.Unblocked())
+	}
+	for _, s := range segs {
+		if s.N < 799 || s.SamplesUnblocked != 0 {
+			t.Errorf("block %d zone %s: N %d, unblocked %d", s.Block, s.Zone, s.N, s.SamplesUnblocked)
+		}
+	}
+}
+
+// Ensure that samples in no block are counted and shown: a 1.5 s
+// stretch after a clock step back (shorter than half a 4 s block) is
+// counted in Unblocked, the next whole-roof row and a Live warning.
+func TestRoof_UnblockedSamplesCounted(t *testing.T) {
+	e, err := estimate.NewRoofEstimator(enRoof(0.2), estimate.RoofConfig{Block: 4 * time.Second})
+	if err != nil {
+		t.Fatal(err)
+	}
+	add := func(t0Us int64, n int) []estimate.Segment {
+		return e.Add(block(t0Us, 10000, 1, map[string][]float64{"p1": constSeries(n, -1080), "p2": constSeries(n, -1080), "q": constSeries(n, 600)}))
+	}
+	add(0, 150)           // 1.5 s
+	add(-10_000_000, 400) // the clock steps back: the 1.5 s stretch is short
+	segs := zoneRows(append(add(-6_000_000, 10), e.Flush()...))
+	// The last 10 samples, flushed alone, are short too: 160 in all, of
+	// which the 150 before the block are on its whole-roof row.
+	if e.Unblocked() != 160 || len(segs) != 2 {
+		t.Fatalf("unblocked %d, %d zone rows; want 160 and 2", e.Unblocked(), len(segs))
+	}
+	if roof := zoneSeg(t, segs, "roof"); roof.SamplesUnblocked != 150 {
+		t.Errorf("whole-roof row shows %d unblocked samples, want 150", roof.SamplesUnblocked)
+	}
+	lv, _ := e.Live()
+	if !strings.Contains(strings.Join(lv.Warnings, "\n"), "160 samples fell in no result block") {
+		t.Errorf("warnings %q", lv.Warnings)
+	}
+}
+
+// Ensure that a declared reference height carries q by the profile, that
+// uplift ÷ (q̄·A) = cp_mean on every row, and that the profile's
+// uncertainty enters the budget. EN 1991-1-4:2005 eq. 4.4 (log law,
+// k_r cancels): from 3 m to 10 m over z0 = 0.05 m the mean-q ratio is
+// [ln(200)/ln(60)]² = 1.6746; power law α = 0.16: (10/3)^0.32 = 1.4700
+// (arithmetic of the published forms, docs/references.md §17).
+func TestRoof_ReferenceHeight(t *testing.T) {
+	for _, tc := range []struct {
+		name  string
+		wind  rig.Wind
+		ratio float64
+		at    string
+	}{
+		{"mast", rig.Wind{}, 1, "mast"},
+		{"log", rig.Wind{MastHeightM: 3, ReferenceHeightM: 10, Profile: rig.ProfileLog, RoughnessM: 0.05}, 1.6746, "reference height (log law)"},
+		{"power", rig.Wind{MastHeightM: 3, ReferenceHeightM: 10, Profile: rig.ProfilePower, Exponent: 0.16}, 1.4700, "reference height (power law)"},
+	} {
+		r := enRoof(0.2)
+		r.Wind = tc.wind
+		e, err := estimate.NewRoofEstimator(r, estimate.RoofConfig{Block: 2 * time.Second})
+		if err != nil {
+			t.Fatal(err)
+		}
+		rng := rand.New(rand.NewPCG(3, 4))
+		const n = 200
+		p1, p2, q := make([]float64, n), make([]float64, n), make([]float64, n)
+		for i := range n {
+			q[i] = 600 * (1 + 0.2*rng.NormFloat64())
+			p1[i], p2[i] = -1.8*600+50*rng.NormFloat64(), -1.6*600+50*rng.NormFloat64()
+		}
+		e.Add(block(0, 10000, 1, map[string][]float64{"p1": p1, "p2": p2, "q": q}))
+		for _, s := range e.Flush() {
+			area := 2.0
+			if s.Tap != "" {
+				area = 1
+			}
+			if got := s.UpliftN.X / (s.QPa.X * area); math.Abs(got-s.CpMean.X) > 1e-12 {
+				t.Errorf("%s %s%s: uplift/(q̄A) %.15g, cp_mean %.15g", tc.name, s.Zone, s.Tap, got, s.CpMean.X)
+			}
+			if s.QAt != tc.at {
+				t.Errorf("%s: q at %q, want %q", tc.name, s.QAt, tc.at)
+			}
+		}
+		qm := 0.0
+		for _, v := range q {
+			qm += v / n
+		}
+		// The block's q̄ is the ratio times the mast mean.
+		e2, _ := estimate.NewRoofEstimator(r, estimate.RoofConfig{Block: 2 * time.Second})
+		e2.Add(block(0, 10000, 1, map[string][]float64{"p1": p1, "p2": p2, "q": q}))
+		g := zoneSeg(t, e2.Flush(), "F")
+		if math.Abs(g.QPa.X/qm-tc.ratio) > 1e-4 {
+			t.Errorf("%s: q̄/q̄_mast %.5f, want %.4f", tc.name, g.QPa.X/qm, tc.ratio)
+		}
+		ratio, uRel := tc.wind.QRatio()
+		if tc.name != "mast" && !(uRel > 0.01) || tc.name == "mast" && (ratio != 1 || uRel != 0) {
+			t.Errorf("%s: ratio %g, u_rel %g", tc.name, ratio, uRel)
+		}
+	}
+}
+
+// Ensure that the direction of a block is the circular mean of the vane
+// (across north: 350° and 10° average to 0°, not 180°), with its spread,
+// its 30° sector and the flag when many samples leave the sector.
+func TestRoof_Direction(t *testing.T) {
+	r := enRoof(0)
+	r.Channels = append(r.Channels, rig.Channel{Name: "vane", Quantity: rig.QuantityAngle, ToSI: rig.Affine{Scale: 1}, Calibration: rig.Calibration{Poly: []float64{0, 1}}})
+	r.Lift.Direction = "vane"
+	r.Wind.SectorRad = rig.Rad(30)
+	for _, tc := range []struct {
+		name string
+		a, b float64 // alternate samples, degrees
+		mean float64
+		left bool
+	}{
+		{"across north", 350, 10, 0, false},
+		{"wandering", 200, 250, 225, true},
+	} {
+		e, _ := estimate.NewRoofEstimator(r, estimate.RoofConfig{Block: time.Second})
+		const n = 100
+		dir := make([]float64, n)
+		for i := range dir {
+			dir[i] = rig.Rad(tc.a)
+			if i%2 == 1 {
+				dir[i] = rig.Rad(tc.b)
+			}
+		}
+		b := block(0, 10000, 0, map[string][]float64{"p1": constSeries(n, -500), "p2": constSeries(n, -500), "q": constSeries(n, 500)})
+		b.Series = append(b.Series, calibrate.Series{Channel: "vane", Values: dir, Dof: math.Inf(1)})
+		e.Add(b)
+		s := zoneSeg(t, e.Flush(), "F")
+		d := math.Mod(rig.Deg(s.DirectionRad)+360, 360)
+		if math.Min(math.Abs(d-tc.mean), 360-math.Abs(d-tc.mean)) > 1e-9 {
+			t.Errorf("%s: direction %.6f°, want %g°", tc.name, d, tc.mean)
+		}
+		// Two directions ±h about the mean: R̄ = cos h, spread √(−2 ln cos h).
+		h := rig.Rad(math.Abs(tc.b-tc.a) / 2)
+		if h > math.Pi/2 {
+			h = math.Pi - h
+		}
+		if want := math.Sqrt(-2 * math.Log(math.Cos(h))); math.Abs(s.DirectionSpreadRad-want) > 1e-9 {
+			t.Errorf("%s: spread %g rad, want %g", tc.name, s.DirectionSpreadRad, want)
+		}
+		if s.SectorLeft() != tc.left {
+			t.Errorf("%s: sector %g°, out fraction %g, left %v", tc.name, rig.Deg(s.SectorRad), s.SectorOutFrac, s.SectorLeft())
+		}
+	}
+}
+
+// Ensure that design values compare like with like: a declared peak is
+// compared with the block peak on its own side, a value on the peak
+// velocity pressure is put on q̄ by 1 + 7·I_v (EN 1991-1-4:2005 eq. 4.8),
+// and the side of a disagreement is named.
+func TestRoof_DesignLikeWithLike(t *testing.T) {
+	rng := rand.New(rand.NewPCG(8, 9))
+	const n = 1000
+	p1, q := make([]float64, n), make([]float64, n)
+	for i := range n {
+		q[i] = 500 * (1 + 0.1*rng.NormFloat64())
+		p1[i] = -1.0*500 + 150*rng.NormFloat64()
+	}
+	for _, tc := range []struct {
+		name       string
+		value, onQ string
+		design     float64
+		vs         string
+	}{
+		{"mean on mean q", rig.DesignMean, rig.DesignMean, -1.0, "cp_mean"},
+		{"peak suction", rig.DesignPeak, rig.DesignMean, -2.0, "cp_peak"},
+		{"peak positive", rig.DesignPeak, rig.DesignMean, 0.5, "cp_peak_max"},
+		{"mean on peak q", rig.DesignMean, rig.DesignPeak, -0.6, "cp_mean"},
+		{"mean, less suction than design", rig.DesignMean, rig.DesignMean, -1.5, "cp_mean"},
+	} {
+		r := enRoof(0)
+		r.Zones[0].DesignCp, r.Zones[0].DesignValue, r.Zones[0].DesignQ = tc.design, tc.value, tc.onQ
+		e, _ := estimate.NewRoofEstimator(r, estimate.RoofConfig{Block: time.Second})
+		e.Add(block(0, 1000, 1, map[string][]float64{"p1": p1, "p2": p1, "q": q}))
+		s := zoneSeg(t, e.Flush(), "F")
+		want := tc.design
+		if tc.onQ == rig.DesignPeak {
+			want *= 1 + 7*s.TurbulenceIntensity
+		}
+		if s.DesignVs != tc.vs || math.Abs(s.DesignCp.X-want) > 1e-12 || !(s.TurbulenceIntensity > 0.03 && s.TurbulenceIntensity < 0.07) {
+			t.Errorf("%s: compared with %q, design %g (want %g), I_v %g", tc.name, s.DesignVs, s.DesignCp.X, want, s.TurbulenceIntensity)
+		}
+		m := map[string]float64{"cp_mean": s.CpMean.X, "cp_peak": s.CpPeak, "cp_peak_max": s.CpPeakMax}[tc.vs]
+		if d := m - s.DesignCp.X; math.Abs(s.En) > 1 && (d < 0) != (estimate.DesignSide(s.En) == "more suction") {
+			t.Errorf("%s: En %g side %q for result %g vs design %g", tc.name, s.En, estimate.DesignSide(s.En), m, s.DesignCp.X)
+		}
+		if tc.design == -1.5 && estimate.DesignSide(s.En) != "less suction" {
+			t.Errorf("%s: En %g says %q", tc.name, s.En, estimate.DesignSide(s.En))
+		}
+		t.Logf("%s: result %.3f design %.3f En %.2f (%s)", tc.name, m, s.DesignCp.X, s.En, estimate.DesignSide(s.En))
+	}
+}
