@@ -82,6 +82,11 @@ type liveJSON struct {
 	// Zones is each roof zone over the window (roof rigs only; absent
 	// otherwise).
 	Zones []zoneLiveJSON `json:"zones,omitempty"`
+	// DirectionDeg and DirectionSpreadDeg are a roof's wind direction over
+	// the window (circular mean and spread, degrees from north); absent on
+	// force-balance rigs, null without a vane.
+	DirectionDeg       *num `json:"direction_deg,omitempty"`
+	DirectionSpreadDeg *num `json:"direction_spread_deg,omitempty"`
 }
 
 // zoneLiveJSON is the wire form of an estimate.ZoneLive: the zone's net
@@ -131,7 +136,7 @@ func toLiveJSON(l estimate.Live) liveJSON {
 	if w == nil {
 		w = []string{}
 	}
-	return liveJSON{
+	out := liveJSON{
 		T:           l.T.UTC(),
 		WindowS:     num(l.Window.Seconds()),
 		N:           l.N,
@@ -157,6 +162,11 @@ func toLiveJSON(l estimate.Live) liveJSON {
 		Warnings:    w,
 		Zones:       toZonesJSON(l.Zones),
 	}
+	if len(l.Zones) > 0 {
+		d, sp := num(rig.Deg(l.DirectionRad)), num(rig.Deg(l.DirectionSpreadRad))
+		out.DirectionDeg, out.DirectionSpreadDeg = &d, &sp
+	}
+	return out
 }
 
 // segmentJSON is one result row as the API (/api/v1/runs/{id}/segments),

@@ -67,6 +67,7 @@ func roofRun() (storage.Run, []estimate.Segment) {
 func roofLive() estimate.Live {
 	return estimate.Live{
 		T: epoch, Window: 10 * time.Second, N: 2000, QPa: v(96.4, 0.9), SpeedMPerS: v(12.5, 0.06), RhoKgPerM3: 1.232,
+		DirectionRad: rig.Rad(245), DirectionSpreadRad: rig.Rad(12),
 		Zones: []estimate.ZoneLive{
 			{Zone: "corner", CpMean: v(-1.7, 0.05), CpMin: -3.1, DesignCp: calibrate.Value{X: -2.2, U: 0.125, Dof: math.Inf(1)}, En: 1.84},
 			{Zone: "edge", CpMean: v(-1.3, 0.05), CpMin: -2.4, DesignCp: calibrate.Value{X: -1.5, U: 0.1, Dof: math.Inf(1)}, En: 0.9},

@@ -53,7 +53,7 @@ const roofSectorOutFrac = 0.1
 // [lift] dynamic_pressure channel (q = C²·Δp with the pitot coefficient C),
 // or ½ρV² from a [lift] speed channel. Coefficients are referred to the
 // mean dynamic pressure of the block at the reference height (common
-// practice in wind engineering, docs/references.md §17):
+// practice in wind engineering, docs/references.md §20):
 //
 //	q̄     = r·mean(q_m)        r = 1, or the [wind] profile's q ratio (rig.Wind.QRatio)
 //	p_Z(t) = Σ_{i∈Z} A_i·(p_i(t) − p_int(t)) / A_Z   (p_int from the internal channel; 0 for a fixed cp)
@@ -92,7 +92,7 @@ const roofSectorOutFrac = 0.1
 // non-exceedance probability RoofPeakProb ≈ 0.78, with its sign turned
 // back. Its standard uncertainty is the Gumbel quantile's sampling error,
 // u² = (1/a)²·(1.1087 + 0.5140·y + 0.6079·y²)/m for m epochs and reduced
-// variate y = ln n + 1.4 (docs/references.md §17), combined with q̄'s
+// variate y = ln n + 1.4 (docs/references.md §20), combined with q̄'s
 // calibration and profile. CpPeakMax is the same on +C_Z (positive
 // pressure). With all epoch extremes equal the peak is that value; with
 // fewer than three epochs holding data it is NaN.
@@ -916,7 +916,7 @@ const peakPower = 1.0
 
 // gumbelQuantileVar is the sampling variance of a Gumbel quantile fitted to
 // m values, in units of (1/a)², at reduced variate y (the classic
-// large-sample formula, docs/references.md §17):
+// large-sample formula, docs/references.md §20):
 // (1.1087 + 0.5140·y + 0.6079·y²)/m.
 func gumbelQuantileVar(y float64, m int) float64 {
 	return (1.1087 + 0.5140*y + 0.6079*y*y) / float64(m)

@@ -684,7 +684,7 @@ func TestRoof_UnblockedSamplesCounted(t *testing.T) {
 // uncertainty enters the budget. EN 1991-1-4:2005 eq. 4.4 (log law,
 // k_r cancels): from 3 m to 10 m over z0 = 0.05 m the mean-q ratio is
 // [ln(200)/ln(60)]² = 1.6746; power law α = 0.16: (10/3)^0.32 = 1.4700
-// (arithmetic of the published forms, docs/references.md §17).
+// (arithmetic of the published forms, docs/references.md §20).
 func TestRoof_ReferenceHeight(t *testing.T) {
 	for _, tc := range []struct {
 		name  string

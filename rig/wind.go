@@ -66,7 +66,7 @@ func (w Wind) Converts() bool {
 //	power law: r = (z_ref/z_mast)^{2α}
 //
 // The default uncertainty takes ln z0 rectangular within ± ln 2, or α
-// rectangular within ± 0.05 (common practice, docs/references.md §17),
+// rectangular within ± 0.05 (common practice, docs/references.md §20),
 // through ∂ln r/∂ln z0 = 2[1/ln(z_mast/z0) − 1/ln(z_ref/z0)] and
 // ∂ln r/∂α = 2 ln(z_ref/z_mast).
 func (w Wind) QRatio() (ratio, uRel float64) {
