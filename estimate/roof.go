@@ -210,7 +210,7 @@ func newRoofBuf(zones, taps int) roofBuf {
 
 func (b *roofBuf) len() int { return len(b.tUs) }
 
-// series returns every per-sample slice, for resetting and trimming.
+// each calls f on every per-sample slice, for resetting and trimming.
 func (b *roofBuf) each(f func(p *[]float64)) {
 	f(&b.qPa)
 	f(&b.pInt)
@@ -560,7 +560,7 @@ func (e *RoofEstimator) closeBlock(out []Segment) []Segment {
 	d := e.direction(&e.blk)
 	iv := e.turbulence(e.blk.qPa)
 	var rows []Segment
-	row := func(zone, tap string, r zoneResult, areaM2 float64) Segment {
+	row := func(zone, tap string, r zoneResult) Segment {
 		return Segment{
 			Kind: rig.KindRoof, Block: e.blocks, TStart: time.UnixMicro(e.blk.tUs[0]).UTC(),
 			TEnd: time.UnixMicro(e.blk.tUs[n-1]).UTC(), N: r.n, NEff: r.nEff,
@@ -576,7 +576,7 @@ func (e *RoofEstimator) closeBlock(out []Segment) []Segment {
 		if !ok {
 			continue
 		}
-		s := row(zn.name, "", r, zn.areaM2)
+		s := row(zn.name, "", r)
 		e.design(z, &s)
 		if zn.name == RoofZoneWhole {
 			s.SamplesUnblocked = e.unblocked - e.unblockedAt
@@ -585,7 +585,7 @@ func (e *RoofEstimator) closeBlock(out []Segment) []Segment {
 	}
 	for j, t := range e.taps {
 		if r, ok := e.reduce(&e.blk, e.blk.pTap[j], true); ok {
-			rows = append(rows, row(t.zone, t.name, r, t.areaM2))
+			rows = append(rows, row(t.zone, t.name, r))
 		}
 	}
 	if len(rows) == 0 {
@@ -785,8 +785,8 @@ func (e *RoofEstimator) reduce(buf *roofBuf, p []float64, withPeak bool) (r zone
 	cv.X = cp
 	r.cp = cv
 
-	// The force: A·(p̄ − c_pi·q̄) for a unit area here, scaled by the caller's area.
-	r.force = e.forceValue(p, pm, buf, aCp, qBar, qmBar, qU, qDof)
+	// The force A·(p̄ − c_pi·q̄) on the zone's (or tap's) area.
+	r.force = e.forceValue(p, pm, buf, qBar, qU, qDof)
 
 	aQ := TypeAMean(qm)
 	qv := Combine([]Contribution{
@@ -867,7 +867,7 @@ func (e *RoofEstimator) tapsOf(p []float64, buf *roofBuf) ([]int, float64) {
 // forceValue returns the mean net force A·(p̄ − c_pi·q̄) of series p with
 // its budget: Type A of the mean pressure, the tap and internal
 // calibrations, and q's calibration and profile through c_pi.
-func (e *RoofEstimator) forceValue(p, pm []float64, buf *roofBuf, _ TypeA, qBar, qmBar, qU, qDof float64) calibrate.Value {
+func (e *RoofEstimator) forceValue(p, pm []float64, buf *roofBuf, qBar, qU, qDof float64) calibrate.Value {
 	taps, area := e.tapsOf(p, buf)
 	aP := TypeAMean(pm)
 	fB := []Contribution{{Input: "net force (type A)", UY: area * aP.U, Dof: aP.Dof, TypeA: true}}
@@ -887,7 +887,6 @@ func (e *RoofEstimator) forceValue(p, pm []float64, buf *roofBuf, _ TypeA, qBar,
 	}
 	fv := Combine(fB)
 	fv.X = area * (nanMean(pm) - e.intCp*qBar)
-	_ = qmBar
 	return fv
 }
 

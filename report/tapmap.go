@@ -17,10 +17,9 @@ import (
 
 // tapMean is one tap's mean net Cp over the run's blocks.
 type tapMean struct {
-	tap         rig.Tap
-	cp          float64
-	blocks      int
-	hasPosition bool
+	tap    rig.Tap
+	cp     float64
+	blocks int
 }
 
 // tapMeans averages each tap's per-block cp_mean over the run (a plain mean

@@ -58,9 +58,7 @@ func TestParse_Wind(t *testing.T) {
 			continue
 		}
 		want := tc.want
-		if strings.Contains(want, "%d") {
-			want = strings.Replace(want, "%d", strconv.Itoa(lines+3), 1)
-		}
+		want = strings.Replace(want, "%d", strconv.Itoa(lines+3), 1)
 		if !strings.Contains(err.Error(), want) {
 			t.Errorf("%s: error %q lacks %q", tc.name, err, want)
 		}
