@@ -43,6 +43,7 @@ func (s *Server) routes() http.Handler {
 	mux.HandleFunc("GET /runs/{id}", s.runPage)
 	mux.HandleFunc("GET /runs/{id}/polar.svg", s.plotSVG("polar.svg", report.LiftPlotSVG)) // plots.go
 	mux.HandleFunc("GET /runs/{id}/zones.svg", s.plotSVG("zones.svg", report.ZonePlotSVG))
+	mux.HandleFunc("GET /runs/{id}/taps.svg", s.plotSVG("taps.svg", tapMapSVG))
 	mux.HandleFunc("POST /logout", s.logout)
 	// Each capability's routes answer 404 when it is off (Config).
 	c := s.caps()

@@ -1,6 +1,7 @@
 package dashboard
 
 import (
+	"fmt"
 	"math"
 	"time"
 
@@ -86,6 +87,11 @@ type liveJSON struct {
 	// Zones is each roof zone over the window (roof rigs only; absent
 	// otherwise).
 	Zones []zoneLiveJSON `json:"zones,omitempty"`
+	// DirectionDeg and DirectionSpreadDeg are a roof's wind direction over
+	// the window (circular mean and spread, degrees from north); absent on
+	// force-balance rigs, null without a vane.
+	DirectionDeg       *num `json:"direction_deg,omitempty"`
+	DirectionSpreadDeg *num `json:"direction_spread_deg,omitempty"`
 }
 
 // zoneLiveJSON is the wire form of an estimate.ZoneLive: the zone's net
@@ -165,6 +171,10 @@ func toLiveJSON(l estimate.Live) liveJSON {
 		s, u, rpm := num(l.SpinRatio.X), u95(l.SpinRatio), num(l.OmegaRadPerS*60/(2*math.Pi)) // rad/s → rpm for display
 		out.SpinRatio, out.SpinRatioU95, out.SpinRPM = &s, &u, &rpm
 	}
+	if len(l.Zones) > 0 {
+		d, sp := num(rig.Deg(l.DirectionRad)), num(rig.Deg(l.DirectionSpreadRad))
+		out.DirectionDeg, out.DirectionSpreadDeg = &d, &sp
+	}
 	return out
 }
 
@@ -190,7 +200,9 @@ type segmentJSON struct {
 // zone plot: the zone's net Cp mean with U95, its rms over the block, the
 // Gumbel peak, the mean net force (negative = upward) and the design value.
 type roofView struct {
-	Zone                                                                     string
+	Zone, Tap, Block                                                         string
+	DirectionDeg, DirectionSpreadDeg, CpPeakMax                              num
+	SectorLeft                                                               bool
 	CpMean, CpU95, CpRMS, CpPeak, UpliftN, UpliftU95N, DesignCp, DesignCpU95 num
 	Agrees                                                                   *bool // nil without a design value
 }
@@ -233,6 +245,17 @@ func segmentView(r estimate.Row) segmentJSON {
 			UpliftN: f("uplift_n"), UpliftU95N: f("uplift_u95_n"), DesignCp: f("design_cp"), DesignCpU95: f("design_cp_u95"),
 		}
 		rv.Zone, _ = zone.(string)
+		if tap, ok := r.Value("tap"); ok {
+			rv.Tap, _ = tap.(string)
+		}
+		rv.Block = "#" + fmt.Sprint(s.Segment)
+		if b, ok := r.Value("block"); ok {
+			rv.Block = fmt.Sprint(b.(int64) + 1)
+		}
+		rv.DirectionDeg, rv.DirectionSpreadDeg, rv.CpPeakMax = f("direction_deg"), f("direction_spread_deg"), f("cp_peak_max")
+		if v, ok := r.Value("sector_left"); ok {
+			rv.SectorLeft, _ = v.(bool)
+		}
 		if v, ok := r.Value("agrees"); ok {
 			a, _ := v.(bool)
 			rv.Agrees = &a

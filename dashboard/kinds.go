@@ -27,6 +27,8 @@ type kindView struct {
 	Marks bool
 	// RoofCaution shows the caution about wind loads on buildings.
 	RoofCaution bool
+	// TapMap shows the roof's tap map (/runs/{id}/taps.svg).
+	TapMap bool
 }
 
 // kinds are the rig kinds this version knows; a new kind is added here and
@@ -41,7 +43,7 @@ func viewOf(kind string) kindView {
 		return kindView{
 			Layout: "roof", Plot: "zones.svg", PlotTitle: "Zones",
 			plotAlt: "net pressure coefficient per roof zone for run %d: each block with U95 error bars, beside the design value",
-			Zones:   true, RoofCaution: true,
+			Zones:   true, RoofCaution: true, TapMap: true,
 		}
 	case rig.KindRotor:
 		v := balanceView()

@@ -6,6 +6,8 @@ import (
 	"sync"
 
 	"liftyard/estimate"
+	"liftyard/report"
+	"liftyard/rig"
 	"liftyard/storage"
 )
 
@@ -14,6 +16,7 @@ import (
 //
 //	GET /runs/{id}/polar.svg   C_L against α (S for a rotor) with U95 bars (report.LiftPlotSVG)
 //	GET /runs/{id}/zones.svg   net Cp per roof zone and block with U95 bars (report.ZonePlotSVG)
+//	GET /runs/{id}/taps.svg    the roof's taps at their positions, coloured by mean net Cp (report.TapMapSVG)
 //
 // The kind's view (kinds.go) says which one a run page shows.
 
@@ -112,4 +115,15 @@ func (s *Server) plotSVG(name string, draw func(storage.Run, []estimate.Segment)
 		w.Header().Set("Cache-Control", "no-store")
 		w.Write(b)
 	}
+}
+
+// tapMapSVG draws the report's tap map from the rig file stored with the
+// run (tap positions); a run without one, or whose rig no longer parses,
+// gets the empty frame.
+func tapMapSVG(run storage.Run, segs []estimate.Segment) ([]byte, error) {
+	rg, err := rig.Parse("", []byte(run.RigTOML))
+	if err != nil || run.RigTOML == "" {
+		rg = nil
+	}
+	return report.TapMapSVG(run, rg, segs)
 }

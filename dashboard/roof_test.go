@@ -18,6 +18,7 @@ import (
 	"liftyard/dashboard"
 	"liftyard/estimate"
 	"liftyard/internal/browsertest"
+	"liftyard/rig"
 	"liftyard/storage"
 )
 
@@ -33,13 +34,32 @@ func roofRun() (storage.Run, []estimate.Segment) {
 			Index: i, TStart: t0, TEnd: t0.Add(10 * time.Minute), N: 60000, NEff: 900,
 			QPa: v(96.4, 0.9), SpeedMPerS: v(12.5, 0.06), RhoKgPerM3: 1.232, En: math.NaN(),
 			Zone: z, CpMean: v(-0.9-0.4*float64(i%3), 0.05), CpRMS: 0.3, CpPeak: -2.6 + 0.5*float64(i%3),
-			UpliftN: v(-200, 10),
+			UpliftN: v(-200, 10), Block: i / 3, CpMin: -2.9 + 0.5*float64(i%3), CpMax: -0.2, CpPeakU: 0.1,
+			CpPeakMax: -0.25, CpPeakMaxU: 0.05, CpInt: calibrate.Value{X: 0.2, Dof: math.Inf(1)}, QAt: "mast",
+			TurbulenceIntensity: 0.15, DirectionRad: rig.Rad(245), DirectionSpreadRad: rig.Rad(11),
+			SectorRad: rig.Rad(240), SectorOutFrac: 0.04,
 		}
 		if z == "corner" {
 			sg.DesignCp = calibrate.Value{X: -2.2, U: 0.25 / 2, Dof: math.Inf(1)}
 			sg.En = (sg.CpMean.X - sg.DesignCp.X) / math.Hypot(sg.CpMean.U95(), 0.25)
+			sg.DesignVs = "cp_mean"
 		}
 		segs = append(segs, sg)
+	}
+	// The example rig's taps (positions for the tap map) and per-tap rows
+	// of block 0 for three of them.
+	toml, err := os.ReadFile("../testdata/rigs/roof-yard.toml")
+	if err != nil {
+		panic(err)
+	}
+	run.RigTOML = string(toml)
+	for j, tap := range []string{"t01", "t05", "t09"} {
+		segs = append(segs, estimate.Segment{
+			Index: 6 + j, Block: 0, TStart: run.Started, TEnd: run.Started.Add(10 * time.Minute), N: 60000, NEff: 900,
+			QPa: v(96.4, 0.9), RhoKgPerM3: 1.232, En: math.NaN(), Zone: []string{"corner", "edge", "field"}[j], Tap: tap,
+			CpMean: v(-1.9+0.5*float64(j), 0.06), CpRMS: 0.35, CpPeak: -3.0, CpMin: math.NaN(), CpMax: math.NaN(),
+			CpPeakMax: math.NaN(), DirectionRad: math.NaN(), DirectionSpreadRad: math.NaN(), SectorRad: math.NaN(), SectorOutFrac: math.NaN(),
+		})
 	}
 	return run, segs
 }
@@ -47,6 +67,7 @@ func roofRun() (storage.Run, []estimate.Segment) {
 func roofLive() estimate.Live {
 	return estimate.Live{
 		T: epoch, Window: 10 * time.Second, N: 2000, QPa: v(96.4, 0.9), SpeedMPerS: v(12.5, 0.06), RhoKgPerM3: 1.232,
+		DirectionRad: rig.Rad(245), DirectionSpreadRad: rig.Rad(12),
 		Zones: []estimate.ZoneLive{
 			{Zone: "corner", CpMean: v(-1.7, 0.05), CpMin: -3.1, DesignCp: calibrate.Value{X: -2.2, U: 0.125, Dof: math.Inf(1)}, En: 1.84},
 			{Zone: "edge", CpMean: v(-1.3, 0.05), CpMin: -2.4, DesignCp: calibrate.Value{X: -1.5, U: 0.1, Dof: math.Inf(1)}, En: 0.9},
@@ -113,7 +134,8 @@ func TestAPI_RoofGolden(t *testing.T) {
 	if err := json.Unmarshal(get(t, s.Handler(), "GET", "/api/v1/runs/5/segments", nil).Body.Bytes(), &rows); err != nil {
 		t.Fatal(err)
 	}
-	if len(rows) != 6 || rows[0]["zone"] != "corner" || rows[0]["cp_mean"] != -0.9 || rows[0]["agrees"] != false || rows[1]["agrees"] != nil {
+	// 6 zone rows and 3 per-tap rows, one schema.
+	if len(rows) != 9 || rows[6]["tap"] != "t01" || rows[0]["tap"] != nil || rows[0]["zone"] != "corner" || rows[0]["cp_mean"] != -0.9 || rows[0]["agrees"] != false || rows[1]["agrees"] != nil {
 		t.Fatalf("roof rows %v", rows)
 	}
 	if len(live.Zones) != 3 || live.Zones[0]["agrees"] != false || live.Zones[1]["agrees"] != true || live.Zones[2]["agrees"] != nil {
@@ -174,6 +196,32 @@ func TestZonesSVG(t *testing.T) {
 	}
 	if rec := get(t, s.Handler(), "GET", "/runs/999/zones.svg", nil); rec.Code != 404 {
 		t.Errorf("unknown run: status %d", rec.Code)
+	}
+}
+
+// Ensure that the tap map is the report's SVG: the taps with per-tap rows
+// by name and value, a legend of Cp steps; an empty frame that says so for
+// a run without per-tap rows; and that the roof run page shows it.
+func TestTapsSVG(t *testing.T) {
+	s := roofServer(t)
+	rec := get(t, s.Handler(), "GET", "/runs/5/taps.svg", nil)
+	if rec.Code != 200 || rec.Header().Get("Content-Type") != "image/svg+xml" {
+		t.Fatalf("status %d, type %q", rec.Code, rec.Header().Get("Content-Type"))
+	}
+	svg := rec.Body.String()
+	for _, want := range []string{"<svg", "Tap map", "t01 -1.90", "t05 -1.40", "t09 -0.90", "Cp -1.90", "Cp -0.90", "x [m]"} {
+		if !strings.Contains(svg, want) {
+			t.Errorf("taps.svg lacks %q", want)
+		}
+	}
+	if strings.Contains(svg, "t12") {
+		t.Error("taps.svg shows a tap without a per-tap row")
+	}
+	if svg := get(t, s.Handler(), "GET", "/runs/1/taps.svg", nil).Body.String(); !strings.Contains(svg, "no per-tap results") {
+		t.Errorf("taps.svg of a foil run does not say it has no taps")
+	}
+	if body := get(t, s.Handler(), "GET", "/runs/5", nil).Body.String(); !strings.Contains(body, "/runs/5/taps.svg") || strings.Count(body, "<td>t0") > 0 {
+		t.Errorf("roof run page lacks the tap map, or lists tap rows in the zone table")
 	}
 }
 

@@ -88,8 +88,12 @@ var columns = []Column{
 		Read: number(func(s *Segment) float64 { return s.NEff })},
 	{Name: "n_eff_low", Type: TypeBool, Kinds: kindsAll, Doc: "n_eff below 12 (MinNEff): the segment is too short for its own correlation time, and its U95 rests on few degrees of freedom; hold the step longer",
 		Read: func(_ uint64, s *Segment) (any, bool) { return s.FewIndependent(), !math.IsNaN(s.NEff) }},
-	{Name: "zone", Type: TypeText, Kinds: kindsRoof, Doc: "roof zone of the row",
+	{Name: "zone", Type: TypeText, Kinds: kindsRoof, Doc: "roof zone of the row (a tap row: the tap's zone)",
 		Read: func(_ uint64, s *Segment) (any, bool) { return s.Zone, s.Zone != "" }},
+	{Name: "tap", Type: TypeText, Kinds: kindsRoof, Doc: "per-tap rows: the tap's name; absent on zone rows",
+		Read: func(_ uint64, s *Segment) (any, bool) { return s.Tap, s.Tap != "" }},
+	{Name: "block", Type: TypeInt, Kinds: kindsRoof, Doc: "block of time the row belongs to, from 0; absent on rows stored before blocks were numbered",
+		Read: func(_ uint64, s *Segment) (any, bool) { return int64(s.Block), s.Block >= 0 }},
 	{Name: "alpha_deg", Unit: "°", Type: TypeFloat, Kinds: kindsBalance, Doc: "angle of attack, mean over the segment",
 		Read: valueX(func(s *Segment) calibrate.Value { return s.AlphaRad }, rig.Deg)},
 	{Name: "alpha_u95_deg", Unit: "°", Type: TypeFloat, Kinds: kindsBalance, Doc: "expanded uncertainty of alpha_deg",
@@ -139,22 +143,64 @@ var columns = []Column{
 		Read: valueX(func(s *Segment) calibrate.Value { return s.DesignCL }, nil)},
 	{Name: "design_cl_u95", Type: TypeFloat, Kinds: kindsBalance, Doc: "expanded uncertainty of design_cl",
 		Read: valueU95(func(s *Segment) calibrate.Value { return s.DesignCL }, nil)},
-	{Name: "cp_mean", Type: TypeFloat, Kinds: kindsRoof, Doc: "zone's area-weighted net pressure coefficient, mean over the block (negative = uplift)",
+	{Name: "cp_mean", Type: TypeFloat, Kinds: kindsRoof, Doc: "area-weighted net pressure coefficient p̄/q̄ of the zone (or tap) over the block (negative = uplift)",
 		Read: valueX(func(s *Segment) calibrate.Value { return s.CpMean }, nil)},
 	{Name: "cp_u95", Type: TypeFloat, Kinds: kindsRoof, Doc: "expanded uncertainty of cp_mean",
 		Read: valueU95(func(s *Segment) calibrate.Value { return s.CpMean }, nil)},
-	{Name: "cp_rms", Type: TypeFloat, Kinds: kindsRoof, Doc: "standard deviation of the zone's net Cp over the block",
+	{Name: "cp_rms", Type: TypeFloat, Kinds: kindsRoof, Doc: "standard deviation of the net pressure over the block, over q̄",
 		Read: number(func(s *Segment) float64 { return s.CpRMS })},
-	{Name: "cp_peak", Type: TypeFloat, Kinds: kindsRoof, Doc: "expected extreme (most negative) net Cp of the block, from a Gumbel fit of epoch minima",
+	{Name: "cp_min", Type: TypeFloat, Kinds: kindsRoof, Doc: "most negative net pressure sample of the block, over q̄",
+		Read: number(func(s *Segment) float64 { return s.CpMin })},
+	{Name: "cp_max", Type: TypeFloat, Kinds: kindsRoof, Doc: "most positive net pressure sample of the block, over q̄",
+		Read: number(func(s *Segment) float64 { return s.CpMax })},
+	{Name: "cp_peak", Type: TypeFloat, Kinds: kindsRoof, Doc: "block peak suction: the value the block's most negative net Cp stays above with probability 0.78 (Gumbel fit of epoch minima scaled to the block, Cook & Mayne fractile)",
 		Read: number(func(s *Segment) float64 { return s.CpPeak })},
-	{Name: "uplift_n", Unit: "N", Type: TypeFloat, Kinds: kindsRoof, Doc: "mean net force on the zone (negative = upward)",
+	{Name: "cp_peak_u95", Type: TypeFloat, Kinds: kindsRoof, Doc: "expanded uncertainty (k = 2) of cp_peak: the fit's sampling error and q̄",
+		Read: number(func(s *Segment) float64 { return u95Of(s.CpPeak, s.CpPeakU) })},
+	{Name: "cp_peak_max", Type: TypeFloat, Kinds: kindsRoof, Doc: "block peak positive net Cp, the same method on the block's maxima",
+		Read: number(func(s *Segment) float64 { return s.CpPeakMax })},
+	{Name: "cp_peak_max_u95", Type: TypeFloat, Kinds: kindsRoof, Doc: "expanded uncertainty (k = 2) of cp_peak_max",
+		Read: number(func(s *Segment) float64 { return u95Of(s.CpPeakMax, s.CpPeakMaxU) })},
+	{Name: "cp_int", Type: TypeFloat, Kinds: kindsRoof, Doc: "internal pressure coefficient over the block (the rig's fixed cp, or the internal channel's p̄/q̄)",
+		Read: valueX(func(s *Segment) calibrate.Value { return s.CpInt }, nil)},
+	{Name: "cp_int_u95", Type: TypeFloat, Kinds: kindsRoof, Doc: "expanded uncertainty of cp_int (0 for a fixed cp)",
+		Read: valueU95(func(s *Segment) calibrate.Value { return s.CpInt }, nil)},
+	{Name: "uplift_n", Unit: "N", Type: TypeFloat, Kinds: kindsRoof, Doc: "mean net force on the zone (negative = upward); uplift_n/(q_pa·area) = cp_mean",
 		Read: valueX(func(s *Segment) calibrate.Value { return s.UpliftN }, nil)},
 	{Name: "uplift_u95_n", Unit: "N", Type: TypeFloat, Kinds: kindsRoof, Doc: "expanded uncertainty of uplift_n",
 		Read: valueU95(func(s *Segment) calibrate.Value { return s.UpliftN }, nil)},
-	{Name: "design_cp", Type: TypeFloat, Kinds: kindsRoof, Doc: "zone's design net Cp; absent without a design value",
+	{Name: "q_at", Type: TypeText, Kinds: kindsRoof, Doc: "where q_pa is: \"mast\" (no reference height declared) or \"reference height (log law)\" / \"(power law)\"",
+		Read: func(_ uint64, s *Segment) (any, bool) { return s.QAt, s.QAt != "" }},
+	{Name: "q_height_m", Unit: "m", Type: TypeFloat, Kinds: kindsRoof, Doc: "height q_pa refers to; absent when the rig declares no heights",
+		Read: positive(func(s *Segment) float64 { return s.QHeightM })},
+	{Name: "turbulence_intensity", Type: TypeFloat, Kinds: kindsRoof, Doc: "σ_V/V̄ of the mast's speed over the block",
+		Read: number(func(s *Segment) float64 { return s.TurbulenceIntensity })},
+	{Name: "direction_deg", Unit: "°", Type: TypeFloat, Kinds: kindsRoof, Doc: "circular mean wind direction over the block, from north; absent without a vane",
+		Read: number(func(s *Segment) float64 { return rig.Deg(s.DirectionRad) })},
+	{Name: "direction_spread_deg", Unit: "°", Type: TypeFloat, Kinds: kindsRoof, Doc: "circular standard deviation of the direction over the block",
+		Read: number(func(s *Segment) float64 { return rig.Deg(s.DirectionSpreadRad) })},
+	{Name: "sector_deg", Unit: "°", Type: TypeFloat, Kinds: kindsRoof, Doc: "centre of the block's direction sector ([wind] sector_deg wide)",
+		Read: number(func(s *Segment) float64 { return rig.Deg(s.SectorRad) })},
+	{Name: "sector_left", Type: TypeBool, Kinds: kindsRoof, Doc: "more than 10 % of the block's samples lie outside its sector: the direction wandered",
+		Read: func(_ uint64, s *Segment) (any, bool) { return s.SectorLeft(), finite(s.SectorOutFrac) }},
+	{Name: "samples_unblocked", Type: TypeInt, Kinds: kindsRoof, Doc: "whole-roof rows: samples since the previous block that fell in no block (short or unusable stretches)",
+		Read: func(_ uint64, s *Segment) (any, bool) {
+			return int64(s.SamplesUnblocked), s.Zone == RoofZoneWhole && s.Tap == ""
+		}},
+	{Name: "design_cp", Type: TypeFloat, Kinds: kindsRoof, Doc: "zone's design net Cp put on q̄ (a value on the peak velocity pressure times 1 + 7·I_v); absent without a design value",
 		Read: valueX(func(s *Segment) calibrate.Value { return s.DesignCp }, nil)},
 	{Name: "design_cp_u95", Type: TypeFloat, Kinds: kindsRoof, Doc: "expanded uncertainty of design_cp",
 		Read: valueU95(func(s *Segment) calibrate.Value { return s.DesignCp }, nil)},
+	{Name: "design_vs", Type: TypeText, Kinds: kindsRoof, Doc: "the result design_cp is compared with: cp_mean, cp_peak or cp_peak_max",
+		Read: func(_ uint64, s *Segment) (any, bool) { return s.DesignVs, s.DesignVs != "" }},
+	{Name: "design_side", Type: TypeText, Kinds: kindsRoof, Doc: "\"agrees\", or on which side of the design value the result lies: \"more suction\" or \"less suction\"",
+		Read: func(_ uint64, s *Segment) (any, bool) {
+			en, ok := comparedEn(s)
+			if !ok {
+				return nil, false
+			}
+			return DesignSide(en), true
+		}},
 	{Name: "en", Type: TypeFloat, Kinds: kindsAll, Doc: "normalised error E_n against the design value (design_cl, or design_cp on roofs)",
 		Read: func(_ uint64, s *Segment) (any, bool) {
 			en, ok := comparedEn(s)
@@ -296,6 +342,28 @@ func nonzero(f func(*Segment) float64) func(uint64, *Segment) (any, bool) {
 		x := f(s)
 		return x, finite(x) && x != 0
 	}
+}
+
+// u95Of is the expanded uncertainty k·u (k = 2) of a value given by its
+// standard uncertainty u; NaN when x is NaN.
+func u95Of(x, u float64) float64 {
+	if !finite(x) {
+		return math.NaN()
+	}
+	return 2 * u
+}
+
+// DesignSide says on which side of its design value a roof result lies:
+// "agrees" when |En| ≤ 1, else "more suction" (the result is more
+// negative than the design) or "less suction".
+func DesignSide(en float64) string {
+	switch {
+	case math.Abs(en) <= 1:
+		return "agrees"
+	case en < 0:
+		return "more suction"
+	}
+	return "less suction"
 }
 
 func finiteOK(x float64) (any, bool) { return x, !math.IsNaN(x) && !math.IsInf(x, 0) }

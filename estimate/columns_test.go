@@ -50,9 +50,16 @@ func roofSeg(design bool) estimate.Segment {
 		Kind: rig.KindRoof, Index: 0, TStart: t0, TEnd: t0.Add(10 * time.Minute), N: 60000, NEff: math.NaN(),
 		QPa: val(96.4, 0.9), SpeedMPerS: val(12.5, 0.06), RhoKgPerM3: 1.232, MuPaS: 1.8e-5, En: math.NaN(),
 		Zone: "corner", CpMean: val(-1.31, 0.045), CpRMS: 0.28, CpPeak: -2.74, UpliftN: val(-252.6, 9.3),
+		Block: 0, CpMin: -3.1, CpMax: -0.2, CpPeakU: 0.1, CpPeakMax: -0.1, CpPeakMaxU: 0.05,
+		CpInt: calibrate.Value{X: 0.2, Dof: math.Inf(1)}, QAt: "mast", TurbulenceIntensity: 0.14,
+		DirectionRad: math.NaN(), DirectionSpreadRad: math.NaN(), SectorRad: math.NaN(), SectorOutFrac: math.NaN(),
 	}
 	if design {
-		s.DesignCp, s.En = val(-2.2, 0.125), 6.1
+		s.DesignCp, s.En, s.DesignVs = val(-2.2, 0.125), 6.1, "cp_mean"
+		s.Zone, s.Tap, s.QHeightM, s.SamplesUnblocked = estimate.RoofZoneWhole, "", 6, 3
+		s.DirectionRad, s.DirectionSpreadRad, s.SectorRad, s.SectorOutFrac = rig.Rad(250), rig.Rad(12), rig.Rad(240), 0.3
+	} else {
+		s.Tap = "t01"
 	}
 	return s
 }
@@ -81,6 +88,8 @@ func TestColumns_Table(t *testing.T) {
 		{"n_eff", all, true, true, false, false}, // NaN on the roof rows
 		{"n_eff_low", all, true, true, false, false},
 		{"zone", roof, false, false, true, true},
+		{"tap", roof, false, false, false, true},
+		{"block", roof, false, false, true, true},
 		{"alpha_deg", balance, true, false, false, false}, // no angle channel on the rotor
 		{"alpha_u95_deg", balance, true, false, false, false},
 		{"q_pa", all, true, true, true, true},
@@ -106,11 +115,28 @@ func TestColumns_Table(t *testing.T) {
 		{"cp_mean", roof, false, false, true, true},
 		{"cp_u95", roof, false, false, true, true},
 		{"cp_rms", roof, false, false, true, true},
+		{"cp_min", roof, false, false, true, true},
+		{"cp_max", roof, false, false, true, true},
 		{"cp_peak", roof, false, false, true, true},
+		{"cp_peak_u95", roof, false, false, true, true},
+		{"cp_peak_max", roof, false, false, true, true},
+		{"cp_peak_max_u95", roof, false, false, true, true},
+		{"cp_int", roof, false, false, true, true},
+		{"cp_int_u95", roof, false, false, true, true},
 		{"uplift_n", roof, false, false, true, true},
 		{"uplift_u95_n", roof, false, false, true, true},
+		{"q_at", roof, false, false, true, true},
+		{"q_height_m", roof, false, false, true, false},
+		{"turbulence_intensity", roof, false, false, true, true},
+		{"direction_deg", roof, false, false, true, false},
+		{"direction_spread_deg", roof, false, false, true, false},
+		{"sector_deg", roof, false, false, true, false},
+		{"sector_left", roof, false, false, true, false},
+		{"samples_unblocked", roof, false, false, true, false},
 		{"design_cp", roof, false, false, true, false},
 		{"design_cp_u95", roof, false, false, true, false},
+		{"design_vs", roof, false, false, true, false},
+		{"design_side", roof, false, false, true, false},
 		{"en", all, true, false, true, false},
 		{"agrees", all, true, false, true, false},
 	}
@@ -151,7 +177,7 @@ func TestColumns_Table(t *testing.T) {
 // Ensure that a unit suffix and the Unit field agree (DEVELOPERS.md "Units in names": one unit
 // per name), so a header built from Unit says what the name says.
 func TestColumns_UnitMatchesName(t *testing.T) {
-	suffix := map[string]string{"_pa": "Pa", "_deg": "°", "_m_s": "m/s", "_kg_m3": "kg/m³", "_pa_s": "Pa·s", "_n": "N"}
+	suffix := map[string]string{"_pa": "Pa", "_deg": "°", "_m_s": "m/s", "_kg_m3": "kg/m³", "_pa_s": "Pa·s", "_n": "N", "_m": "m"}
 	for _, c := range estimate.Columns() {
 		want := ""
 		longest := 0

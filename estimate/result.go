@@ -52,14 +52,33 @@ type Segment struct {
 	CLBudget                 []Contribution
 	CDBudget                 []Contribution
 
-	// Roof rigs: one Segment is one zone in one block of time (docs/design.md §4).
+	// Roof rigs: one Segment is one zone (or one tap) in one block of time
+	// (docs/design.md §4, docs/roof.md). Every coefficient is the block's
+	// pressure over the block's mean q at the height QHeightM (p(t)/q̄).
 	// Zone is empty for force-balance rigs.
-	Zone     string
-	CpMean   calibrate.Value // zone's area-weighted net pressure coefficient, mean over the block (negative = uplift)
-	CpRMS    float64         // standard deviation of the zone's net Cp over the block
-	CpPeak   float64         // expected extreme (most negative) net Cp of the block, from a Gumbel fit of epoch minima
-	UpliftN  calibrate.Value // mean net force on the zone, N (negative = upward)
-	DesignCp calibrate.Value // the zone's design net Cp (U from its expanded design_u); zero Value when none
+	Zone                string
+	Tap                 string          // per-tap rows: the tap's name (Zone is its zone); "" on zone rows
+	Block               int             // roof rows: block number within the run, from 0
+	CpMean              calibrate.Value // area-weighted net pressure coefficient p̄/q̄, mean over the block (negative = uplift)
+	CpRMS               float64         // standard deviation of the net pressure over the block, / q̄
+	CpMin               float64         // most negative net pressure sample of the block, / q̄
+	CpMax               float64         // most positive net pressure sample of the block, / q̄
+	CpPeak              float64         // block peak suction: the 78 % fractile of the block's minimum net Cp (Gumbel fit of epoch minima scaled to the block); NaN when it cannot be fitted
+	CpPeakU             float64         // standard uncertainty of CpPeak (fit and q̄)
+	CpPeakMax           float64         // block peak positive net Cp, the 78 % fractile of the block's maximum
+	CpPeakMaxU          float64         // standard uncertainty of CpPeakMax
+	CpInt               calibrate.Value // internal pressure coefficient over the block (fixed [internal] cp, or the channel's p̄/q̄)
+	UpliftN             calibrate.Value // mean net force on the zone, N (negative = upward); UpliftN/(QPa·area) = CpMean
+	DesignCp            calibrate.Value // the zone's design net Cp expressed on q̄ (U from its expanded design_u); zero Value when none
+	DesignVs            string          // which result DesignCp is compared with: "cp_mean", "cp_peak" or "cp_peak_max"; "" without a design value
+	QHeightM            float64         // height QPa refers to, m; 0 when the rig declares no heights
+	QAt                 string          // where QPa is: "mast" or "reference height (log law)" / "(power law)"
+	TurbulenceIntensity float64         // σ_V/V̄ at the mast over the block (V = √(2q/ρ))
+	DirectionRad        float64         // circular mean wind direction over the block, rad from north in [0, 2π); NaN without a vane
+	DirectionSpreadRad  float64         // circular standard deviation √(−2 ln R̄) of the direction, rad; NaN without a vane
+	SectorRad           float64         // centre of the direction sector of the block, rad; NaN without a vane
+	SectorOutFrac       float64         // fraction of the block's samples whose direction lies outside its sector; NaN without a vane
+	SamplesUnblocked    int             // whole-roof rows: samples since the previous block that fell in no block (short or unusable stretches)
 }
 
 // SpinRatioValue returns the spin ratio with its standard uncertainty
@@ -98,13 +117,16 @@ type Live struct {
 	Segments     int  // segments completed so far in this run
 	Warnings     []string
 	Zones        []ZoneLive // roof rigs: each zone's net Cp over the window
+	// Roof rigs with a vane: the window's circular mean direction and
+	// spread, rad (NaN without a vane or a sample).
+	DirectionRad, DirectionSpreadRad float64
 }
 
 // ZoneLive is one roof zone's moving-window estimate.
 type ZoneLive struct {
 	Zone     string
 	CpMean   calibrate.Value // area-weighted net Cp over the window
-	CpMin    float64         // most negative net Cp sample in the window
+	CpMin    float64         // most negative net Cp sample in the window, on the window's q̄
 	DesignCp calibrate.Value
 	En       float64 // NaN without a design value
 }

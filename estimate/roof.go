@@ -23,83 +23,132 @@ const roofFlowOffFrac = 0.02
 // RoofConfig sets up a RoofEstimator. A zero field takes the default given
 // beside it.
 type RoofConfig struct {
-	Block  time.Duration // length of one result block (default 10 min, common practice; tests use seconds)
+	Block  time.Duration // length of one result block (default: the rig's [wind] block, else 10 min, common practice; tests use seconds)
 	Epochs int           // sub-epochs per block for the extreme-value fit (default 16 — the "sixteen epochs" convention, docs/references.md §12)
 	Window time.Duration // live window (default 10 s)
 	Now    func() time.Time
 }
 
+// RoofPeakProb is the non-exceedance probability of a block peak
+// (CpPeak, CpPeakMax): the Cook & Mayne fractile exp(−e^{−1.4}) = 0.78 of
+// the distribution of the block's own extreme, so the block's extreme
+// goes beyond the reported peak in about 22 % of blocks.
+var RoofPeakProb = math.Exp(-math.Exp(-CookMayneReduced))
+
+// roofSectorOutFrac is the fraction of a block's samples outside its
+// direction sector above which the block is flagged as wandering (our
+// own choice: one sample in ten).
+const roofSectorOutFrac = 0.1
+
 // RoofEstimator is the streaming estimation stage of a roof rig (docs/design.md §1
-// workflow 2, §4 "Roofs"): it turns calibrated blocks of tap pressures into
-// one Segment per zone per block of time, plus a whole-roof Segment (zone
-// "roof"), and a live moving-window estimate.
+// workflow 2, §4 "Roofs", docs/roof.md): it turns calibrated blocks of tap
+// pressures into one Segment per zone per block of time, a whole-roof
+// Segment (zone "roof"), one Segment per tap, and a live moving-window
+// estimate.
 //
 // # Method
 //
 // Each tap channel is a calibrated differential pressure p_i against the
-// static reference, Pa. The reference dynamic pressure q is the rig's
+// static reference, Pa. The mast's dynamic pressure q_m(t) is the rig's
 // [lift] dynamic_pressure channel (q = C²·Δp with the pitot coefficient C),
-// or ½ρV² from a [lift] speed channel. Per sample (quasi-steady):
+// or ½ρV² from a [lift] speed channel. Coefficients are referred to the
+// mean dynamic pressure of the block at the reference height (common
+// practice in wind engineering, docs/references.md §20):
 //
-//	Cp_ext,i(t) = p_i(t)/q(t)
-//	Cp_int(t)   = [internal] cp, or p_int(t)/q(t) from the internal channel
-//	Cp_i(t)     = Cp_ext,i(t) − Cp_int(t)         (net; negative = uplift)
-//	C_Z(t)      = Σ_{i∈Z} A_i·Cp_i(t) / Σ_{i∈Z} A_i  (zone, area-weighted)
-//	F_Z(t)      = q(t)·Σ_{i∈Z} A_i·Cp_i(t)          (net force, N; negative = upward)
+//	q̄     = r·mean(q_m)        r = 1, or the [wind] profile's q ratio (rig.Wind.QRatio)
+//	p_Z(t) = Σ_{i∈Z} A_i·(p_i(t) − p_int(t)) / A_Z   (p_int from the internal channel; 0 for a fixed cp)
+//	C_Z    = mean(p_Z)/q̄ − c_pi                       (c_pi = the fixed [internal] cp, else 0)
+//	rms    = sd(p_Z)/q̄,  min, max = min(p_Z)/q̄ − c_pi, max(p_Z)/q̄ − c_pi
+//	F_Z    = A_Z·(mean(p_Z) − c_pi·q̄)  = q̄·A_Z·C_Z exactly  (N; negative = upward)
 //
 // (EN 1991-1-4:2005 §5.2 and 7.2.9 for net pressure w = q·(c_pe − c_pi);
-// area weighting over tributary areas is common practice.) A sample whose q
-// is below the flow-off level, or where any tap of the zone (or q, or the
-// internal channel) has no value, gives no value for that zone.
+// area weighting over tributary areas is common practice.) A sample where
+// a tap of the zone, q or the internal channel has no value is left out of
+// that zone. A momentary lull of q does not drop a sample: only the
+// block's mean q must be above the flow-off level.
 //
-// Per zone per block: CpMean is the mean of C_Z with a standard
-// uncertainty combining Type A (TypeAMean: integrated autocorrelation time
-// with Sokal's automatic window, bias-corrected, ν = N/(2W+1)), and Type B, the calibration
-// uncertainties of the taps (sensitivity A_i/(A_Z·q̄)), of q (−(C̄ + Cp_int)/q̄
-// for a fixed internal cp, −C̄/q̄ with an internal channel) and of the
-// internal channel (−1/q̄), combined by JCGM 100 eq. 10 with ν by
-// Welch–Satterthwaite. A fixed [internal] cp is taken as exact (the rig
-// gives no uncertainty for it). CpRMS is the standard deviation of C_Z.
-// CpPeak is the expected extreme suction: the block is cut into Epochs
-// sub-epochs, the Gumbel distribution is fitted by maximum likelihood to
-// the epoch maxima of −C_Z (suction is the negative side), and the Cook &
-// Mayne value U + 1.4/a is returned with its sign turned back (negative).
-// When all epoch minima are equal the peak is that value; with fewer than
-// three epochs holding data it is NaN. UpliftN is the mean of F_Z (equal to
-// q̄·Σ A_i·Cp_i when q does not fluctuate), Type A by N_eff of F_Z and Type B
-// A_i·u(p_i), A_Z·Cp_int·u(q) and A_Z·u(p_int). DesignCp is the zone's
-// design_cp with U = design_u/K95(∞), so that DesignCp.U95() returns the
-// rig's expanded design_u exactly, and En = (C̄ − design)/√(U95_m² +
-// design_u²) (the En function).
+// The Type A uncertainty of the ratio C_Z = mean(p_Z)/mean(q) is the
+// Type A of the mean of the linearised residual
+//
+//	z(t) = [p_Z(t) − (C_Z + c_pi)·r·q_m(t)] / q̄
+//
+// (delta method for a ratio of means, common practice; JCGM 100 §5.1),
+// by TypeAMean (Sokal's window, bias-corrected, ν = N/(2W+1)): a tap that
+// follows the mast gusts partly, or with a lag, is handled without
+// assuming quasi-steadiness. Type B: the tap calibrations (sensitivity
+// A_i/(A_Z·q̄)), q's calibration (−(C_Z + c_pi)/mean(q_m)), the internal
+// channel (−1/q̄), and the profile's q ratio (relative u of r times
+// |C_Z + c_pi|), combined by JCGM 100 eq. 10 with ν by Welch–Satterthwaite.
+// A fixed [internal] cp is taken as exact.
+//
+// # Block peaks
+//
+// CpPeak is an estimate of the block's own most negative net Cp: the block
+// is cut into Epochs sub-epochs, a Gumbel distribution (mode U, dispersion
+// 1/a) is fitted by maximum likelihood to the epoch maxima of −C_Z, and,
+// the epochs taken as independent, the maximum of n of them is Gumbel
+// with mode U + ln(n)/a and the same dispersion. The reported value is the
+// Cook & Mayne fractile of that block distribution, U + (ln n + 1.4)/a,
+// non-exceedance probability RoofPeakProb ≈ 0.78, with its sign turned
+// back. Its standard uncertainty is the Gumbel quantile's sampling error,
+// u² = (1/a)²·(1.1087 + 0.5140·y + 0.6079·y²)/m for m epochs and reduced
+// variate y = ln n + 1.4 (docs/references.md §20), combined with q̄'s
+// calibration and profile. CpPeakMax is the same on +C_Z (positive
+// pressure). With all epoch extremes equal the peak is that value; with
+// fewer than three epochs holding data it is NaN.
+//
+// # Direction, design values
+//
+// With a [lift] direction channel each block gets the circular mean
+// direction atan2(Σ sin θ, Σ cos θ) and the circular standard deviation
+// √(−2 ln R̄) (Mardia & Jupp, Directional Statistics, 2000, §2.3.4, from
+// memory), the sector of [wind] sector_deg its mean falls in, and the
+// fraction of its samples outside that sector (flagged above 10 %).
+// A zone's design value is compared like with like (rig.Zone.DesignValue,
+// DesignQ): a mean value with CpMean, a peak value with CpPeak (suction) or
+// CpPeakMax (positive); a value on the peak velocity pressure
+// q_p = (1 + 7·I_v)·q̄ (EN 1991-1-4:2005 eq. 4.8) is multiplied by
+// (1 + 7·I_v) to put it on q̄, with I_v the mast's σ_V/V̄ over the block.
+// DesignCp has U = design_u/K95(∞), so DesignCp.U95() is the rig's
+// design_u, and En = (result − design)/√(U95_m² + design_u²).
 //
 // # Blocks and joining
 //
 // Blocks of time are laid on a grid starting at the first sample (device
 // clock). A block is complete when a sample beyond its end arrives; it
-// gives results when its samples span at least half a Block and its mean q
-// is at or above 2 % of the q channel's rated capacity (or, for an unrated
-// channel, 5 % of the largest block-mean q so far). Tap, q and internal
-// channels are read from the same calibrated block: the source that first
-// delivers the q channel carries the timeline, and blocks of other sources
-// are ignored and counted in a Live warning. (The example rig has one tap
-// scanner carrying every channel; joining separate sources by time as the
-// force-balance Estimator does is not done here.)
+// gives results when it holds at least half a Block of samples and its mean
+// q is at or above 2 % of the q channel's rated capacity (or, for an
+// unrated channel, 5 % of the largest block-mean q so far). A change of
+// the sample spacing (timestamp jitter) does not close a block; only a
+// clock step backwards restarts the grid. Samples that end in no block
+// (a short or unusable stretch) are counted (Unblocked, the whole-roof row's
+// SamplesUnblocked and a Live warning). Tap, q, internal and vane channels
+// are read from the same calibrated block: the source that first delivers
+// the q channel carries the timeline, and blocks of other sources are
+// ignored and counted. (Joining separate sources by time is not done here.)
 //
 // A RoofEstimator is not safe for concurrent use: the caller serialises
 // Add, Live and Flush. Memory holds one block and one live window of
-// per-zone samples (about 10 min × rate × 2·(zones + 1) float64).
+// per-sample values (about 10 min × rate × (zones + taps + 3) float64).
 type RoofEstimator struct {
 	rig *rig.Rig
 	cfg RoofConfig
 
 	zones    []roofZone // rig zones with taps, then the whole roof
-	q        string     // q channel
-	qSpeed   bool       // q channel is a speed, m/s
-	pitotC   float64    // pitot coefficient (1 when unset)
-	intChan  string     // internal pressure channel, or ""
-	intCp    float64    // fixed internal cp when intChan is ""
+	taps     []roofTapDef
+	q        string  // q channel
+	qSpeed   bool    // q channel is a speed, m/s
+	pitotC   float64 // pitot coefficient (1 when unset)
+	intChan  string  // internal pressure channel, or ""
+	intCp    float64 // fixed internal cp when intChan is ""
+	dirChan  string  // vane channel, or ""
 	fluid    Fluid
 	qFloorPa float64 // flow-off level from the rated capacity; 0 when unrated
+	qRatio   float64 // q(reference height)/q(mast)
+	qRatioU  float64 // relative standard uncertainty of qRatio
+	qHeightM float64
+	qAt      string
+	sector   float64 // sector width, rad
 
 	uB map[string]heldValue // latest calibration u and dof per channel
 
@@ -108,7 +157,6 @@ type RoofEstimator struct {
 	dtUs     int64
 	gridT0Us int64 // start of the block grid
 	blkT0Us  int64 // start of the open block
-	nextTUs  int64 // device time expected for the next sample
 	// wallOffUs maps the device clock to UTC wall time (µs), as in
 	// Estimator: fixed at the first block and after a clock step.
 	wallOffUs int64
@@ -118,46 +166,69 @@ type RoofEstimator struct {
 
 	maxBlockQPa float64
 	segments    int
-	blocks      int
+	blocks      int // blocks that gave results
 	flowOff     int // blocks dropped as flow off
 	short       int // blocks dropped as shorter than half a block
 	ignored     int // unusable blocks
 	otherSrc    int // blocks of other sources
+	unblocked   int // samples in no block, in total
+	unblockedAt int // unblocked at the last block that gave results
 	missing     map[string]bool
 	lastAddAt   time.Time
 	lastTUs     int64
 }
 
+// roofTapDef is one tap: its channel, area and zone.
+type roofTapDef struct {
+	name, channel, zone string
+	areaM2              float64
+}
+
 // roofZone is one zone's taps and design value.
 type roofZone struct {
 	name      string
-	chans     []string
-	areasM2   []float64
+	taps      []int // indices into RoofEstimator.taps
 	areaM2    float64
 	design    float64
 	designU95 float64
 	hasDesign bool
+	peak      bool // design value is a peak coefficient
+	onPeakQ   bool // design value pairs with the peak velocity pressure
 }
 
-// roofBuf holds per-sample values: time, q and each zone's net Cp and force.
+// roofBuf holds per-sample values: time, mast q, internal pressure,
+// direction, each tap's pressure and each zone's area-weighted pressure.
 type roofBuf struct {
-	tUs []int64
-	qPa []float64
-	cp  [][]float64 // [zone][sample]
-	fN  [][]float64
+	tUs  []int64
+	qPa  []float64
+	pInt []float64
+	dir  []float64
+	pTap [][]float64 // [tap][sample]
+	pZ   [][]float64 // [zone][sample]
 }
 
-func newRoofBuf(zones int) roofBuf {
-	return roofBuf{cp: make([][]float64, zones), fN: make([][]float64, zones)}
+func newRoofBuf(zones, taps int) roofBuf {
+	return roofBuf{pZ: make([][]float64, zones), pTap: make([][]float64, taps)}
 }
 
 func (b *roofBuf) len() int { return len(b.tUs) }
 
-func (b *roofBuf) reset() {
-	b.tUs, b.qPa = b.tUs[:0], b.qPa[:0]
-	for z := range b.cp {
-		b.cp[z], b.fN[z] = b.cp[z][:0], b.fN[z][:0]
+// each calls f on every per-sample slice, for resetting and trimming.
+func (b *roofBuf) each(f func(p *[]float64)) {
+	f(&b.qPa)
+	f(&b.pInt)
+	f(&b.dir)
+	for z := range b.pZ {
+		f(&b.pZ[z])
 	}
+	for i := range b.pTap {
+		f(&b.pTap[i])
+	}
+}
+
+func (b *roofBuf) reset() {
+	b.tUs = b.tUs[:0]
+	b.each(func(p *[]float64) { *p = (*p)[:0] })
 }
 
 // dropBefore removes samples older than tUs, compacting now and then so the
@@ -171,19 +242,12 @@ func (b *roofBuf) dropBefore(tUs int64) {
 		return
 	}
 	if k < cap(b.tUs)/2 && len(b.tUs)-k > 0 {
-		b.tUs, b.qPa = b.tUs[k:], b.qPa[k:]
-		for z := range b.cp {
-			b.cp[z], b.fN[z] = b.cp[z][k:], b.fN[z][k:]
-		}
+		b.tUs = b.tUs[k:]
+		b.each(func(p *[]float64) { *p = (*p)[k:] })
 		return
 	}
-	n := copy(b.tUs, b.tUs[k:])
-	b.tUs = b.tUs[:n]
-	b.qPa = b.qPa[:copy(b.qPa, b.qPa[k:])]
-	for z := range b.cp {
-		b.cp[z] = b.cp[z][:copy(b.cp[z], b.cp[z][k:])]
-		b.fN[z] = b.fN[z][:copy(b.fN[z], b.fN[z][k:])]
-	}
+	b.tUs = b.tUs[:copy(b.tUs, b.tUs[k:])]
+	b.each(func(p *[]float64) { *p = (*p)[:copy(*p, (*p)[k:])] })
 }
 
 // NewRoofEstimator checks that r has what a roof needs — pressure taps with
@@ -216,7 +280,8 @@ func NewRoofEstimator(r *rig.Rig, cfg RoofConfig) (*RoofEstimator, error) {
 		}
 		byZone[z.Name] = len(e.zones)
 		e.zones = append(e.zones, roofZone{name: z.Name, design: z.DesignCp, designU95: z.DesignU,
-			hasDesign: z.DesignCp != 0 || z.DesignU != 0})
+			hasDesign: z.DesignCp != 0 || z.DesignU != 0,
+			peak:      z.DesignValue == rig.DesignPeak, onPeakQ: z.DesignQ == rig.DesignPeak})
 	}
 	whole := roofZone{name: RoofZoneWhole}
 	for _, t := range r.Taps {
@@ -230,16 +295,16 @@ func NewRoofEstimator(r *rig.Rig, cfg RoofConfig) (*RoofEstimator, error) {
 			problems = append(problems, fmt.Errorf("tap %q: zone %q is not a [[zone]]", t.Name, t.Zone))
 			continue
 		}
+		ti := len(e.taps)
+		e.taps = append(e.taps, roofTapDef{name: t.Name, channel: t.Channel, zone: t.Zone, areaM2: t.AreaM2})
 		z := &e.zones[zi]
-		z.chans = append(z.chans, t.Channel)
-		z.areasM2 = append(z.areasM2, t.AreaM2)
+		z.taps = append(z.taps, ti)
 		z.areaM2 += t.AreaM2
-		whole.chans = append(whole.chans, t.Channel)
-		whole.areasM2 = append(whole.areasM2, t.AreaM2)
+		whole.taps = append(whole.taps, ti)
 		whole.areaM2 += t.AreaM2
 	}
 	for _, z := range e.zones {
-		if len(z.chans) == 0 && len(r.Taps) > 0 {
+		if len(z.taps) == 0 && len(r.Taps) > 0 {
 			problems = append(problems, fmt.Errorf("zone %q has no taps: add [[tap]] with zone = %q or remove the zone", z.name, z.name))
 		}
 	}
@@ -257,6 +322,10 @@ func NewRoofEstimator(r *rig.Rig, cfg RoofConfig) (*RoofEstimator, error) {
 	default:
 		problems = append(problems, errors.New("no reference q: set lift.dynamic_pressure (the reference pitot channel) or lift.speed"))
 	}
+	if r.Lift.Direction != "" {
+		e.dirChan = r.Lift.Direction
+		need("lift.direction", e.dirChan)
+	}
 	switch {
 	case r.Internal.Channel != "":
 		e.intChan = r.Internal.Channel
@@ -268,6 +337,18 @@ func NewRoofEstimator(r *rig.Rig, cfg RoofConfig) (*RoofEstimator, error) {
 		}
 	default:
 		problems = append(problems, errors.New("no internal pressure: add [internal] with cp = 0.0 for a sealed mock-up, or channel = \"<pressure channel>\""))
+	}
+	e.qRatio, e.qRatioU = r.Wind.QRatio()
+	if !finite(e.qRatio) || !(e.qRatio > 0) {
+		problems = append(problems, fmt.Errorf("[wind] profile %q cannot carry q from %g m to %g m", r.Wind.Profile, r.Wind.MastHeightM, r.Wind.ReferenceHeightM))
+	}
+	e.qHeightM, e.qAt = r.Wind.MastHeightM, "mast"
+	if r.Wind.Converts() {
+		e.qHeightM, e.qAt = r.Wind.ReferenceHeightM, "reference height ("+r.Wind.Profile+" law)"
+	}
+	e.sector = r.Wind.SectorRad
+	if !(e.sector > 0) {
+		e.sector = rig.DefaultSectorRad
 	}
 	fl, err := Properties(r.Fluid, r.Conditions)
 	if err != nil {
@@ -289,7 +370,10 @@ func NewRoofEstimator(r *rig.Rig, cfg RoofConfig) (*RoofEstimator, error) {
 		}
 	}
 	if e.cfg.Block <= 0 {
-		e.cfg.Block = 10 * time.Minute
+		e.cfg.Block = r.Wind.Block
+	}
+	if e.cfg.Block <= 0 {
+		e.cfg.Block = rig.DefaultRoofBlock
 	}
 	if e.cfg.Epochs <= 0 {
 		e.cfg.Epochs = 16
@@ -300,8 +384,8 @@ func NewRoofEstimator(r *rig.Rig, cfg RoofConfig) (*RoofEstimator, error) {
 	if e.cfg.Now == nil {
 		e.cfg.Now = time.Now
 	}
-	e.blk = newRoofBuf(len(e.zones))
-	e.live = newRoofBuf(len(e.zones))
+	e.blk = newRoofBuf(len(e.zones), len(e.taps))
+	e.live = newRoofBuf(len(e.zones), len(e.taps))
 	return e, nil
 }
 
@@ -315,33 +399,43 @@ func (e *RoofEstimator) Zones() []string {
 	return out
 }
 
+// Block returns the block length in use.
+func (e *RoofEstimator) Block() time.Duration { return e.cfg.Block }
+
+// Unblocked returns the number of samples so far that fell in no block:
+// stretches shorter than half a block, blocks without a positive sample
+// spacing, and blocks of sources other than the one carrying q.
+func (e *RoofEstimator) Unblocked() int { return e.unblocked }
+
 // Add feeds one calibrated block and returns the segments of the blocks of
-// time it completed: one per zone (rig order, then "roof") per block,
-// Index counting from 0 over every segment of the run, so each segment has
-// its own Index.
+// time it completed: per block, one per zone (rig order, then "roof"), then
+// one per tap (rig order), Index counting from 0 over every segment of the
+// run, so each segment has its own Index.
 //
 // Bad input never panics: a nil or empty block, a block without a positive
 // DtUs, or series of unequal length (missing samples read as NaN) give
 // fewer results; NaN samples are skipped; unusable blocks are counted in a
-// Live warning.
+// Live warning and their samples in Unblocked.
 func (e *RoofEstimator) Add(b *calibrate.Block) []Segment {
 	e.lastAddAt = e.cfg.Now()
 	if b == nil || len(b.Series) == 0 {
-		return nil
-	}
-	if e.primary == "" && b.Find(e.q) != nil {
-		e.primary = b.Source
-	}
-	if b.Source != e.primary {
-		e.otherSrc++
 		return nil
 	}
 	n := 0
 	for _, s := range b.Series {
 		n = max(n, len(s.Values))
 	}
+	if e.primary == "" && b.Find(e.q) != nil {
+		e.primary = b.Source
+	}
+	if b.Source != e.primary {
+		e.otherSrc++
+		e.unblocked += n
+		return nil
+	}
 	if b.DtUs <= 0 || n == 0 {
 		e.ignored++
+		e.unblocked += n
 		return nil
 	}
 	for _, s := range b.Series {
@@ -361,33 +455,34 @@ func (e *RoofEstimator) Add(b *calibrate.Block) []Segment {
 		return math.NaN()
 	}
 	qv := pick(e.q)
-	var iv []float64
+	var iv, dv []float64
 	if e.intChan != "" {
 		iv = pick(e.intChan)
 	}
-	tapV := make([][][]float64, len(e.zones))
-	for z, zn := range e.zones {
-		tapV[z] = make([][]float64, len(zn.chans))
-		for j, c := range zn.chans {
-			tapV[z][j] = pick(c)
-		}
+	if e.dirChan != "" {
+		dv = pick(e.dirChan)
+	}
+	tapV := make([][]float64, len(e.taps))
+	for j, t := range e.taps {
+		tapV[j] = pick(t.channel)
 	}
 	var out []Segment
-	// A change of spacing or a clock step backwards closes the open block
-	// and restarts the grid.
-	if e.started && (b.DtUs != e.dtUs || b.T0Us < e.nextTUs) {
+	// A clock step backwards closes the open block and restarts the grid;
+	// a change of spacing (jitter) does not.
+	if e.started && b.T0Us+e.wallOffUs <= e.lastTUs {
 		out = e.closeBlock(out)
 		e.started = false
 		e.live.reset()
 	}
 	if !e.started {
-		e.started, e.dtUs = true, b.DtUs
+		e.started = true
 		e.wallOffUs = alignedStart(b) - b.T0Us
 		e.gridT0Us, e.blkT0Us = b.T0Us+e.wallOffUs, b.T0Us+e.wallOffUs
 	}
+	e.dtUs = b.DtUs
 	blockUs := int64(e.cfg.Block / time.Microsecond)
-	cp := make([]float64, len(e.zones))
-	fN := make([]float64, len(e.zones))
+	pTap := make([]float64, len(e.taps))
+	pZ := make([]float64, len(e.zones))
 	for i := range n {
 		tUs := b.T0Us + int64(i)*b.DtUs + e.wallOffUs
 		if tUs >= e.blkT0Us+blockUs {
@@ -400,47 +495,42 @@ func (e *RoofEstimator) Add(b *calibrate.Block) []Segment {
 		} else {
 			q = DynamicPressureFromPitot(q, e.pitotC)
 		}
-		var pInt float64
+		pInt := 0.0
 		if e.intChan != "" {
 			pInt = at(iv, i)
-		} else {
-			pInt = e.intCp * q
 		}
-		ok := finite(q) && q > 0 && q >= e.qFloorPa && finite(pInt)
+		dir := math.NaN()
+		if e.dirChan != "" {
+			dir = at(dv, i)
+		}
+		for j := range e.taps {
+			pTap[j] = at(tapV[j], i)
+		}
 		for z, zn := range e.zones {
-			cp[z], fN[z] = math.NaN(), math.NaN()
-			if !ok {
-				continue
-			}
 			sp := 0.0
-			for j, a := range zn.areasM2 {
-				p := at(tapV[z][j], i)
-				if !finite(p) {
-					sp = math.NaN()
-					break
-				}
-				sp += a * (p - pInt)
+			for _, j := range zn.taps {
+				sp += e.taps[j].areaM2 * (pTap[j] - pInt)
 			}
-			if finite(sp) {
-				fN[z] = sp
-				cp[z] = sp / (zn.areaM2 * q)
-			}
+			pZ[z] = sp / zn.areaM2 // NaN when any tap, or pInt, is
 		}
-		e.blk.push(tUs, q, cp, fN)
-		e.live.push(tUs, q, cp, fN)
+		e.blk.push(tUs, q, pInt, dir, pTap, pZ)
+		e.live.push(tUs, q, pInt, dir, pTap, pZ)
 		e.lastTUs = tUs
 	}
-	e.nextTUs = b.T0Us + int64(n)*b.DtUs
 	e.live.dropBefore(e.lastTUs - int64(e.cfg.Window/time.Microsecond) + 1)
 	return out
 }
 
-func (b *roofBuf) push(tUs int64, q float64, cp, fN []float64) {
+func (b *roofBuf) push(tUs int64, q, pInt, dir float64, pTap, pZ []float64) {
 	b.tUs = append(b.tUs, tUs)
 	b.qPa = append(b.qPa, q)
-	for z := range b.cp {
-		b.cp[z] = append(b.cp[z], cp[z])
-		b.fN[z] = append(b.fN[z], fN[z])
+	b.pInt = append(b.pInt, pInt)
+	b.dir = append(b.dir, dir)
+	for j := range b.pTap {
+		b.pTap[j] = append(b.pTap[j], pTap[j])
+	}
+	for z := range b.pZ {
+		b.pZ[z] = append(b.pZ[z], pZ[z])
 	}
 }
 
@@ -455,14 +545,14 @@ func (e *RoofEstimator) Flush() []Segment {
 func (e *RoofEstimator) closeBlock(out []Segment) []Segment {
 	defer e.blk.reset()
 	n := e.blk.len()
-	if n < 2 {
+	if n == 0 {
 		return out
 	}
-	if time.Duration(int64(n)*e.dtUs)*time.Microsecond*2 < e.cfg.Block {
+	if n < 2 || time.Duration(int64(n)*e.dtUs)*time.Microsecond*2 < e.cfg.Block {
 		e.short++
+		e.unblocked += n
 		return out
 	}
-	e.blocks++
 	qBar := nanMean(e.blk.qPa)
 	if finite(qBar) {
 		e.maxBlockQPa = math.Max(e.maxBlockQPa, qBar)
@@ -471,23 +561,49 @@ func (e *RoofEstimator) closeBlock(out []Segment) []Segment {
 		e.flowOff++
 		return out
 	}
-	for z := range e.zones {
-		r, ok := e.reduceZone(&e.blk, z, true)
+	d := e.direction(&e.blk)
+	iv := e.turbulence(e.blk.qPa)
+	var rows []Segment
+	row := func(zone, tap string, r zoneResult) Segment {
+		return Segment{
+			Kind: rig.KindRoof, Block: e.blocks, TStart: time.UnixMicro(e.blk.tUs[0]).UTC(),
+			TEnd: time.UnixMicro(e.blk.tUs[n-1]).UTC(), N: r.n, NEff: r.nEff,
+			QPa: r.q, SpeedMPerS: e.speed(r.q), RhoKgPerM3: e.fluid.RhoKgPerM3, MuPaS: e.fluid.MuPaS,
+			En: math.NaN(), Zone: zone, Tap: tap, CpMean: r.cp, CpRMS: r.rms, CpMin: r.minCp, CpMax: r.maxCp,
+			CpPeak: r.peakMin.X, CpPeakU: r.peakMin.U, CpPeakMax: r.peakMax.X, CpPeakMaxU: r.peakMax.U,
+			CpInt: r.cpInt, UpliftN: r.force, QHeightM: e.qHeightM, QAt: e.qAt, TurbulenceIntensity: iv,
+			DirectionRad: d.mean, DirectionSpreadRad: d.spread, SectorRad: d.sector, SectorOutFrac: d.outFrac,
+		}
+	}
+	for z, zn := range e.zones {
+		r, ok := e.reduce(&e.blk, e.blk.pZ[z], true)
 		if !ok {
 			continue
 		}
-		s := Segment{
-			Kind: rig.KindRoof, Index: e.segments, TStart: time.UnixMicro(e.blk.tUs[0]).UTC(),
-			TEnd: time.UnixMicro(e.blk.tUs[n-1]).UTC(), N: r.n, NEff: r.nEff,
-			QPa: r.q, SpeedMPerS: e.speed(r.q), RhoKgPerM3: e.fluid.RhoKgPerM3, MuPaS: e.fluid.MuPaS,
-			En: math.NaN(), Zone: e.zones[z].name, CpMean: r.cp, CpRMS: r.rms, CpPeak: r.peak,
-			UpliftN: r.force,
+		s := row(zn.name, "", r)
+		e.design(z, &s)
+		if zn.name == RoofZoneWhole {
+			s.SamplesUnblocked = e.unblocked - e.unblockedAt
 		}
-		s.DesignCp, s.En = e.design(z, r.cp)
-		e.segments++
-		out = append(out, s)
+		rows = append(rows, s)
 	}
-	return out
+	for j, t := range e.taps {
+		if r, ok := e.reduce(&e.blk, e.blk.pTap[j], true); ok {
+			rows = append(rows, row(t.zone, t.name, r))
+		}
+	}
+	if len(rows) == 0 {
+		e.short++
+		e.unblocked += n
+		return out
+	}
+	e.unblockedAt = e.unblocked
+	for i := range rows {
+		rows[i].Index = e.segments
+		e.segments++
+	}
+	e.blocks++
+	return append(out, rows...)
 }
 
 // flowOn reports whether a mean q counts as flow on.
@@ -501,14 +617,30 @@ func (e *RoofEstimator) flowOn(qBarPa float64) bool {
 	return qBarPa > flowOffFrac*e.maxBlockQPa
 }
 
-// design returns zone z's design value and the normalised error of cp.
-func (e *RoofEstimator) design(z int, cp calibrate.Value) (calibrate.Value, float64) {
+// design sets s's design value, what it is compared with, and En.
+func (e *RoofEstimator) design(z int, s *Segment) {
 	zn := e.zones[z]
 	if !zn.hasDesign {
-		return calibrate.Value{}, math.NaN()
+		return
 	}
 	d := calibrate.Value{X: zn.design, U: zn.designU95 / calibrate.K95(math.Inf(1)), Dof: math.Inf(1)}
-	return d, En(cp, d)
+	if zn.onPeakQ {
+		// A coefficient on q_p = (1 + 7·I_v)·q̄ is that factor larger on q̄.
+		f := 1 + 7*s.TurbulenceIntensity
+		if !finite(f) {
+			return
+		}
+		d.X, d.U = d.X*f, d.U*f
+	}
+	m, vs := s.CpMean, "cp_mean"
+	if zn.peak {
+		m, vs = calibrate.Value{X: s.CpPeak, U: s.CpPeakU, Dof: math.Inf(1)}, "cp_peak"
+		if zn.design > 0 {
+			m, vs = calibrate.Value{X: s.CpPeakMax, U: s.CpPeakMaxU, Dof: math.Inf(1)}, "cp_peak_max"
+		}
+	}
+	s.DesignCp, s.DesignVs = d, vs
+	s.En = En(m, d)
 }
 
 // speed returns V = √(2q/ρ) with u(V) = u(q)/(ρ·V).
@@ -520,101 +652,250 @@ func (e *RoofEstimator) speed(q calibrate.Value) calibrate.Value {
 	return calibrate.Value{X: v, U: q.U / (e.fluid.RhoKgPerM3 * math.Abs(v)), Dof: q.Dof}
 }
 
-// zoneResult is one zone reduced over a buffer.
-type zoneResult struct {
-	n          int
-	nEff       float64
-	q          calibrate.Value
-	cp         calibrate.Value
-	rms, peak  float64
-	minCp      float64
-	force      calibrate.Value
-	typeACpU   float64
-	typeAForce float64
+// turbulence returns σ_V/V̄ of the mast speed V = √(2q/ρ) (q ≤ 0 taken as
+// calm), NaN with fewer than two samples.
+func (e *RoofEstimator) turbulence(qPa []float64) float64 {
+	v := make([]float64, 0, len(qPa))
+	for _, q := range qPa {
+		if finite(q) {
+			v = append(v, SpeedFromQ(math.Max(q, 0), e.fluid.RhoKgPerM3))
+		}
+	}
+	if len(v) < 2 {
+		return math.NaN()
+	}
+	m, sd := meanSD(v)
+	return sd / m
 }
 
-// reduceZone reduces zone z over buf: mean net Cp with its budget, rms,
-// peak (when withPeak), minimum and mean force. ok is false when fewer than
-// two samples of the zone have values.
-func (e *RoofEstimator) reduceZone(buf *roofBuf, z int, withPeak bool) (r zoneResult, ok bool) {
-	zn := e.zones[z]
-	cps, fs := buf.cp[z], buf.fN[z]
-	var sum, sumF, sumQ float64
-	r.minCp = math.Inf(1)
-	for k, c := range cps {
-		if !finite(c) {
+// dirStats is a block's wind direction.
+type dirStats struct{ mean, spread, sector, outFrac float64 }
+
+// direction returns the circular mean, circular standard deviation, sector
+// centre and out-of-sector fraction of buf's directions; NaN without any.
+func (e *RoofEstimator) direction(buf *roofBuf) dirStats {
+	d := dirStats{math.NaN(), math.NaN(), math.NaN(), math.NaN()}
+	var ss, sc float64
+	n := 0
+	for _, th := range buf.dir {
+		if finite(th) {
+			s, c := math.Sincos(th)
+			ss, sc, n = ss+s, sc+c, n+1
+		}
+	}
+	if n == 0 {
+		return d
+	}
+	d.mean = math.Mod(math.Atan2(ss, sc)+2*math.Pi, 2*math.Pi)
+	rbar := math.Hypot(ss, sc) / float64(n)
+	d.spread = math.Sqrt(math.Max(0, -2*math.Log(math.Min(rbar, 1))))
+	d.sector = math.Mod(math.Round(d.mean/e.sector)*e.sector, 2*math.Pi)
+	out := 0
+	for _, th := range buf.dir {
+		if finite(th) && math.Abs(angleDiff(th, d.sector)) > e.sector/2 {
+			out++
+		}
+	}
+	d.outFrac = float64(out) / float64(n)
+	return d
+}
+
+// SectorLeft reports whether a roof row's direction wandered out of its
+// sector: more than 10 % of the block's samples lie outside it.
+func (s *Segment) SectorLeft() bool { return s.SectorOutFrac > roofSectorOutFrac }
+
+// angleDiff returns a − b wrapped to (−π, π].
+func angleDiff(a, b float64) float64 {
+	d := math.Mod(a-b, 2*math.Pi)
+	if d > math.Pi {
+		d -= 2 * math.Pi
+	} else if d <= -math.Pi {
+		d += 2 * math.Pi
+	}
+	return d
+}
+
+// zoneResult is one zone (or tap) reduced over a buffer.
+type zoneResult struct {
+	n                int
+	nEff             float64
+	q                calibrate.Value
+	cp               calibrate.Value
+	cpInt            calibrate.Value
+	rms              float64
+	minCp, maxCp     float64
+	peakMin, peakMax calibrate.Value
+	force            calibrate.Value
+}
+
+// reduce reduces the area-weighted pressure series p (a zone's p_Z or one
+// tap's p_i, Pa, against the static reference and, with an internal
+// channel, net of it) over buf: coefficients on the block's mean q at the
+// reference height, with their budgets. ok is false when fewer than two
+// samples have values.
+func (e *RoofEstimator) reduce(buf *roofBuf, p []float64, withPeak bool) (r zoneResult, ok bool) {
+	valid := func(k int) bool { return finite(p[k]) && finite(buf.qPa[k]) }
+	var sumP, sumQ, sumI float64
+	for k := range p {
+		if !valid(k) {
 			continue
 		}
 		r.n++
-		sum += c
-		sumF += fs[k]
+		sumP += p[k]
 		sumQ += buf.qPa[k]
-		r.minCp = math.Min(r.minCp, c)
+		sumI += buf.pInt[k]
 	}
 	if r.n < 2 {
 		return r, false
 	}
 	nf := float64(r.n)
-	mean, meanF, qBar := sum/nf, sumF/nf, sumQ/nf
+	pBar, qmBar := sumP/nf, sumQ/nf
+	qBar := e.qRatio * qmBar
+	if !(qBar > 0) {
+		return r, false
+	}
+	ceff := pBar / qBar // C + c_pi
+	cp := ceff - e.intCp
 	var ss float64
-	for _, c := range cps {
-		if !finite(c) {
+	r.minCp, r.maxCp = math.Inf(1), math.Inf(-1)
+	z := make([]float64, len(p))
+	pm := make([]float64, len(p))
+	qm := make([]float64, len(p))
+	for k := range p {
+		if !valid(k) {
+			z[k], pm[k], qm[k] = math.NaN(), math.NaN(), math.NaN()
 			continue
 		}
-		ss += (c - mean) * (c - mean)
+		ss += (p[k] - pBar) * (p[k] - pBar)
+		c := p[k]/qBar - e.intCp
+		r.minCp, r.maxCp = math.Min(r.minCp, c), math.Max(r.maxCp, c)
+		z[k] = (p[k] - ceff*e.qRatio*buf.qPa[k]) / qBar
+		pm[k], qm[k] = p[k], buf.qPa[k]
 	}
-	r.rms = math.Sqrt(ss / (nf - 1))
-	aCp := TypeAMean(cps)
+	r.rms = math.Sqrt(ss/(nf-1)) / qBar
+	aCp := TypeAMean(z)
 	r.nEff = aCp.NEff
-	r.typeACpU = aCp.U
 
-	// Type B: calibrations of the taps, q and the internal channel.
-	qU, qDof := e.qTypeB(qBar)
-	cpB := []Contribution{{Input: "net Cp (type A)", U: aCp.S(), Sensitivity: 1 / math.Sqrt(r.nEff), UY: r.typeACpU, Dof: aCp.Dof, TypeA: true}}
-	fB := []Contribution{}
-	for j, c := range zn.chans {
-		h := e.uB[c]
-		w := zn.areasM2[j] / zn.areaM2
-		cpB = append(cpB, Contribution{Input: "tap " + c + " calibration", U: h.u, Sensitivity: w / qBar, UY: math.Abs(w/qBar) * h.u, Dof: h.dof})
-		fB = append(fB, Contribution{Input: "tap " + c + " calibration", U: h.u, Sensitivity: zn.areasM2[j], UY: zn.areasM2[j] * h.u, Dof: h.dof})
+	// Type B: calibrations of the taps, q, the internal channel; the profile.
+	qU, qDof := e.qTypeB(qmBar)
+	budget := []Contribution{{Input: "net Cp (type A)", U: aCp.S(), Sensitivity: 1 / math.Sqrt(r.nEff), UY: aCp.U, Dof: aCp.Dof, TypeA: true}}
+	budget = append(budget, e.tapBudget(p, buf, qBar)...)
+	sq := -ceff / qmBar
+	budget = append(budget, Contribution{Input: "reference q calibration", U: qU, Sensitivity: sq, UY: math.Abs(sq) * qU, Dof: qDof})
+	if e.qRatioU > 0 {
+		budget = append(budget, Contribution{Input: "q profile to the reference height", U: e.qRatioU, Sensitivity: -ceff, UY: math.Abs(ceff) * e.qRatioU, Dof: math.Inf(1)})
 	}
-	sq := -(mean + e.intCp) / qBar // ∂C/∂q; intCp is 0 with an internal channel
-	cpB = append(cpB, Contribution{Input: "reference q calibration", U: qU, Sensitivity: sq, UY: math.Abs(sq) * qU, Dof: qDof})
-	if e.intChan != "" {
-		h := e.uB[e.intChan]
-		cpB = append(cpB, Contribution{Input: "internal pressure calibration", U: h.u, Sensitivity: -1 / qBar, UY: h.u / qBar, Dof: h.dof})
-		fB = append(fB, Contribution{Input: "internal pressure calibration", U: h.u, Sensitivity: -zn.areaM2, UY: zn.areaM2 * h.u, Dof: h.dof})
-	} else if e.intCp != 0 {
-		fB = append(fB, Contribution{Input: "reference q calibration", U: qU, Sensitivity: -zn.areaM2 * e.intCp, UY: math.Abs(zn.areaM2*e.intCp) * qU, Dof: qDof})
-	}
-	cv := Combine(cpB)
-	cv.X = mean
+	cv := Combine(budget)
+	cv.X = cp
 	r.cp = cv
 
-	aF := TypeAMean(maskLike(fs, cps))
-	r.typeAForce = aF.U
-	fB = append(fB, Contribution{Input: "net force (type A)", UY: r.typeAForce, Dof: aF.Dof, TypeA: true})
-	fv := Combine(fB)
-	fv.X = meanF
-	r.force = fv
+	// The force A·(p̄ − c_pi·q̄) on the zone's (or tap's) area.
+	r.force = e.forceValue(p, pm, buf, qBar, qU, qDof)
 
-	aQ := TypeAMean(maskLike(buf.qPa, cps))
+	aQ := TypeAMean(qm)
 	qv := Combine([]Contribution{
-		{UY: aQ.U, Dof: aQ.Dof, TypeA: true},
-		{UY: qU, Dof: qDof},
+		{UY: e.qRatio * aQ.U, Dof: aQ.Dof, TypeA: true},
+		{UY: e.qRatio * qU, Dof: qDof},
+		{UY: qBar * e.qRatioU, Dof: math.Inf(1)},
 	})
 	qv.X = qBar
 	r.q = qv
 
-	r.peak = math.NaN()
+	r.cpInt = calibrate.Value{X: e.intCp, Dof: math.Inf(1)}
+	if e.intChan != "" {
+		ci := sumI / nf / qBar
+		zi := make([]float64, len(p))
+		for k := range p {
+			zi[k] = math.NaN()
+			if valid(k) {
+				zi[k] = (buf.pInt[k] - ci*e.qRatio*buf.qPa[k]) / qBar
+			}
+		}
+		a := TypeAMean(zi)
+		h := e.uB[e.intChan]
+		v := Combine([]Contribution{
+			{UY: a.U, Dof: a.Dof, TypeA: true},
+			{UY: h.u / qBar, Dof: h.dof},
+			{UY: math.Abs(ci/qmBar) * qU, Dof: qDof},
+			{UY: math.Abs(ci) * e.qRatioU, Dof: math.Inf(1)},
+		})
+		v.X = ci
+		r.cpInt = v
+	}
+
+	r.peakMin = calibrate.Value{X: math.NaN()}
+	r.peakMax = calibrate.Value{X: math.NaN()}
 	if withPeak {
-		r.peak = e.peak(cps)
+		// q̄'s calibration and profile scale every coefficient of the block.
+		uq := math.Hypot(qU/qmBar, e.qRatioU)
+		r.peakMin = e.blockPeak(p, qBar, -1, uq)
+		r.peakMax = e.blockPeak(p, qBar, +1, uq)
 	}
 	return r, true
 }
 
-// qTypeB returns the standard calibration uncertainty of q, Pa, at mean
-// qBar, and its degrees of freedom.
+// tapBudget returns the tap (and internal channel) calibration lines of
+// the Cp budget of series p: the zone whose series p is, or the single tap.
+func (e *RoofEstimator) tapBudget(p []float64, buf *roofBuf, qBar float64) []Contribution {
+	taps, area := e.tapsOf(p, buf)
+	var out []Contribution
+	for _, j := range taps {
+		h := e.uB[e.taps[j].channel]
+		w := e.taps[j].areaM2 / area
+		out = append(out, Contribution{Input: "tap " + e.taps[j].channel + " calibration", U: h.u, Sensitivity: w / qBar, UY: math.Abs(w/qBar) * h.u, Dof: h.dof})
+	}
+	if e.intChan != "" {
+		h := e.uB[e.intChan]
+		out = append(out, Contribution{Input: "internal pressure calibration", U: h.u, Sensitivity: -1 / qBar, UY: h.u / qBar, Dof: h.dof})
+	}
+	return out
+}
+
+// tapsOf returns the taps whose weighted sum is series p of buf (a zone's
+// or a tap's) and their area.
+func (e *RoofEstimator) tapsOf(p []float64, buf *roofBuf) ([]int, float64) {
+	same := func(a []float64) bool { return len(a) > 0 && len(p) > 0 && &a[0] == &p[0] }
+	for z := range buf.pZ {
+		if same(buf.pZ[z]) {
+			return e.zones[z].taps, e.zones[z].areaM2
+		}
+	}
+	for j := range buf.pTap {
+		if same(buf.pTap[j]) {
+			return []int{j}, e.taps[j].areaM2
+		}
+	}
+	return nil, 1
+}
+
+// forceValue returns the mean net force A·(p̄ − c_pi·q̄) of series p with
+// its budget: Type A of the mean pressure, the tap and internal
+// calibrations, and q's calibration and profile through c_pi.
+func (e *RoofEstimator) forceValue(p, pm []float64, buf *roofBuf, qBar, qU, qDof float64) calibrate.Value {
+	taps, area := e.tapsOf(p, buf)
+	aP := TypeAMean(pm)
+	fB := []Contribution{{Input: "net force (type A)", UY: area * aP.U, Dof: aP.Dof, TypeA: true}}
+	for _, j := range taps {
+		h := e.uB[e.taps[j].channel]
+		a := e.taps[j].areaM2
+		fB = append(fB, Contribution{Input: "tap " + e.taps[j].channel + " calibration", U: h.u, Sensitivity: a, UY: a * h.u, Dof: h.dof})
+	}
+	if e.intChan != "" {
+		h := e.uB[e.intChan]
+		fB = append(fB, Contribution{Input: "internal pressure calibration", U: h.u, Sensitivity: -area, UY: area * h.u, Dof: h.dof})
+	} else if e.intCp != 0 {
+		fB = append(fB, Contribution{Input: "reference q calibration", U: qU, Sensitivity: -area * e.intCp * e.qRatio, UY: math.Abs(area*e.intCp*e.qRatio) * qU, Dof: qDof})
+		if e.qRatioU > 0 {
+			fB = append(fB, Contribution{Input: "q profile to the reference height", UY: math.Abs(area*e.intCp*qBar) * e.qRatioU, Dof: math.Inf(1)})
+		}
+	}
+	fv := Combine(fB)
+	fv.X = area * (nanMean(pm) - e.intCp*qBar)
+	return fv
+}
+
+// qTypeB returns the standard calibration uncertainty of the mast q, Pa,
+// at mean qBar, and its degrees of freedom.
 func (e *RoofEstimator) qTypeB(qBarPa float64) (float64, float64) {
 	h, ok := e.uB[e.q]
 	if !ok {
@@ -628,58 +909,75 @@ func (e *RoofEstimator) qTypeB(qBarPa float64) (float64, float64) {
 	return e.pitotC * e.pitotC * h.u, h.dof
 }
 
-// maskLike returns x with NaN wherever ref is not finite.
-func maskLike(x, ref []float64) []float64 {
-	out := make([]float64, len(ref))
-	for k := range ref {
-		if finite(ref[k]) && k < len(x) {
-			out[k] = x[k]
-		} else {
-			out[k] = math.NaN()
-		}
-	}
-	return out
+// peakPower is the power k of the deviation whose epoch extremes the
+// Gumbel is fitted to: 1, the coefficient itself (Cook & Mayne). k = 2 is
+// the penultimate form for a Gaussian parent (Cook & Harris 2004, from
+// memory); on the lagged-gust test record k = 1 is conservative (suction
+// exceeded in 11 % of blocks against the stated 22 %) and k = 2 is not
+// (36 %), docs/roof.md §5.
+const peakPower = 1.0
+
+// gumbelQuantileVar is the sampling variance of a Gumbel quantile fitted to
+// m values, in units of (1/a)², at reduced variate y (the classic
+// large-sample formula, docs/references.md §20):
+// (1.1087 + 0.5140·y + 0.6079·y²)/m.
+func gumbelQuantileVar(y float64, m int) float64 {
+	return (1.1087 + 0.5140*y + 0.6079*y*y) / float64(m)
 }
 
-// peak returns the Cook & Mayne expected extreme suction of series cps:
-// minus the U + 1.4/a of a Gumbel MLE fit of the epoch maxima of −Cp.
-func (e *RoofEstimator) peak(cps []float64) float64 {
-	n := len(cps)
+// blockPeak returns the block peak of the net Cp series p/q̄ − c_pi on the
+// side sign (−1 suction, +1 positive): the Cook & Mayne fractile of the
+// block's extreme (see RoofEstimator), with its standard uncertainty;
+// uqRel is q̄'s relative standard uncertainty. X is NaN when fewer than
+// three epochs hold data.
+func (e *RoofEstimator) blockPeak(p []float64, qBar, sign, uqRel float64) calibrate.Value {
+	nan := calibrate.Value{X: math.NaN()}
+	n := len(p)
 	epochs := min(e.cfg.Epochs, n/2)
 	if epochs < 3 {
-		return math.NaN()
+		return nan
 	}
-	maxima := make([]float64, 0, epochs)
+	mean := nanMean(p) / qBar
+	ext := make([]float64, 0, epochs)
 	for k := range epochs {
 		lo, hi := k*n/epochs, (k+1)*n/epochs
 		m := math.Inf(-1)
-		for _, c := range cps[lo:hi] {
-			if finite(c) {
-				m = math.Max(m, -c)
+		for _, v := range p[lo:hi] {
+			if finite(v) {
+				m = math.Max(m, sign*(v/qBar-mean))
 			}
 		}
 		if !math.IsInf(m, -1) {
-			maxima = append(maxima, m)
+			ext = append(ext, math.Copysign(math.Pow(math.Abs(m), peakPower), m))
 		}
 	}
-	if len(maxima) < 3 {
-		return math.NaN()
+	if len(ext) < 3 {
+		return nan
 	}
-	g, err := FitGumbelMLE(maxima)
+	g, err := FitGumbelMLE(ext)
 	if err != nil {
 		if errors.Is(err, ErrGumbelData) {
-			// All epoch maxima equal: the extreme is that value.
+			// All epoch extremes equal: the extreme is that value.
 			same := true
-			for _, m := range maxima {
-				same = same && m == maxima[0]
+			for _, m := range ext {
+				same = same && m == ext[0]
 			}
 			if same {
-				return -maxima[0]
+				return calibrate.Value{X: mean - e.intCp + sign*math.Copysign(math.Pow(math.Abs(ext[0]), 1/peakPower), ext[0]), Dof: math.Inf(1)}
 			}
 		}
-		return math.NaN()
+		return nan
 	}
-	return -g.CookMayne()
+	y := math.Log(float64(len(ext))) + CookMayneReduced
+	x2 := g.ModeU + y*g.ScaleInvA
+	if !(x2 > 0) {
+		return nan
+	}
+	d := math.Pow(x2, 1/peakPower)
+	uFit := g.ScaleInvA * math.Sqrt(gumbelQuantileVar(y, len(ext))) * d / (peakPower * x2)
+	x := mean - e.intCp + sign*d
+	uQ := math.Abs(x+e.intCp) * uqRel
+	return calibrate.Value{X: x, U: math.Hypot(uFit, uQ), Dof: float64(len(ext) - 2)}
 }
 
 // Live returns each zone's net Cp over the most recent Window of samples,
@@ -691,27 +989,29 @@ func (e *RoofEstimator) Live() (Live, bool) {
 		return Live{}, false
 	}
 	lv := Live{T: time.UnixMicro(e.lastTUs).UTC(), Window: e.cfg.Window, N: e.live.len(),
-		RhoKgPerM3: e.fluid.RhoKgPerM3, Segments: e.segments}
+		RhoKgPerM3: e.fluid.RhoKgPerM3, Segments: e.blocks}
+	d := e.direction(&e.live)
+	lv.DirectionRad, lv.DirectionSpreadRad = d.mean, d.spread
 	qBar := nanMean(e.live.qPa)
 	flowOn := e.flowOn(qBar)
 	for z, zn := range e.zones {
 		zl := ZoneLive{Zone: zn.name, CpMin: math.NaN(), En: math.NaN()}
-		if r, ok := e.reduceZone(&e.live, z, false); ok && flowOn {
+		if r, ok := e.reduce(&e.live, e.live.pZ[z], false); ok && flowOn {
 			zl.CpMean, zl.CpMin = r.cp, r.minCp
 			if lv.QPa.X == 0 {
 				lv.QPa, lv.SpeedMPerS = r.q, e.speed(r.q)
 			}
 		}
-		if zn.hasDesign {
-			zl.DesignCp, zl.En = e.design(z, zl.CpMean)
-			if zl.CpMean == (calibrate.Value{}) {
-				zl.En = math.NaN()
-			}
+		if zn.hasDesign && !zn.peak && !zn.onPeakQ && zl.CpMean != (calibrate.Value{}) {
+			zl.DesignCp = calibrate.Value{X: zn.design, U: zn.designU95 / calibrate.K95(math.Inf(1)), Dof: math.Inf(1)}
+			zl.En = En(zl.CpMean, zl.DesignCp)
+		} else if zn.hasDesign {
+			zl.DesignCp = calibrate.Value{X: zn.design, U: zn.designU95 / calibrate.K95(math.Inf(1)), Dof: math.Inf(1)}
 		}
 		lv.Zones = append(lv.Zones, zl)
 	}
 	if lv.QPa.X == 0 && finite(qBar) {
-		lv.QPa = calibrate.Value{X: qBar}
+		lv.QPa = calibrate.Value{X: e.qRatio * qBar}
 	}
 	if !flowOn {
 		lv.Warnings = append(lv.Warnings, "reference q below the flow-off level (2 % of the pitot's rated capacity): no pressure coefficients")
@@ -729,6 +1029,9 @@ func (e *RoofEstimator) Live() (Live, bool) {
 	}
 	if e.ignored > 0 {
 		lv.Warnings = append(lv.Warnings, fmt.Sprintf("%d blocks ignored: no positive sample spacing", e.ignored))
+	}
+	if e.unblocked > 0 {
+		lv.Warnings = append(lv.Warnings, fmt.Sprintf("%d samples fell in no result block (%d stretches shorter than half a block)", e.unblocked, e.short))
 	}
 	if e.flowOff > 0 {
 		lv.Warnings = append(lv.Warnings, fmt.Sprintf("%d blocks of time dropped with the flow off", e.flowOff))

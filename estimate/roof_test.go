@@ -58,11 +58,22 @@ func constSeries(n int, v float64) []float64 {
 	return x
 }
 
-// zoneSeg returns the segment of the named zone.
+// zoneRows returns the zone rows of segs (no per-tap rows).
+func zoneRows(segs []estimate.Segment) []estimate.Segment {
+	var out []estimate.Segment
+	for _, s := range segs {
+		if s.Tap == "" {
+			out = append(out, s)
+		}
+	}
+	return out
+}
+
+// zoneSeg returns the zone row of the named zone.
 func zoneSeg(t *testing.T, segs []estimate.Segment, zone string) estimate.Segment {
 	t.Helper()
 	for _, s := range segs {
-		if s.Zone == zone {
+		if s.Zone == zone && s.Tap == "" {
 			return s
 		}
 	}
@@ -94,22 +105,30 @@ func TestRoof_ENNetPressure(t *testing.T) {
 		if len(segs) != 0 {
 			t.Fatalf("c_pi %+.1f: %d segments before the block ended", tc.cpi, len(segs))
 		}
-		segs = e.Flush()
-		if len(segs) != 2 {
-			t.Fatalf("c_pi %+.1f: got %d segments, want 2 (zone F and roof)", tc.cpi, len(segs))
+		all := e.Flush()
+		segs = zoneRows(all)
+		if len(segs) != 2 || len(all) != 4 {
+			t.Fatalf("c_pi %+.1f: got %d rows (%d zone rows), want 2 zone rows (F and roof) and 2 tap rows", tc.cpi, len(all), len(segs))
 		}
-		for _, s := range segs {
+		for _, s := range all {
 			if math.Abs(s.CpMean.X-tc.wantCp) > 1e-12 {
 				t.Errorf("c_pi %+.1f zone %s: CpMean %.15g, want %g", tc.cpi, s.Zone, s.CpMean.X, tc.wantCp)
 			}
-			if w := s.UpliftN.X / 2; math.Abs(w-tc.wantWPa) > 1e-9 {
+			area := 2.0 // zone F and the roof: two taps of 1 m²
+			if s.Tap != "" {
+				area = 1
+			}
+			if w := s.UpliftN.X / area; math.Abs(w-tc.wantWPa) > 1e-9 {
 				t.Errorf("c_pi %+.1f zone %s: uplift per m² %.12g Pa, want %g", tc.cpi, s.Zone, w, tc.wantWPa)
 			}
 			// A constant series: every epoch minimum is the same value.
 			if math.Abs(s.CpPeak-tc.wantCp) > 1e-12 || s.CpRMS != 0 {
 				t.Errorf("c_pi %+.1f zone %s: peak %g rms %g, want %g and 0", tc.cpi, s.Zone, s.CpPeak, s.CpRMS, tc.wantCp)
 			}
-			if s.QPa.X != 600 || s.N != n {
+			if math.Abs(s.CpMin-tc.wantCp) > 1e-12 || math.Abs(s.CpMax-tc.wantCp) > 1e-12 || s.CpInt.X != tc.cpi {
+				t.Errorf("zone %s tap %q: min %g max %g c_pi %g", s.Zone, s.Tap, s.CpMin, s.CpMax, s.CpInt.X)
+			}
+			if s.QPa.X != 600 || s.N != n || s.QAt != "mast" {
 				t.Errorf("zone %s: q %g N %d, want 600 and %d", s.Zone, s.QPa.X, s.N, n)
 			}
 		}
@@ -152,9 +171,10 @@ func TestRoof_AreaWeighting(t *testing.T) {
 		t.Fatal(err)
 	}
 	const n, q = 200, 400.0
-	segs := e.Add(block(0, 10000, 0, map[string][]float64{
+	all := e.Add(block(0, 10000, 0, map[string][]float64{
 		"p1": constSeries(n, -1*q), "p2": constSeries(n, -2*q), "p3": constSeries(n, -0.5*q), "q": constSeries(n, q)}))
-	if len(segs) != 3 {
+	segs := zoneRows(all)
+	if len(segs) != 3 || len(all) != 6 {
 		t.Fatalf("got %d segments, want 3 (F, H, roof) for the first complete 1 s block", len(segs))
 	}
 	for i, want := range []struct {
@@ -173,10 +193,21 @@ func TestRoof_AreaWeighting(t *testing.T) {
 			t.Errorf("zone %s: Cp %.15g force %.12g N, want %g and %g", s.Zone, s.CpMean.X, s.UpliftN.X, want.cp, want.f)
 		}
 	}
-	// The second second completes on Flush, with indices continuing.
+	// Then one row per tap, in rig order, with the tap's own Cp.
+	for i, want := range []struct {
+		tap, zone string
+		cp        float64
+	}{{"t1", "F", -1}, {"t2", "F", -2}, {"t3", "H", -0.5}} {
+		s := all[3+i]
+		if s.Tap != want.tap || s.Zone != want.zone || s.Index != 3+i || s.Block != 0 || math.Abs(s.CpMean.X-want.cp) > 1e-12 {
+			t.Errorf("row %d: tap %q zone %q index %d block %d Cp %g, want %s/%s Cp %g", 3+i, s.Tap, s.Zone, s.Index, s.Block, s.CpMean.X, want.tap, want.zone, want.cp)
+		}
+	}
+	// The second second completes on Flush, with indices continuing and
+	// the block number counting blocks, not rows.
 	segs = e.Flush()
-	if len(segs) != 3 || segs[0].Index != 3 || segs[2].Index != 5 {
-		t.Errorf("flush: %d segments, indices %v; want 3 with 3..5", len(segs), indices(segs))
+	if len(segs) != 6 || segs[0].Index != 6 || segs[5].Index != 11 || segs[0].Block != 1 || segs[5].Block != 1 {
+		t.Errorf("flush: %d segments, indices %v; want 6 with 6..11 in block 1", len(segs), indices(segs))
 	}
 }
 
@@ -246,7 +277,7 @@ func TestRoof_BadInput(t *testing.T) {
 	other := block(1_000_000, 10000, 1, map[string][]float64{"p1": constSeries(100, 99999), "q": constSeries(100, 1)})
 	other.Source = "elsewhere"
 	e.Add(other)
-	segs := e.Flush()
+	segs := zoneRows(e.Flush())
 	if len(segs) != 2 {
 		t.Fatalf("got %d segments, want 2", len(segs))
 	}
@@ -260,7 +291,7 @@ func TestRoof_BadInput(t *testing.T) {
 		t.Fatal("Live not ok")
 	}
 	joined := strings.Join(lv.Warnings, "\n")
-	for _, w := range []string{"1 blocks from sources other", "1 blocks ignored"} {
+	for _, w := range []string{"1 blocks from sources other", "1 blocks ignored", "101 samples fell in no result block"} {
 		if !strings.Contains(joined, w) {
 			t.Errorf("warnings %q lack %q", joined, w)
 		}
@@ -325,7 +356,7 @@ func runRoof(t testing.TB, r *rig.Rig, cfg sim.RoofConfig, ecfg estimate.RoofCon
 		segs = append(segs, e.Add(&cb)...)
 	}
 	segs = append(segs, e.Flush()...)
-	return s, e, segs
+	return s, e, zoneRows(segs)
 }
 
 // Ensure that a simulated yard roof streamed in 4 s blocks gives one
@@ -348,7 +379,7 @@ func TestRoof_StreamingSimulatedYard(t *testing.T) {
 		t.Fatalf("got %d segments, want %d (3 blocks × %d zones)", len(segs), 3*len(zones), len(zones))
 	}
 	for i, sg := range segs {
-		if sg.Index != i || sg.Zone != zones[i%len(zones)] {
+		if sg.Block != i/len(zones) || sg.Zone != zones[i%len(zones)] {
 			t.Errorf("segment %d: index %d zone %q", i, sg.Index, sg.Zone)
 		}
 		// Each interval misses 5 % of the time (TestRoof_Coverage checks
@@ -407,13 +438,13 @@ func TestRoof_StreamingSimulatedYard(t *testing.T) {
 }
 
 // Ensure that the 95 % intervals of CpMean cover the truth about 95 % of
-// the time: 150 seeded runs, each with its own calibration errors drawn from
+// the time: 125 seeded runs, each with its own calibration errors drawn from
 // the rig's stated uncertainties, 4 zones per run. The check is
 // statistical; with these seeds it is deterministic.
 func TestRoof_Coverage(t *testing.T) {
 	r := yardRig(t)
 	hit, total := 0, 0
-	for seed := range uint64(150) {
+	for seed := range uint64(125) {
 		s, _, segs := runRoof(t, r, sim.RoofConfig{QPa: 120, TapTurbulence: 0.03, Seed: seed, CalibrationErrors: true},
 			estimate.RoofConfig{Block: 3 * time.Second}, 3)
 		for _, sg := range segs {
@@ -423,8 +454,8 @@ func TestRoof_Coverage(t *testing.T) {
 			}
 		}
 	}
-	if total != 600 {
-		t.Fatalf("%d intervals, want 600", total)
+	if total != 500 {
+		t.Fatalf("%d intervals, want 500", total)
 	}
 	cov := float64(hit) / float64(total)
 	t.Logf("coverage %.3f over %d intervals", cov, total)
@@ -433,13 +464,16 @@ func TestRoof_Coverage(t *testing.T) {
 	}
 }
 
-// Ensure that CpPeak estimates the 78 % fractile of the epoch extremes:
-// for white Gaussian net Cp (mean m, sd σ) and epochs of M samples the
-// epoch minimum has the exact distribution P(min ≥ x) = Φ((m − x)/σ)^M
+// Ensure that CpPeak estimates the 78 % fractile of the block's own
+// extreme: for white Gaussian net Cp (mean m, sd σ) the minimum of a block
+// of N samples has the exact distribution P(min ≥ x) = Φ((m − x)/σ)^N
 // (order statistics of independent samples), so the Cook & Mayne fractile
-// p = exp(−e^{−1.4}) is x = m − σ·Φ⁻¹(p^{1/M}). A Gumbel fit to 16 epoch
-// extremes has a sampling error of about 0.1σ here: tolerance 0.35σ.
-func TestRoof_PeakMatchesGaussianExtremes(t *testing.T) {
+// p = exp(−e^{−1.4}) is x = m − σ·Φ⁻¹(p^{1/N}). The Gumbel fit of 16 epoch
+// extremes scaled to the block (mode + ln 16 dispersions) is a model, not
+// the exact law: Gaussian extremes approach the Gumbel slowly, so the
+// estimate is checked within 2.5 of its own standard uncertainties (and
+// 0.5σ), and the same on the positive side.
+func TestRoof_PeakMatchesGaussianBlockExtremes(t *testing.T) {
 	const m, sigma, q = -1.2, 0.3, 500.0
 	const epochs, perEpoch = 16, 625 // 10 000 samples: a 10 s block at 1 kHz
 	r := enRoof(0)
@@ -458,12 +492,22 @@ func TestRoof_PeakMatchesGaussianExtremes(t *testing.T) {
 	e.Add(block(0, 1000, 0, map[string][]float64{"p1": p1, "p2": p2, "q": constSeries(n, q)}))
 	segs := e.Flush()
 	f := zoneSeg(t, segs, "F")
-	p := math.Exp(-math.Exp(-1.4))
-	want := m - sigma*distuv.UnitNormal.Quantile(math.Pow(p, 1.0/perEpoch))
-	if d := math.Abs(f.CpPeak - want); d > 0.35*sigma {
-		t.Errorf("peak %.3f, want %.3f (Gaussian epoch extremes) ± %.3f", f.CpPeak, want, 0.35*sigma)
+	z := distuv.UnitNormal.Quantile(math.Pow(estimate.RoofPeakProb, 1/float64(n)))
+	for _, c := range []struct {
+		side      string
+		got, u, w float64
+	}{
+		{"suction", f.CpPeak, f.CpPeakU, m - sigma*z},
+		{"positive", f.CpPeakMax, f.CpPeakMaxU, m + sigma*z},
+	} {
+		if d := math.Abs(c.got - c.w); d > 2.5*c.u || d > 0.5*sigma || !(c.u > 0) {
+			t.Errorf("%s peak %.3f ± %.3f, want %.3f (exact 78 %% block fractile)", c.side, c.got, c.u, c.w)
+		}
+		t.Logf("%s peak %.4f ± %.4f, exact 78 %% block fractile %.4f", c.side, c.got, c.u, c.w)
 	}
-	t.Logf("peak %.4f, exact 78 %% epoch fractile %.4f", f.CpPeak, want)
+	if math.Abs(estimate.RoofPeakProb-0.7815) > 1e-4 {
+		t.Errorf("RoofPeakProb %g, want 0.7815 = exp(−e^{−1.4})", estimate.RoofPeakProb)
+	}
 }
 
 // BenchmarkRoofEstimator measures the streaming cost of the yard rig
@@ -540,4 +584,253 @@ func FuzzRoofEstimator_Add(f *testing.F) {
 			}
 		}
 	})
+}
+
+// Ensure that, on a record whose taps lag the mast gusts and follow them
+// only partly, the block means p̄/q̄ cover the truth and the block peaks are
+// exceeded by the blocks' own extremes at about their stated rate
+// (1 − RoofPeakProb ≈ 22 %). 12 seeded runs × 10 blocks of 5 s at 100 Hz,
+// 4 zone rows a block: 480 zone-blocks. Issue 11 "Must show".
+func TestRoof_LaggedTapsCoverageAndPeakRate(t *testing.T) {
+	r := yardRig(t)
+	hit, total, below, above := 0, 0, 0, 0
+	for seed := range uint64(12) {
+		s, _, segs := runRoof(t, r, sim.RoofConfig{QPa: 300, Seed: 100 + seed, CalibrationErrors: true,
+			IntegralTimeS: 0.02, TapGustCorrelation: 0.6, TapGustLagS: 0.05, TapIntegralTimeS: 0.01,
+			RateHz: 200, BlockSamples: 100},
+			estimate.RoofConfig{Block: 5 * time.Second}, 50)
+		for _, sg := range segs {
+			total++
+			if math.Abs(sg.CpMean.X-s.TrueCp(sg.Zone)) <= sg.CpMean.U95() {
+				hit++
+			}
+			if sg.CpMin < sg.CpPeak {
+				below++
+			}
+			if sg.CpMax > sg.CpPeakMax {
+				above++
+			}
+		}
+	}
+	if total != 480 {
+		t.Fatalf("%d zone-blocks, want 480", total)
+	}
+	cov := float64(hit) / float64(total)
+	rateMin, rateMax := float64(below)/float64(total), float64(above)/float64(total)
+	t.Logf("coverage %.3f; block extreme beyond the peak: suction %.3f, positive %.3f (stated %.3f)", cov, rateMin, rateMax, 1-estimate.RoofPeakProb)
+	if cov < 0.80 {
+		t.Errorf("coverage %.3f below 0.80", cov)
+	}
+	// The Gumbel of epoch extremes is conservative on a near-Gaussian side
+	// (docs/roof.md §5): measured 0.11 on the suction side, 0.02 on the
+	// positive side against the stated 0.22. The band asserts that the
+	// suction peak is a block value (an epoch value is exceeded in almost
+	// every block) and not optimistic.
+	if rateMin < 0.05 || rateMin > 0.35 {
+		t.Errorf("suction exceedance rate %.3f outside 0.05–0.35 (stated %.3f)", rateMin, 1-estimate.RoofPeakProb)
+	}
+	if rateMax > 0.35 {
+		t.Errorf("positive exceedance rate %.3f above 0.35 (stated %.3f)", rateMax, 1-estimate.RoofPeakProb)
+	}
+}
+
+// Ensure that a scanner clock jittering by ±1 µs loses no block and no
+// sample: 12 s of the yard in 4 s blocks gives 3 blocks, each with every
+// sample, and nothing counted as unblocked (issue 11 "Must show").
+func TestRoof_TimestampJitterLosesNoBlock(t *testing.T) {
+	r := yardRig(t)
+	_, e, segs := runRoof(t, r, sim.RoofConfig{QPa: 300, Seed: 5, TimestampJitterUs: 1},
+		estimate.RoofConfig{Block: 4 * time.Second}, 12)
+	if len(segs) != 3*4 || e.Unblocked() != 0 {
+		t.Fatalf("%d zone rows, %d samples unblocked; want 12 and 0", len(segs), e.Unblocked())
+	}
+	for _, s := range segs {
+		if s.N < 799 || s.SamplesUnblocked != 0 {
+			t.Errorf("block %d zone %s: N %d, unblocked %d", s.Block, s.Zone, s.N, s.SamplesUnblocked)
+		}
+	}
+}
+
+// Ensure that samples in no block are counted and shown: a 1.5 s
+// stretch after a clock step back (shorter than half a 4 s block) is
+// counted in Unblocked, the next whole-roof row and a Live warning.
+func TestRoof_UnblockedSamplesCounted(t *testing.T) {
+	e, err := estimate.NewRoofEstimator(enRoof(0.2), estimate.RoofConfig{Block: 4 * time.Second})
+	if err != nil {
+		t.Fatal(err)
+	}
+	add := func(t0Us int64, n int) []estimate.Segment {
+		return e.Add(block(t0Us, 10000, 1, map[string][]float64{"p1": constSeries(n, -1080), "p2": constSeries(n, -1080), "q": constSeries(n, 600)}))
+	}
+	add(0, 150)           // 1.5 s
+	add(-10_000_000, 400) // the clock steps back: the 1.5 s stretch is short
+	segs := zoneRows(append(add(-6_000_000, 10), e.Flush()...))
+	// The last 10 samples, flushed alone, are short too: 160 in all, of
+	// which the 150 before the block are on its whole-roof row.
+	if e.Unblocked() != 160 || len(segs) != 2 {
+		t.Fatalf("unblocked %d, %d zone rows; want 160 and 2", e.Unblocked(), len(segs))
+	}
+	if roof := zoneSeg(t, segs, "roof"); roof.SamplesUnblocked != 150 {
+		t.Errorf("whole-roof row shows %d unblocked samples, want 150", roof.SamplesUnblocked)
+	}
+	lv, _ := e.Live()
+	if !strings.Contains(strings.Join(lv.Warnings, "\n"), "160 samples fell in no result block") {
+		t.Errorf("warnings %q", lv.Warnings)
+	}
+}
+
+// Ensure that a declared reference height carries q by the profile, that
+// uplift ÷ (q̄·A) = cp_mean on every row, and that the profile's
+// uncertainty enters the budget. EN 1991-1-4:2005 eq. 4.4 (log law,
+// k_r cancels): from 3 m to 10 m over z0 = 0.05 m the mean-q ratio is
+// [ln(200)/ln(60)]² = 1.6746; power law α = 0.16: (10/3)^0.32 = 1.4700
+// (arithmetic of the published forms, docs/references.md §20).
+func TestRoof_ReferenceHeight(t *testing.T) {
+	for _, tc := range []struct {
+		name  string
+		wind  rig.Wind
+		ratio float64
+		at    string
+	}{
+		{"mast", rig.Wind{}, 1, "mast"},
+		{"log", rig.Wind{MastHeightM: 3, ReferenceHeightM: 10, Profile: rig.ProfileLog, RoughnessM: 0.05}, 1.6746, "reference height (log law)"},
+		{"power", rig.Wind{MastHeightM: 3, ReferenceHeightM: 10, Profile: rig.ProfilePower, Exponent: 0.16}, 1.4700, "reference height (power law)"},
+	} {
+		r := enRoof(0.2)
+		r.Wind = tc.wind
+		e, err := estimate.NewRoofEstimator(r, estimate.RoofConfig{Block: 2 * time.Second})
+		if err != nil {
+			t.Fatal(err)
+		}
+		rng := rand.New(rand.NewPCG(3, 4))
+		const n = 200
+		p1, p2, q := make([]float64, n), make([]float64, n), make([]float64, n)
+		for i := range n {
+			q[i] = 600 * (1 + 0.2*rng.NormFloat64())
+			p1[i], p2[i] = -1.8*600+50*rng.NormFloat64(), -1.6*600+50*rng.NormFloat64()
+		}
+		e.Add(block(0, 10000, 1, map[string][]float64{"p1": p1, "p2": p2, "q": q}))
+		for _, s := range e.Flush() {
+			area := 2.0
+			if s.Tap != "" {
+				area = 1
+			}
+			if got := s.UpliftN.X / (s.QPa.X * area); math.Abs(got-s.CpMean.X) > 1e-12 {
+				t.Errorf("%s %s%s: uplift/(q̄A) %.15g, cp_mean %.15g", tc.name, s.Zone, s.Tap, got, s.CpMean.X)
+			}
+			if s.QAt != tc.at {
+				t.Errorf("%s: q at %q, want %q", tc.name, s.QAt, tc.at)
+			}
+		}
+		qm := 0.0
+		for _, v := range q {
+			qm += v / n
+		}
+		// The block's q̄ is the ratio times the mast mean.
+		e2, _ := estimate.NewRoofEstimator(r, estimate.RoofConfig{Block: 2 * time.Second})
+		e2.Add(block(0, 10000, 1, map[string][]float64{"p1": p1, "p2": p2, "q": q}))
+		g := zoneSeg(t, e2.Flush(), "F")
+		if math.Abs(g.QPa.X/qm-tc.ratio) > 1e-4 {
+			t.Errorf("%s: q̄/q̄_mast %.5f, want %.4f", tc.name, g.QPa.X/qm, tc.ratio)
+		}
+		ratio, uRel := tc.wind.QRatio()
+		if tc.name != "mast" && !(uRel > 0.01) || tc.name == "mast" && (ratio != 1 || uRel != 0) {
+			t.Errorf("%s: ratio %g, u_rel %g", tc.name, ratio, uRel)
+		}
+	}
+}
+
+// Ensure that the direction of a block is the circular mean of the vane
+// (across north: 350° and 10° average to 0°, not 180°), with its spread,
+// its 30° sector and the flag when many samples leave the sector.
+func TestRoof_Direction(t *testing.T) {
+	r := enRoof(0)
+	r.Channels = append(r.Channels, rig.Channel{Name: "vane", Quantity: rig.QuantityAngle, ToSI: rig.Affine{Scale: 1}, Calibration: rig.Calibration{Poly: []float64{0, 1}}})
+	r.Lift.Direction = "vane"
+	r.Wind.SectorRad = rig.Rad(30)
+	for _, tc := range []struct {
+		name string
+		a, b float64 // alternate samples, degrees
+		mean float64
+		left bool
+	}{
+		{"across north", 350, 10, 0, false},
+		{"wandering", 200, 250, 225, true},
+	} {
+		e, _ := estimate.NewRoofEstimator(r, estimate.RoofConfig{Block: time.Second})
+		const n = 100
+		dir := make([]float64, n)
+		for i := range dir {
+			dir[i] = rig.Rad(tc.a)
+			if i%2 == 1 {
+				dir[i] = rig.Rad(tc.b)
+			}
+		}
+		b := block(0, 10000, 0, map[string][]float64{"p1": constSeries(n, -500), "p2": constSeries(n, -500), "q": constSeries(n, 500)})
+		b.Series = append(b.Series, calibrate.Series{Channel: "vane", Values: dir, Dof: math.Inf(1)})
+		e.Add(b)
+		s := zoneSeg(t, e.Flush(), "F")
+		d := math.Mod(rig.Deg(s.DirectionRad)+360, 360)
+		if math.Min(math.Abs(d-tc.mean), 360-math.Abs(d-tc.mean)) > 1e-9 {
+			t.Errorf("%s: direction %.6f°, want %g°", tc.name, d, tc.mean)
+		}
+		// Two directions ±h about the mean: R̄ = cos h, spread √(−2 ln cos h).
+		h := rig.Rad(math.Abs(tc.b-tc.a) / 2)
+		if h > math.Pi/2 {
+			h = math.Pi - h
+		}
+		if want := math.Sqrt(-2 * math.Log(math.Cos(h))); math.Abs(s.DirectionSpreadRad-want) > 1e-9 {
+			t.Errorf("%s: spread %g rad, want %g", tc.name, s.DirectionSpreadRad, want)
+		}
+		if s.SectorLeft() != tc.left {
+			t.Errorf("%s: sector %g°, out fraction %g, left %v", tc.name, rig.Deg(s.SectorRad), s.SectorOutFrac, s.SectorLeft())
+		}
+	}
+}
+
+// Ensure that design values compare like with like: a declared peak is
+// compared with the block peak on its own side, a value on the peak
+// velocity pressure is put on q̄ by 1 + 7·I_v (EN 1991-1-4:2005 eq. 4.8),
+// and the side of a disagreement is named.
+func TestRoof_DesignLikeWithLike(t *testing.T) {
+	rng := rand.New(rand.NewPCG(8, 9))
+	const n = 1000
+	p1, q := make([]float64, n), make([]float64, n)
+	for i := range n {
+		q[i] = 500 * (1 + 0.1*rng.NormFloat64())
+		p1[i] = -1.0*500 + 150*rng.NormFloat64()
+	}
+	for _, tc := range []struct {
+		name       string
+		value, onQ string
+		design     float64
+		vs         string
+	}{
+		{"mean on mean q", rig.DesignMean, rig.DesignMean, -1.0, "cp_mean"},
+		{"peak suction", rig.DesignPeak, rig.DesignMean, -2.0, "cp_peak"},
+		{"peak positive", rig.DesignPeak, rig.DesignMean, 0.5, "cp_peak_max"},
+		{"mean on peak q", rig.DesignMean, rig.DesignPeak, -0.6, "cp_mean"},
+		{"mean, less suction than design", rig.DesignMean, rig.DesignMean, -1.5, "cp_mean"},
+	} {
+		r := enRoof(0)
+		r.Zones[0].DesignCp, r.Zones[0].DesignValue, r.Zones[0].DesignQ = tc.design, tc.value, tc.onQ
+		e, _ := estimate.NewRoofEstimator(r, estimate.RoofConfig{Block: time.Second})
+		e.Add(block(0, 1000, 1, map[string][]float64{"p1": p1, "p2": p1, "q": q}))
+		s := zoneSeg(t, e.Flush(), "F")
+		want := tc.design
+		if tc.onQ == rig.DesignPeak {
+			want *= 1 + 7*s.TurbulenceIntensity
+		}
+		if s.DesignVs != tc.vs || math.Abs(s.DesignCp.X-want) > 1e-12 || !(s.TurbulenceIntensity > 0.03 && s.TurbulenceIntensity < 0.07) {
+			t.Errorf("%s: compared with %q, design %g (want %g), I_v %g", tc.name, s.DesignVs, s.DesignCp.X, want, s.TurbulenceIntensity)
+		}
+		m := map[string]float64{"cp_mean": s.CpMean.X, "cp_peak": s.CpPeak, "cp_peak_max": s.CpPeakMax}[tc.vs]
+		if d := m - s.DesignCp.X; math.Abs(s.En) > 1 && (d < 0) != (estimate.DesignSide(s.En) == "more suction") {
+			t.Errorf("%s: En %g side %q for result %g vs design %g", tc.name, s.En, estimate.DesignSide(s.En), m, s.DesignCp.X)
+		}
+		if tc.design == -1.5 && estimate.DesignSide(s.En) != "less suction" {
+			t.Errorf("%s: En %g says %q", tc.name, s.En, estimate.DesignSide(s.En))
+		}
+		t.Logf("%s: result %.3f design %.3f En %.2f (%s)", tc.name, m, s.DesignCp.X, s.En, estimate.DesignSide(s.En))
+	}
 }

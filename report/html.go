@@ -92,6 +92,9 @@ type view struct {
 	Water, Spin bool
 	Segments    []segRow
 
+	// Heading is the report's title: "Lift test report", or the roof's.
+	Heading string
+
 	// Roof runs show RoofRows (zones × blocks) instead of the polar.
 	Roof     bool
 	RoofRows []roofRow
@@ -184,6 +187,7 @@ func (r *Report) view() (*view, error) {
 			compared[pt.Segment] = pt
 		}
 	}
+	v.Heading = r.section().heading
 	if r.section().zones {
 		v.Roof, v.RoofRows = true, r.roofRows()
 		r.recordView(v)

@@ -25,6 +25,8 @@ type section struct {
 	figures func(r *Report) []func() (*figure, error)
 	// count is the summary's opening: what was measured.
 	count func(r *Report) []string
+	// heading is the report's title, before ": run N".
+	heading string
 }
 
 // sectionOf returns the section of a run's rig kind; a kind this version
@@ -40,10 +42,13 @@ func sectionOf(kind string) section {
 		}
 		return s
 	case rig.KindRoof:
+		// No q plot: a roof's q is one per block, shown in the block table
+		// (a q plot of the rows would repeat each block once per zone).
 		return section{
 			zones:   true,
-			figures: func(r *Report) []func() (*figure, error) { return []func() (*figure, error){r.zonePlot, r.qPlot} },
+			figures: func(r *Report) []func() (*figure, error) { return []func() (*figure, error){r.zonePlot, r.tapMap} },
 			count:   func(r *Report) []string { return r.roofSummary() },
+			heading: "Roof pressure test report",
 		}
 	}
 	return balance() // rig.KindFoil, rig.KindBody
@@ -58,7 +63,8 @@ func balance() section {
 		figures: func(r *Report) []func() (*figure, error) {
 			return []func() (*figure, error){r.liftPlot, r.dragPlot, r.enPlot, r.qPlot}
 		},
-		count: balanceCount,
+		count:   balanceCount,
+		heading: "Lift test report",
 	}
 }
 

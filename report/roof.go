@@ -15,8 +15,8 @@ import (
 
 // roofRow is one zone in one block, rounded to text.
 type roofRow struct {
-	Index, Zone, Start, Q, Cp, RMS, Peak, Uplift, Design, En, Agrees string
-	Disagree                                                         bool
+	Index, Zone, Start, Dir, Q, Cp, RMS, Peak, Uplift, Design, En, Agrees string
+	Disagree                                                              bool
 }
 
 // roofRows lists the roof segments in stored order (block by block, zone
@@ -25,15 +25,16 @@ type roofRow struct {
 func (r *Report) roofRows() []roofRow {
 	var out []roofRow
 	for _, s := range r.Segments {
-		if s.Zone == "" {
+		if !zoneRow(&s) {
 			continue
 		}
 		row := estimate.NewRow(r.Run.ID, rig.KindRoof, &s)
 		f := row.Float
 		rr := roofRow{
-			Index: fmt.Sprint(s.Index), Zone: s.Zone, Start: when(s.TStart),
+			Index: blockNo(&s), Zone: s.Zone, Start: when(s.TStart),
 			Q:  pm(f("q_pa"), f("q_u95_pa"), 1),
-			Cp: pm(f("cp_mean"), f("cp_u95"), 2), RMS: fix(f("cp_rms"), 2), Peak: fix(f("cp_peak"), 2),
+			Cp: pm(f("cp_mean"), f("cp_u95"), 2), RMS: fix(f("cp_rms"), 2), Peak: fix(f("cp_peak"), 2) + " / " + fix(f("cp_peak_max"), 2),
+			Dir:    direction(row),
 			Uplift: pm(f("uplift_n"), f("uplift_u95_n"), 0),
 			Design: pm(f("design_cp"), f("design_cp_u95"), 2), En: fix(f("en"), 2), Agrees: dash,
 		}
@@ -48,6 +49,33 @@ func (r *Report) roofRows() []roofRow {
 	return out
 }
 
+// direction is a row's mean direction ± its spread in whole degrees, with
+// a flag when the block wandered out of its sector; a dash without a vane.
+func direction(row estimate.Row) string {
+	d, sp := row.Float("direction_deg"), row.Float("direction_spread_deg")
+	if !finite(d) {
+		return dash
+	}
+	out := fix(d, 0) + " ± " + fix(sp, 0)
+	if v, ok := row.Value("sector_left"); ok && v.(bool) {
+		out += " (left its sector)"
+	}
+	return out
+}
+
+// zoneRow reports whether s is a roof zone row (not a per-tap row, not a
+// force-balance row).
+func zoneRow(s *estimate.Segment) bool { return s.Zone != "" && s.Tap == "" }
+
+// blockNo is a roof row's block number for display, from 1; rows stored
+// before blocks were numbered show their row number with a "#".
+func blockNo(s *estimate.Segment) string {
+	if s.Block < 0 {
+		return fmt.Sprintf("#%d", s.Index)
+	}
+	return fmt.Sprint(s.Block + 1)
+}
+
 // roofSummary is the roof part of the summary: how many blocks and zones,
 // and how many zone-blocks agree with their design values.
 func (r *Report) roofSummary() []string {
@@ -55,7 +83,7 @@ func (r *Report) roofSummary() []string {
 	var rows, agree, compared int
 	worst, worstZone := math.Inf(1), ""
 	for _, s := range r.Segments {
-		if s.Zone == "" {
+		if !zoneRow(&s) {
 			continue
 		}
 		rows++
@@ -111,6 +139,9 @@ func (r *Report) drawZones() (p *plot.Plot, left int, err error) {
 	var meas, design errPts
 	done := map[string]bool{}
 	for _, s := range r.Segments {
+		if s.Tap != "" {
+			continue // per-tap rows are in the tap map
+		}
 		if s.Zone == "" || !measured(s.CpMean) {
 			left++
 			continue

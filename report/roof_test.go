@@ -19,6 +19,7 @@ import (
 	"liftyard/calibrate"
 	"liftyard/estimate"
 	"liftyard/report"
+	"liftyard/rig"
 	"liftyard/storage"
 )
 
@@ -48,13 +49,30 @@ func mustRoofStore(t *testing.T) (*storage.Store, uint64) {
 			cp := calibrate.Value{X: measuredCp[b][z], U: 0.04, Dof: 120}
 			d := calibrate.Value{X: design[zone], U: designU[zone] / calibrate.K95(math.Inf(1)), Dof: math.Inf(1)} // as estimate.RoofEstimator stores it
 			segs = append(segs, estimate.Segment{
-				Index: 3*b + z, TStart: ts, TEnd: ts.Add(10*time.Minute - time.Millisecond), N: 120000, NEff: 1500,
+				Index: 3*b + z, Block: b, TStart: ts, TEnd: ts.Add(10*time.Minute - time.Millisecond), N: 120000, NEff: 1500,
 				QPa: calibrate.Value{X: 88.2 + float64(b), U: 0.8, Dof: 300}, SpeedMPerS: calibrate.Value{X: 12.0, U: 0.05, Dof: 300},
 				RhoKgPerM3: 1.225, Zone: zone, CpMean: cp, CpRMS: 0.31, CpPeak: cp.X - 1.1,
 				UpliftN: calibrate.Value{X: cp.X * 88.2 * 2, U: 8, Dof: 120}, DesignCp: d,
-				En: (cp.X - d.X) / math.Hypot(cp.U95(), designU[zone]),
+				En:        (cp.X - d.X) / math.Hypot(cp.U95(), designU[zone]),
+				CpPeakMax: cp.X + 0.9, CpPeakMaxU: 0.05, CpPeakU: 0.1, CpMin: cp.X - 1.3, CpMax: cp.X + 1.0, QAt: "mast",
+				DirectionRad: rig.Rad(240 + 10*float64(b)), DirectionSpreadRad: rig.Rad(9), SectorRad: rig.Rad(240),
+				SectorOutFrac: 0.2 * float64(b), TurbulenceIntensity: 0.15,
 			})
 		}
+	}
+	// Per-tap rows of block 0: the taps of the rig file, each at its zone's
+	// value with a step across the panel so the map has a range.
+	rg, err := rig.Parse("roof-yard.toml", toml)
+	require.NoError(t, err)
+	for j, tp := range rg.Taps {
+		z := map[string]int{"corner": 0, "edge": 1, "field": 2}[tp.Zone]
+		cp := calibrate.Value{X: measuredCp[0][z] + 0.02*float64(j%3), U: 0.05, Dof: 120}
+		segs = append(segs, estimate.Segment{
+			Index: 6 + j, Block: 0, TStart: t0, TEnd: t0.Add(10*time.Minute - time.Millisecond), N: 120000, NEff: 1500,
+			QPa: calibrate.Value{X: 88.2, U: 0.8, Dof: 300}, RhoKgPerM3: 1.225, Zone: tp.Zone, Tap: tp.Name,
+			CpMean: cp, CpRMS: 0.35, CpPeak: cp.X - 1.3, CpPeakMax: math.NaN(), CpMin: math.NaN(), CpMax: math.NaN(),
+			DirectionRad: math.NaN(), DirectionSpreadRad: math.NaN(), SectorRad: math.NaN(), SectorOutFrac: math.NaN(), UpliftN: calibrate.Value{X: cp.X * 88.2 * 0.5, U: 3, Dof: 120}, En: math.NaN(),
+		})
 	}
 	w := st.NewWriter(id, storage.WriterConfig{})
 	q := w.NewQueue()
@@ -85,7 +103,10 @@ func TestWriteHTML_RoofGolden(t *testing.T) {
 		require.NoError(t, err, "the report must be well-formed")
 	}
 	svgs := svgRE.FindAllString(html, -1)
-	require.Len(t, svgs, 2, "zone plot and q plot")
+	require.Len(t, svgs, 2, "zone plot and tap map (no q plot: it would repeat each block per zone)")
+	for _, tap := range []string{"t01", "t12", "Tap map", "Cp "} {
+		assert.Contains(t, svgs[1], tap, "tap map")
+	}
 	for _, z := range []string{"corner", "edge", "field", "net Cp"} {
 		assert.Contains(t, svgs[0], z)
 	}
@@ -93,11 +114,13 @@ func TestWriteHTML_RoofGolden(t *testing.T) {
 		"Agrees with the design value at 5 of 6 compared zone results.", "6 zone results over 3 zones"} {
 		assert.Contains(t, html, want)
 	}
-	for _, not := range []string{"Lift curve and drag polar", "Uncertainty budgets of C<sub>L</sub>", "no lift-curve fit"} {
+	assert.Contains(t, html, "Roof pressure test report: run")
+	for _, not := range []string{"Lift curve and drag polar", "Uncertainty budgets of C<sub>L</sub>", "no lift-curve fit", "Lift test report"} {
 		assert.NotContains(t, html, not)
 	}
 	// Block 1's corner: En = (−1.60 + 2.20)/√(0.0795² + 0.25²) = 2.29 > 1.
-	assert.Contains(t, html, `<tr class="bad"><td class="idx">3</td><td>corner</td>`)
+	// Rows are numbered by block (from 1), not by zone row.
+	assert.Contains(t, html, `<tr class="bad"><td class="idx">2</td><td>corner</td>`)
 	assert.Equal(t, 1, strings.Count(html, `<tr class="bad"><td class="idx">`), "only one zone result disagrees")
 
 	got := svgRE.ReplaceAllStringFunc(html, func(string) string { return "<svg><!-- plot --></svg>" })

@@ -390,7 +390,7 @@ var (
 
 // The keys of each table.
 var (
-	topKeys        = []string{"name", "kind", "fluid", "conditions", "reference", "source", "channel", "lift", "tap", "zone", "internal", "publish", "tare", "balance", "blockage"}
+	topKeys        = []string{"name", "kind", "fluid", "conditions", "reference", "source", "channel", "lift", "tap", "zone", "internal", "publish", "tare", "balance", "blockage", "wind"}
 	conditionsKeys = []string{"temperature_c", "temperature", "pressure_pa", "pressure", "humidity_pct", "salinity_g_per_kg"}
 	referenceKeys  = []string{"area_m2", "area_u_m2", "area_kind", "length_m", "span_m", "radius_m", "radius_u_m"}
 	sourceKeys     = []string{"name", "type", "port", "baud", "data_bits", "parity", "stop_bits", "format", "channels", "delimiter", "columns", "broker", "topic", "client_id", "username", "password_env", "ca_file", "rate_hz"}
@@ -399,7 +399,7 @@ var (
 	calKeys        = []string{"poly", "u", "id", "span_u_pct"}
 	liftKeys       = []string{"normal", "axial", "moment", "angle", "angle_u_deg", "dynamic_pressure", "pitot_coefficient", "pitot_coefficient_u", "speed", "spin", "direction", "temperature", "design", "design_alpha_zero_deg"}
 	tapKeys        = []string{"name", "channel", "area_m2", "zone", "x_m", "y_m"}
-	zoneKeys       = []string{"name", "design_cp", "design_u"}
+	zoneKeys       = []string{"name", "design_cp", "design_u", "design_value", "design_q"}
 	internalKeys   = []string{"channel", "cp"}
 )
 
@@ -429,6 +429,7 @@ func (d *decoder) rig(doc map[string]any) *Rig {
 		r.Zones = append(r.Zones, d.zone(i, m))
 	}
 	r.Internal = d.internal(top.sub("internal", internalKeys...))
+	r.Wind = d.wind(top.sub("wind", windKeys...))
 	r.Publish = d.publish(top.sub("publish", publishKeys...))
 	d.corrections(top, r)
 	top.unknown()
@@ -838,6 +839,13 @@ func (d *decoder) zone(i int, m map[string]any) Zone {
 	}
 	if z.DesignU, ok = t.num("design_u"); !ok && !t.has("design_u") {
 		t.errf("design_u", ErrMissing, "design_u missing (add design_u = the expanded 95 %% uncertainty of design_cp, e.g. 0.1)")
+	}
+	z.DesignValue, z.DesignQ = DesignMean, DesignMean
+	if w, ok := t.word("design_value", []string{DesignMean, DesignPeak}); ok {
+		z.DesignValue = w
+	}
+	if w, ok := t.word("design_q", []string{DesignMean, DesignPeak}); ok {
+		z.DesignQ = w
 	}
 	t.unknown()
 	return z

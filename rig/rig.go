@@ -56,6 +56,7 @@ type Rig struct {
 	Taps       []Tap
 	Zones      []Zone
 	Internal   Internal
+	Wind       Wind     // roof rigs: block length, reference height and profile, sectors ([wind], optional)
 	Publish    *Publish // nil: results are not published
 
 	// Corrections (rig/corrections.go); each is optional, absent = none.
@@ -219,7 +220,23 @@ type Zone struct {
 	Name     string
 	DesignCp float64 // design net Cp of the zone
 	DesignU  float64 // expanded (95 %) uncertainty of DesignCp
+	// DesignValue says what DesignCp is (key design_value): DesignMean (the
+	// default, a mean coefficient) or DesignPeak (a peak coefficient: a
+	// negative one is compared with the block's peak suction, a positive
+	// one with its peak positive pressure).
+	DesignValue string
+	// DesignQ is the velocity pressure DesignCp pairs with (key design_q):
+	// DesignMean (the default, the mean q at the reference height) or
+	// DesignPeak (the peak velocity pressure q_p = (1 + 7·I_v)·q̄,
+	// EN 1991-1-4:2005 eq. 4.8).
+	DesignQ string
 }
+
+// What a zone's design value is and the q it pairs with.
+const (
+	DesignMean = "mean"
+	DesignPeak = "peak"
+)
 
 // Internal is the roof's internal pressure: a channel or a fixed coefficient.
 type Internal struct {

@@ -30,6 +30,9 @@ func roofSegment(i int, zone string) estimate.Segment {
 		CpRMS:   0.28,
 		CpPeak:  -2.74,
 		UpliftN: calibrate.Value{X: -252.6, U: 9.3, Dof: 210},
+		Block:   i / 3, CpMin: -3.05, CpMax: -0.35, CpPeakU: 0.11, CpPeakMax: -0.31, CpPeakMaxU: 0.04,
+		CpInt: calibrate.Value{X: 0.2, Dof: math.Inf(1)}, QAt: "mast", TurbulenceIntensity: 0.16,
+		DirectionRad: 4.36, DirectionSpreadRad: 0.21, SectorRad: 4.19, SectorOutFrac: 0.02,
 	}
 	if zone == "corner" {
 		sg.DesignCp = calibrate.Value{X: -2.2, U: 0.125, Dof: math.Inf(1)}
@@ -108,12 +111,13 @@ func TestExportSegments_RoofJSON(t *testing.T) {
 	if len(rows) != 3 {
 		t.Fatalf("%d rows", len(rows))
 	}
-	want := "run segment kind t_start t_end n n_eff n_eff_low zone q_pa q_u95_pa speed_m_s speed_u95_m_s rho_kg_m3 mu_pa_s " +
-		"cp_mean cp_u95 cp_rms cp_peak uplift_n uplift_u95_n"
+	want := "run segment kind t_start t_end n n_eff n_eff_low zone block q_pa q_u95_pa speed_m_s speed_u95_m_s rho_kg_m3 mu_pa_s " +
+		"cp_mean cp_u95 cp_rms cp_min cp_max cp_peak cp_peak_u95 cp_peak_max cp_peak_max_u95 cp_int cp_int_u95 uplift_n uplift_u95_n " +
+		"q_at turbulence_intensity direction_deg direction_spread_deg sector_deg sector_left"
 	for i, row := range rows {
 		w := strings.Fields(want)
 		if i == 0 {
-			w = append(w, "design_cp", "design_cp_u95", "en", "agrees")
+			w = append(w, "design_cp", "design_cp_u95", "design_side", "en", "agrees")
 		}
 		if len(row) != len(w) {
 			t.Errorf("row %d has %d fields, want %d: %v", i, len(row), len(w), row)

@@ -69,9 +69,46 @@ type segmentRec struct {
 	Zone     string       `json:"zone,omitempty"`
 	CpMean   *valueRec    `json:"cp_mean,omitempty"`
 	CpRMS    estimate.Num `json:"cp_rms,omitempty"`
-	CpPeak   estimate.Num `json:"cp_peak,omitempty"`
+	CpPeak   estimate.Num `json:"cp_peak,omitempty"` // rows stored before block peaks: an epoch value, not read back (docs/roof.md §5)
 	UpliftN  *valueRec    `json:"uplift_n,omitempty"`
 	DesignCp *valueRec    `json:"design_cp,omitempty"`
+	// Roof rows since block peaks, p/q̄ and per-tap rows (issue 11). An
+	// absent field reads as unknown (NaN, or Block −1).
+	Tap                 string        `json:"tap,omitempty"`
+	Block               *int          `json:"block,omitempty"`
+	CpMin               *estimate.Num `json:"cp_min,omitempty"`
+	CpMax               *estimate.Num `json:"cp_max,omitempty"`
+	CpPeakBlock         *estimate.Num `json:"cp_peak_block,omitempty"`
+	CpPeakU             *estimate.Num `json:"cp_peak_u,omitempty"`
+	CpPeakMax           *estimate.Num `json:"cp_peak_max,omitempty"`
+	CpPeakMaxU          *estimate.Num `json:"cp_peak_max_u,omitempty"`
+	CpInt               *valueRec     `json:"cp_int,omitempty"`
+	QHeightM            estimate.Num  `json:"q_height_m,omitempty"`
+	QAt                 string        `json:"q_at,omitempty"`
+	TurbulenceIntensity *estimate.Num `json:"turbulence_intensity,omitempty"`
+	DirectionRad        *estimate.Num `json:"direction_rad,omitempty"`
+	DirectionSpreadRad  *estimate.Num `json:"direction_spread_rad,omitempty"`
+	SectorRad           *estimate.Num `json:"sector_rad,omitempty"`
+	SectorOutFrac       *estimate.Num `json:"sector_out_frac,omitempty"`
+	SamplesUnblocked    int           `json:"samples_unblocked,omitempty"`
+	DesignVs            string        `json:"design_vs,omitempty"`
+}
+
+// numPtr stores x; NaN is stored as absent.
+func numPtr(x float64) *estimate.Num {
+	if math.IsNaN(x) {
+		return nil
+	}
+	n := estimate.Num(x)
+	return &n
+}
+
+// numOr reads a stored number, NaN when absent.
+func numOr(p *estimate.Num) float64 {
+	if p == nil {
+		return math.NaN()
+	}
+	return float64(*p)
 }
 
 func budgetRec(in []estimate.Contribution) []contributionRec {
@@ -111,8 +148,16 @@ func encodeSegment(sg *estimate.Segment) ([]byte, error) {
 	}
 	if sg.Zone != "" {
 		cp, up, d := toValueRec(sg.CpMean), toValueRec(sg.UpliftN), toValueRec(sg.DesignCp)
-		rec.Zone, rec.CpMean, rec.CpRMS, rec.CpPeak, rec.UpliftN, rec.DesignCp =
-			sg.Zone, &cp, estimate.Num(sg.CpRMS), estimate.Num(sg.CpPeak), &up, &d
+		ci := toValueRec(sg.CpInt)
+		blk := sg.Block
+		rec.Zone, rec.CpMean, rec.CpRMS, rec.UpliftN, rec.DesignCp =
+			sg.Zone, &cp, estimate.Num(sg.CpRMS), &up, &d
+		rec.Tap, rec.Block, rec.CpInt, rec.QHeightM, rec.QAt, rec.SamplesUnblocked, rec.DesignVs =
+			sg.Tap, &blk, &ci, estimate.Num(sg.QHeightM), sg.QAt, sg.SamplesUnblocked, sg.DesignVs
+		rec.CpMin, rec.CpMax, rec.CpPeakBlock, rec.CpPeakU = numPtr(sg.CpMin), numPtr(sg.CpMax), numPtr(sg.CpPeak), numPtr(sg.CpPeakU)
+		rec.CpPeakMax, rec.CpPeakMaxU, rec.TurbulenceIntensity = numPtr(sg.CpPeakMax), numPtr(sg.CpPeakMaxU), numPtr(sg.TurbulenceIntensity)
+		rec.DirectionRad, rec.DirectionSpreadRad = numPtr(sg.DirectionRad), numPtr(sg.DirectionSpreadRad)
+		rec.SectorRad, rec.SectorOutFrac = numPtr(sg.SectorRad), numPtr(sg.SectorOutFrac)
 	}
 	data, err := json.Marshal(rec)
 	if err != nil {
@@ -133,12 +178,25 @@ func decodeSegment(data []byte) (estimate.Segment, error) {
 		LiftN: rec.LiftN.value(), DragN: rec.DragN.value(), CL: rec.CL.value(), CD: rec.CD.value(),
 		SpinRatio: float64(rec.SpinRatio), SpinRatioU: float64(rec.SpinRatioU), SpinRatioDof: float64(rec.SpinRatioDof), DesignCL: rec.DesignCL.value(), En: float64(rec.En),
 		CLBudget: budget(rec.CLBudget), CDBudget: budget(rec.CDBudget),
-		Zone: rec.Zone, CpRMS: float64(rec.CpRMS), CpPeak: float64(rec.CpPeak),
+		Zone: rec.Zone, CpRMS: float64(rec.CpRMS),
+	}
+	if rec.Zone != "" {
+		// A roof row stored before issue 11 has no block number, no block
+		// peak (its cp_peak was an epoch value) and no direction: unknown.
+		sg.Tap, sg.Block, sg.CpMin, sg.CpMax = rec.Tap, -1, numOr(rec.CpMin), numOr(rec.CpMax)
+		sg.CpPeak, sg.CpPeakU, sg.CpPeakMax, sg.CpPeakMaxU = numOr(rec.CpPeakBlock), numOr(rec.CpPeakU), numOr(rec.CpPeakMax), numOr(rec.CpPeakMaxU)
+		sg.QHeightM, sg.QAt, sg.TurbulenceIntensity = float64(rec.QHeightM), rec.QAt, numOr(rec.TurbulenceIntensity)
+		sg.DirectionRad, sg.DirectionSpreadRad = numOr(rec.DirectionRad), numOr(rec.DirectionSpreadRad)
+		sg.SectorRad, sg.SectorOutFrac = numOr(rec.SectorRad), numOr(rec.SectorOutFrac)
+		sg.SamplesUnblocked, sg.DesignVs = rec.SamplesUnblocked, rec.DesignVs
+		if rec.Block != nil {
+			sg.Block = *rec.Block
+		}
 	}
 	for _, f := range []struct {
 		rec *valueRec
 		to  *calibrate.Value
-	}{{rec.CpMean, &sg.CpMean}, {rec.UpliftN, &sg.UpliftN}, {rec.DesignCp, &sg.DesignCp}} {
+	}{{rec.CpMean, &sg.CpMean}, {rec.UpliftN, &sg.UpliftN}, {rec.DesignCp, &sg.DesignCp}, {rec.CpInt, &sg.CpInt}} {
 		if f.rec != nil {
 			*f.to = f.rec.value()
 		}

@@ -27,6 +27,20 @@ type RoofConfig struct {
 	// taps. A zone not listed gets its design_cp plus the internal cp (so
 	// its true net Cp equals the design value), or −1.0 without a design.
 	ZoneCp map[string]float64
+	// TapGustCorrelation is the correlation ρ between the gust the taps
+	// feel and the mast's gust (0..1; default 1, the taps follow the mast
+	// exactly). The roof's gust is u_r(t) = ρ·u_m(t − lag) + √(1 − ρ²)·v(t),
+	// v an independent gust of the same intensity and time scale, so the
+	// roof's mean dynamic pressure equals the mast's and the true net Cp
+	// stays p̄/q̄ = the zone's Cp.
+	TapGustCorrelation float64
+	TapGustLagS        float64 // lag of the roof's gust behind the mast's, s (default 0)
+	// DirectionSpreadRad is the standard deviation of the vane's direction
+	// about DirectionRad (an AR(1) with the gusts' time scale; default 0).
+	DirectionSpreadRad float64
+	// TimestampJitterUs moves each block's first timestamp by a random
+	// whole number of µs in [−J, +J] (a scanner clock that jitters); 0: none.
+	TimestampJitterUs int64
 	// TapCp overrides the true mean external Cp of single taps (by tap name).
 	TapCp map[string]float64
 	// InternalCp is the true internal pressure coefficient when the rig
@@ -76,6 +90,10 @@ type Roof struct {
 	seq  uint64
 	turb float64
 	t0Us int64
+
+	own  float64   // the roof's own gust v (AR(1), sd = TurbulenceIntensity)
+	past []float64 // ring of the mast's recent gusts, for the lag
+	dirA float64   // AR(1) state of the direction, unit variance
 }
 
 type roofTap struct {
@@ -120,6 +138,12 @@ func NewRoof(r *rig.Rig, cfg RoofConfig) (*Roof, error) {
 	}
 	if cfg.NoiseFrac == 0 {
 		cfg.NoiseFrac = 2e-4
+	}
+	if cfg.TapGustCorrelation == 0 {
+		cfg.TapGustCorrelation = 1
+	}
+	if cfg.TapGustCorrelation < 0 || cfg.TapGustCorrelation > 1 || cfg.TapGustLagS < 0 {
+		return nil, errors.New("sim: TapGustCorrelation must lie in [0, 1] and TapGustLagS be ≥ 0")
 	}
 	s := &Roof{cfg: cfg, rng: rand.New(rand.NewPCG(cfg.Seed, 0x700f)), calErr: map[string]float64{},
 		zoneCp: map[string]float64{}, pitotC: r.Lift.PitotCoeff}
@@ -198,6 +222,13 @@ func NewRoof(r *rig.Rig, cfg RoofConfig) (*Roof, error) {
 		s.taps[i].ar = s.rng.NormFloat64()
 	}
 	s.turb = cfg.TurbulenceIntensity * s.rng.NormFloat64()
+	s.own = cfg.TurbulenceIntensity * s.rng.NormFloat64()
+	s.dirA = s.rng.NormFloat64()
+	lag := int(math.Round(cfg.TapGustLagS * cfg.RateHz))
+	s.past = make([]float64, lag+1)
+	for i := range s.past {
+		s.past[i] = s.turb
+	}
 	return s, nil
 }
 
@@ -250,12 +281,24 @@ func (s *Roof) Next() acquire.Block {
 	innov := s.cfg.TurbulenceIntensity * math.Sqrt(1-phi*phi)
 	phiL := math.Exp(-dtS / s.cfg.TapIntegralTimeS)
 	innovL := math.Sqrt(1 - phiL*phiL)
+	rho := s.cfg.TapGustCorrelation
+	innovD := math.Sqrt(1 - phi*phi)
+	if j := s.cfg.TimestampJitterUs; j > 0 {
+		b.T0Us += s.rng.Int64N(2*j+1) - j
+	}
 	for i := range n {
 		s.turb = phi*s.turb + innov*s.rng.NormFloat64()
+		s.own = phi*s.own + innov*s.rng.NormFloat64()
+		s.dirA = phi*s.dirA + innovD*s.rng.NormFloat64()
+		// The mast's gust enters the ring; the roof feels the one lag ago.
+		s.past[int(s.n)%len(s.past)] = s.turb
+		lagged := s.past[int(s.n+1)%len(s.past)]
+		roof := rho*lagged + math.Sqrt(1-rho*rho)*s.own
 		q := s.cfg.QPa * (1 + s.turb) * (1 + s.turb)
+		qRoof := s.cfg.QPa * (1 + roof) * (1 + roof)
 		local := s.cfg.TapTurbulence * s.cfg.QPa
 		if s.cfg.FlowOff {
-			q, local = 0, 0
+			q, qRoof, local = 0, 0, 0
 		}
 		col := 0
 		put := func(c *chanInv, si float64) {
@@ -265,14 +308,14 @@ func (s *Roof) Next() acquire.Block {
 		for k := range s.taps {
 			t := &s.taps[k]
 			t.ar = phiL*t.ar + innovL*s.rng.NormFloat64()
-			put(&t.ch, t.cpExt*q+local*t.ar)
+			put(&t.ch, t.cpExt*qRoof+local*t.ar)
 		}
 		put(s.pitot, q/(s.pitotC*s.pitotC)) // the probe reads Δp = q/C²
 		if s.internal != nil {
-			put(s.internal, s.intCp*q)
+			put(s.internal, s.intCp*qRoof)
 		}
 		if s.vane != nil {
-			put(s.vane, s.cfg.DirectionRad)
+			put(s.vane, s.cfg.DirectionRad+s.cfg.DirectionSpreadRad*s.dirA)
 		}
 		s.n++
 	}

@@ -76,6 +76,7 @@
 
   // onRoofSegment adds one zone-in-a-block row (roof rigs).
   function onRoofSegment(s) {
+    if (s.tap) return; // per-tap rows are in the export and the tap map
     const tb = $("roof-blocks").tBodies[0];
     let tr = segRows.get(s.segment);
     if (!tr) {
@@ -87,8 +88,10 @@
       for (const row of tb.rows) { if (Number(row.dataset.segment) > s.segment) { before = row; break; } }
       tb.insertBefore(tr, before);
     }
-    const cells = [String(s.segment), s.zone, pm(s.cp_mean, s.cp_u95, 2), fix(s.cp_peak, 2),
-      pm(s.design_cp, s.design_cp_u95, 2), fix(s.en, 2), pm(s.q_pa, s.q_u95_pa, 1)];
+    const block = s.block === undefined ? "#" + s.segment : String(s.block + 1);
+    const dir = finite(s.direction_deg) ? ", " + fix(s.direction_deg, 0) + (s.sector_left ? " (left its sector)" : "") : "";
+    const cells = [block, s.zone, pm(s.cp_mean, s.cp_u95, 2), fix(s.cp_peak, 2),
+      pm(s.design_cp, s.design_cp_u95, 2), fix(s.en, 2), pm(s.q_pa, s.q_u95_pa, 1) + dir];
     cells.forEach((text, i) => { tr.cells[i].textContent = text; });
     tr.className = s.agrees === false ? "disagree" : "";
   }
@@ -133,6 +136,7 @@
     push(trends.q, t, l.q_pa);
     push(trends.cl, t, l.cl);
     if (l.zones && l.zones.length) onZones(l.zones);
+    if (l.zones) set("direction", finite(l.direction_deg) ? fix(l.direction_deg, 0) + "° ± " + fix(l.direction_spread_deg, 0) + "°" : "— (no vane)");
   }
 
   function push(tr, t, v) {
