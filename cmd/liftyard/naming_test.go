@@ -30,6 +30,8 @@ var dimensionless = map[string]bool{
 	"ChiSq": true,                                                                       // a fit's weighted sum of squared residuals
 	"CLUp":  true, "CLDown": true, "CLDiff": true, "SlopeEn": true, "AlphaZeroEn": true, // polar hysteresis and design line tests
 	"DeltaCL": true, "DeltaCD": true, "EnCD": true, "CLRef": true, "CLOther": true, "SpinRatioOther": true, "CLOffset": true, "MaxGapSpinRatio": true, // run against run (estimate/runcompare.go)
+	"CpMax": true, "CpPeakU": true, "CpPeakMax": true, "CpPeakMaxU": true, "CpInt": true, // roof pressure coefficients (estimate/roof.go)
+	"Exponent": true, "TapGustCorrelation": true, // a power-law profile's exponent; a correlation coefficient
 	// ratios and fractions
 	"RelHumidity": true, "TurbulenceIntensity": true, "NoiseFrac": true, "QTolFrac": true,
 	// statistics: X and U take the unit of the field that holds the Value;
