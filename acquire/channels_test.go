@@ -57,3 +57,42 @@ func TestMonitor_ChannelHealth(t *testing.T) {
 	assert.True(t, later[0].Stale, "no sample for over a second")
 	assert.Zero(t, later[0].RateHz)
 }
+
+// Ensure that each source's data-age clock measures its own block period and
+// calls it stale once it has been silent for StaleBlocks periods — a slow
+// source is not stale after a fast one's limit (issue 13: data-age clock).
+func TestMonitor_Ages(t *testing.T) {
+	m := acquire.NewMonitor(&rig.Rig{})
+	t0 := time.Date(2026, 12, 1, 10, 0, 0, 0, time.UTC)
+	block := func(src string, at time.Duration) {
+		b := acquire.Block{Source: src, DtUs: 5000, Received: t0.Add(at), Series: []acquire.Series{{Channel: src + "_x", Raw: []float64{1, 2}}}}
+		m.Observe(&b)
+	}
+	for k := range 21 { // fast: every 100 ms to 2 s; slow: every 500 ms
+		block("fast", time.Duration(k)*100*time.Millisecond)
+		if k%5 == 0 {
+			block("slow", time.Duration(k)*100*time.Millisecond)
+		}
+	}
+	ages := m.Ages(t0.Add(2150 * time.Millisecond))
+	require.Len(t, ages, 2)
+	assert.Equal(t, "fast", ages[0].Source)
+	assert.Equal(t, 100*time.Millisecond, ages[0].BlockPeriod)
+	assert.Equal(t, 200*time.Millisecond, ages[0].Limit)
+	assert.Equal(t, 150*time.Millisecond, ages[0].Age)
+	assert.False(t, ages[0].Stale)
+	assert.Equal(t, 500*time.Millisecond, ages[1].BlockPeriod)
+	assert.False(t, ages[1].Stale)
+
+	ages = m.Ages(t0.Add(2250 * time.Millisecond)) // fast silent for 2.5 periods
+	assert.True(t, ages[0].Stale)
+	assert.False(t, ages[1].Stale, "250 ms is half a period of the slow source")
+	chans := m.Snapshot(t0.Add(2250 * time.Millisecond))
+	assert.True(t, chans[0].Stale, "the fast source's channel follows its source's limit")
+	assert.False(t, chans[1].Stale)
+
+	block("fast", 2300*time.Millisecond) // restarted
+	assert.False(t, m.Ages(t0.Add(2310*time.Millisecond))[0].Stale)
+	assert.Equal(t, acquire.MinStale, acquire.StaleLimit(time.Millisecond), "a floor against host jitter")
+	assert.Equal(t, acquire.StaleAfter, acquire.StaleLimit(0), "period unknown")
+}

@@ -132,6 +132,13 @@ func (p *Pipeline) Channels() []acquire.ChannelHealth { return p.chans.Snapshot(
 // Loads is each rated channel's largest load against its capacity.
 func (p *Pipeline) Loads() []calibrate.LoadHealth { return p.loads.Snapshot() }
 
+// Ages is each source's data-age clock now (acquire.Monitor.Ages).
+func (p *Pipeline) Ages() []acquire.SourceAge { return p.chans.Ages(p.now()) }
+
+// AcknowledgeLoad releases the held overload alarm of channel
+// (calibrate.LoadMonitor.Acknowledge); false when none was held.
+func (p *Pipeline) AcknowledgeLoad(channel string) bool { return p.loads.Acknowledge(channel) }
+
 // Drift returns the zero drift between the flow-off zeros seen before and
 // after the data, or an error saying why there is none (the kind takes no
 // flow-off zero, the flow was never off at one end, ...).
