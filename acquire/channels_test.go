@@ -92,7 +92,7 @@ func TestMonitor_Ages(t *testing.T) {
 	assert.False(t, chans[1].Stale)
 
 	block("fast", 2300*time.Millisecond) // restarted
-	assert.False(t, m.Ages(t0.Add(2310*time.Millisecond))[0].Stale)
+	assert.False(t, m.Ages(t0.Add(2310 * time.Millisecond))[0].Stale)
 	assert.Equal(t, acquire.MinStale, acquire.StaleLimit(time.Millisecond), "a floor against host jitter")
 	assert.Equal(t, acquire.StaleAfter, acquire.StaleLimit(0), "period unknown")
 }

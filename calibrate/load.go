@@ -25,13 +25,13 @@ const (
 
 // LoadHealth is one rated channel's load against its capacity.
 type LoadHealth struct {
-	Channel    string    `json:"channel"`
-	CapacitySI float64   `json:"capacity_si"` // rated capacity in the SI unit of the channel's quantity
-	Unit       string    `json:"unit"`        // that SI unit
-	PeakFrac   float64   `json:"peak_frac"`   // largest |value|/capacity in the latest block
-	MaxFrac    float64   `json:"max_frac"`    // largest |value|/capacity of the run
-	Warnings   uint64    `json:"warnings"`    // samples at or above 80 %
-	Alarms     uint64    `json:"alarms"`      // samples at or above 100 %
+	Channel    string  `json:"channel"`
+	CapacitySI float64 `json:"capacity_si"` // rated capacity in the SI unit of the channel's quantity
+	Unit       string  `json:"unit"`        // that SI unit
+	PeakFrac   float64 `json:"peak_frac"`   // largest |value|/capacity in the latest block
+	MaxFrac    float64 `json:"max_frac"`    // largest |value|/capacity of the run
+	Warnings   uint64  `json:"warnings"`    // samples at or above 80 %
+	Alarms     uint64  `json:"alarms"`      // samples at or above 100 %
 	// State is the alarm while Latched, else the latest block's state.
 	State LoadState `json:"state"`
 	// Now is the latest block's state alone (ok, warning or alarm).

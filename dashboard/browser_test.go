@@ -88,7 +88,7 @@ func TestLivePage_Browser(t *testing.T) {
 	waitText(t, ctx, "v-cl", "0.430")
 	waitText(t, ctx, "u-cl", "0.024")
 	waitText(t, ctx, "u-speed", "0.0027")
-	waitText(t, ctx, "v-alpha", "4.00")
+	waitText(t, ctx, "v-alpha", "4.000") // α to the decimals of its U95 (0.098°)
 	waitText(t, ctx, "v-re", "2.90×10⁵")
 	waitText(t, ctx, "v-rho", "999.1")
 	waitText(t, ctx, "v-steady", "steady")

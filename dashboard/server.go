@@ -18,7 +18,9 @@ import (
 	"liftyard/acquire"
 	"liftyard/calibrate"
 	"liftyard/estimate"
+	"liftyard/process"
 	"liftyard/report"
+	"liftyard/rig"
 	"liftyard/storage"
 )
 
@@ -321,12 +323,42 @@ type Health struct {
 	// Ages is each source's data-age clock (in JSON as "ages", durations
 	// in seconds).
 	Ages []acquire.SourceAge `json:"-"`
+	// Values is each channel's latest value (in JSON as "values", in
+	// display units: ° for angles, °C for temperatures, else SI).
+	Values []process.ChannelValue `json:"-"`
 }
 
 // healthJSON is the wire form of a Health.
 type healthJSON struct {
 	Health
-	Ages []sourceAgeJSON `json:"ages"`
+	Ages   []sourceAgeJSON    `json:"ages"`
+	Values []channelValueJSON `json:"values"`
+}
+
+// channelValueJSON is one channel's latest value in its display unit.
+type channelValueJSON struct {
+	Channel string `json:"channel"`
+	Value   num    `json:"value"`
+	Unit    string `json:"unit"`
+}
+
+// valuesJSON converts channel values to display units, once, here:
+// radians to degrees, kelvin to degrees Celsius.
+func valuesJSON(vs []process.ChannelValue) []channelValueJSON {
+	out := make([]channelValueJSON, len(vs))
+	for i, v := range vs {
+		x, unit := v.ValueSI, v.Quantity.SIUnit()
+		switch v.Quantity {
+		case rig.QuantityAngle:
+			x, unit = rig.Deg(x), "°"
+		case rig.QuantityTemperature:
+			x, unit = x-273.15, "°C" // ITS-90: t/°C = T/K − 273.15
+		case rig.QuantityRotation:
+			x, unit = x*60/(2*math.Pi), "rpm"
+		}
+		out[i] = channelValueJSON{Channel: v.Channel, Value: num(x), Unit: unit}
+	}
+	return out
 }
 
 // sourceAgeJSON is one source's data-age clock as the API shows it.
@@ -379,7 +411,7 @@ func (h Health) judged() healthJSON {
 			worse("stale")
 		}
 	}
-	return healthJSON{Health: h, Ages: agesJSON(h.Ages)}
+	return healthJSON{Health: h, Ages: agesJSON(h.Ages), Values: valuesJSON(h.Values)}
 }
 
 // PublishHealth sends the health of the inputs to every live client and

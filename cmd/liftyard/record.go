@@ -311,7 +311,8 @@ func (m *Main) health(rec *process.Recorder) dashboard.Health {
 		hs = append(hs, s.Health.Snapshot(s.Name))
 	}
 	hs = append(hs, rec.StoreHealth())
-	return dashboard.Health{Sources: hs, Channels: rec.Pipeline().Channels(), Loads: rec.Pipeline().Loads(), Ages: rec.Pipeline().Ages()}
+	return dashboard.Health{Sources: hs, Channels: rec.Pipeline().Channels(), Loads: rec.Pipeline().Loads(),
+		Ages: rec.Pipeline().Ages(), Values: rec.Pipeline().Values()}
 }
 
 func anyStale(ages []acquire.SourceAge) bool {
