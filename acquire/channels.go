@@ -15,9 +15,11 @@ import (
 const StaleAfter = time.Second
 
 // StaleBlocks is the number of block periods a source may stay silent
-// before its data count as stale: one block late is jitter, two in a row is
+// before its data count as stale: a block arriving up to one period late
+// is the ordinary jitter of a serial or network link (a serial block is
+// only closed by the frame after it), two and a half periods of silence is
 // a stopped source (common practice for polled loggers).
-const StaleBlocks = 2
+const StaleBlocks = 2.5
 
 // MinStale is the shortest stale limit, whatever the block period: below it,
 // the host's own scheduling jitter would flag a healthy fast source.
@@ -30,7 +32,7 @@ func StaleLimit(period time.Duration) time.Duration {
 	if period <= 0 {
 		return StaleAfter
 	}
-	return max(StaleBlocks*period, MinStale)
+	return max(time.Duration(StaleBlocks*float64(period)), MinStale)
 }
 
 // SourceAge is how fresh one source's data are: the data-age clock of the
@@ -39,8 +41,9 @@ type SourceAge struct {
 	Source string `json:"source"`
 	// LastBlock is the host time the newest block arrived.
 	LastBlock time.Time `json:"last_block,omitzero"`
-	// BlockPeriod is the mean interval between the source's blocks over
-	// the last 2 s of arrivals (0 until two blocks arrived).
+	// BlockPeriod is the device time one block covers, or the mean
+	// interval between the source's blocks over the last 2 s of arrivals
+	// when that is longer (0 until two blocks arrived).
 	BlockPeriod time.Duration `json:"-"`
 	// Age is now − LastBlock; Limit is StaleLimit(BlockPeriod).
 	Age   time.Duration `json:"-"`
@@ -76,8 +79,9 @@ type Monitor struct {
 
 // srcStat is one source's block arrivals, for its data-age clock.
 type srcStat struct {
-	last time.Time
-	recv []time.Time // arrivals over the last rateWindow (at least two kept)
+	last   time.Time
+	recv   []time.Time // arrivals over the last rateWindow (at least two kept)
+	spanUs int64       // device time covered by the newest block, µs
 }
 
 type chanStat struct {
@@ -167,6 +171,7 @@ func (m *Monitor) arrived(b *Block) {
 		return // out of order: the clock does not go back
 	}
 	st.last = b.Received
+	st.spanUs = int64(b.Len()) * b.DtUs
 	st.recv = append(st.recv, b.Received)
 	cut := b.Received.Add(-rateWindow)
 	i := 0
@@ -176,14 +181,18 @@ func (m *Monitor) arrived(b *Block) {
 	st.recv = st.recv[i:]
 }
 
-// period is the mean interval between the source's recent blocks; 0 with
-// fewer than two.
+// period is the source's block period: the device time its newest block
+// covers, or the mean interval between its recent arrivals when that is
+// longer (a source that sends less often than it samples). Counting the
+// device span keeps a burst of queued blocks, which arrive together, from
+// shrinking the limit. 0 before two blocks arrived.
 func (st *srcStat) period() time.Duration {
 	n := len(st.recv)
 	if n < 2 {
 		return 0
 	}
-	return st.recv[n-1].Sub(st.recv[0]) / time.Duration(n-1)
+	mean := st.recv[n-1].Sub(st.recv[0]) / time.Duration(n-1)
+	return max(mean, time.Duration(st.spanUs)*time.Microsecond)
 }
 
 // Ages returns the data-age clock of every source seen, in order of its

@@ -78,18 +78,27 @@ func TestMonitor_Ages(t *testing.T) {
 	require.Len(t, ages, 2)
 	assert.Equal(t, "fast", ages[0].Source)
 	assert.Equal(t, 100*time.Millisecond, ages[0].BlockPeriod)
-	assert.Equal(t, 200*time.Millisecond, ages[0].Limit)
+	assert.Equal(t, 250*time.Millisecond, ages[0].Limit)
 	assert.Equal(t, 150*time.Millisecond, ages[0].Age)
 	assert.False(t, ages[0].Stale)
 	assert.Equal(t, 500*time.Millisecond, ages[1].BlockPeriod)
 	assert.False(t, ages[1].Stale)
 
-	ages = m.Ages(t0.Add(2250 * time.Millisecond)) // fast silent for 2.5 periods
+	assert.False(t, m.Ages(t0.Add(2250 * time.Millisecond))[0].Stale, "silent for exactly 2.5 periods: not yet")
+	ages = m.Ages(t0.Add(2260 * time.Millisecond))
 	assert.True(t, ages[0].Stale)
-	assert.False(t, ages[1].Stale, "250 ms is half a period of the slow source")
-	chans := m.Snapshot(t0.Add(2250 * time.Millisecond))
+	assert.False(t, ages[1].Stale, "260 ms is half a period of the slow source")
+	chans := m.Snapshot(t0.Add(2260 * time.Millisecond))
 	assert.True(t, chans[0].Stale, "the fast source's channel follows its source's limit")
 	assert.False(t, chans[1].Stale)
+
+	// A burst of queued blocks arriving together does not shrink the
+	// period below the device time a block covers.
+	b := acquire.Block{Source: "burst", DtUs: 5000, Received: t0, Series: []acquire.Series{{Channel: "b_x", Raw: make([]float64, 20)}}}
+	for range 5 {
+		m.Observe(&b)
+	}
+	assert.Equal(t, 100*time.Millisecond, m.Ages(t0)[2].BlockPeriod, "20 samples at 200 Hz")
 
 	block("fast", 2300*time.Millisecond) // restarted
 	assert.False(t, m.Ages(t0.Add(2310 * time.Millisecond))[0].Stale)

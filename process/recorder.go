@@ -231,7 +231,7 @@ func (rec *Recorder) Live() (estimate.Live, bool) {
 // StaleWarning is the live warning of a silent source: which one, since
 // when (UTC) and how long against its limit.
 func StaleWarning(a acquire.SourceAge) string {
-	return fmt.Sprintf("source %s silent since %s UTC (%.1f s; limit %.2f s = %d block periods): values are frozen at its last block",
+	return fmt.Sprintf("source %s silent since %s UTC (%.1f s; limit %.2f s = %g block periods): values are frozen at its last block",
 		a.Source, a.LastBlock.UTC().Format("15:04:05.0"), a.Age.Seconds(), a.Limit.Seconds(), acquire.StaleBlocks)
 }
 

@@ -37,8 +37,10 @@ const livePeriod = 200 * time.Millisecond
 
 // ageTick is how often the recorder looks at each source's data-age clock
 // when no block arrives: a silent source is announced (live estimate,
-// health, site broker) within ageTick of passing its limit.
-const ageTick = 50 * time.Millisecond
+// health, site broker) within ageTick of passing its limit (2.5 block
+// periods, acquire.StaleLimit), so within 3 periods of a 50 ms block or
+// longer. A look costs a loop over the sources.
+const ageTick = 25 * time.Millisecond
 
 // errStoreStopped ends a recording whose store stopped taking data.
 var errStoreStopped = errors.New("recording stopped because the store failed")
