@@ -269,6 +269,8 @@
       return;
     }
     const [lo, hi] = yRange(vals);
+    c.dataset.spanS = String((vals[vals.length - 1].t - vals[0].t) / 1000);
+    c.dataset.ylo = String(lo); c.dataset.yhi = String(hi);
     const Y = (v) => T + h * (hi - v) / (hi - lo);
     const step = niceStep(hi - lo, 4);
     const dec = Math.max(0, -Math.floor(Math.log10(step) + 1e-9));
