@@ -17,7 +17,9 @@ import (
 func TestHub_TrendHistory(t *testing.T) {
 	h := newHub("e")
 	t0 := time.Date(2026, 12, 1, 10, 0, 0, 0, time.UTC)
-	pt := func(s float64) trendPoint { return trendPoint{T: t0.Add(time.Duration(s * float64(time.Second))), QPa: 100} }
+	pt := func(s float64) trendPoint {
+		return trendPoint{T: t0.Add(time.Duration(s * float64(time.Second))), QPa: 100}
+	}
 	for i := range 2000 { // 400 s at 5 per second
 		h.publishLive([]byte(`{}`), pt(float64(i)/5))
 	}
