@@ -9,8 +9,47 @@ import (
 )
 
 // StaleAfter is how long a channel may go without a sample before it is
-// shown as stale: ten blocks of a typical 100 ms logger.
+// shown as stale when its source's block period is not known yet (fewer
+// than two blocks seen): ten blocks of a typical 100 ms logger. Once the
+// period is known, StaleLimit applies.
 const StaleAfter = time.Second
+
+// StaleBlocks is the number of block periods a source may stay silent
+// before its data count as stale: a block arriving up to one period late
+// is the ordinary jitter of a serial or network link (a serial block is
+// only closed by the frame after it), two and a half periods of silence is
+// a stopped source (common practice for polled loggers).
+const StaleBlocks = 2.5
+
+// MinStale is the shortest stale limit, whatever the block period: below it,
+// the host's own scheduling jitter would flag a healthy fast source.
+const MinStale = 100 * time.Millisecond
+
+// StaleLimit is how long a source with blocks every period may be silent
+// before its data are stale: StaleBlocks periods, at least MinStale;
+// StaleAfter when the period is unknown (0).
+func StaleLimit(period time.Duration) time.Duration {
+	if period <= 0 {
+		return StaleAfter
+	}
+	return max(time.Duration(StaleBlocks*float64(period)), MinStale)
+}
+
+// SourceAge is how fresh one source's data are: the data-age clock of the
+// live page.
+type SourceAge struct {
+	Source string `json:"source"`
+	// LastBlock is the host time the newest block arrived.
+	LastBlock time.Time `json:"last_block,omitzero"`
+	// BlockPeriod is the device time one block covers, or the mean
+	// interval between the source's blocks over the last 2 s of arrivals
+	// when that is longer (0 until two blocks arrived).
+	BlockPeriod time.Duration `json:"-"`
+	// Age is now − LastBlock; Limit is StaleLimit(BlockPeriod).
+	Age   time.Duration `json:"-"`
+	Limit time.Duration `json:"-"`
+	Stale bool          `json:"stale"` // Age > Limit
+}
 
 // rateWindow is the stretch over which a channel's sample rate is measured.
 const rateWindow = 2 * time.Second
@@ -31,9 +70,18 @@ type ChannelHealth struct {
 // samples, saturation against the rig's raw_range, staleness. It is not safe
 // for concurrent use; the recorder owns it.
 type Monitor struct {
-	limits map[string][2]float64
-	chans  map[string]*chanStat
-	order  []string
+	limits  map[string][2]float64
+	chans   map[string]*chanStat
+	order   []string
+	sources map[string]*srcStat
+	srcs    []string // source names in order of first block
+}
+
+// srcStat is one source's block arrivals, for its data-age clock.
+type srcStat struct {
+	last   time.Time
+	recv   []time.Time // arrivals over the last rateWindow (at least two kept)
+	spanUs int64       // device time covered by the newest block, µs
 }
 
 type chanStat struct {
@@ -63,6 +111,7 @@ func NewMonitor(r *rig.Rig) *Monitor {
 // that has just started to saturate (once per episode).
 func (m *Monitor) Observe(b *Block) []Event {
 	var evs []Event
+	m.arrived(b)
 	for _, s := range b.Series {
 		st := m.chans[s.Channel]
 		if st == nil {
@@ -105,14 +154,75 @@ func (m *Monitor) Observe(b *Block) []Event {
 	return evs
 }
 
+// arrived notes the arrival of b for its source's data-age clock.
+func (m *Monitor) arrived(b *Block) {
+	if b.Received.IsZero() || b.Source == "" {
+		return
+	}
+	if m.sources == nil {
+		m.sources = map[string]*srcStat{}
+	}
+	st := m.sources[b.Source]
+	if st == nil {
+		st = &srcStat{}
+		m.sources[b.Source] = st
+		m.srcs = append(m.srcs, b.Source)
+	}
+	if b.Received.Before(st.last) {
+		return // out of order: the clock does not go back
+	}
+	st.last = b.Received
+	st.spanUs = int64(b.Len()) * b.DtUs
+	st.recv = append(st.recv, b.Received)
+	cut := b.Received.Add(-rateWindow)
+	i := 0
+	for i < len(st.recv)-2 && st.recv[i].Before(cut) {
+		i++
+	}
+	st.recv = st.recv[i:]
+}
+
+// period is the source's block period: the device time its newest block
+// covers, or the mean interval between its recent arrivals when that is
+// longer (a source that sends less often than it samples). Counting the
+// device span keeps a burst of queued blocks, which arrive together, from
+// shrinking the limit. 0 before two blocks arrived.
+func (st *srcStat) period() time.Duration {
+	n := len(st.recv)
+	if n < 2 {
+		return 0
+	}
+	mean := st.recv[n-1].Sub(st.recv[0]) / time.Duration(n-1)
+	return max(mean, time.Duration(st.spanUs)*time.Microsecond)
+}
+
+// Ages returns the data-age clock of every source seen, in order of its
+// first block, judged at now: the age of its newest block against
+// StaleLimit of its own block period.
+func (m *Monitor) Ages(now time.Time) []SourceAge {
+	out := make([]SourceAge, 0, len(m.srcs))
+	for _, name := range m.srcs {
+		st := m.sources[name]
+		a := SourceAge{Source: name, LastBlock: st.last, BlockPeriod: st.period(), Age: max(now.Sub(st.last), 0)}
+		a.Limit = StaleLimit(a.BlockPeriod)
+		a.Stale = a.Age > a.Limit
+		out = append(out, a)
+	}
+	return out
+}
+
 // Snapshot returns the health of every channel seen, sorted by name, with
-// staleness judged at now.
+// staleness judged at now against its source's StaleLimit.
 func (m *Monitor) Snapshot(now time.Time) []ChannelHealth {
 	out := make([]ChannelHealth, 0, len(m.order))
 	for _, name := range m.order {
 		st := m.chans[name]
 		h := st.h
-		h.Stale = h.LastSeen.IsZero() || now.Sub(h.LastSeen) > StaleAfter
+		limit := StaleAfter
+		if src := m.sources[h.Source]; src != nil {
+			limit = StaleLimit(src.period())
+		}
+		h.Stale = h.LastSeen.IsZero() || now.Sub(h.LastSeen) > limit
 		// The rate is finite samples per second of device time over the
 		// blocks received in the last rateWindow: the device's own clock,
 		// so bursts and jitter of arrival (an MQTT link) do not move it

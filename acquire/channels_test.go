@@ -78,3 +78,51 @@ func TestMonitor_RateIgnoresArrivalJitter(t *testing.T) {
 	}
 	assert.InDelta(t, 200, m.Snapshot(at)[0].RateHz, 1e-9)
 }
+
+// Ensure that each source's data-age clock measures its own block period and
+// calls it stale once it has been silent for StaleBlocks periods — a slow
+// source is not stale after a fast one's limit (issue 13: data-age clock).
+func TestMonitor_Ages(t *testing.T) {
+	m := acquire.NewMonitor(&rig.Rig{})
+	t0 := time.Date(2026, 12, 1, 10, 0, 0, 0, time.UTC)
+	block := func(src string, at time.Duration) {
+		b := acquire.Block{Source: src, DtUs: 5000, Received: t0.Add(at), Series: []acquire.Series{{Channel: src + "_x", Raw: []float64{1, 2}}}}
+		m.Observe(&b)
+	}
+	for k := range 21 { // fast: every 100 ms to 2 s; slow: every 500 ms
+		block("fast", time.Duration(k)*100*time.Millisecond)
+		if k%5 == 0 {
+			block("slow", time.Duration(k)*100*time.Millisecond)
+		}
+	}
+	ages := m.Ages(t0.Add(2150 * time.Millisecond))
+	require.Len(t, ages, 2)
+	assert.Equal(t, "fast", ages[0].Source)
+	assert.Equal(t, 100*time.Millisecond, ages[0].BlockPeriod)
+	assert.Equal(t, 250*time.Millisecond, ages[0].Limit)
+	assert.Equal(t, 150*time.Millisecond, ages[0].Age)
+	assert.False(t, ages[0].Stale)
+	assert.Equal(t, 500*time.Millisecond, ages[1].BlockPeriod)
+	assert.False(t, ages[1].Stale)
+
+	assert.False(t, m.Ages(t0.Add(2250 * time.Millisecond))[0].Stale, "silent for exactly 2.5 periods: not yet")
+	ages = m.Ages(t0.Add(2260 * time.Millisecond))
+	assert.True(t, ages[0].Stale)
+	assert.False(t, ages[1].Stale, "260 ms is half a period of the slow source")
+	chans := m.Snapshot(t0.Add(2260 * time.Millisecond))
+	assert.True(t, chans[0].Stale, "the fast source's channel follows its source's limit")
+	assert.False(t, chans[1].Stale)
+
+	// A burst of queued blocks arriving together does not shrink the
+	// period below the device time a block covers.
+	b := acquire.Block{Source: "burst", DtUs: 5000, Received: t0, Series: []acquire.Series{{Channel: "b_x", Raw: make([]float64, 20)}}}
+	for range 5 {
+		m.Observe(&b)
+	}
+	assert.Equal(t, 100*time.Millisecond, m.Ages(t0)[2].BlockPeriod, "20 samples at 200 Hz")
+
+	block("fast", 2300*time.Millisecond) // restarted
+	assert.False(t, m.Ages(t0.Add(2310 * time.Millisecond))[0].Stale)
+	assert.Equal(t, acquire.MinStale, acquire.StaleLimit(time.Millisecond), "a floor against host jitter")
+	assert.Equal(t, acquire.StaleAfter, acquire.StaleLimit(0), "period unknown")
+}

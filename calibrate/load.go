@@ -25,14 +25,21 @@ const (
 
 // LoadHealth is one rated channel's load against its capacity.
 type LoadHealth struct {
-	Channel    string    `json:"channel"`
-	CapacitySI float64   `json:"capacity_si"` // rated capacity in the SI unit of the channel's quantity
-	Unit       string    `json:"unit"`        // that SI unit
-	PeakFrac   float64   `json:"peak_frac"`   // largest |value|/capacity in the latest block
-	MaxFrac    float64   `json:"max_frac"`    // largest |value|/capacity of the run
-	Warnings   uint64    `json:"warnings"`    // samples at or above 80 %
-	Alarms     uint64    `json:"alarms"`      // samples at or above 100 %
-	State      LoadState `json:"state"`       // from the latest block
+	Channel    string  `json:"channel"`
+	CapacitySI float64 `json:"capacity_si"` // rated capacity in the SI unit of the channel's quantity
+	Unit       string  `json:"unit"`        // that SI unit
+	PeakFrac   float64 `json:"peak_frac"`   // largest |value|/capacity in the latest block
+	MaxFrac    float64 `json:"max_frac"`    // largest |value|/capacity of the run
+	Warnings   uint64  `json:"warnings"`    // samples at or above 80 %
+	Alarms     uint64  `json:"alarms"`      // samples at or above 100 %
+	// State is the alarm while Latched, else the latest block's state.
+	State LoadState `json:"state"`
+	// Now is the latest block's state alone (ok, warning or alarm).
+	Now LoadState `json:"now,omitempty"`
+	// Latched: the channel reached its capacity and the alarm is held
+	// until someone acknowledges it (LoadMonitor.Acknowledge), however far
+	// the load has fallen since: an overloaded cell may have yielded.
+	Latched bool `json:"latched,omitempty"`
 }
 
 // LoadMonitor watches calibrated values against each channel's rated
@@ -47,7 +54,7 @@ func NewLoadMonitor(r *rig.Rig) *LoadMonitor {
 	m := &LoadMonitor{chans: map[string]*LoadHealth{}}
 	for _, c := range r.Channels {
 		if c.CapacitySI > 0 {
-			m.chans[c.Name] = &LoadHealth{Channel: c.Name, CapacitySI: c.CapacitySI, Unit: c.Quantity.SIUnit(), State: LoadOK}
+			m.chans[c.Name] = &LoadHealth{Channel: c.Name, CapacitySI: c.CapacitySI, Unit: c.Quantity.SIUnit(), State: LoadOK, Now: LoadOK}
 			m.order = append(m.order, c.Name)
 		}
 	}
@@ -81,20 +88,51 @@ func (m *LoadMonitor) Observe(b *Block) []LoadHealth {
 		}
 		h.PeakFrac = peak
 		h.MaxFrac = math.Max(h.MaxFrac, peak)
-		prev := h.State
+		prev := h.Now
 		switch {
 		case peak >= LoadAlarmFrac:
-			h.State = LoadAlarm
+			h.Now = LoadAlarm
+			h.Latched = true
 		case peak >= LoadWarnFrac:
-			h.State = LoadWarning
+			h.Now = LoadWarning
 		default:
-			h.State = LoadOK
+			h.Now = LoadOK
 		}
-		if rank(h.State) > rank(prev) {
+		h.State = h.Now
+		if h.Latched {
+			h.State = LoadAlarm
+		}
+		if rank(h.Now) > rank(prev) {
 			rose = append(rose, *h)
 		}
 	}
 	return rose
+}
+
+// Acknowledge releases the held alarm of channel: its state falls back to
+// the latest block's. It reports whether an alarm was held; an unknown
+// channel holds none. A load still at or above capacity latches again with
+// the next block.
+func (m *LoadMonitor) Acknowledge(channel string) bool {
+	h := m.chans[channel]
+	if h == nil || !h.Latched {
+		return false
+	}
+	h.Latched = false
+	h.State = h.Now
+	return true
+}
+
+// State is the worst state of all rated channels (alarm while any alarm is
+// held).
+func (m *LoadMonitor) State() LoadState {
+	worst := LoadOK
+	for _, h := range m.chans {
+		if rank(h.State) > rank(worst) {
+			worst = h.State
+		}
+	}
+	return worst
 }
 
 func rank(s LoadState) int {

@@ -2,7 +2,9 @@ package dashboard_test
 
 import (
 	"context"
+	"encoding/json"
 	"math"
+	"net/http"
 	"os"
 	"path/filepath"
 	"strconv"
@@ -88,7 +90,7 @@ func TestLivePage_Browser(t *testing.T) {
 	waitText(t, ctx, "v-cl", "0.430")
 	waitText(t, ctx, "u-cl", "0.024")
 	waitText(t, ctx, "u-speed", "0.0027")
-	waitText(t, ctx, "v-alpha", "4.00")
+	waitText(t, ctx, "v-alpha", "4.000") // α to the decimals of its U95 (0.098°)
 	waitText(t, ctx, "v-re", "2.90×10⁵")
 	waitText(t, ctx, "v-rho", "999.1")
 	waitText(t, ctx, "v-steady", "steady")
@@ -177,6 +179,67 @@ func TestRunPage_Browser(t *testing.T) {
 		t.Error(err)
 	}
 	os.WriteFile("/tmp/dashboard-run.png", png, 0o644)
+	if ex := browsertest.Exceptions(ctx); len(ex) > 0 {
+		t.Errorf("page threw: %q", ex)
+	}
+}
+
+// Ensure that a freshly opened live page shows the trend history the
+// server kept (issue 13: trends were empty after every load), and that a
+// steady q whose noise lies well inside its U95 is not blown up to fill the
+// plot: the y-range is at least ± U95 wide.
+func TestLivePage_HistoryOnOpen(t *testing.T) {
+	ctx := browsertest.Browser(t)
+	ctx, cancel := context.WithTimeout(ctx, 20*time.Second)
+	defer cancel()
+	s, _ := newServer(t, dashboard.Config{Live: true, Addr: "127.0.0.1:0"})
+	ln := listen(t)
+	sctx, stop := context.WithCancel(context.Background())
+	errc := make(chan error, 1)
+	go func() { errc <- s.Serve(sctx, ln) }() // Serve's shutdown ends the page's live stream
+	t.Cleanup(func() { stop(); <-errc })
+	base := "http://" + ln.Addr().String()
+	s.SetRun(storage.Run{ID: 3, Rig: "strut-b", Kind: "foil", Fluid: "fresh_water", Status: storage.StatusRecording})
+	// 45 s of estimates at the recorder's 5 per second, published before
+	// the page opens: q 2016 ± 28 Pa (U95) wandering by ± 2 Pa.
+	for i := range 225 {
+		l := liveSample(i, 0.43)
+		l.T = epoch.Add(time.Duration(i) * 200 * time.Millisecond)
+		l.QPa = calibrate.Value{X: 2016 + 2*math.Sin(float64(i)/5), U: 14, Dof: math.Inf(1)}
+		s.PublishLive(l)
+	}
+	var hist []map[string]any
+	resp, err := http.Get(base + "/api/v1/live/history")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := json.NewDecoder(resp.Body).Decode(&hist); err != nil {
+		t.Fatal(err)
+	}
+	resp.Body.Close()
+	if len(hist) != 225 {
+		t.Errorf("history holds %d points, want all 225 of the last 45 s", len(hist))
+	}
+
+	if err := chromedp.Do(ctx, chromedp.Navigate(base+"/")); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := chromedp.Run(ctx, chromedp.Poll[bool](`Number(document.getElementById("trend-q").dataset.spanS) >= 30`,
+		chromedp.WithPollingTimeout(10*time.Second))); err != nil {
+		t.Fatalf("the trend does not show 30 s at page load: %v", err)
+	}
+	got, err := chromedp.Run(ctx, chromedp.Evaluate[map[string]string](`Object.assign({}, document.getElementById("trend-q").dataset)`))
+	if err != nil {
+		t.Fatal(err)
+	}
+	lo, _ := strconv.ParseFloat(got["ylo"], 64)
+	hi, _ := strconv.ParseFloat(got["yhi"], 64)
+	if hi-lo < 2*28 || lo > 2016-28 || hi < 2016+28 {
+		t.Errorf("q axis %g … %g Pa: narrower than ± U95 (28 Pa) around 2016 Pa", lo, hi)
+	}
+	if n, _ := strconv.Atoi(got["points"]); n < 150 {
+		t.Errorf("trend holds %d points, want the 45 s history", n)
+	}
 	if ex := browsertest.Exceptions(ctx); len(ex) > 0 {
 		t.Errorf("page threw: %q", ex)
 	}

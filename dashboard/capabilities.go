@@ -11,6 +11,7 @@ type caps struct {
 	Report       bool // run pages link to the printable report
 	Calibrations bool // the calibration pages exist
 	Compare      bool // the run-against-run page exists (compare.go)
+	Acknowledge  bool // the live page may acknowledge a held overload alarm
 }
 
 func (s *Server) caps() caps {
@@ -21,6 +22,7 @@ func (s *Server) caps() caps {
 		Report:       s.report != nil,
 		Calibrations: s.cals != nil,
 		Compare:      s.compare != nil,
+		Acknowledge:  s.live && s.ack != nil,
 	}
 }
 
@@ -30,6 +32,7 @@ const (
 	offMarks        = "marks are off on this dashboard: it was started without a mark store (liftyard serve --db FILE shows and edits marks)"
 	offReport       = "the report is off on this dashboard: it was started without a report writer (liftyard report --db FILE --run ID writes one)"
 	offCalibrations = "calibrations are off on this dashboard: it was started without a calibration store"
+	offAck          = "overload acknowledgement is off on this dashboard: no recording feeds it"
 	offCompare      = "run against run is off on this dashboard: it was started without a run store to compare from (liftyard compare --db FILE --runs 3,5 prints it)"
 )
 

@@ -1,6 +1,7 @@
 package dashboard
 
 import (
+	"context"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -11,6 +12,7 @@ import (
 	"time"
 
 	"liftyard/estimate"
+	"liftyard/process"
 	"liftyard/report"
 	"liftyard/rig"
 	"liftyard/storage"
@@ -51,6 +53,8 @@ func (s *Server) routes() http.Handler {
 	mux.HandleFunc("GET /api/v1/live", s.need(c.Live, offLive, true, s.apiLive))
 	mux.HandleFunc("GET /api/v1/health", s.need(c.Live, offLive, true, s.apiHealth))
 	mux.HandleFunc("GET /api/v1/stream", s.need(c.Live, offLive, true, s.stream))
+	mux.HandleFunc("GET /api/v1/live/history", s.need(c.Live, offLive, true, s.apiHistory))
+	mux.HandleFunc("POST /api/v1/loads/{channel}/acknowledge", s.need(c.Live && s.ack != nil, offAck, true, s.acknowledge))
 	mux.HandleFunc("GET /api/v1/runs", s.apiRuns)
 	mux.HandleFunc("GET /api/v1/runs/{id}", s.apiRun)
 	mux.HandleFunc("GET /api/v1/runs/{id}/segments", s.apiSegments)
@@ -198,6 +202,32 @@ func (s *Server) apiLive(w http.ResponseWriter, r *http.Request) {
 	writeJSONBytes(w, b)
 }
 
+// apiHistory is the kept trend history of the run being recorded (the
+// last 5 minutes of live estimates), oldest first.
+func (s *Server) apiHistory(w http.ResponseWriter, r *http.Request) {
+	writeJSONBytes(w, s.hub.history())
+}
+
+// ackTimeout bounds the wait for the recorder to take an acknowledgement.
+const ackTimeout = 5 * time.Second
+
+// acknowledge releases a held overload alarm (Config.Acknowledge); the
+// recorder stores it as an event with the run.
+func (s *Server) acknowledge(w http.ResponseWriter, r *http.Request) {
+	ch := r.PathValue("channel")
+	ctx, cancel := context.WithTimeout(r.Context(), ackTimeout)
+	defer cancel()
+	err := s.ack(ctx, ch, "dashboard client "+r.RemoteAddr)
+	switch {
+	case err == nil:
+		writeJSONStatus(w, http.StatusOK, map[string]string{"acknowledged": ch})
+	case errors.Is(err, process.ErrNoAlarm):
+		writeJSONStatus(w, http.StatusConflict, map[string]string{"error": err.Error()})
+	default:
+		s.fail(w, r, err, true)
+	}
+}
+
 func (s *Server) apiHealth(w http.ResponseWriter, r *http.Request) {
 	b := s.hub.latestHealth()
 	if b == nil {
@@ -287,7 +317,7 @@ func (s *Server) stream(w http.ResponseWriter, r *http.Request) {
 	if _, err := fmt.Fprintf(w, "retry: %d\n\n", retryMillis); err != nil {
 		return
 	}
-	for _, ev := range []*event{snap.run, snap.health, snap.live} {
+	for _, ev := range []*event{snap.run, snap.history, snap.health, snap.live} {
 		if ev != nil && !write(*ev) {
 			return
 		}

@@ -6,6 +6,7 @@ import (
 	"strings"
 	"sync"
 	"sync/atomic"
+	"time"
 )
 
 // SubscriberBuffer is the number of events queued for one live-stream
@@ -19,6 +20,30 @@ const SubscriberBuffer = 64
 // for clients that connect late. A run with more steady segments than this
 // still streams them all; only the replay on connect is cut to the newest.
 const maxKeptSegments = 10000
+
+// trendKeep is how much live history the hub keeps for a page that opens
+// (or reloads) mid-run: its trends are full at once. 5 minutes at the
+// recorder's 5 estimates per second is 1500 points, about 150 kB of JSON.
+const trendKeep = 5 * time.Minute
+
+// trendMax bounds the kept points whatever the rate of estimates.
+const trendMax = 3000
+
+// trendPoint is one live estimate on the trends: data time, q, α and C_L
+// with their U95 (null where not given, e.g. C_L with the flow off).
+type trendPoint struct {
+	T           time.Time `json:"t"`
+	QPa         num       `json:"q_pa"`
+	QU95Pa      num       `json:"q_u95_pa"`
+	AlphaDeg    num       `json:"alpha_deg"`
+	AlphaU95Deg num       `json:"alpha_u95_deg"`
+	CL          num       `json:"cl"`
+	CLU95       num       `json:"cl_u95"`
+}
+
+func trendPointOf(l liveJSON) trendPoint {
+	return trendPoint{T: l.T, QPa: l.QPa, QU95Pa: l.QU95Pa, AlphaDeg: l.AlphaDeg, AlphaU95Deg: l.AlphaU95Deg, CL: l.CL, CLU95: l.CLU95}
+}
 
 // event is one server-sent event: a name and a one-line JSON body.
 type event struct {
@@ -39,6 +64,7 @@ type subscriber struct {
 // it has not seen yet.
 type snapshot struct {
 	run, live, health *event
+	history           *event // the kept trend points, oldest first
 	segments          []event
 }
 
@@ -60,6 +86,7 @@ type hub struct {
 	live     *event
 	health   *event
 	segments []event
+	trend    []trendPoint // the last trendKeep of live estimates, by data time
 
 	dropped atomic.Uint64 // subscribers disconnected because their buffer was full
 
@@ -129,6 +156,47 @@ func (h *hub) publishLocked(name string, data []byte) {
 	}
 }
 
+// publishLive publishes a live estimate and keeps its point for the
+// trends. An estimate whose data time has not moved (a silent source: the
+// recorder republishes it so that its age shows) adds no point.
+func (h *hub) publishLive(data []byte, p trendPoint) {
+	h.mu.Lock()
+	defer h.mu.Unlock()
+	if n := len(h.trend); n > 0 && !p.T.After(h.trend[n-1].T) {
+		if p.T.Before(h.trend[n-1].T) {
+			h.trend = h.trend[:0] // the clock went back: a device reset
+		} else {
+			h.publishLocked("live", data)
+			return
+		}
+	}
+	cut := p.T.Add(-trendKeep)
+	i := 0
+	for i < len(h.trend) && (h.trend[i].T.Before(cut) || len(h.trend)-i >= trendMax) {
+		i++
+	}
+	if i > 0 {
+		h.trend = append(h.trend[:0], h.trend[i:]...)
+	}
+	h.trend = append(h.trend, p)
+	h.publishLocked("live", data)
+}
+
+// history returns the kept trend points as JSON.
+func (h *hub) history() []byte {
+	h.mu.Lock()
+	defer h.mu.Unlock()
+	return h.historyLocked()
+}
+
+func (h *hub) historyLocked() []byte {
+	pts := h.trend
+	if pts == nil {
+		pts = []trendPoint{}
+	}
+	return mustJSON(pts)
+}
+
 // setRun publishes the run event. A run with a new id starts afresh: the
 // latest live estimate, health and the kept segments belong to the old run
 // and are forgotten.
@@ -136,7 +204,7 @@ func (h *hub) setRun(id uint64, data []byte) {
 	h.mu.Lock()
 	defer h.mu.Unlock()
 	if !h.hasRun || h.runID != id {
-		h.live, h.health, h.segments = nil, nil, nil
+		h.live, h.health, h.segments, h.trend = nil, nil, nil, nil
 	}
 	h.hasRun, h.runID = true, id
 	h.publishLocked("run", data)
@@ -180,6 +248,9 @@ func (h *hub) subscribe(after uint64) (*subscriber, snapshot) {
 	defer h.mu.Unlock()
 	h.subs[s] = struct{}{}
 	snap := snapshot{run: h.run, live: h.live, health: h.health}
+	if len(h.trend) > 0 {
+		snap.history = &event{seq: h.seq, name: "history", data: h.historyLocked()}
+	}
 	for _, ev := range h.segments {
 		if ev.seq > after {
 			snap.segments = append(snap.segments, ev)

@@ -92,6 +92,23 @@ type liveJSON struct {
 	// force-balance rigs, null without a vane.
 	DirectionDeg       *num `json:"direction_deg,omitempty"`
 	DirectionSpreadDeg *num `json:"direction_spread_deg,omitempty"`
+	// TemperatureC is the fluid temperature behind ρ and Re; measured by
+	// the rig's temperature channel, or the rig's fixed value. Null where
+	// not given (roof rigs).
+	TemperatureC        num  `json:"temperature_c"`
+	TemperatureMeasured bool `json:"temperature_measured"`
+	FlowOff             bool `json:"flow_off"`
+	// Withheld says why cl and cd are null (flow off, or before the run's
+	// first steady window); absent when they are given.
+	Withheld string `json:"withheld,omitempty"`
+	// The data-age clock: Computed is the host time of this estimate,
+	// AgeS the age then of the oldest source's newest block (the age of
+	// the values), Sources each source's clock; Stale says a source is
+	// silent past its limit and the values are frozen.
+	Computed time.Time       `json:"computed,omitzero"`
+	AgeS     num             `json:"age_s"`
+	Stale    bool            `json:"stale"`
+	Sources  []sourceAgeJSON `json:"sources"`
 }
 
 // zoneLiveJSON is the wire form of an estimate.ZoneLive: the zone's net
@@ -166,6 +183,15 @@ func toLiveJSON(l estimate.Live) liveJSON {
 		Segments:    l.Segments,
 		Warnings:    w,
 		Zones:       toZonesJSON(l.Zones),
+
+		TemperatureC:        tempC(l.TempK),
+		TemperatureMeasured: l.TempMeasured,
+		FlowOff:             l.FlowOff,
+		Withheld:            l.Withheld,
+		Computed:            l.Computed.UTC(),
+		AgeS:                oldestAge(l.Sources),
+		Stale:               l.Stale,
+		Sources:             agesJSON(l.Sources),
 	}
 	if l.SpinRatio != (calibrate.Value{}) {
 		s, u, rpm := num(l.SpinRatio.X), u95(l.SpinRatio), num(l.OmegaRadPerS*60/(2*math.Pi)) // rad/s → rpm for display
@@ -176,6 +202,27 @@ func toLiveJSON(l estimate.Live) liveJSON {
 		out.DirectionDeg, out.DirectionSpreadDeg = &d, &sp
 	}
 	return out
+}
+
+// tempC shows a temperature in °C, null when not given (0 K).
+func tempC(tK float64) num {
+	if !(tK > 0) {
+		return num(math.NaN())
+	}
+	return num(tK - 273.15) // ITS-90: t/°C = T/K − 273.15
+}
+
+// oldestAge is the largest age of the sources' newest blocks, in s; null
+// without sources.
+func oldestAge(as []acquire.SourceAge) num {
+	if len(as) == 0 {
+		return num(math.NaN())
+	}
+	var a time.Duration
+	for _, s := range as {
+		a = max(a, s.Age)
+	}
+	return num(a.Seconds())
 }
 
 // segmentJSON is one result row as the API (/api/v1/runs/{id}/segments),
@@ -319,4 +366,4 @@ func EncodeLive(l estimate.Live) []byte { return mustJSON(toLiveJSON(l)) }
 func EncodeSegment(run uint64, s estimate.Segment) []byte { return mustJSON(toSegmentJSON(run, s)) }
 
 // EncodeHealth returns a health report as the JSON of GET /api/v1/health.
-func EncodeHealth(h Health) []byte { return mustJSON(h) }
+func EncodeHealth(h Health) []byte { return mustJSON(h.judged()) }

@@ -91,6 +91,8 @@ type livePageData struct {
 	View kindView // the current run's view (the balance view without a run)
 	// Layouts maps each rig kind to its live layout, for live.js.
 	Layouts map[string]string
+	// Acknowledge: a held overload alarm may be acknowledged from the page.
+	Acknowledge bool
 }
 
 type runsPageData struct {
@@ -120,7 +122,7 @@ func (s *Server) livePage(w http.ResponseWriter, r *http.Request) {
 	}
 	s.render(w, r, s.pages.live, pageData{
 		Title: "Live", Nav: "live", Token: !s.loopback.Load(),
-		Content: livePageData{Run: cur, Live: s.live, View: view, Layouts: layouts()},
+		Content: livePageData{Run: cur, Live: s.live, View: view, Layouts: layouts(), Acknowledge: s.caps().Acknowledge},
 	})
 }
 

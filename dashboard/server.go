@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"io"
 	"log/slog"
+	"math"
 	"net"
 	"net/http"
 	"strconv"
@@ -17,7 +18,9 @@ import (
 	"liftyard/acquire"
 	"liftyard/calibrate"
 	"liftyard/estimate"
+	"liftyard/process"
 	"liftyard/report"
+	"liftyard/rig"
 	"liftyard/storage"
 )
 
@@ -107,6 +110,15 @@ type Config struct {
 	// compare form and those routes answer 404.
 	Compare func(runIDs []uint64) (*report.Comparison, error)
 
+	// Acknowledge releases the held overload alarm of a rated channel and
+	// stores the acknowledgement with the run being recorded (by: who or
+	// where from). It may be called concurrently and returns when the
+	// recorder has done it or ctx is done. An error wrapping
+	// process.ErrNoAlarm means none was held (409). Nil: the live page
+	// offers no acknowledgement and POST
+	// /api/v1/loads/{channel}/acknowledge answers 404.
+	Acknowledge func(ctx context.Context, channel, by string) error
+
 	// Logger receives request errors (the detail that a 500 response does
 	// not show) and dropped stream clients. Nil means slog.Default().
 	Logger *slog.Logger
@@ -135,6 +147,7 @@ type Server struct {
 	report   func(w io.Writer, runID uint64) error
 	cals     CalibrationStore
 	compare  func(runIDs []uint64) (*report.Comparison, error)
+	ack      func(ctx context.Context, channel, by string) error
 	log      *slog.Logger
 	now      func() time.Time
 	hub      *hub
@@ -195,6 +208,7 @@ func New(cfg Config) (*Server, error) {
 		report:  cfg.Report,
 		cals:    cfg.Calibrations,
 		compare: cfg.Compare,
+		ack:     cfg.Acknowledge,
 		log:     cfg.Logger.With("component", "dashboard"),
 		now:     cfg.Now,
 		hub:     newHub(strconv.FormatInt(cfg.Now().UnixNano(), 36)),
@@ -278,7 +292,8 @@ func (s *Server) SetRun(r storage.Run) {
 // PublishLive sends a moving-window estimate to every live client and keeps
 // it for GET /api/v1/live. It never blocks.
 func (s *Server) PublishLive(l estimate.Live) {
-	s.hub.publish("live", mustJSON(toLiveJSON(l)))
+	lj := toLiveJSON(l)
+	s.hub.publishLive(mustJSON(lj), trendPointOf(lj))
 }
 
 // PublishSegment sends a completed steady segment of the current run to
@@ -298,14 +313,80 @@ func (s *Server) PublishSegment(seg estimate.Segment) {
 // counters, each channel's rate, gaps and saturation, and each rated
 // channel's load against its capacity.
 type Health struct {
+	// State is the worst of it: "alarm" (an overload alarm is held),
+	// "stale" (a source is silent past its limit), "warning" (a channel at
+	// 80 % of its capacity) or "ok". PublishHealth and EncodeHealth set it.
+	State    string                   `json:"state"`
 	Sources  []acquire.HealthSnapshot `json:"sources"`
 	Channels []acquire.ChannelHealth  `json:"channels"`
 	Loads    []calibrate.LoadHealth   `json:"loads"`
+	// Ages is each source's data-age clock (in JSON as "ages", durations
+	// in seconds).
+	Ages []acquire.SourceAge `json:"-"`
+	// Values is each channel's latest value (in JSON as "values", in
+	// display units: ° for angles, °C for temperatures, else SI).
+	Values []process.ChannelValue `json:"-"`
 }
 
-// PublishHealth sends the health of the inputs to every live client and
-// keeps it for GET /api/v1/health. It never blocks.
-func (s *Server) PublishHealth(h Health) {
+// healthJSON is the wire form of a Health.
+type healthJSON struct {
+	Health
+	Ages   []sourceAgeJSON    `json:"ages"`
+	Values []channelValueJSON `json:"values"`
+}
+
+// channelValueJSON is one channel's latest value in its display unit.
+type channelValueJSON struct {
+	Channel string `json:"channel"`
+	Value   num    `json:"value"`
+	Unit    string `json:"unit"`
+}
+
+// valuesJSON converts channel values to display units, once, here:
+// radians to degrees, kelvin to degrees Celsius.
+func valuesJSON(vs []process.ChannelValue) []channelValueJSON {
+	out := make([]channelValueJSON, len(vs))
+	for i, v := range vs {
+		x, unit := v.ValueSI, v.Quantity.SIUnit()
+		switch v.Quantity {
+		case rig.QuantityAngle:
+			x, unit = rig.Deg(x), "°"
+		case rig.QuantityTemperature:
+			x, unit = x-273.15, "°C" // ITS-90: t/°C = T/K − 273.15
+		case rig.QuantityRotation:
+			x, unit = x*60/(2*math.Pi), "rpm"
+		}
+		out[i] = channelValueJSON{Channel: v.Channel, Value: num(x), Unit: unit}
+	}
+	return out
+}
+
+// sourceAgeJSON is one source's data-age clock as the API shows it.
+type sourceAgeJSON struct {
+	Source       string    `json:"source"`
+	LastBlock    time.Time `json:"last_block,omitzero"`
+	AgeS         num       `json:"age_s"`
+	LimitS       num       `json:"limit_s"`
+	BlockPeriodS num       `json:"block_period_s"` // null until two blocks arrived
+	Stale        bool      `json:"stale"`
+}
+
+// agesJSON converts data-age clocks to their wire form.
+func agesJSON(as []acquire.SourceAge) []sourceAgeJSON {
+	out := make([]sourceAgeJSON, len(as))
+	for i, a := range as {
+		p := num(a.BlockPeriod.Seconds())
+		if a.BlockPeriod <= 0 {
+			p = num(math.NaN())
+		}
+		out[i] = sourceAgeJSON{Source: a.Source, LastBlock: a.LastBlock.UTC(), AgeS: num(a.Age.Seconds()),
+			LimitS: num(a.Limit.Seconds()), BlockPeriodS: p, Stale: a.Stale}
+	}
+	return out
+}
+
+// judged is the wire form of h with its State and empty lists filled in.
+func (h Health) judged() healthJSON {
 	if h.Sources == nil {
 		h.Sources = []acquire.HealthSnapshot{}
 	}
@@ -315,7 +396,28 @@ func (s *Server) PublishHealth(h Health) {
 	if h.Loads == nil {
 		h.Loads = []calibrate.LoadHealth{}
 	}
-	s.hub.publish("health", mustJSON(h))
+	rank := map[string]int{"ok": 0, "warning": 1, "stale": 2, "alarm": 3}
+	h.State = "ok"
+	worse := func(st string) {
+		if rank[st] > rank[h.State] {
+			h.State = st
+		}
+	}
+	for _, l := range h.Loads {
+		worse(string(l.State))
+	}
+	for _, a := range h.Ages {
+		if a.Stale {
+			worse("stale")
+		}
+	}
+	return healthJSON{Health: h, Ages: agesJSON(h.Ages), Values: valuesJSON(h.Values)}
+}
+
+// PublishHealth sends the health of the inputs to every live client and
+// keeps it for GET /api/v1/health. It never blocks.
+func (s *Server) PublishHealth(h Health) {
+	s.hub.publish("health", mustJSON(h.judged()))
 }
 
 // mustJSON marshals the dashboard's own wire types, which cannot fail: num

@@ -559,14 +559,14 @@ func TestStream_SnapshotAndOrder(t *testing.T) {
 	ch := openStream(t, t.Context(), ts.URL, "")
 	var names []string
 	var segID string
-	for range 5 {
+	for range 6 {
 		ev := next(t, ch)
 		names = append(names, ev.name)
 		if ev.name == "segment" {
 			segID = ev.id
 		}
 	}
-	if want := []string{"run", "health", "live", "segment", "segment"}; !slices.Equal(names, want) {
+	if want := []string{"run", "history", "health", "live", "segment", "segment"}; !slices.Equal(names, want) {
 		t.Fatalf("snapshot events %v, want %v", names, want)
 	}
 	// Bursts of 32, within the client's buffer; a client that falls further
@@ -595,10 +595,10 @@ func TestStream_SnapshotAndOrder(t *testing.T) {
 	s.PublishSegment(segment(2, 8, 0.81))
 	ch2 := openStream(t, t.Context(), ts.URL, segID)
 	names = names[:0]
-	for range 4 {
+	for range 5 {
 		names = append(names, next(t, ch2).name)
 	}
-	if want := []string{"run", "health", "live", "segment"}; !slices.Equal(names, want) {
+	if want := []string{"run", "history", "health", "live", "segment"}; !slices.Equal(names, want) {
 		t.Fatalf("snapshot after Last-Event-ID: %v, want %v (one new segment)", names, want)
 	}
 }

@@ -92,7 +92,8 @@ type Estimator struct {
 	uB     typeBInputs // latest Type B inputs
 
 	segments  int
-	ignored   int // blocks ignored as unusable
+	ignored   int  // blocks ignored as unusable
+	steadyRun bool // a steady tick has been seen in this run (coefficients are shown from then on)
 	lastAddAt time.Time
 	lastTUs   int64
 
@@ -425,6 +426,7 @@ func (e *Estimator) Flush() []Segment {
 func (e *Estimator) endTick(out []Segment) []Segment {
 	a, q := nanMean(e.tick.alphaRad), nanMean(e.tick.qPa)
 	closeSeg, join := e.det.step(a, q, nanMean(e.tick.spinRadPerS))
+	e.steadyRun = e.steadyRun || e.det.state == stSteady
 	if e.marked() {
 		// The steady test still runs for the live display; marks set the
 		// segments (markSample).
@@ -610,7 +612,15 @@ func (e *Estimator) Live() (lv Live, ok bool) {
 		T: time.UnixMicro(e.lastTUs).UTC(), Window: e.cfg.Window, N: p.N,
 		AlphaRad: p.AlphaRad, QPa: p.QPa, SpeedMPerS: p.SpeedMPerS, RhoKgPerM3: fl.RhoKgPerM3,
 		Re: p.Re, Fn: e.froude(p.SpeedMPerS.X), LiftN: p.LiftN, DragN: p.DragN, CL: p.CL, CD: p.CD,
-		Steady: e.det.state == stSteady && e.seg.len() > 0, Segments: e.segments,
+		// Steady only when the whole window lies inside the open segment: a
+		// window that still holds the end of a move is not steady, whatever
+		// the tick-by-tick test says (issue 13: α 8.75 ± 1.87° "steady").
+		Steady:   e.det.state == stSteady && e.seg.len() > 0 && buf.tUs[0] >= e.seg.tUs[0],
+		Segments: e.segments,
+	}
+	lv.TempK, lv.TempMeasured = e.rig.Conditions.TempK, false
+	if tK := nanMean(buf.tempK); e.roles.temp != "" && flErr == nil && !math.IsNaN(tK) {
+		lv.TempK, lv.TempMeasured = tK, true
 	}
 	if sr, ok := e.spinRatio(buf.spinRadPerS, p.SpeedMPerS); ok {
 		lv.SpinRatio, lv.OmegaRadPerS = sr, nanMean(buf.spinRadPerS)
@@ -619,8 +629,17 @@ func (e *Estimator) Live() (lv Live, ok bool) {
 		lv.Warnings = append(lv.Warnings, fmt.Sprintf("fluid temperature channel out of range (%v): using the rig's fixed conditions", flErr))
 	}
 	if qMax := e.det.qMaxRunPa; p.QPa.X <= flowOffFrac*qMax || p.QPa.X <= 0 {
-		lv.Steady = false
+		lv.Steady, lv.FlowOff = false, true
 		lv.Warnings = append(lv.Warnings, "q below 5 % of the run's maximum: flow off, coefficients meaningless")
+	}
+	switch {
+	case lv.FlowOff:
+		lv.Withheld = "flow off"
+	case !e.steadyRun:
+		lv.Withheld = "waiting for the first steady window"
+	}
+	if lv.Withheld != "" {
+		lv.CL, lv.CD = calibrate.Value{}, calibrate.Value{}
 	}
 	if FewIndependent(p.NEff) {
 		lv.Warnings = append(lv.Warnings, fmt.Sprintf("C_L from %.0f independent samples (N_eff < %d): the window is short against the flow's correlation time, so its U95 is wide and rests on few degrees of freedom", p.NEff, MinNEff))

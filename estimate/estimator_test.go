@@ -406,3 +406,46 @@ func simRig() *rig.Rig {
 		Lift: rig.Lift{Normal: []string{"n_fore", "n_aft"}, AngleChannel: "alpha", DynamicPressure: "pitot", PitotCoeff: 1},
 	}
 }
+
+// Ensure that the live coefficients are withheld before the run's first
+// steady window and while the flow is off, with the reason, and shown in a
+// plateau; and that the temperature behind ρ is reported as the rig's fixed
+// one when no channel measures it (issue 13: "cl: 369" at start, "cl: 2010"
+// with the flow off).
+func TestEstimator_LiveWithholdsCoefficients(t *testing.T) {
+	sw := stdSweep
+	sw.stepsDeg = []float64{2}
+	sw.stepS = 5
+	bs := sw.blocks(2)
+	e, _ := estimate.NewEstimator(testRig(), estimate.Config{})
+	for _, b := range bs[:3] { // 0.3 s: the window is full, no steady tick yet
+		e.Add(b)
+	}
+	lv, ok := e.Live()
+	if !ok || lv.Withheld != "waiting for the first steady window" || lv.CL != (calibrate.Value{}) || lv.CD != (calibrate.Value{}) || lv.Steady {
+		t.Errorf("start: ok %v withheld %q C_L %+v steady %v", ok, lv.Withheld, lv.CL, lv.Steady)
+	}
+	if !(lv.QPa.X > 0) || lv.N == 0 {
+		t.Errorf("start: q and N are still given: %+v", lv)
+	}
+	if lv.TempK != 288.15 || lv.TempMeasured {
+		t.Errorf("temperature %g measured %v, want the rig's 288.15 K, not measured", lv.TempK, lv.TempMeasured)
+	}
+	for _, b := range bs[3:] {
+		e.Add(b)
+	}
+	lv, _ = e.Live()
+	if lv.Withheld != "" || !(lv.CL.X > 0) || !lv.Steady {
+		t.Errorf("plateau: withheld %q C_L %+v steady %v", lv.Withheld, lv.CL, lv.Steady)
+	}
+	off := sw
+	off.q0Pa = 5
+	for _, b := range off.blocks(3) {
+		b.T0Us += 5_000_000
+		e.Add(b)
+	}
+	lv, _ = e.Live()
+	if lv.Withheld != "flow off" || !lv.FlowOff || lv.CL != (calibrate.Value{}) {
+		t.Errorf("flow off: withheld %q flow off %v C_L %+v", lv.Withheld, lv.FlowOff, lv.CL)
+	}
+}

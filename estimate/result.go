@@ -3,6 +3,7 @@ package estimate
 import (
 	"time"
 
+	"liftyard/acquire"
 	"liftyard/calibrate"
 	"liftyard/rig"
 )
@@ -120,6 +121,24 @@ type Live struct {
 	// Roof rigs with a vane: the window's circular mean direction and
 	// spread, rad (NaN without a vane or a sample).
 	DirectionRad, DirectionSpreadRad float64
+	// TempK is the fluid temperature behind ρ and Re: the window's mean
+	// of the temperature channel when TempMeasured, else the rig's fixed
+	// conditions. 0: not given (roof rigs).
+	TempK        float64
+	TempMeasured bool
+	// FlowOff: q is below 5 % of the run's maximum (or not positive).
+	FlowOff bool
+	// Withheld says why CL and CD are not given (left as the zero Value):
+	// the flow is off, or no steady window has been seen yet in this run,
+	// so the ratio of a force to a q near zero or in a start-up transient
+	// would fill the screen with meaningless numbers. Empty: given.
+	Withheld string
+	// Sources is each source's data-age clock at Computed, and Stale says
+	// that at least one of them is silent past its limit: the values are
+	// then frozen at its last block (set by the recorder, not by Live).
+	Sources  []acquire.SourceAge
+	Stale    bool
+	Computed time.Time // host time the estimate was taken; zero: unknown
 }
 
 // ZoneLive is one roof zone's moving-window estimate.

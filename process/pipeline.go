@@ -3,6 +3,7 @@ package process
 import (
 	"context"
 	"fmt"
+	"math"
 	"time"
 
 	"liftyard/acquire"
@@ -58,6 +59,16 @@ type Pipeline struct {
 	stage   Stage
 	corr    *corrections // weight tare and balance matrix; nil when the rig names neither
 	now     func() time.Time
+	values  map[string]float64 // each channel's latest block mean, SI, as the stage gets it
+}
+
+// ChannelValue is one channel's latest value as the estimation stage gets
+// it (calibrated, tared, zeroed): the mean of its newest block, in the SI
+// unit of its quantity.
+type ChannelValue struct {
+	Channel  string
+	Quantity rig.Quantity
+	ValueSI  float64 // NaN when the newest block held no finite sample
 }
 
 // New builds the pipeline of rig r with the calibrations in cal
@@ -103,6 +114,7 @@ func (p *Pipeline) Step(b *acquire.Block) Step {
 			st.Events = append(st.Events, acquire.Event{T: b.Received, Source: b.Source, Kind: EventFlowOffZero, Message: n})
 		}
 	}
+	p.keepValues(&cb)
 	for _, l := range p.loads.Observe(&cb) {
 		st.Events = append(st.Events, acquire.Event{T: b.Received, Source: b.Source, Kind: EventOverload,
 			Message: fmt.Sprintf("channel %s at %.0f %% of its rated %g %s (%s)", l.Channel, 100*l.PeakFrac, l.CapacitySI, l.Unit, l.State)})
@@ -131,6 +143,44 @@ func (p *Pipeline) Channels() []acquire.ChannelHealth { return p.chans.Snapshot(
 
 // Loads is each rated channel's largest load against its capacity.
 func (p *Pipeline) Loads() []calibrate.LoadHealth { return p.loads.Snapshot() }
+
+// keepValues keeps the mean of each series of cb for Values.
+func (p *Pipeline) keepValues(cb *calibrate.Block) {
+	if p.values == nil {
+		p.values = map[string]float64{}
+	}
+	for _, s := range cb.Series {
+		sum, n := 0.0, 0
+		for _, v := range s.Values {
+			if !math.IsNaN(v) && !math.IsInf(v, 0) {
+				sum += v
+				n++
+			}
+		}
+		p.values[s.Channel] = math.NaN()
+		if n > 0 {
+			p.values[s.Channel] = sum / float64(n)
+		}
+	}
+}
+
+// Values is the latest value of every rig channel seen, in rig order.
+func (p *Pipeline) Values() []ChannelValue {
+	var out []ChannelValue
+	for _, c := range p.rig.Channels {
+		if v, ok := p.values[c.Name]; ok {
+			out = append(out, ChannelValue{Channel: c.Name, Quantity: c.Quantity, ValueSI: v})
+		}
+	}
+	return out
+}
+
+// Ages is each source's data-age clock now (acquire.Monitor.Ages).
+func (p *Pipeline) Ages() []acquire.SourceAge { return p.chans.Ages(p.now()) }
+
+// AcknowledgeLoad releases the held overload alarm of channel
+// (calibrate.LoadMonitor.Acknowledge); false when none was held.
+func (p *Pipeline) AcknowledgeLoad(channel string) bool { return p.loads.Acknowledge(channel) }
 
 // Drift returns the zero drift between the flow-off zeros seen before and
 // after the data, or an error saying why there is none (the kind takes no

@@ -201,19 +201,68 @@ func (rec *Recorder) Event(ev acquire.Event) {
 	rec.log.Warn(msg, "source", ev.Source, "event", ev.Kind)
 }
 
-// Live is the pipeline's live estimate, its warnings followed by the
-// expired-calibration messages.
+// Live is the pipeline's live estimate with each source's data-age clock:
+// first a warning for every silent source, then the stage's warnings, then
+// the expired-calibration messages. A silent source makes the estimate
+// stale and never steady: its numbers are frozen at that source's last
+// block.
 func (rec *Recorder) Live() (estimate.Live, bool) {
 	l, ok := rec.p.Live()
-	if ok && len(rec.expired) > 0 {
-		ws := make([]string, 0, len(l.Warnings)+len(rec.expired))
-		ws = append(ws, l.Warnings...)
-		for _, ev := range rec.expired {
-			ws = append(ws, ev.Message)
-		}
-		l.Warnings = ws
+	if !ok {
+		return l, false
 	}
-	return l, ok
+	l.Computed = rec.cfg.Now().UTC()
+	l.Sources = rec.p.Ages()
+	var ws []string
+	for _, a := range l.Sources {
+		if a.Stale {
+			l.Stale, l.Steady = true, false
+			ws = append(ws, StaleWarning(a))
+		}
+	}
+	ws = append(ws, l.Warnings...)
+	for _, ev := range rec.expired {
+		ws = append(ws, ev.Message)
+	}
+	l.Warnings = ws
+	return l, true
+}
+
+// StaleWarning is the live warning of a silent source: which one, since
+// when (UTC) and how long against its limit.
+func StaleWarning(a acquire.SourceAge) string {
+	return fmt.Sprintf("source %s silent since %s UTC (%.1f s; limit %.2f s = %g block periods): values are frozen at its last block",
+		a.Source, a.LastBlock.UTC().Format("15:04:05.0"), a.Age.Seconds(), a.Limit.Seconds(), acquire.StaleBlocks)
+}
+
+// EventOverloadAcknowledged is the kind of the event stored when someone
+// acknowledges a held overload alarm.
+const EventOverloadAcknowledged acquire.EventKind = "overload_acknowledged"
+
+// ErrNoAlarm is returned by AcknowledgeLoad when the channel holds no
+// overload alarm.
+var ErrNoAlarm = errors.New("no overload alarm is held")
+
+// AcknowledgeLoad releases channel's held overload alarm and stores the
+// acknowledgement with the run (by says who or where from, e.g. the
+// dashboard client's address). It wraps ErrNoAlarm when none was held.
+func (rec *Recorder) AcknowledgeLoad(channel, by string) error {
+	var held calibrate.LoadHealth
+	for _, l := range rec.p.Loads() {
+		if l.Channel == channel {
+			held = l
+		}
+	}
+	if !rec.p.AcknowledgeLoad(channel) {
+		return fmt.Errorf("channel %q: %w", channel, ErrNoAlarm)
+	}
+	msg := fmt.Sprintf("overload alarm of channel %s acknowledged (run maximum %.0f %% of its rated %g %s; now %.0f %%)",
+		channel, 100*held.MaxFrac, held.CapacitySI, held.Unit, 100*held.PeakFrac)
+	if by != "" {
+		msg += " by " + by
+	}
+	rec.Event(acquire.Event{Kind: EventOverloadAcknowledged, Message: msg})
+	return nil
 }
 
 // StoreHealth is the "store" health line: the items the recorder → store

@@ -35,6 +35,13 @@ const outboxGrace = 2 * time.Second
 // smooth to watch and costs little.
 const livePeriod = 200 * time.Millisecond
 
+// ageTick is how often the recorder looks at each source's data-age clock
+// when no block arrives: a silent source is announced (live estimate,
+// health, site broker) within ageTick of passing its limit (2.5 block
+// periods, acquire.StaleLimit), so within 3 periods of a 50 ms block or
+// longer. A look costs a loop over the sources.
+const ageTick = 25 * time.Millisecond
+
 // errStoreStopped ends a recording whose store stopped taking data.
 var errStoreStopped = errors.New("recording stopped because the store failed")
 
@@ -66,6 +73,30 @@ type Main struct {
 
 	runID  uint64
 	events chan acquire.Event // from the sources' goroutines to the recorder loop
+	acks   chan ackRequest    // overload acknowledgements from the dashboard
+}
+
+// ackRequest asks the recorder loop to release a held overload alarm.
+type ackRequest struct {
+	channel, by string
+	reply       chan error // buffered, 1
+}
+
+// acknowledge is the dashboard's Config.Acknowledge: it hands the request
+// to the recorder loop, the only goroutine that touches the pipeline.
+func (m *Main) acknowledge(ctx context.Context, channel, by string) error {
+	req := ackRequest{channel: channel, by: by, reply: make(chan error, 1)}
+	select {
+	case m.acks <- req:
+	case <-ctx.Done():
+		return ctx.Err()
+	}
+	select {
+	case err := <-req.reply:
+		return err
+	case <-ctx.Done():
+		return ctx.Err()
+	}
 }
 
 // eventQueue bounds the events waiting for the recorder loop; sources never
@@ -152,6 +183,7 @@ func (m *Main) Run(ctx context.Context) error {
 		return err
 	}
 	m.events = make(chan acquire.Event, eventQueue)
+	m.acks = make(chan ackRequest)
 	if m.Sources == nil {
 		if m.Sources, err = buildSources(m.Rig, log, fluid.RhoKgPerM3, m.onEvent); err != nil {
 			return err
@@ -191,13 +223,36 @@ func (m *Main) Run(ctx context.Context) error {
 	// report events through m.events.
 	tick := time.NewTicker(time.Second)
 	defer tick.Stop()
+	age := time.NewTicker(ageTick)
+	defer age.Stop()
 	var lastLive time.Time
+	stale := false // a source was silent past its limit at the last look
 	storeDown := rec.WriterDone()
 loop:
 	for {
 		select {
 		case ev := <-m.events:
 			rec.Event(ev)
+		case req := <-m.acks:
+			req.reply <- rec.AcknowledgeLoad(req.channel, req.by)
+			pub.health(m.health(rec))
+		case <-age.C:
+			// Without blocks the estimate does not move, but its age does:
+			// publish it anyway, and at once when a source falls silent or
+			// comes back.
+			now := time.Now()
+			nowStale := anyStale(rec.Pipeline().Ages())
+			if nowStale == stale && now.Sub(lastLive) < livePeriod {
+				continue
+			}
+			if nowStale != stale {
+				pub.health(m.health(rec))
+			}
+			stale = nowStale
+			if l, ok := rec.Live(); ok {
+				pub.live(l)
+			}
+			lastLive = now
 		case <-tick.C:
 			pub.health(m.health(rec))
 		case <-storeDown:
@@ -261,7 +316,17 @@ func (m *Main) health(rec *process.Recorder) dashboard.Health {
 		hs = append(hs, s.Health.Snapshot(s.Name))
 	}
 	hs = append(hs, rec.StoreHealth())
-	return dashboard.Health{Sources: hs, Channels: rec.Pipeline().Channels(), Loads: rec.Pipeline().Loads()}
+	return dashboard.Health{Sources: hs, Channels: rec.Pipeline().Channels(), Loads: rec.Pipeline().Loads(),
+		Ages: rec.Pipeline().Ages(), Values: rec.Pipeline().Values()}
+}
+
+func anyStale(ages []acquire.SourceAge) bool {
+	for _, a := range ages {
+		if a.Stale {
+			return true
+		}
+	}
+	return false
 }
 
 // publisher hands live results to their consumers: the dashboard and the
@@ -292,7 +357,7 @@ func (p publisher) live(l estimate.Live) {
 // listen makes the recorder's dashboard and its listener.
 func (m *Main) listen(store *storage.Store, log *slog.Logger) (*dashboard.Server, net.Listener, error) {
 	// Marks are read-only here: liftyard serve edits them.
-	dash, err := dashboard.New(dashboard.Config{Addr: m.Addr, Token: m.Token, Runs: store, Live: true,
+	dash, err := dashboard.New(dashboard.Config{Addr: m.Addr, Token: m.Token, Runs: store, Live: true, Acknowledge: m.acknowledge,
 		Marks: newMarkStore(store), Report: reportWriter(store, ""), Compare: comparer(store), Calibrations: store, Logger: log})
 	if err != nil {
 		return nil, nil, err

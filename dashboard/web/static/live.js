@@ -1,9 +1,14 @@
-// liftyard live page: one EventSource carries the events "run", "health",
-// "live" and "segment". This script only formats and draws; every number
-// arrives computed (angles in degrees, uncertainties as U95).
+// liftyard live page: one EventSource carries the events "run", "history",
+// "health", "live" and "segment". This script only formats and draws; every
+// number arrives computed (angles in degrees, uncertainties as U95).
+// Two indicators are kept apart: the browser's link to the server (#conn)
+// and the freshness of the data (#fresh, from the server's data-age clock).
 "use strict";
 (function () {
-  const TREND_SPAN_MS = 60000;
+  const TREND_SPAN_MS = 120000;
+  // No live event for this long while the link is up: the recorder itself
+  // has stopped publishing, so the page cannot vouch for the data.
+  const NO_UPDATE_MS = 3000;
   const $ = (id) => document.getElementById(id);
 
   function finite(v) { return typeof v === "number" && isFinite(v); }
@@ -34,11 +39,15 @@
   function rho(v) { return finite(v) ? v.toFixed(v >= 100 ? 1 : 3) : "—"; }
   function set(id, text) { const el = $(id); if (el && el.textContent !== text) el.textContent = text; }
 
-  // Trend buffers: {t: ms, v: number|null}, newest last.
+  // Trend buffers: {t: ms, v: number|null, u: U95|null}, newest last;
+  // key and ukey name the fields of a live event or history point.
   const trends = {
-    q: { canvas: $("trend-q"), pts: [], digits: 1 },
-    cl: { canvas: $("trend-cl"), pts: [], digits: 3 },
+    q: { canvas: $("trend-q"), pts: [], key: "q_pa", ukey: "q_u95_pa", unit: "Pa" },
+    alpha: { canvas: $("trend-alpha"), pts: [], key: "alpha_deg", ukey: "alpha_u95_deg", unit: "°" },
+    cl: { canvas: $("trend-cl"), pts: [], key: "cl", ukey: "cl_u95", unit: "" },
   };
+  let stale = false;      // the server says a source is silent
+  let lastLiveAt = 0;     // browser time of the last live event
   let runID = null;
   const segRows = new Map(); // segment index -> <tr>
 
@@ -106,20 +115,81 @@
     setLayout(r.kind);
   }
 
+  // onHistory replaces the trends with the server's kept history, so a
+  // page opened mid-run starts with full plots.
+  function onHistory(pts) {
+    for (const k in trends) {
+      const tr = trends[k];
+      tr.pts = pts.map((p) => ({ t: Date.parse(p.t), v: finite(p[tr.key]) ? p[tr.key] : null, u: finite(p[tr.ukey]) ? p[tr.ukey] : null }))
+        .filter((p) => isFinite(p.t));
+      draw(tr);
+    }
+  }
+
+  // Each value is shown with its own decimals: the U95's two significant
+  // digits (pm), the same on every screen.
+  function tile(id, v, u, d) {
+    const k = uDigits(u, d);
+    set("v-" + id, finite(v) ? v.toFixed(k) : "—");
+    set("u-" + id, finite(u) ? u.toFixed(k) : "—");
+  }
+
+  function ageText(s) { return finite(s) ? s.toFixed(s < 10 ? 1 : 0) : "—"; }
+
+  // showFreshness sets the data indicator, the stale banner and the grey
+  // tiles from the live event's data-age clock.
+  function showFreshness(l) {
+    stale = !!l.stale;
+    const silent = (l.sources || []).filter((s) => s.stale);
+    const banner = $("stale-banner");
+    if (silent.length) {
+      banner.textContent = "STALE DATA: " + silent.map((s) => "source " + s.source + " silent since " +
+        (s.last_block ? new Date(s.last_block).toISOString().slice(11, 21) + " UTC" : "start") + " (" + ageText(s.age_s) + " s)").join("; ") +
+        ". The values below are frozen at its last block.";
+      banner.hidden = false;
+    } else {
+      banner.hidden = true;
+    }
+    $("tiles").classList.toggle("stale", stale);
+    const f = $("fresh");
+    if (stale) { f.textContent = "STALE (" + silent.map((s) => s.source).join(", ") + ")"; f.className = "fresh stale"; }
+    else { f.textContent = "fresh, " + ageText(l.age_s) + " s old"; f.className = "fresh"; }
+    set("v-age", ageText(l.age_s));
+  }
+
+  // A link that is up but carries no live event says nothing about the
+  // data: the page says so rather than showing the last numbers as fresh.
+  setInterval(() => {
+    if (!lastLiveAt || Date.now() - lastLiveAt < NO_UPDATE_MS) return;
+    const f = $("fresh");
+    f.textContent = "no update for " + Math.round((Date.now() - lastLiveAt) / 1000) + " s";
+    f.className = "fresh stale";
+    $("tiles").classList.add("stale");
+  }, 1000);
+
   function onLive(l) {
-    set("v-q", fix(l.q_pa, 1)); set("u-q", ufix(l.q_u95_pa, 1));
-    set("v-speed", fix(l.speed_m_s, 2)); set("u-speed", ufix(l.speed_u95_m_s, 2));
-    set("v-alpha", fix(l.alpha_deg, 2)); set("u-alpha", ufix(l.alpha_u95_deg, 2));
-    set("v-spin", fix(l.spin_ratio, 3)); set("u-spin", ufix(l.spin_ratio_u95, 3)); set("v-rpm", fix(l.spin_rpm, 0));
-    set("v-cl", fix(l.cl, 3)); set("u-cl", ufix(l.cl_u95, 3));
-    set("v-cd", fix(l.cd, 3)); set("u-cd", ufix(l.cd_u95, 3));
+    lastLiveAt = Date.now();
+    tile("q", l.q_pa, l.q_u95_pa, 1);
+    tile("speed", l.speed_m_s, l.speed_u95_m_s, 2);
+    tile("alpha", l.alpha_deg, l.alpha_u95_deg, 2);
+    tile("spin", l.spin_ratio, l.spin_ratio_u95, 3); set("v-rpm", fix(l.spin_rpm, 0));
+    tile("cl", l.cl, l.cl_u95, 3);
+    tile("cd", l.cd, l.cd_u95, 3);
+    tile("lift", l.lift_n, l.lift_u95_n, 1);
+    tile("drag", l.drag_n, l.drag_u95_n, 1);
+    const note = $("cl-note");
+    if (l.withheld) { note.textContent = "not shown: " + l.withheld; }
+    else if (!note.querySelector("#u-cl")) { note.textContent = "U95 ± "; const sp = document.createElement("span"); sp.id = "u-cl"; note.appendChild(sp); tile("cl", l.cl, l.cl_u95, 3); }
+    set("v-temp", fix(l.temperature_c, 1));
+    set("temp-src", l.temperature_measured ? "measured" : "rig file (not measured)");
+    showFreshness(l);
     set("v-re", sci(l.re));
     set("v-rho", rho(l.rho_kg_m3));
     set("v-n", String(l.n));
     set("v-window", fix(l.window_s, 1));
     set("v-segments", String(l.segments));
     const st = $("v-steady");
-    st.textContent = l.steady ? "steady" : "not steady";
+    st.textContent = l.steady ? "steady" : (l.flow_off ? "flow off" : "not steady");
     st.className = "state " + (l.steady ? "steady" : "unsteady");
 
     const ul = $("warnings");
@@ -133,63 +203,115 @@
 
     let t = Date.parse(l.t);
     if (!isFinite(t)) t = Date.now();
-    push(trends.q, t, l.q_pa);
-    push(trends.cl, t, l.cl);
+    for (const k in trends) push(trends[k], t, l[trends[k].key], l[trends[k].ukey]);
     if (l.zones && l.zones.length) onZones(l.zones);
     if (l.zones) set("direction", finite(l.direction_deg) ? fix(l.direction_deg, 0) + "° ± " + fix(l.direction_spread_deg, 0) + "°" : "— (no vane)");
   }
 
-  function push(tr, t, v) {
+  function push(tr, t, v, u) {
     const pts = tr.pts;
+    if (pts.length && t === pts[pts.length - 1].t) { draw(tr); return; } // republished: the data did not move
     if (pts.length && t < pts[pts.length - 1].t) pts.length = 0; // clock went back: new run or device reset
-    pts.push({ t: t, v: finite(v) ? v : null });
+    pts.push({ t: t, v: finite(v) ? v : null, u: finite(u) ? u : null });
     while (pts.length && pts[0].t < t - TREND_SPAN_MS) pts.shift();
     draw(tr);
+  }
+
+  // niceStep is the 1-2-5 step that cuts span into about n intervals.
+  function niceStep(span, n) {
+    const raw = span / n, p = Math.pow(10, Math.floor(Math.log10(raw)));
+    const m = raw / p;
+    return (m <= 1 ? 1 : m <= 2 ? 2 : m <= 5 ? 5 : 10) * p;
+  }
+
+  // yRange is the plotted range: the data with their U95 band, never
+  // narrower than ± the median U95 around the data's middle, so that noise
+  // inside the uncertainty never fills the plot.
+  function yRange(pts) {
+    let lo = Infinity, hi = -Infinity;
+    const us = [];
+    for (const p of pts) {
+      if (p.v === null) continue;
+      const u = p.u === null ? 0 : p.u;
+      lo = Math.min(lo, p.v - u); hi = Math.max(hi, p.v + u);
+      if (p.u !== null) us.push(p.u);
+    }
+    us.sort((a, b) => a - b);
+    const uMed = us.length ? us[Math.floor(us.length / 2)] : 0;
+    const mid = (lo + hi) / 2;
+    let half = Math.max((hi - lo) / 2, 2 * uMed, Math.abs(mid) * 1e-3, 1e-9);
+    half *= 1.1;
+    return [mid - half, mid + half];
   }
 
   function draw(tr) {
     const c = tr.canvas;
     if (!c) return;
     const dpr = window.devicePixelRatio || 1;
-    const cssW = c.clientWidth || 560, cssH = c.clientHeight || 180;
-    if (c.width !== Math.round(cssW * dpr)) { c.width = Math.round(cssW * dpr); c.height = Math.round(cssH * dpr); }
+    const cssW = c.clientWidth || 560, cssH = c.clientHeight || 200;
+    if (c.width !== Math.round(cssW * dpr) || c.height !== Math.round(cssH * dpr)) {
+      c.width = Math.round(cssW * dpr); c.height = Math.round(cssH * dpr);
+    }
     const g = c.getContext("2d");
     g.setTransform(dpr, 0, 0, dpr, 0, 0);
     g.clearRect(0, 0, cssW, cssH);
-    const L = 62, R = 8, T = 8, B = 22, w = cssW - L - R, h = cssH - T - B;
+    const L = 64, R = 10, T = 8, B = 24, w = cssW - L - R, h = cssH - T - B;
     g.strokeStyle = "#c9cfd4"; g.lineWidth = 1;
     g.strokeRect(L + 0.5, T + 0.5, w, h);
     g.fillStyle = "#55626e"; g.font = "12px system-ui, sans-serif";
-    g.beginPath(); g.moveTo(L + w / 2 + 0.5, T); g.lineTo(L + w / 2 + 0.5, T + h); g.stroke();
-    g.textAlign = "left"; g.fillText("−60 s", L, cssH - 6);
-    g.textAlign = "center"; g.fillText("−30 s", L + w / 2, cssH - 6);
-    g.textAlign = "right"; g.fillText("now", L + w, cssH - 6);
-    c.dataset.points = String(tr.pts.length);
-    const vals = tr.pts.filter((p) => p.v !== null).map((p) => p.v);
-    if (!vals.length) { g.textAlign = "center"; g.fillText("waiting for data", L + w / 2, T + h / 2); return; }
-    let lo = Math.min.apply(null, vals), hi = Math.max.apply(null, vals);
-    if (hi - lo < 1e-9) { const pad = Math.abs(hi) * 0.05 || 0.5; lo -= pad; hi += pad; }
-    const span = hi - lo; lo -= span * 0.08; hi += span * 0.08;
-    g.textAlign = "right";
-    g.fillText(hi.toFixed(tr.digits), L - 4, T + 10);
-    g.fillText(lo.toFixed(tr.digits), L - 4, T + h);
-    if (lo < 0 && hi > 0) { // zero line
-      const y0 = T + h * (hi / (hi - lo));
-      g.strokeStyle = "#8a949c"; g.setLineDash([4, 3]);
-      g.beginPath(); g.moveTo(L, y0); g.lineTo(L + w, y0); g.stroke(); g.setLineDash([]);
+    // Time ticks every 30 s back from the newest point.
+    g.textAlign = "center";
+    for (let s = 0; s <= TREND_SPAN_MS / 1000; s += 30) {
+      const x = L + w * (1 - s * 1000 / TREND_SPAN_MS);
+      g.beginPath(); g.moveTo(x + 0.5, T + h); g.lineTo(x + 0.5, T + h + 4); g.stroke();
+      g.fillText(s === 0 ? "now" : "−" + s + " s", Math.min(Math.max(x, L + 16), L + w - 14), cssH - 6);
     }
+    c.dataset.points = String(tr.pts.length);
+    const vals = tr.pts.filter((p) => p.v !== null);
+    if (!vals.length) {
+      g.textAlign = "center";
+      g.fillText(tr.pts.length ? "not shown (flow off or not yet steady)" : "waiting for data", L + w / 2, T + h / 2);
+      return;
+    }
+    const [lo, hi] = yRange(vals);
+    c.dataset.spanS = String((vals[vals.length - 1].t - vals[0].t) / 1000);
+    c.dataset.ylo = String(lo); c.dataset.yhi = String(hi);
+    const Y = (v) => T + h * (hi - v) / (hi - lo);
+    const step = niceStep(hi - lo, 4);
+    const dec = Math.max(0, -Math.floor(Math.log10(step) + 1e-9));
+    g.textAlign = "right"; g.textBaseline = "middle";
+    for (let v = Math.ceil(lo / step) * step; v <= hi + step * 1e-6; v += step) {
+      const y = Math.round(Y(v)) + 0.5;
+      g.strokeStyle = "#eceff1"; g.beginPath(); g.moveTo(L + 1, y); g.lineTo(L + w, y); g.stroke();
+      g.fillText((Math.abs(v) < step / 2 ? 0 : v).toFixed(dec) + (tr.unit ? " " + tr.unit : ""), L - 4, y);
+    }
+    g.textBaseline = "alphabetic";
     const tEnd = tr.pts[tr.pts.length - 1].t;
-    g.strokeStyle = "#1d3b53"; g.lineWidth = 2; g.beginPath();
+    const X = (t) => L + w * (1 - (tEnd - t) / TREND_SPAN_MS);
+    // U95 band, then the line; grey while the data are stale.
+    g.fillStyle = stale ? "rgba(140,148,156,0.25)" : "rgba(29,59,83,0.15)";
+    let run = [];
+    const flush = () => {
+      if (run.length > 1) {
+        g.beginPath();
+        run.forEach((p, i) => { const x = X(p.t), y = Y(p.v + (p.u || 0)); if (i) g.lineTo(x, y); else g.moveTo(x, y); });
+        for (let i = run.length - 1; i >= 0; i--) g.lineTo(X(run[i].t), Y(run[i].v - (run[i].u || 0)));
+        g.closePath(); g.fill();
+      }
+      run = [];
+    };
+    for (const p of tr.pts) { if (p.v === null) flush(); else run.push(p); }
+    flush();
+    g.strokeStyle = stale ? "#8a949c" : "#1d3b53"; g.lineWidth = 2; g.beginPath();
     let pen = false;
     for (const p of tr.pts) {
       if (p.v === null) { pen = false; continue; }
-      const x = L + w * (1 - (tEnd - p.t) / TREND_SPAN_MS);
-      const y = T + h * (hi - p.v) / (hi - lo);
-      if (pen) g.lineTo(x, y); else g.moveTo(x, y);
+      if (pen) g.lineTo(X(p.t), Y(p.v)); else g.moveTo(X(p.t), Y(p.v));
       pen = true;
     }
     g.stroke();
   }
+  window.addEventListener("resize", () => { for (const k in trends) draw(trends[k]); });
 
   function onSegment(s) {
     if (runID !== null && s.run !== runID) return;
@@ -231,6 +353,8 @@
       }).join(" · ");
       el.className = "health" + (bad ? " bad" : "");
     }
+    values = {};
+    (h.values || []).forEach((v) => { values[v.channel] = v; });
     onChannels(h.channels || [], h.loads || []);
   }
 
@@ -242,24 +366,61 @@
     while (tb.rows.length > chans.length) tb.deleteRow(-1);
     chans.forEach((c, i) => {
       const tr = tb.rows[i] || tb.insertRow();
-      while (tr.cells.length < 8) tr.insertCell();
+      while (tr.cells.length < 9) tr.insertCell();
+      tr.cells[2].className = "num";
       const l = load[c.channel];
+      const v = values[c.channel];
       let state = c.stale ? "stale" : (c.saturated ? "saturated" : "ok");
-      if (l && l.state !== "ok") state = l.state === "alarm" ? "OVERLOAD" : "near capacity";
-      const cells = [c.channel, c.source, fix(c.rate_hz, 0), String(c.missing), String(c.saturated),
+      if (l && l.state === "alarm") state = l.now === "alarm" ? "OVERLOAD" : "OVERLOAD (held)";
+      else if (l && l.state === "warning") state = "near capacity";
+      const cells = [c.channel, c.source, v ? sig(v.value) + " " + v.unit : "—", fix(c.rate_hz, 0), String(c.missing), String(c.saturated),
         l ? fix(100 * l.peak_frac, 0) + " %" : "—", l ? fix(100 * l.max_frac, 0) + " %" : "—", state];
       cells.forEach((text, k) => { if (tr.cells[k].textContent !== text) tr.cells[k].textContent = text; });
-      tr.className = state === "OVERLOAD" ? "alarm" : (state === "ok" ? "" : "warn");
+      tr.className = state.startsWith("OVERLOAD") ? "alarm" : (state === "near capacity" ? "warn" : (state === "stale" ? "stale" : (state === "ok" ? "" : "warn")));
     });
+    // Banner: red for an alarm (held until acknowledged), amber for a
+    // warning. Each line is rebuilt only when its text changes, so a click
+    // on its button is never lost to a redraw.
     const ul = $("load-alarms");
-    const lines = loads.filter((l) => l.state !== "ok").map((l) =>
-      (l.state === "alarm" ? "OVERLOAD: " : "Near capacity: ") + l.channel + " at " + fix(100 * l.peak_frac, 0) +
-      " % of its rated " + fix(l.capacity_si, 0) + " " + l.unit + (l.state === "alarm" ? ": unload the rig" : ""));
-    while (ul.children.length > lines.length) ul.removeChild(ul.lastChild);
-    lines.forEach((text, i) => {
-      const li = ul.children[i] || ul.appendChild(document.createElement("li"));
-      if (li.textContent !== text) li.textContent = text;
+    const items = loads.filter((l) => l.state !== "ok").map((l) => {
+      const alarm = l.state === "alarm";
+      let text = (alarm ? "OVERLOAD: " : "Near capacity: ") + l.channel + " at " + fix(100 * l.peak_frac, 0) +
+        " % of its rated " + fix(l.capacity_si, 0) + " " + l.unit;
+      if (alarm && l.now !== "alarm") text += " (reached " + fix(100 * l.max_frac, 0) + " %; alarm held until acknowledged: inspect the cell)";
+      else if (alarm) text += ": unload the rig";
+      return { l: l, alarm: alarm, text: text, ack: alarm && l.latched && canAck };
     });
+    while (ul.children.length > items.length) ul.removeChild(ul.lastChild);
+    items.forEach((it, i) => {
+      const li = ul.children[i] || ul.appendChild(document.createElement("li"));
+      const key = it.text + "|" + it.ack;
+      li.className = it.alarm ? "alarm" : "warn";
+      if (li.dataset.key === key) return;
+      li.dataset.key = key;
+      li.dataset.channel = it.l.channel;
+      li.textContent = it.text;
+      if (it.ack) {
+        const b = document.createElement("button");
+        b.type = "button"; b.className = "ack"; b.textContent = "Acknowledge";
+        b.addEventListener("click", () => acknowledge(it.l.channel, b));
+        li.appendChild(b);
+      }
+    });
+  }
+
+  const canAck = $("live").dataset.ack === "yes";
+  let values = {}; // channel -> {value, unit}, from the health event
+
+  // sig shows a channel value with four significant digits.
+  function sig(v) { return finite(v) ? String(Number(v.toPrecision(4))) : "—"; }
+
+  // acknowledge releases a held overload alarm; the recorder stores the
+  // acknowledgement with the run and publishes the new health.
+  function acknowledge(channel, button) {
+    button.disabled = true;
+    fetch("/api/v1/loads/" + encodeURIComponent(channel) + "/acknowledge", { method: "POST", credentials: "same-origin" })
+      .then((r) => { if (!r.ok) { button.disabled = false; console.warn("liftyard: acknowledge", channel, r.status); } })
+      .catch(() => { button.disabled = false; });
   }
 
   function handler(fn) {
@@ -273,6 +434,7 @@
   for (const k in trends) draw(trends[k]);
   const es = new EventSource("/api/v1/stream");
   es.addEventListener("run", handler(onRun));
+  es.addEventListener("history", handler(onHistory));
   es.addEventListener("live", handler(onLive));
   es.addEventListener("segment", handler(onSegment));
   es.addEventListener("health", handler(onHealth));
