@@ -9,6 +9,7 @@ type caps struct {
 	Marks        bool // run pages show the marks
 	EditMarks    bool // and may change them
 	Report       bool // run pages link to the printable report
+	Timeline     bool // run pages plot the run against time (timeline.go)
 	Calibrations bool // the calibration pages exist
 	Compare      bool // the run-against-run page exists (compare.go)
 }
@@ -19,6 +20,7 @@ func (s *Server) caps() caps {
 		Marks:        s.marks != nil,
 		EditMarks:    s.marks != nil && s.apply != nil,
 		Report:       s.report != nil,
+		Timeline:     s.timeline != nil,
 		Calibrations: s.cals != nil,
 		Compare:      s.compare != nil,
 	}

@@ -72,6 +72,7 @@ func (s *Server) routes() http.Handler {
 	mux.HandleFunc("POST /api/v1/runs/{id}/marks/{n}/delete", s.need(c.Marks, offMarks, true, s.deleteMark))
 	mux.HandleFunc("POST /api/v1/runs/{id}/marks/clear", s.need(c.Marks, offMarks, true, s.clearMarks))
 	mux.HandleFunc("POST /api/v1/runs/{id}/marks/apply", s.need(c.Marks, offMarks, true, s.applyMarks))
+	mux.HandleFunc("GET /api/v1/runs/{id}/timeline", s.need(c.Timeline, offTimeline, true, s.apiTimeline)) // timeline.go
 	return s.secure(mux)
 }
 
