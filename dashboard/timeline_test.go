@@ -74,11 +74,11 @@ func timelineServer(t *testing.T, st recordedStore) *dashboard.Server {
 }
 
 type timelineAPI struct {
-	Run      uint64    `json:"run"`
-	Kind     string    `json:"kind"`
-	Start    time.Time `json:"start"`
-	TS       []float64 `json:"t_s"`
-	Series   []struct {
+	Run    uint64    `json:"run"`
+	Kind   string    `json:"kind"`
+	Start  time.Time `json:"start"`
+	TS     []float64 `json:"t_s"`
+	Series []struct {
 		Key    string     `json:"key"`
 		Values []*float64 `json:"values"`
 	} `json:"series"`

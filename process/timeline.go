@@ -64,7 +64,7 @@ func RunTimeline(ctx context.Context, store *storage.Store, run storage.Run, poi
 		kind = rig.KindBody
 	}
 	type sample struct {
-		tUs                 int64
+		tUs                int64
 		q, alpha, cl, spin float64
 	}
 	var samples []sample
