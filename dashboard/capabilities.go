@@ -46,6 +46,6 @@ func (s *Server) need(on bool, msg string, api bool, h http.HandlerFunc) http.Ha
 			writeJSONStatus(w, http.StatusNotFound, map[string]string{"error": msg})
 			return
 		}
-		http.Error(w, msg, http.StatusNotFound)
+		s.errorPage(w, r, http.StatusNotFound, msg)
 	}
 }
