@@ -136,7 +136,7 @@ func (s *Server) failCal(w http.ResponseWriter, r *http.Request, err error, api 
 			writeJSONStatus(w, http.StatusNotFound, map[string]string{"error": msg})
 			return
 		}
-		http.Error(w, msg, http.StatusNotFound)
+		s.errorPage(w, r, http.StatusNotFound, msg)
 		return
 	}
 	s.fail(w, r, err, api)

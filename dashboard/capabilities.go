@@ -9,6 +9,7 @@ type caps struct {
 	Marks        bool // run pages show the marks
 	EditMarks    bool // and may change them
 	Report       bool // run pages link to the printable report
+	Timeline     bool // run pages plot the run against time (timeline.go)
 	Calibrations bool // the calibration pages exist
 	Compare      bool // the run-against-run page exists (compare.go)
 	Acknowledge  bool // the live page may acknowledge a held overload alarm
@@ -20,6 +21,7 @@ func (s *Server) caps() caps {
 		Marks:        s.marks != nil,
 		EditMarks:    s.marks != nil && s.apply != nil,
 		Report:       s.report != nil,
+		Timeline:     s.timeline != nil,
 		Calibrations: s.cals != nil,
 		Compare:      s.compare != nil,
 		Acknowledge:  s.live && s.ack != nil,
@@ -47,6 +49,6 @@ func (s *Server) need(on bool, msg string, api bool, h http.HandlerFunc) http.Ha
 			writeJSONStatus(w, http.StatusNotFound, map[string]string{"error": msg})
 			return
 		}
-		http.Error(w, msg, http.StatusNotFound)
+		s.errorPage(w, r, http.StatusNotFound, msg)
 	}
 }

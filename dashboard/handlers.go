@@ -77,7 +77,8 @@ func (s *Server) routes() http.Handler {
 	mux.HandleFunc("POST /api/v1/runs/{id}/marks/{n}/delete", s.need(c.Marks, offMarks, true, s.deleteMark))
 	mux.HandleFunc("POST /api/v1/runs/{id}/marks/clear", s.need(c.Marks, offMarks, true, s.clearMarks))
 	mux.HandleFunc("POST /api/v1/runs/{id}/marks/apply", s.need(c.Marks, offMarks, true, s.applyMarks))
-	return s.secure(mux)
+	mux.HandleFunc("GET /api/v1/runs/{id}/timeline", s.need(c.Timeline, offTimeline, true, s.apiTimeline)) // timeline.go
+	return s.secure(s.withErrorPages(mux))
 }
 
 // isNotFound reports whether a RunStore error means "no such run".
@@ -99,7 +100,7 @@ func (s *Server) fail(w http.ResponseWriter, r *http.Request, err error, api boo
 		writeJSONStatus(w, status, map[string]string{"error": msg})
 		return
 	}
-	http.Error(w, msg, status)
+	s.errorPage(w, r, status, msg)
 }
 
 func writeJSONStatus(w http.ResponseWriter, status int, v any) {

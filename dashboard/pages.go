@@ -23,6 +23,7 @@ type pages struct {
 	live, runs, run *template.Template
 	cal             *template.Template // calibration list and detail (calibration.go)
 	compare         *template.Template // run against run (compare.go)
+	err             *template.Template // error pages (errors.go)
 }
 
 func parsePages() (*pages, error) {
@@ -50,6 +51,9 @@ func parsePages() (*pages, error) {
 	if p.compare, err = parse("compare.html"); err != nil {
 		return nil, err
 	}
+	if p.err, err = parse("error.html"); err != nil {
+		return nil, err
+	}
 	return &p, nil
 }
 
@@ -71,10 +75,14 @@ func (s *Server) renderStatus(w http.ResponseWriter, r *http.Request, t *templat
 	h := w.Header()
 	h.Set("Content-Type", "text/html; charset=utf-8")
 	h.Set("Cache-Control", "no-store")
-	h.Set("Content-Security-Policy", "default-src 'self'; img-src 'self'; style-src 'self'; script-src 'self'; connect-src 'self'; base-uri 'none'; form-action 'self'; frame-ancestors 'none'")
+	h.Set("Content-Security-Policy", pageCSP)
 	w.WriteHeader(status)
 	buf.WriteTo(w)
 }
+
+// pageCSP is the Content-Security-Policy of every page: its own scripts,
+// styles and images only.
+const pageCSP = "default-src 'self'; img-src 'self'; style-src 'self'; script-src 'self'; connect-src 'self'; base-uri 'none'; form-action 'self'; frame-ancestors 'none'"
 
 // pageData is what every page gets.
 type pageData struct {

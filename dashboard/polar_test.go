@@ -6,6 +6,7 @@ import (
 	"errors"
 	"io"
 	"math"
+	"regexp"
 	"strings"
 	"testing"
 
@@ -43,8 +44,13 @@ func TestPolarSVG(t *testing.T) {
 	}
 	svg := rec.Body.Bytes()
 	wellFormed(t, svg)
-	for _, want := range []string{"C_L", "angle of attack α [°]", "1 segment(s) without C_L or abscissa not shown"} {
-		if !strings.Contains(string(svg), want) {
+	// Subscripts are set as such: strip their markup to read the words.
+	text := regexp.MustCompile(`</?tspan[^>]*>`).ReplaceAllString(string(svg), "")
+	if strings.Contains(string(svg), "C_L") {
+		t.Error("SVG shows a literal C_L")
+	}
+	for _, want := range []string{"CL", "angle of attack α [°]", "1 segment(s) without CL or abscissa not shown", "sans-serif"} {
+		if !strings.Contains(text, want) {
 			t.Errorf("SVG lacks %q", want)
 		}
 	}
@@ -57,13 +63,13 @@ func TestPolarSVG(t *testing.T) {
 		t.Fatalf("empty run: %d", empty.Code)
 	}
 	wellFormed(t, empty.Body.Bytes())
-	if !strings.Contains(empty.Body.String(), "no segments with C_L yet") {
+	if !strings.Contains(empty.Body.String(), "no segments with C<tspan") {
 		t.Error("empty polar does not say it is empty")
 	}
 	// A new segment of the current run renders anew.
 	s.SetRun(st.runs[2])
 	s.PublishSegment(segment(0, 2, 0.22))
-	if b := get(t, s.Handler(), "GET", "/runs/2/polar.svg", nil).Body.String(); strings.Contains(b, "no segments with C_L yet") {
+	if b := get(t, s.Handler(), "GET", "/runs/2/polar.svg", nil).Body.String(); strings.Contains(b, "no segments with C<tspan") {
 		t.Error("polar of the current run not re-rendered after a new segment")
 	}
 }

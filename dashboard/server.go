@@ -88,6 +88,14 @@ type Config struct {
 	// read-only.
 	ApplyMarks func(ctx context.Context, runID uint64) (MarksApplied, error)
 
+	// Timeline builds a stored run's timeline — q, α and C_L (the kind's
+	// quantities) against wall time, downsampled to at most points points
+	// — from its raw blocks through the pipeline (process.RunTimeline). It
+	// may be called concurrently; the dashboard caches each ended run's
+	// result. Nil: the run page has no timeline and
+	// GET /api/v1/runs/{id}/timeline answers 404.
+	Timeline TimelineFunc
+
 	// Report writes the printable report of run runID to w as one
 	// self-contained HTML page (inline CSS and SVG; no scripts, images or
 	// external files: GET /runs/{id}/report serves it under a CSP that
@@ -139,24 +147,26 @@ type Stats struct {
 // The Publish methods and SetRun may be called from any goroutine, at any
 // time (also before Serve); none of them blocks on a client.
 type Server struct {
-	token    string
-	store    RunStore
-	live     bool
-	marks    MarkStore
-	apply    func(ctx context.Context, runID uint64) (MarksApplied, error)
-	report   func(w io.Writer, runID uint64) error
-	cals     CalibrationStore
-	compare  func(runIDs []uint64) (*report.Comparison, error)
-	ack      func(ctx context.Context, channel, by string) error
-	log      *slog.Logger
-	now      func() time.Time
-	hub      *hub
-	pages    *pages
-	polars   *polarCache
-	handler  http.Handler
-	loopback atomic.Bool  // bound to loopback: check Host, no token
-	port     atomic.Int64 // port for the Host check; 0 = any (not yet known)
-	current  atomic.Pointer[storage.Run]
+	token     string
+	store     RunStore
+	live      bool
+	marks     MarkStore
+	apply     func(ctx context.Context, runID uint64) (MarksApplied, error)
+	timeline  TimelineFunc
+	report    func(w io.Writer, runID uint64) error
+	cals      CalibrationStore
+	compare   func(runIDs []uint64) (*report.Comparison, error)
+	ack       func(ctx context.Context, channel, by string) error
+	log       *slog.Logger
+	now       func() time.Time
+	hub       *hub
+	pages     *pages
+	polars    *polarCache
+	timelines *timelineCache
+	handler   http.Handler
+	loopback  atomic.Bool  // bound to loopback: check Host, no token
+	port      atomic.Int64 // port for the Host check; 0 = any (not yet known)
+	current   atomic.Pointer[storage.Run]
 
 	// curSegs are the segments published for the current run, kept as
 	// estimate made them (the run page, API and plot of a run that is
@@ -200,20 +210,22 @@ func New(cfg Config) (*Server, error) {
 		return nil, err
 	}
 	s := &Server{
-		token:   cfg.Token,
-		store:   cfg.Runs,
-		live:    cfg.Live,
-		marks:   cfg.Marks,
-		apply:   cfg.ApplyMarks,
-		report:  cfg.Report,
-		cals:    cfg.Calibrations,
-		compare: cfg.Compare,
-		ack:     cfg.Acknowledge,
-		log:     cfg.Logger.With("component", "dashboard"),
-		now:     cfg.Now,
-		hub:     newHub(strconv.FormatInt(cfg.Now().UnixNano(), 36)),
-		pages:   pg,
-		polars:  newPolarCache(),
+		token:     cfg.Token,
+		store:     cfg.Runs,
+		live:      cfg.Live,
+		marks:     cfg.Marks,
+		apply:     cfg.ApplyMarks,
+		report:    cfg.Report,
+		cals:      cfg.Calibrations,
+		compare:   cfg.Compare,
+		ack:       cfg.Acknowledge,
+		log:       cfg.Logger.With("component", "dashboard"),
+		now:       cfg.Now,
+		hub:       newHub(strconv.FormatInt(cfg.Now().UnixNano(), 36)),
+		pages:     pg,
+		polars:    newPolarCache(),
+		timeline:  cfg.Timeline,
+		timelines: newTimelineCache(),
 	}
 	s.loopback.Store(loop)
 	s.port.Store(int64(port))

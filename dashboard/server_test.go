@@ -208,10 +208,10 @@ func TestRoutes(t *testing.T) {
 		{"api unknown segments", "/api/v1/runs/999/segments", 404, "application/json"},
 		{"api bad id", "/api/v1/runs/abc", 400, "application/json"},
 		{"api zero id", "/api/v1/runs/0", 400, "application/json"},
-		{"unknown run page", "/runs/999", 404, "text/plain; charset=utf-8"},
-		{"unknown polar", "/runs/999/polar.svg", 404, "text/plain; charset=utf-8"},
-		{"bad run page", "/runs/-1", 400, "text/plain; charset=utf-8"},
-		{"no such page", "/nowhere", 404, "text/plain; charset=utf-8"},
+		{"unknown run page", "/runs/999", 404, "text/html; charset=utf-8"},
+		{"unknown polar", "/runs/999/polar.svg", 404, "text/html; charset=utf-8"},
+		{"bad run page", "/runs/-1", 400, "text/html; charset=utf-8"},
+		{"no such page", "/nowhere", 404, "text/html; charset=utf-8"},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {

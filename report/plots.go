@@ -197,7 +197,7 @@ func svgOf(p *plot.Plot) (string, error) {
 	if _, err := wt.WriteTo(&buf); err != nil {
 		return "", err
 	}
-	s := buf.String()
+	s := typeset(buf.String())
 	if i := strings.Index(s, "<svg"); i >= 0 {
 		s = s[i:]
 	}

@@ -235,10 +235,12 @@ func TestWriteHTML_SelfContainedAndWellFormed(t *testing.T) {
 	for i, s := range svgs {
 		require.NoError(t, xml.Unmarshal([]byte(s), new(struct{})), "plot %d parses as XML", i)
 	}
-	assert.Contains(t, svgs[0], "C_L")
+	// Subscripts are set as such (C with a lowered L), never a literal "C_L".
+	assert.Contains(t, svgs[0], `C<tspan dy="3.08" font-size="8.25px">L</tspan>`)
+	assert.NotContains(t, html, "C_L</text>")
 	assert.Contains(t, svgs[0], "angle of attack α [°]")
-	assert.Contains(t, svgs[1], "drag coefficient C_D")
-	assert.Contains(t, svgs[2], "E_n")
+	assert.Contains(t, plainSVG(svgs[1]), "drag coefficient CD")
+	assert.Contains(t, plainSVG(svgs[2]), "En")
 	assert.Contains(t, svgs[3], "q [Pa]")
 }
 
@@ -357,3 +359,8 @@ func TestWriteHTML_EmptyRun(t *testing.T) {
 	assert.Contains(t, html, "no stored rig file")
 	assert.Contains(t, html, `The run&#39;s status is &#34;recording&#34;`)
 }
+
+var tspanRE = regexp.MustCompile(`</?tspan[^>]*>`)
+
+// plainSVG is an SVG's text without the subscript markup ("C_L" reads "CL").
+func plainSVG(s string) string { return tspanRE.ReplaceAllString(s, "") }

@@ -80,8 +80,8 @@ func TestWriteHTML_RotorGolden(t *testing.T) {
 
 	svgs := svgRE.FindAllString(html, -1)
 	require.GreaterOrEqual(t, len(svgs), 3)
-	lift := svgs[0]
-	for _, want := range []string{"spin ratio S = ωR/V", "fitted C_L(S)", "fit ± U95", "design", "measured C_L ± U95"} {
+	lift := plainSVG(svgs[0])
+	for _, want := range []string{"spin ratio S = ωR/V", "fitted CL(S)", "fit ± U95", "design", "measured CL ± U95"} {
 		assert.Contains(t, lift, want, "the C_L(S) plot")
 	}
 	assert.Contains(t, html, "Drag coefficient")

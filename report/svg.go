@@ -3,7 +3,9 @@ package report
 import (
 	"bytes"
 	"fmt"
+	"regexp"
 	"strconv"
+	"strings"
 
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/vg"
@@ -82,5 +84,57 @@ func SVG(p *plot.Plot, w, h vg.Length) ([]byte, error) {
 	if _, err := wt.WriteTo(&buf); err != nil {
 		return nil, fmt.Errorf("svg: %w", err)
 	}
-	return buf.Bytes(), nil
+	return []byte(typeset(buf.String())), nil
+}
+
+// svgFont is the font list of every text of our plots: gonum/plot names
+// Liberation Sans alone, and a viewer without it would fall back to its
+// default font, often a serif one.
+const svgFont = "font-family:'Liberation Sans',Arial,Helvetica,sans-serif;"
+
+var (
+	svgTextRE = regexp.MustCompile(`(?s)(<text [^>]*font-size:([0-9.]+)px[^>]*>)([^<]*)(</text>)`)
+	// subRE finds our labels' subscripts: C_L, C_D0, E_n, N_eff, C_L,design.
+	subRE = regexp.MustCompile(`([A-Za-z])_([A-Za-z0-9]+(?:,[A-Za-z]+)?)`)
+)
+
+// typeset gives the gonum/plot SVG a sans-serif font list and sets the
+// subscripts of our labels ("C_L" is drawn as C with a subscript L).
+// gonum/plot measured the text with the underscore, so a label with a
+// subscript is a little narrower than its box.
+func typeset(svg string) string {
+	svg = strings.ReplaceAll(svg, "font-family:Liberation Sans;", svgFont)
+	return svgTextRE.ReplaceAllStringFunc(svg, func(m string) string {
+		g := svgTextRE.FindStringSubmatch(m)
+		open, size, body, end := g[1], g[2], g[3], g[4]
+		if !strings.Contains(body, "_") {
+			return m
+		}
+		px, err := strconv.ParseFloat(size, 64)
+		if err != nil || px <= 0 {
+			return m
+		}
+		shift := strconv.FormatFloat(0.28*px, 'f', 2, 64)
+		small := strconv.FormatFloat(0.75*px, 'f', 2, 64)
+		var b strings.Builder
+		b.WriteString(open)
+		last, lowered := 0, false
+		for _, ix := range subRE.FindAllStringSubmatchIndex(body, -1) {
+			plain := body[last:ix[3]] // up to and including the base letter
+			if lowered {
+				b.WriteString(`<tspan dy="-` + shift + `">` + plain + `</tspan>`)
+			} else {
+				b.WriteString(plain)
+			}
+			b.WriteString(`<tspan dy="` + shift + `" font-size="` + small + `px">` + body[ix[4]:ix[5]] + `</tspan>`)
+			last, lowered = ix[1], true
+		}
+		if rest := body[last:]; lowered && rest != "" {
+			b.WriteString(`<tspan dy="-` + shift + `">` + rest + `</tspan>`)
+		} else {
+			b.WriteString(rest)
+		}
+		b.WriteString(end)
+		return b.String()
+	})
 }

@@ -95,6 +95,9 @@ func serve(ctx context.Context, o serveOptions, stderr io.Writer) error {
 		ApplyMarks: func(ctx context.Context, id uint64) (dashboard.MarksApplied, error) {
 			return process.ApplyMarks(ctx, store, id)
 		},
+		Timeline: func(ctx context.Context, run storage.Run, points int) (process.Timeline, error) {
+			return process.RunTimeline(ctx, store, run, points)
+		},
 		Report:       reportWriter(store, ""),
 		Compare:      comparer(store),
 		Calibrations: store,

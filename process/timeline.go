@@ -1,0 +1,163 @@
+package process
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"time"
+
+	"liftyard/acquire"
+	"liftyard/calibrate"
+	"liftyard/rig"
+	"liftyard/storage"
+)
+
+// MaxTimelinePoints bounds the points of a timeline: more than a screen
+// is wide gains nothing.
+const MaxTimelinePoints = 10000
+
+// flowOffTimelineFrac is the share of the run's largest q below which the
+// timeline leaves the coefficients out: with the flow off they divide by
+// almost nothing (the estimator's own flow-off test uses the same 5 %).
+const flowOffTimelineFrac = 0.05
+
+// Timeline is a stored run's quantities against wall time, downsampled to
+// at most a requested number of points: what the run page plots to place
+// marks from. Each point is the mean, over one time bin, of the pipeline's
+// moving-window estimate after each block, placed at the window's middle.
+// A value is NaN where a bin has none (a gap, flow off for a coefficient,
+// a quantity the kind does not have).
+type Timeline struct {
+	Kind  rig.Kind
+	Start time.Time     // the run's first sample (RunStart), UTC; marks are seconds from it
+	Bin   time.Duration // width of one point's time bin
+	T     []time.Time   // each point's time (UTC wall time, middle of its bin)
+	// Quantities, one value per point.
+	QPa       []float64
+	AlphaDeg  []float64 // force-balance kinds
+	CL        []float64 // foils and bodies
+	SpinRatio []float64 // rotors: ωR/V
+}
+
+// RunTimeline replays run's stored raw blocks through the pipeline of the
+// rig stored with it (the flow-off zero before the run applied, as live)
+// and returns its timeline in at most points points (1 … MaxTimelinePoints).
+// It reads every raw block of the run: callers cache the result.
+func RunTimeline(ctx context.Context, store *storage.Store, run storage.Run, points int) (Timeline, error) {
+	if points < 1 || points > MaxTimelinePoints {
+		return Timeline{}, fmt.Errorf("timeline points %d: give 1 to %d", points, MaxTimelinePoints)
+	}
+	r, err := StoredRig(run)
+	if err != nil {
+		return Timeline{}, err
+	}
+	cal, err := calibrate.NewCalibratorFrom(r, store.Calibration)
+	if err != nil {
+		return Timeline{}, err
+	}
+	p, err := New(r, cal, Options{})
+	if err != nil {
+		return Timeline{}, err
+	}
+	kind := r.Kind
+	if kind == "" {
+		kind = rig.KindBody
+	}
+	type sample struct {
+		tUs                int64
+		q, alpha, cl, spin float64
+	}
+	var samples []sample
+	var firstUs int64 = math.MaxInt64
+	src := &acquire.StoredRun{Store: store, RunID: run.ID}
+	_, err = Replay(ctx, src, p, func(b *acquire.Block, _ Step) error {
+		if b == nil {
+			return nil
+		}
+		if b.Len() > 0 {
+			firstUs = min(firstUs, b.AlignedT0Us)
+		}
+		lv, ok := p.Live()
+		if !ok {
+			return nil
+		}
+		// The window's middle; before the window has filled, the middle
+		// of the samples so far.
+		span := min(lv.Window, lv.T.Sub(time.UnixMicro(firstUs)))
+		mid := lv.T.Add(-span / 2)
+		s := sample{tUs: mid.UnixMicro(), q: lv.QPa.X, alpha: math.NaN(), cl: math.NaN(), spin: math.NaN()}
+		if kind != rig.KindRoof {
+			s.alpha = lv.AlphaRad.X * 180 / math.Pi
+			if kind == rig.KindRotor {
+				s.spin = lv.SpinRatio.X
+				if lv.OmegaRadPerS == 0 && lv.SpinRatio.X == 0 {
+					s.spin = math.NaN()
+				}
+			} else {
+				s.cl = lv.CL.X
+			}
+		}
+		samples = append(samples, s)
+		return nil
+	})
+	if err != nil {
+		return Timeline{}, err
+	}
+	tl := Timeline{Kind: kind}
+	if t0, err := RunStart(store, run.ID); err == nil {
+		tl.Start = t0
+	}
+	if len(samples) == 0 {
+		return tl, nil
+	}
+	lo, hi := samples[0].tUs, samples[0].tUs
+	qMax := 0.0
+	for _, s := range samples {
+		lo, hi = min(lo, s.tUs), max(hi, s.tUs)
+		if finite(s.q) {
+			qMax = max(qMax, s.q)
+		}
+	}
+	if tl.Start.IsZero() {
+		tl.Start = time.UnixMicro(lo).UTC()
+	}
+	span := hi - lo + 1
+	binUs := (span + int64(points) - 1) / int64(points)
+	n := int((span + binUs - 1) / binUs)
+	tl.Bin = time.Duration(binUs) * time.Microsecond
+	type acc struct {
+		sum [4]float64
+		n   [4]int
+	}
+	bins := make([]acc, n)
+	for _, s := range samples {
+		i := int((s.tUs - lo) / binUs)
+		flowOn := finite(s.q) && s.q > flowOffTimelineFrac*qMax && s.q > 0
+		for k, v := range [4]float64{s.q, s.alpha, s.cl, s.spin} {
+			if !finite(v) || (k >= 2 && !flowOn) {
+				continue
+			}
+			bins[i].sum[k] += v
+			bins[i].n[k]++
+		}
+	}
+	mean := func(a acc, k int) float64 {
+		if a.n[k] == 0 {
+			return math.NaN()
+		}
+		return a.sum[k] / float64(a.n[k])
+	}
+	for i, a := range bins {
+		if a.n[0] == 0 && a.n[1] == 0 {
+			continue // a gap: no point
+		}
+		tl.T = append(tl.T, time.UnixMicro(lo+int64(i)*binUs+binUs/2).UTC())
+		tl.QPa = append(tl.QPa, mean(a, 0))
+		tl.AlphaDeg = append(tl.AlphaDeg, mean(a, 1))
+		tl.CL = append(tl.CL, mean(a, 2))
+		tl.SpinRatio = append(tl.SpinRatio, mean(a, 3))
+	}
+	return tl, nil
+}
+
+func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
