@@ -76,7 +76,7 @@ func TestCalibrationRoutes(t *testing.T) {
 	}{
 		{"/calibrations", "text/html; charset=utf-8", 200, []string{ids[0], ids[1], ids[2], "status-expired", "no expiry", "0.2338"}},
 		{"/calibrations?channel=pitot", "text/html; charset=utf-8", 200, []string{ids[2], "of channel"}},
-		{"/calibrations/" + ids[0], "text/html; charset=utf-8", 200, []string{"fit.svg", "residuals.svg", `calibration = { id = "` + ids[0] + `" }`, "2.437520090789939×10⁻⁵", "8140474.4", "-0.30367486706308067"}},
+		{"/calibrations/" + ids[0], "text/html; charset=utf-8", 200, []string{"fit.svg", "residuals.svg", `calibration = { id = "` + ids[0] + `" }`, "2.43752e-05", "8140474.4", "-0.303675"}},
 		{"/calibrations/" + ids[1], "text/html; charset=utf-8", 200, []string{"expired on 2025-03-14", "re-calibrate"}},
 		{"/calibrations/nope", "text/html; charset=utf-8", 404, []string{"no such calibration"}},
 		{"/calibrations/" + ids[0] + "/fit.svg", "image/svg+xml", 200, []string{"<svg"}},

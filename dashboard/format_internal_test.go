@@ -6,8 +6,8 @@ import (
 )
 
 // Ensure that display rounding follows JCGM 100:2008 §7.2.6 (uncertainty
-// with two significant digits, the value to the same decimal place) unless
-// the column's fixed decimals show more, and that a missing value is a dash.
+// with two significant digits, the value to the same decimal place) — the
+// report's rule — and that a missing value is a dash.
 func TestFormat(t *testing.T) {
 	nan := num(math.NaN())
 	tests := []struct {
@@ -16,6 +16,12 @@ func TestFormat(t *testing.T) {
 		{"pm fixed decimals suffice", pm(0.43, 0.0235, 3), "0.430 ± 0.024"},
 		{"pm small u widens both", pm(4, 0.098, 2), "4.000 ± 0.098"},
 		{"pm large u keeps digits", pm(612.5, 2.94, 1), "612.5 ± 2.9"},
+		// issue 13: the page showed "1988.9 ± 28.0" where the report showed
+		// "1989 ± 28"; one rule now, with the report's typographic minus.
+		{"pm u of tens rounds the value", pm(1988.9, 28.0, 1), "1989 ± 28"},
+		{"pm u of hundreds", pm(123456, 340, 0), "123460 ± 340"},
+		{"pm rounding carries", pm(1, 0.0996, 3), "1.00 ± 0.10"},
+		{"pm negative", pm(-0.43, 0.0235, 3), "−0.430 ± 0.024"},
 		{"pm missing u", pm(1.5, nan, 2), "1.50"},
 		{"pm missing value", pm(nan, 0.1, 2), "—"},
 		{"fix", fix(999.06, 1), "999.1"},

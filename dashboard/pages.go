@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"liftyard/acquire"
+	"liftyard/report"
 	"liftyard/storage"
 )
 
@@ -200,30 +201,10 @@ func fix(n num, digits int) string {
 	return strconv.FormatFloat(float64(n), 'f', digits, 64)
 }
 
-// uDigits returns the decimals that show u with two significant digits
-// (JCGM 100:2008 §7.2.6 quotes U "to at most two significant digits"), but
-// never fewer than the column's fixed digits, which can show a third.
-func uDigits(u num, digits int) int {
-	f := math.Abs(float64(u))
-	if !finite(u) || f == 0 {
-		return digits
-	}
-	d := int(math.Ceil(-math.Log10(f))) + 1
-	return min(max(d, digits), 8)
-}
-
-// pm writes "v ± u" with both rounded to the same decimals: at least
-// digits, more when u needs them for two significant digits.
-func pm(v, u num, digits int) string {
-	if !finite(v) {
-		return "—"
-	}
-	if !finite(u) {
-		return fix(v, digits)
-	}
-	d := uDigits(u, digits)
-	return fix(v, d) + " ± " + fix(u, d)
-}
+// pm writes "v ± U" by the one rounding rule of the report and every page
+// (report.PlusMinus): U to two significant digits and v to the same decimal
+// place; without a usable U, v to digits decimals.
+func pm(v, u num, digits int) string { return report.PlusMinus(float64(v), float64(u), digits) }
 
 var superscript = strings.NewReplacer("0", "⁰", "1", "¹", "2", "²", "3", "³", "4", "⁴", "5", "⁵", "6", "⁶", "7", "⁷", "8", "⁸", "9", "⁹", "-", "⁻")
 

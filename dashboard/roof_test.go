@@ -157,7 +157,7 @@ func TestRunPage_Roof(t *testing.T) {
 	s := roofServer(t)
 	body := get(t, s.Handler(), "GET", "/runs/5", nil).Body.String()
 	for _, want := range []string{"Wind loads on buildings", "local building code", "/runs/5/zones.svg", `id="roof-segments"`,
-		"<td>corner</td>", "−", "-0.900 ± 0.098", "-1.700 ± 0.098", "agrees?"} {
+		"<td>corner</td>", "−", "−0.900 ± 0.098", "−1.700 ± 0.098", "agrees?"} {
 		if !strings.Contains(body, want) {
 			t.Errorf("roof run page lacks %q", want)
 		}

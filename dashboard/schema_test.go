@@ -174,7 +174,7 @@ func TestRecordingRoofRun_PagesAnswer(t *testing.T) {
 	}
 	page := get(t, s.Handler(), "GET", "/runs/9", nil).Body.String()
 	// corner: net Cp −0.9 with U95 = 1.96·0.05 = 0.098, two significant digits.
-	for _, want := range []string{"corner", "edge", "field", "-0.900 ± 0.098"} {
+	for _, want := range []string{"corner", "edge", "field", "−0.900 ± 0.098"} {
 		if !strings.Contains(page, want) {
 			t.Errorf("run page lacks %q", want)
 		}

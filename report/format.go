@@ -58,6 +58,12 @@ func atDecimals(v float64, d int) string {
 	return fix(roundTo(v, d), 0)
 }
 
+// PlusMinus writes "v ± U" by liftyard's one rounding rule, used by the
+// report and every dashboard page: U to two significant digits (JCGM
+// 100:2008 §7.2.6) and v to the same decimal place; without a usable U, v
+// to fallback decimals; "—" for a missing v (docs/report.md "Rounding").
+func PlusMinus(v, u float64, fallback int) string { return pm(v, u, fallback) }
+
 // pm writes "v ± U" with U to two significant digits and v to the same
 // decimal place. Without a usable U it writes v to fallback decimals.
 func pm(v, u float64, fallback int) string {

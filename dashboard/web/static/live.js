@@ -13,18 +13,24 @@
 
   function finite(v) { return typeof v === "number" && isFinite(v); }
   function fix(v, d) { return finite(v) ? v.toFixed(d) : "—"; }
-  // Decimals that show u with two significant digits (JCGM 100:2008 §7.2.6),
-  // never fewer than d; the same rule as the server's pages.
+  // Decimals that show u with two significant digits (JCGM 100:2008 §7.2.6;
+  // negative: tens, hundreds); d when u is missing. The value is shown to
+  // the same place: the one rounding rule of the report and every page
+  // (report.PlusMinus, docs/report.md "Rounding").
   function uDigits(u, d) {
     if (!finite(u) || u === 0) return d;
-    return Math.min(Math.max(Math.ceil(-Math.log10(Math.abs(u))) + 1, d), 8);
+    let k = 1 - Math.floor(Math.log10(Math.abs(u)));
+    if (Math.abs(atPlace(u, k)) >= Math.pow(10, 2 - k)) k--; // 0.0996 → 0.10
+    return Math.min(k, 12);
   }
-  function ufix(u, d) { return finite(u) ? u.toFixed(uDigits(u, d)) : "—"; }
+  function atPlace(v, k) { const p = Math.pow(10, k); return Math.round(v * p) / p; }
+  function toPlace(v, k) { return k >= 0 ? v.toFixed(k) : atPlace(v, k).toFixed(0); }
+  function ufix(u, d) { return finite(u) ? toPlace(u, uDigits(u, d)) : "—"; }
   function pm(v, u, d) {
     if (!finite(v)) return "—";
     if (!finite(u)) return v.toFixed(d);
     const k = uDigits(u, d);
-    return v.toFixed(k) + " ± " + u.toFixed(k);
+    return toPlace(v, k) + " ± " + toPlace(u, k);
   }
   const SUP = { "0": "⁰", "1": "¹", "2": "²", "3": "³", "4": "⁴", "5": "⁵", "6": "⁶", "7": "⁷", "8": "⁸", "9": "⁹", "-": "⁻" };
   function sci(v) {
@@ -130,8 +136,8 @@
   // digits (pm), the same on every screen.
   function tile(id, v, u, d) {
     const k = uDigits(u, d);
-    set("v-" + id, finite(v) ? v.toFixed(k) : "—");
-    set("u-" + id, finite(u) ? u.toFixed(k) : "—");
+    set("v-" + id, finite(v) ? toPlace(v, k) : "—");
+    set("u-" + id, finite(u) ? toPlace(u, k) : "—");
   }
 
   function ageText(s) { return finite(s) ? s.toFixed(s < 10 ? 1 : 0) : "—"; }
