@@ -358,7 +358,7 @@ func (p publisher) live(l estimate.Live) {
 func (m *Main) listen(store *storage.Store, log *slog.Logger) (*dashboard.Server, net.Listener, error) {
 	// Marks are read-only here: liftyard serve edits them.
 	dash, err := dashboard.New(dashboard.Config{Addr: m.Addr, Token: m.Token, Runs: store, Live: true, Acknowledge: m.acknowledge,
-		Marks: newMarkStore(store), Report: reportWriter(store, ""), Compare: comparer(store), Calibrations: store, Logger: log})
+		Marks: newMarkStore(store), Timeline: timeliner(store), Report: reportWriter(store, ""), Compare: comparer(store), Calibrations: store, Logger: log})
 	if err != nil {
 		return nil, nil, err
 	}

@@ -95,9 +95,7 @@ func serve(ctx context.Context, o serveOptions, stderr io.Writer) error {
 		ApplyMarks: func(ctx context.Context, id uint64) (dashboard.MarksApplied, error) {
 			return process.ApplyMarks(ctx, store, id)
 		},
-		Timeline: func(ctx context.Context, run storage.Run, points int) (process.Timeline, error) {
-			return process.RunTimeline(ctx, store, run, points)
-		},
+		Timeline:     timeliner(store),
 		Report:       reportWriter(store, ""),
 		Compare:      comparer(store),
 		Calibrations: store,
@@ -113,4 +111,12 @@ func serve(ctx context.Context, o serveOptions, stderr io.Writer) error {
 		o.onReady("http://" + ln.Addr().String() + "/")
 	}
 	return dash.Serve(ctx, ln)
+}
+
+// timeliner is the run-timeline capability over a store: a run's stored
+// raw blocks replayed through the pipeline (process.RunTimeline).
+func timeliner(store *storage.Store) dashboard.TimelineFunc {
+	return func(ctx context.Context, run storage.Run, points int) (process.Timeline, error) {
+		return process.RunTimeline(ctx, store, run, points)
+	}
 }
