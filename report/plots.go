@@ -148,6 +148,7 @@ func addPoints(p *plot.Plot, pts *errPts, xBars bool, legend string) error {
 	}
 	p.Add(sc)
 	p.Legend.Add(legend, sc)
+	noteData(p, pts.XYs)
 	return nil
 }
 
@@ -168,6 +169,7 @@ func addCurve(p *plot.Plot, xys plotter.XYs, c color.Color, dashes []vg.Length, 
 		l.LineStyle.Width = vg.Points(1.2)
 		l.LineStyle.Dashes = dashes
 		p.Add(l)
+		noteData(p, run)
 		if first && legend != "" {
 			p.Legend.Add(legend, l)
 			first = false
@@ -189,6 +191,7 @@ func addCurve(p *plot.Plot, xys plotter.XYs, c color.Color, dashes []vg.Length, 
 
 // svgOf renders p to SVG without the XML prolog, ready to inline.
 func svgOf(p *plot.Plot) (string, error) {
+	placeLegend(p)
 	wt, err := p.WriterTo(plotW, plotH, "svg")
 	if err != nil {
 		return "", err

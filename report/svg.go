@@ -76,6 +76,7 @@ func standaloneSVG(p *plot.Plot) ([]byte, error) { return SVG(p, plotW, plotH) }
 // SVG renders a gonum plot as a standalone SVG document of size w × h: the
 // one SVG writer of the report and the dashboard's plots.
 func SVG(p *plot.Plot, w, h vg.Length) ([]byte, error) {
+	placeLegend(p)
 	wt, err := p.WriterTo(w, h, "svg")
 	if err != nil {
 		return nil, fmt.Errorf("svg: %w", err)
