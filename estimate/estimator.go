@@ -655,7 +655,7 @@ func (e *Estimator) Live() (lv Live, ok bool) {
 	}
 	if idle := e.cfg.Now().Sub(e.lastAddAt); idle > 2*e.cfg.Window+time.Second {
 		lv.Steady = false
-		lv.Warnings = append(lv.Warnings, fmt.Sprintf("no new blocks for %s: is the source running?", idle.Round(time.Second)))
+		lv.Warnings = append(lv.Warnings, fmt.Sprintf(IdleWarningPrefix+"%s: is the source running?", idle.Round(time.Second)))
 	}
 	if e.ignored > 0 {
 		lv.Warnings = append(lv.Warnings, fmt.Sprintf("%d blocks ignored: no positive sample spacing", e.ignored))

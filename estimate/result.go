@@ -149,3 +149,8 @@ type ZoneLive struct {
 	DesignCp calibrate.Value
 	En       float64 // NaN without a design value
 }
+
+// IdleWarningPrefix starts the live warning a stage gives when no block has
+// reached it for a while. A consumer with a data-age clock per source (the
+// recorder) says more — which source, since when — and drops this one.
+const IdleWarningPrefix = "no new blocks for "

@@ -1037,7 +1037,7 @@ func (e *RoofEstimator) Live() (Live, bool) {
 		lv.Warnings = append(lv.Warnings, fmt.Sprintf("%d blocks of time dropped with the flow off", e.flowOff))
 	}
 	if idle := e.cfg.Now().Sub(e.lastAddAt); idle > 2*e.cfg.Window+time.Second {
-		lv.Warnings = append(lv.Warnings, fmt.Sprintf("no new blocks for %s: is the source running?", idle.Round(time.Second)))
+		lv.Warnings = append(lv.Warnings, fmt.Sprintf(IdleWarningPrefix+"%s: is the source running?", idle.Round(time.Second)))
 	}
 	return lv, true
 }

@@ -5,6 +5,7 @@ import (
 	"errors"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 	"time"
 
@@ -237,4 +238,42 @@ func TestLoadDesign_ThinAirfoilAlphaZero(t *testing.T) {
 	cl, _, ok := d.At(rig.Rad(-2.077))
 	require.True(t, ok)
 	assert.InDelta(t, 0, cl.X, 1e-15, "C_L at the zero-lift angle")
+}
+
+// Ensure that a silent source gives one warning that names it, not also the
+// stage's older "no new blocks" one (issue 13: two warnings said the same).
+func TestRecorder_StaleWarnsOnce(t *testing.T) {
+	r, text := loadRig(t, foilRig)
+	store := openStore(t)
+	now := time.Date(2026, 3, 14, 10, 0, 0, 0, time.UTC)
+	rec, err := process.NewRecorder(store, process.RecorderConfig{Rig: r, RigTOML: text, Offline: true,
+		Now: func() time.Time { return now }})
+	require.NoError(t, err)
+	n := 0
+	require.NoError(t, (&acquire.CSVFile{Path: rawCSV, Source: r.Sources[0].Name, BlockN: 10}).Replay(t.Context(), func(b acquire.Block) error {
+		if n++; n > 60 {
+			return nil
+		}
+		b.Received = now
+		rec.Block(b)
+		now = now.Add(100 * time.Millisecond)
+		return nil
+	}))
+	now = now.Add(20 * time.Second) // the source falls silent
+	l, ok := rec.Live()
+	require.True(t, ok)
+	assert.True(t, l.Stale)
+	var named, idle int
+	for _, w := range l.Warnings {
+		if strings.Contains(w, r.Sources[0].Name) {
+			named++
+		}
+		if strings.HasPrefix(w, estimate.IdleWarningPrefix) {
+			idle++
+		}
+	}
+	assert.Equal(t, 1, named, "warnings: %q", l.Warnings)
+	assert.Zero(t, idle, "warnings: %q", l.Warnings)
+	_, err = rec.Finish(t.Context(), nil, nil)
+	require.NoError(t, err)
 }

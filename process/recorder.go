@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"log/slog"
+	"strings"
 	"sync/atomic"
 	"time"
 
@@ -220,7 +221,12 @@ func (rec *Recorder) Live() (estimate.Live, bool) {
 			ws = append(ws, StaleWarning(a))
 		}
 	}
-	ws = append(ws, l.Warnings...)
+	for _, w := range l.Warnings {
+		if l.Stale && strings.HasPrefix(w, estimate.IdleWarningPrefix) {
+			continue // the source's own stale warning above says it better
+		}
+		ws = append(ws, w)
+	}
 	for _, ev := range rec.expired {
 		ws = append(ws, ev.Message)
 	}
