@@ -17,7 +17,7 @@ func TestParse_Guard(t *testing.T) {
 	deepArr := "name = \"x\"\n\n" + "a = " + strings.Repeat("[", 5000) + strings.Repeat("]", 5000) + "\n"
 	for _, tc := range []struct {
 		name, text, want string
-		line         int
+		line             int
 	}{
 		{"nested inline tables", deep, "nested 17 deep", 2},
 		{"nested arrays", deepArr, "nested 17 deep", 3},
