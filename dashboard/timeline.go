@@ -169,7 +169,7 @@ func (s *Server) apiTimeline(w http.ResponseWriter, r *http.Request) {
 		if sg.TStart.IsZero() || sg.TEnd.IsZero() {
 			continue
 		}
-		spans = append(spans, segmentSpan{n: sg.Index + 1, start: sg.TStart, end: sg.TEnd})
+		spans = append(spans, segmentSpan{n: sg.Index, start: sg.TStart, end: sg.TEnd})
 	}
 	writeJSONStatus(w, http.StatusOK, toTimelineJSON(id, tl, spans))
 }

@@ -129,8 +129,10 @@ func TestTimeline_API(t *testing.T) {
 		t.Fatalf("%d segments, want %d", len(tl.Segments), len(segs))
 	}
 	for i, s := range tl.Segments {
-		if want := segs[i].TStart.Sub(t0).Seconds(); s.N != i+1 || math.Abs(s.StartS-want) > 1e-6 || s.EndS <= s.StartS {
-			t.Errorf("segment %d: %+v, want n %d from %.6f s", i, s, i+1, want)
+		// n is the segment's number as the segments table and the
+		// exports show it (from 0).
+		if want := segs[i].TStart.Sub(t0).Seconds(); s.N != segs[i].Index || math.Abs(s.StartS-want) > 1e-6 || s.EndS <= s.StartS {
+			t.Errorf("segment %d: %+v, want n %d from %.6f s", i, s, segs[i].Index, want)
 		}
 	}
 	for _, bad := range []string{"abc", "0", "100000"} {

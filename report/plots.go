@@ -94,6 +94,7 @@ func newPlot(title, xLabel, yLabel string) *plot.Plot {
 	p.X.Label.TextStyle.Font, p.Y.Label.TextStyle.Font = sans(11), sans(11)
 	p.X.Tick.Label.Font, p.Y.Tick.Label.Font = sans(9.5), sans(9.5)
 	p.Legend.TextStyle.Font = sans(10)
+	p.Legend.Padding = vg.Points(3) // room between entries for a subscript
 	return p
 }
 

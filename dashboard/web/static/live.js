@@ -116,7 +116,7 @@
     runID = r.id;
     set("run-id", String(r.id));
     set("run-rig", r.rig);
-    set("run-kind", r.kind + ", " + r.fluid);
+    set("run-kind", r.kind + ", " + String(r.fluid).replace(/_/g, " ")); // fresh_water → fresh water
     set("run-area", fix(r.area_m2, 4) + " m² " + r.area_kind);
     setLayout(r.kind);
   }
