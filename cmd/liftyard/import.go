@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"io"
 	"log/slog"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
@@ -14,6 +15,7 @@ import (
 	"liftyard/acquire"
 	"liftyard/estimate"
 	"liftyard/process"
+	"liftyard/report"
 	"liftyard/rig"
 	"liftyard/storage"
 )
@@ -179,6 +181,10 @@ func printSummary(w io.Writer, store *storage.Store, runID uint64, r *rig.Rig) e
 	if err != nil {
 		return err
 	}
+	if r.Kind == rig.KindRoof {
+		printRoofSummary(w, segs)
+		return nil
+	}
 	fmt.Fprintf(w, "  %d steady segments\n", len(segs))
 	if r.Kind == rig.KindRotor {
 		printRotorSummary(w, segs, r)
@@ -239,4 +245,40 @@ func printRotorSummary(w io.Writer, segs []estimate.Segment, r *rig.Rig) {
 	if d, err := process.LoadSpinDesign(r); err == nil && d != nil {
 		fmt.Fprintf(w, "  design: %s, compared at each segment's spin ratio\n", d.Describe())
 	}
+}
+
+// printRoofSummary is printSummary for a roof: each block's zones with the
+// net Cp mean ± U95 on the block's mean q, the block peak suction and the
+// wind direction, then the samples that fell in no block.
+func printRoofSummary(w io.Writer, segs []estimate.Segment) {
+	blocks, unblocked := map[int]bool{}, 0
+	for _, s := range segs {
+		if s.Zone != "" {
+			blocks[s.Block] = true
+		}
+		unblocked += s.SamplesUnblocked
+	}
+	fmt.Fprintf(w, "  %d blocks\n", len(blocks))
+	for _, s := range segs {
+		if s.Zone == "" || s.Tap != "" {
+			continue // per-tap rows are in the export
+		}
+		dir := ""
+		if !math.IsNaN(s.DirectionRad) && s.DirectionRad != 0 {
+			dir = fmt.Sprintf(", wind from %.0f°", rig.Deg(s.DirectionRad))
+		}
+		fmt.Fprintf(w, "  block %d %-8s net Cp %s, block peak %s (q at %s%s)\n", s.Block, s.Zone,
+			report.PlusMinus(s.CpMean.X, s.CpMean.U95(), 2), report.PlusMinus(s.CpPeak, 2*s.CpPeakU, 2), orMast(s.QAt), dir)
+	}
+	if unblocked > 0 {
+		fmt.Fprintf(w, "  %d samples fell in no block (short or unusable stretches)\n", unblocked)
+	}
+	fmt.Fprintln(w, "  Test data, not a design approval: wind loads on a structure follow the local code and a licensed engineer.")
+}
+
+func orMast(at string) string {
+	if at == "" {
+		return "mast"
+	}
+	return at
 }
