@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"strings"
 
@@ -43,6 +44,9 @@ func runCheck(_ context.Context, args []string, stdout, _ io.Writer) error {
 		}
 	}
 	fmt.Fprintln(stdout)
+	if w := tributaryWarning(r); w != "" {
+		fmt.Fprintf(stdout, "%s: warning: %s\n", pos[0], w)
+	}
 	return nil
 }
 
@@ -52,4 +56,23 @@ func count(n int, noun string) string {
 		return "1 " + noun
 	}
 	return fmt.Sprintf("%d %ss", n, noun)
+}
+
+// tributaryWarning says when a roof's taps' tributary areas do not add up
+// to its reference area (within 1 %): a tap missing from the rig file, or
+// an area typed wrong, biases the whole-roof result. Not an error: a
+// mock-up may be instrumented on part of its roof on purpose.
+func tributaryWarning(r *rig.Rig) string {
+	if r.Kind != rig.KindRoof || len(r.Taps) == 0 || !(r.Reference.AreaM2 > 0) {
+		return ""
+	}
+	sum := 0.0
+	for _, t := range r.Taps {
+		sum += t.AreaM2
+	}
+	if math.Abs(sum-r.Reference.AreaM2) <= 0.01*r.Reference.AreaM2 {
+		return ""
+	}
+	return fmt.Sprintf("the taps' tributary areas add up to %.4g m², the reference area is %.4g m² (%+.1f %%): check for a missing tap or a mistyped area_m2",
+		sum, r.Reference.AreaM2, 100*(sum-r.Reference.AreaM2)/r.Reference.AreaM2)
 }
