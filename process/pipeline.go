@@ -135,6 +135,15 @@ const EventOverload acquire.EventKind = "overload"
 // Live is the stage's moving-window estimate; false until there is one.
 func (p *Pipeline) Live() (estimate.Live, bool) { return p.stage.Live() }
 
+// Block is the length of a roof stage's result block; 0 for kinds whose
+// segments are not fixed blocks.
+func (p *Pipeline) Block() time.Duration {
+	if b, ok := p.stage.(interface{ Block() time.Duration }); ok {
+		return b.Block()
+	}
+	return 0
+}
+
 // Flush closes the open segment at the end of the data.
 func (p *Pipeline) Flush() []estimate.Segment { return p.stage.Flush() }
 

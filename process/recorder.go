@@ -99,6 +99,7 @@ func NewRecorder(store *storage.Store, cfg RecorderConfig) (*Recorder, error) {
 	id, err := store.CreateRun(storage.Run{
 		Rig: r.Name, Kind: string(r.Kind), Fluid: string(r.Fluid), RigTOML: cfg.RigTOML,
 		AreaM2: r.Reference.AreaM2, AreaKind: r.Reference.AreaKind, Started: now, Note: cfg.Note,
+		BlockS: p.Block().Seconds(),
 	})
 	if err != nil {
 		return nil, err

@@ -36,4 +36,7 @@ type Run struct {
 	Loads    []calibrate.LoadHealth   `json:"loads,omitempty"`    // per rated channel: largest load against capacity
 	Drift    []calibrate.DriftLine    `json:"drift,omitempty"`    // zero drift between the flow-off zeros before and after the run
 	Note     string                   `json:"note,omitempty"`
+	// BlockS is a roof run's result block, s; 0 for other kinds and for
+	// runs stored before it was kept (reprocess then takes the rig's).
+	BlockS float64 `json:"block_s,omitempty"`
 }

@@ -9,6 +9,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"time"
 
@@ -87,7 +88,21 @@ func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	rigPath := fs.String("rig", "", "rig file (TOML) of the rig that made the record")
 	db := fs.String("db", "liftyard.db", "bbolt store file")
 	source := fs.String("source", "", "rig source the file comes from (default: the rig's first [[source]])")
-	blockN := fs.Int("block", acquire.DefaultRawCSVBlock, "samples per block")
+	blockN := fs.Int("block-samples", acquire.DefaultRawCSVBlock, "rows of the file per acquisition block")
+	var block time.Duration
+	fs.Func("block", "roof rigs: length of one result block, e.g. 10m (default: the rig's [wind] block, else 10m); a whole number is the old meaning, --block-samples", func(v string) error {
+		if n, err := strconv.Atoi(v); err == nil {
+			*blockN = n // before the result block had this flag: samples per block
+			fmt.Fprintf(stderr, "liftyard import: --block %d means --block-samples %d (a duration such as 10m sets a roof's result block)\n", n, n)
+			return nil
+		}
+		d, err := time.ParseDuration(v)
+		if err != nil || d <= 0 {
+			return fmt.Errorf("%q: a positive duration such as 10m (or --block-samples N)", v)
+		}
+		block = d
+		return nil
+	})
 	startS := fs.String("start", "", "UTC time of the file's first row, RFC 3339 (e.g. 2026-03-14T09:00:00Z); needed when t_s is relative and the file has no \"# start\" line")
 	verbose := fs.Bool("v", false, "log progress to stderr")
 	pos, err := parseFlags(fs, args)
@@ -101,7 +116,7 @@ func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) err
 		return usagef("give exactly one raw CSV file (got %d)", len(pos))
 	}
 	if *blockN <= 0 {
-		return usagef("--block %d: want a positive number of samples", *blockN)
+		return usagef("--block-samples %d: want a positive number of rows", *blockN)
 	}
 	data, err := os.ReadFile(*rigPath)
 	if err != nil {
@@ -110,6 +125,9 @@ func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	r, err := rig.Parse(*rigPath, data)
 	if err != nil {
 		return err
+	}
+	if block > 0 && r.Kind != rig.KindRoof {
+		return usagef("--block %s: a result block length is for roof rigs only (rig %q is a %s); --block-samples sets rows per acquisition block", block, r.Name, r.Kind)
 	}
 	name := *source
 	if name == "" {
@@ -136,7 +154,7 @@ func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	defer store.Close()
 	src := &acquire.CSVFile{Path: pos[0], Source: name, BlockN: *blockN, Start: start}
 	id, fin, err := recordOffline(ctx, store, r, string(data), fmt.Sprintf("imported from %s", filepath.Base(pos[0])),
-		src, &src.Health, name, newLogger(stderr, *verbose))
+		src, &src.Health, name, newLogger(stderr, *verbose), block)
 	if err != nil {
 		return err
 	}
@@ -159,10 +177,11 @@ var errStopped = errors.New("stopped before the end of the data; the run is stor
 // Nothing is published to a site broker: the results were not made live.
 // h counts what src handed over, as source name in the run's health.
 func recordOffline(ctx context.Context, store *storage.Store, r *rig.Rig, rigTOML, note string,
-	src acquire.Replayer, h *acquire.Health, name string, log *slog.Logger) (uint64, process.Finished, error) {
+	src acquire.Replayer, h *acquire.Health, name string, log *slog.Logger, block time.Duration) (uint64, process.Finished, error) {
 	rc := *r
 	rc.Publish = nil
-	rec, err := process.NewRecorder(store, process.RecorderConfig{Rig: &rc, RigTOML: rigTOML, Note: note, Offline: true, Logger: log})
+	rec, err := process.NewRecorder(store, process.RecorderConfig{Rig: &rc, RigTOML: rigTOML, Note: note, Offline: true, Logger: log,
+		Pipeline: process.Options{Roof: estimate.RoofConfig{Block: block}}})
 	if err != nil {
 		return 0, process.Finished{}, err
 	}

@@ -49,7 +49,7 @@ func demoRunOffline(t *testing.T, d time.Duration) string {
 	require.NoError(t, err)
 	var h acquire.Health
 	_, _, err = recordOffline(t.Context(), store, r, string(demoRigTOML), "demo run made offline", bs, &h, r.Sources[0].Name,
-		slog.New(slog.NewTextHandler(io.Discard, nil)))
+		slog.New(slog.NewTextHandler(io.Discard, nil)), 0)
 	require.NoError(t, err)
 	require.NoError(t, store.Close())
 	return db

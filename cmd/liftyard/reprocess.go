@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"time"
 
 	"liftyard/acquire"
 	"liftyard/rig"
@@ -13,11 +14,12 @@ import (
 
 // runReprocess is `liftyard reprocess --db FILE --run ID [--rig RIG.toml]`.
 func runReprocess(ctx context.Context, args []string, stdout, stderr io.Writer) error {
-	fs := newFlags("reprocess", "--db FILE --run ID|latest [--rig RIG.toml]",
+	fs := newFlags("reprocess", "--db FILE --run ID|latest [--rig RIG.toml] [--block DURATION]",
 		"re-process a run from its stored raw samples as a new run", stdout)
 	db := fs.String("db", "liftyard.db", "bbolt store file")
 	ref := fs.String("run", "", "run id to re-process, or latest")
 	rigPath := fs.String("rig", "", "corrected rig file (default: the rig file stored with the run)")
+	block := fs.Duration("block", 0, "roof rigs: length of one result block (default: the run's own, else the rig's [wind] block, else 10m)")
 	verbose := fs.Bool("v", false, "log progress to stderr")
 	pos, err := parseFlags(fs, args)
 	if err != nil {
@@ -82,7 +84,13 @@ func runReprocess(ctx context.Context, args []string, stdout, stderr io.Writer) 
 		rigTOML = old.RigTOML
 	}
 	src := &acquire.StoredRun{Store: store, RunID: id}
-	newID, fin, err := recordOffline(ctx, store, r, rigTOML, note, src, &src.Health, fmt.Sprintf("replay of run %d", id), newLogger(stderr, *verbose))
+	if *block < 0 || (*block > 0 && r.Kind != rig.KindRoof) {
+		return usagef("--block %s: a positive duration, for roof rigs only", *block)
+	}
+	if *block == 0 && old.BlockS > 0 {
+		*block = time.Duration(old.BlockS * float64(time.Second)) // the run's own block length
+	}
+	newID, fin, err := recordOffline(ctx, store, r, rigTOML, note, src, &src.Health, fmt.Sprintf("replay of run %d", id), newLogger(stderr, *verbose), *block)
 	if err != nil {
 		return err
 	}

@@ -93,4 +93,23 @@ func TestRecord_RoofEndToEnd(t *testing.T) {
 		}
 	}
 	t.Logf("%d roof rows, blocks per zone %v", len(rows), perZone)
+
+	// issue 11: the block length is stored with the run and reprocess
+	// reuses it (the rig file alone would give 10 minutes and no block);
+	// reprocess prints the roof's own summary.
+	run1 := storedRun(t, db)
+	assert.Equal(t, 2.0, run1.BlockS)
+	out.Reset()
+	errOut.Reset()
+	code = run(t.Context(), []string{"reprocess", "--db", db, "--run", "latest"}, &out, &errOut)
+	require.Equal(t, 0, code, "reprocess: %s", errOut.String())
+	assert.Contains(t, errOut.String(), "blocks")
+	assert.Contains(t, errOut.String(), "net Cp")
+	assert.NotContains(t, errOut.String(), "lift-curve")
+	run2 := storedRun(t, db)
+	assert.Equal(t, 2.0, run2.BlockS)
+	assert.Equal(t, run1.Segments, run2.Segments, "the same blocks again")
+	code = run(t.Context(), []string{"reprocess", "--db", db, "--run", "1", "--block", "1s"}, &out, &errOut)
+	require.Equal(t, 0, code, "reprocess --block: %s", errOut.String())
+	assert.Equal(t, 1.0, storedRun(t, db).BlockS, "--block overrides the run's own")
 }
