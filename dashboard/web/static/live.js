@@ -12,7 +12,10 @@
   const $ = (id) => document.getElementById(id);
 
   function finite(v) { return typeof v === "number" && isFinite(v); }
-  function fix(v, d) { return finite(v) ? v.toFixed(d) : "—"; }
+  // minus writes a typographic minus, as the report and the pages do, and
+  // no sign on a number that rounds to zero.
+  function minus(s) { return /^-[0.]*$/.test(s) ? s.slice(1) : s.replace(/^-/, "−"); }
+  function fix(v, d) { return finite(v) ? minus(v.toFixed(d)) : "—"; }
   // Decimals that show u with two significant digits (JCGM 100:2008 §7.2.6;
   // negative: tens, hundreds); d when u is missing. The value is shown to
   // the same place: the one rounding rule of the report and every page
@@ -24,7 +27,7 @@
     return Math.min(k, 12);
   }
   function atPlace(v, k) { const p = Math.pow(10, k); return Math.round(v * p) / p; }
-  function toPlace(v, k) { return k >= 0 ? v.toFixed(k) : atPlace(v, k).toFixed(0); }
+  function toPlace(v, k) { return minus(k >= 0 ? v.toFixed(k) : atPlace(v, k).toFixed(0)); }
   function ufix(u, d) { return finite(u) ? toPlace(u, uDigits(u, d)) : "—"; }
   function pm(v, u, d) {
     if (!finite(v)) return "—";
@@ -194,6 +197,7 @@
     set("v-n", String(l.n));
     set("v-window", fix(l.window_s, 1));
     set("v-segments", String(l.segments));
+    set("v-blocks", String(l.segments)); // a roof counts its result blocks
     const st = $("v-steady");
     st.textContent = l.steady ? "steady" : (l.flow_off ? "flow off" : "not steady");
     st.className = "state " + (l.steady ? "steady" : "unsteady");
