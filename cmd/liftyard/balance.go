@@ -36,11 +36,7 @@ func runBalance(_ context.Context, args []string, stdout, stderr io.Writer) erro
 	if *rigPath == "" || *points == "" {
 		return usagef("--rig and --points are required")
 	}
-	data, err := os.ReadFile(*rigPath)
-	if err != nil {
-		return usagef("read rig file: %v", err)
-	}
-	r, err := rig.Parse(*rigPath, data)
+	r, _, err := readRig(*rigPath)
 	if err != nil {
 		return err
 	}

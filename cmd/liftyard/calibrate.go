@@ -87,11 +87,8 @@ func calibrateMain(ctx context.Context, args []string, stdin io.Reader, stdout, 
 
 	var r *rig.Rig
 	if o.rigPath != "" {
-		data, err := os.ReadFile(o.rigPath)
-		if err != nil {
-			return usagef("read rig file: %v", err)
-		}
-		if r, err = rig.Parse(o.rigPath, data); err != nil {
+		var err error
+		if r, _, err = readRig(o.rigPath); err != nil {
 			return err
 		}
 		ch, ok := r.Channel(o.channel)

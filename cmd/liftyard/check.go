@@ -5,7 +5,6 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"os"
 	"strings"
 
 	"liftyard/process"
@@ -22,11 +21,7 @@ func runCheck(_ context.Context, args []string, stdout, _ io.Writer) error {
 	if len(pos) != 1 {
 		return usagef("want exactly one rig file, got %d arguments", len(pos))
 	}
-	data, err := os.ReadFile(pos[0])
-	if err != nil {
-		return usagef("read rig file: %v", err)
-	}
-	r, err := rig.Parse(pos[0], data)
+	r, _, err := readRig(pos[0])
 	if err != nil {
 		return err
 	}

@@ -5,6 +5,8 @@ import (
 	"flag"
 	"fmt"
 	"io"
+	"liftyard/rig"
+	"os"
 	"strconv"
 	"strings"
 	"sync"
@@ -75,4 +77,19 @@ func parseFlags(fs *flag.FlagSet, args []string) ([]string, error) {
 		pos = append(pos, rest[0])
 		args = rest[1:]
 	}
+}
+
+// readRig reads and parses the rig file at path: a file that cannot be
+// read is bad usage, a bad one gives rig.Errors naming its lines (both exit
+// 2). It returns the text too, which a run stores.
+func readRig(path string) (*rig.Rig, []byte, error) {
+	data, err := os.ReadFile(path)
+	if err != nil {
+		return nil, nil, usagef("read rig file: %v", err)
+	}
+	r, err := rig.Parse(path, data)
+	if err != nil {
+		return nil, nil, err
+	}
+	return r, data, nil
 }

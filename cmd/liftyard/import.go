@@ -118,11 +118,7 @@ func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	if *blockN <= 0 {
 		return usagef("--block-samples %d: want a positive number of rows", *blockN)
 	}
-	data, err := os.ReadFile(*rigPath)
-	if err != nil {
-		return usagef("read rig file: %v", err)
-	}
-	r, err := rig.Parse(*rigPath, data)
+	r, data, err := readRig(*rigPath)
 	if err != nil {
 		return err
 	}

@@ -467,11 +467,7 @@ func runRecord(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	if *rigPath == "" {
 		return usagef("--rig is required")
 	}
-	data, err := os.ReadFile(*rigPath)
-	if err != nil {
-		return usagef("read rig file: %v", err)
-	}
-	r, err := rig.Parse(*rigPath, data)
+	r, data, err := readRig(*rigPath)
 	if err != nil {
 		return err
 	}

@@ -63,11 +63,8 @@ func runReprocess(ctx context.Context, args []string, stdout, stderr io.Writer) 
 		note    = fmt.Sprintf("reprocessed from run %d", id)
 	)
 	if *rigPath != "" {
-		data, err := os.ReadFile(*rigPath)
-		if err != nil {
-			return usagef("read rig file: %v", err)
-		}
-		if r, err = rig.Parse(*rigPath, data); err != nil {
+		var data []byte
+		if r, data, err = readRig(*rigPath); err != nil {
 			return err
 		}
 		rigTOML = string(data)
