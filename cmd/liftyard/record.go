@@ -225,8 +225,7 @@ func (m *Main) Run(ctx context.Context) error {
 	defer tick.Stop()
 	age := time.NewTicker(ageTick)
 	defer age.Stop()
-	var lastLive time.Time
-	stale := false // a source was silent past its limit at the last look
+	var live liveGate
 	storeDown := rec.WriterDone()
 loop:
 	for {
@@ -237,22 +236,7 @@ loop:
 			req.reply <- rec.AcknowledgeLoad(req.channel, req.by)
 			pub.health(m.health(rec))
 		case <-age.C:
-			// Without blocks the estimate does not move, but its age does:
-			// publish it anyway, and at once when a source falls silent or
-			// comes back.
-			now := time.Now()
-			nowStale := anyStale(rec.Pipeline().Ages())
-			if nowStale == stale && now.Sub(lastLive) < livePeriod {
-				continue
-			}
-			if nowStale != stale {
-				pub.health(m.health(rec))
-			}
-			stale = nowStale
-			if l, ok := rec.Live(); ok {
-				pub.live(l)
-			}
-			lastLive = now
+			live.age(rec, pub, func() dashboard.Health { return m.health(rec) })
 		case <-tick.C:
 			pub.health(m.health(rec))
 		case <-storeDown:
@@ -265,12 +249,7 @@ loop:
 				break loop
 			}
 			pub.segments(rec.Block(b).Segments)
-			if now := time.Now(); now.Sub(lastLive) >= livePeriod {
-				if l, ok := rec.Live(); ok {
-					pub.live(l)
-				}
-				lastLive = now
-			}
+			live.block(rec, pub)
 		}
 	}
 	pub.segments(rec.Flush())
@@ -290,6 +269,41 @@ loop:
 		dash.SetRun(run)
 	}
 	return errors.Join(runErr, ferr, oerr, stopDash())
+}
+
+// liveGate decides when the live estimate is published: at most every
+// livePeriod while blocks arrive, and on the data-age tick even when none
+// does — the values stand still but their age does not — at once when a
+// source falls silent or comes back (with the health, whose state changes).
+type liveGate struct {
+	last  time.Time
+	stale bool // a source was silent past its limit at the last look
+}
+
+func (g *liveGate) age(rec *process.Recorder, pub publisher, health func() dashboard.Health) {
+	now := time.Now()
+	stale := anyStale(rec.Pipeline().Ages())
+	if stale == g.stale && now.Sub(g.last) < livePeriod {
+		return
+	}
+	if stale != g.stale {
+		pub.health(health())
+	}
+	g.stale = stale
+	g.publish(rec, pub, now)
+}
+
+func (g *liveGate) block(rec *process.Recorder, pub publisher) {
+	if now := time.Now(); now.Sub(g.last) >= livePeriod {
+		g.publish(rec, pub, now)
+	}
+}
+
+func (g *liveGate) publish(rec *process.Recorder, pub publisher, now time.Time) {
+	if l, ok := rec.Live(); ok {
+		pub.live(l)
+	}
+	g.last = now
 }
 
 // startSources runs every source into one bounded channel, closed when
