@@ -9,6 +9,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 	"time"
@@ -126,11 +127,17 @@ func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) err
 		return usagef("--block %s: a result block length is for roof rigs only (rig %q is a %s); --block-samples sets rows per acquisition block", block, r.Name, r.Kind)
 	}
 	name := *source
-	if name == "" {
-		if len(r.Sources) == 0 {
-			return usagef("rig %q declares no [[source]]: give --source NAME", r.Name)
-		}
+	names := make([]string, len(r.Sources))
+	for i, s := range r.Sources {
+		names[i] = s.Name
+	}
+	switch {
+	case name == "" && len(r.Sources) == 0:
+		return usagef("rig %q declares no [[source]]: give --source NAME", r.Name)
+	case name == "":
 		name = r.Sources[0].Name
+	case !slices.Contains(names, name):
+		return usagef("--source %q is not a [[source]] of rig %q (its sources: %s)", name, r.Name, strings.Join(names, ", "))
 	}
 	var start time.Time
 	if *startS != "" {

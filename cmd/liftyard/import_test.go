@@ -185,6 +185,9 @@ func TestImport_BadFile(t *testing.T) {
 		{"foreign channels", []string{"--rig", towtankRig, "--db", db, other}, "none of its channels (x)"},
 		{"no file", []string{"--rig", towtankRig, "--db", db}, "give exactly one raw CSV file"},
 		{"no rig", []string{"--db", db, bad}, "--rig is required"},
+		// issue 15: the error names the sources to choose from.
+		{"unknown source", []string{"--rig", towtankRig, "--db", db, "--source", "mast", bad}, `--source "mast" is not a [[source]] of rig "foil-towtank" (its sources: carriage)`},
+		{"block for a foil", []string{"--rig", towtankRig, "--db", db, "--block", "10m", bad}, "for roof rigs only"},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			code, _, errOut := runCLI(t, append([]string{"import"}, c.args...)...)
