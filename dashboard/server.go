@@ -442,6 +442,14 @@ func mustJSON(v any) []byte {
 	return b
 }
 
+// LoopbackAddr reports whether a listen address "host:port" is loopback
+// only (where no token is asked for). An address that does not parse is
+// not.
+func LoopbackAddr(addr string) bool {
+	host, _, err := net.SplitHostPort(addr)
+	return err == nil && isLoopbackHost(host)
+}
+
 // isLoopbackHost reports whether a listen host is loopback-only.
 func isLoopbackHost(host string) bool {
 	if host == "localhost" {

@@ -5,6 +5,7 @@ import (
 	"flag"
 	"fmt"
 	"io"
+	"liftyard/dashboard"
 	"liftyard/rig"
 	"os"
 	"strconv"
@@ -92,4 +93,37 @@ func readRig(path string) (*rig.Rig, []byte, error) {
 		return nil, nil, err
 	}
 	return r, data, nil
+}
+
+// tokenEnv names the environment variable that may hold the dashboard
+// token, so it need not show in the process list.
+const tokenEnv = "LIFTYARD_TOKEN"
+
+// tokenFlags adds --token and --token-file to fs. The returned func gives
+// the token from --token, else the first line of --token-file, else
+// $LIFTYARD_TOKEN, and warns on stderr when one is given for a loopback
+// address, where it is not used.
+func tokenFlags(fs *flag.FlagSet) func(addr string, stderr io.Writer) (string, error) {
+	token := fs.String("token", "", "dashboard access token, required when --addr is not loopback (visible in the process list: prefer --token-file or $"+tokenEnv+")")
+	file := fs.String("token-file", "", "file whose first line is the dashboard access token")
+	return func(addr string, stderr io.Writer) (string, error) {
+		t := *token
+		if t == "" && *file != "" {
+			data, err := os.ReadFile(*file)
+			if err != nil {
+				return "", usagef("--token-file: %v", err)
+			}
+			t = strings.TrimSpace(strings.SplitN(string(data), "\n", 2)[0])
+			if t == "" {
+				return "", usagef("--token-file %s: the first line is empty", *file)
+			}
+		}
+		if t == "" {
+			t = os.Getenv(tokenEnv)
+		}
+		if t != "" && dashboard.LoopbackAddr(addr) {
+			fmt.Fprintf(stderr, "liftyard: warning: a token is not used on the loopback address %s (only this computer can connect); it is asked for off loopback\n", addr)
+		}
+		return t, nil
+	}
 }

@@ -466,12 +466,12 @@ func (m *Main) RunID() uint64 { return m.runID }
 
 // runRecord is `liftyard record --rig RIG.toml [--db FILE] [--addr ADDR] [--for DURATION]`.
 func runRecord(ctx context.Context, args []string, stdout, stderr io.Writer) error {
-	fs := newFlags("record", "--rig RIG.toml [--db FILE] [--addr ADDR] [--for DURATION] [--block DURATION]",
+	fs := newFlags("record", "--rig RIG.toml [--db FILE] [--addr ADDR] [--token-file FILE] [--for DURATION] [--block DURATION]",
 		"record from the sources of a rig file, with the live dashboard", stdout)
 	rigPath := fs.String("rig", "", "rig file (TOML) describing sources, channels and lift roles")
 	db := fs.String("db", "liftyard.db", "bbolt store file")
 	addr := fs.String("addr", "127.0.0.1:8470", "dashboard listen address")
-	token := fs.String("token", "", "dashboard access token (required when --addr is not loopback)")
+	tokenOf := tokenFlags(fs)
 	dur := fs.Duration("for", 0, "stop after this long (0: until Ctrl-C)")
 	block := fs.Duration("block", 0, "roof rigs: length of one result block (default 10m, common practice)")
 	verbose := fs.Bool("v", false, "log progress to stderr")
@@ -481,6 +481,10 @@ func runRecord(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	if *rigPath == "" {
 		return usagef("--rig is required")
 	}
+	token, err := tokenOf(*addr, stderr)
+	if err != nil {
+		return err
+	}
 	r, data, err := readRig(*rigPath)
 	if err != nil {
 		return err
@@ -488,7 +492,7 @@ func runRecord(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	if *block < 0 || (*block > 0 && r.Kind != rig.KindRoof) {
 		return usagef("--block %s: a positive duration, for roof rigs only", *block)
 	}
-	m := &Main{Rig: r, RigTOML: string(data), DBPath: *db, Addr: *addr, Token: *token, Logger: newLogger(stderr, *verbose),
+	m := &Main{Rig: r, RigTOML: string(data), DBPath: *db, Addr: *addr, Token: token, Logger: newLogger(stderr, *verbose),
 		Roof: estimate.RoofConfig{Block: *block}}
 	m.OnReady = func(url string, id uint64) {
 		fmt.Fprintf(stdout, "liftyard record: run %d of %q; dashboard on %s (Ctrl-C to stop)\n", id, r.Name, url)

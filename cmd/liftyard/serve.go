@@ -56,12 +56,12 @@ type serveOptions struct {
 
 // runServe is `liftyard serve --db FILE [--addr 127.0.0.1:8470] [--token T]`.
 func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) error {
-	fs := newFlags("serve", "--db FILE [--addr 127.0.0.1:8470] [--token T]",
+	fs := newFlags("serve", "--db FILE [--addr 127.0.0.1:8470] [--token-file FILE]",
 		"serve the dashboard for a stored database (runs, calibrations, marks), without recording", stdout)
 	var o serveOptions
 	fs.StringVar(&o.db, "db", "liftyard.db", "bbolt store file")
 	fs.StringVar(&o.addr, "addr", dashboard.DefaultAddr, "dashboard listen address")
-	fs.StringVar(&o.token, "token", "", "dashboard access token (required when --addr is not loopback)")
+	tokenOf := tokenFlags(fs)
 	fs.BoolVar(&o.verbose, "v", false, "log requests that fail to stderr")
 	pos, err := parseFlags(fs, args)
 	if err != nil {
@@ -69,6 +69,9 @@ func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 	}
 	if len(pos) > 0 {
 		return usagef("unexpected argument %q (see liftyard serve --help)", pos[0])
+	}
+	if o.token, err = tokenOf(o.addr, stderr); err != nil {
+		return err
 	}
 	o.onReady = func(url string) {
 		fmt.Fprintf(stdout, "liftyard serve: dashboard for %s on %s (Ctrl-C to stop)\n", o.db, url)
