@@ -165,7 +165,7 @@ func openBolt(path string, opts *bolt.Options) (db *bolt.DB, err error) {
 func openError(path string, err error) error {
 	switch {
 	case errors.Is(err, berrors.ErrTimeout):
-		return fmt.Errorf("database %s is in use by a running liftyard (record/demo); stop it or use its dashboard: %w", path, ErrLocked)
+		return fmt.Errorf("database %s is in use by another running liftyard (record, demo, serve, import, reprocess or marks --apply); stop it or use its dashboard: %w", path, ErrLocked)
 	case errors.Is(err, berrors.ErrInvalid), errors.Is(err, berrors.ErrChecksum),
 		errors.Is(err, berrors.ErrVersionMismatch), errors.Is(err, berrors.ErrInvalidMapping):
 		return fmt.Errorf("open store %q: not a readable store file (damaged, truncated or foreign): %w: %w", path, ErrCorrupt, err)
