@@ -223,7 +223,7 @@ func TestOpen_ErrLocked_SameProcess(t *testing.T) {
 		if !errors.Is(err, storage.ErrLocked) {
 			t.Fatalf("ReadOnly=%v: err = %v, want ErrLocked", ro, err)
 		}
-		want := "database " + path + " is in use by a running liftyard (record/demo); stop it or use its dashboard"
+		want := "database " + path + " is in use by another running liftyard (record, demo, serve, import, reprocess or marks --apply); stop it or use its dashboard"
 		if !strings.Contains(err.Error(), want) {
 			t.Errorf("message %q lacks %q", err, want)
 		}

@@ -188,7 +188,7 @@ func TestCalibrate_BadInput(t *testing.T) {
 	defer held.Close()
 	code, _, stderr := runCLI(t, "calibrate", "--channel", "n_fore", "--points", "../../testdata/calibration/pitot.csv", "--db", db)
 	assert.Equal(t, 1, code)
-	assert.Contains(t, stderr, "in use by a running liftyard")
+	assert.Contains(t, stderr, "in use by another running liftyard")
 }
 
 // promptWatcher is stdout for an interactive session: it keeps the text and
