@@ -37,19 +37,10 @@ func (s *Server) errorPage(w http.ResponseWriter, r *http.Request, status int, m
 	}
 	data := pageData{Title: heading, Nav: "", Token: !s.loopback.Load(),
 		Content: errorPageData{Status: status, Heading: heading, Message: msg, Retry: status >= 500, Caps: s.caps()}}
-	data.Caps = s.caps()
-	var buf strings.Builder
-	if err := s.pages.err.ExecuteTemplate(&buf, "base", data); err != nil {
+	if err := s.writePage(w, s.pages.err, status, data); err != nil {
 		s.log.Error("render error page", "err", err)
 		http.Error(w, msg, status)
-		return
 	}
-	h := w.Header()
-	h.Set("Content-Type", "text/html; charset=utf-8")
-	h.Set("Cache-Control", "no-store")
-	h.Set("Content-Security-Policy", pageCSP)
-	w.WriteHeader(status)
-	w.Write([]byte(buf.String()))
 }
 
 // withErrorPages puts the error page on the mux's own answers (no route

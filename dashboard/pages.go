@@ -67,11 +67,19 @@ func (s *Server) render(w http.ResponseWriter, r *http.Request, t *template.Temp
 // renderStatus is render with a status other than 200 (a page that says
 // what to fix in a request).
 func (s *Server) renderStatus(w http.ResponseWriter, r *http.Request, t *template.Template, status int, data pageData) {
+	if err := s.writePage(w, t, status, data); err != nil {
+		s.fail(w, r, fmt.Errorf("render %s: %w", t.Name(), err), false)
+	}
+}
+
+// writePage renders t with data into memory and, when that worked, sends
+// it with status and the page headers; on a template error nothing has
+// been written and the caller answers.
+func (s *Server) writePage(w http.ResponseWriter, t *template.Template, status int, data pageData) error {
 	data.Caps = s.caps()
 	var buf bytes.Buffer
 	if err := t.ExecuteTemplate(&buf, "base", data); err != nil {
-		s.fail(w, r, fmt.Errorf("render %s: %w", t.Name(), err), false)
-		return
+		return err
 	}
 	h := w.Header()
 	h.Set("Content-Type", "text/html; charset=utf-8")
@@ -79,6 +87,7 @@ func (s *Server) renderStatus(w http.ResponseWriter, r *http.Request, t *templat
 	h.Set("Content-Security-Policy", pageCSP)
 	w.WriteHeader(status)
 	buf.WriteTo(w)
+	return nil
 }
 
 // pageCSP is the Content-Security-Policy of every page: its own scripts,

@@ -56,17 +56,17 @@ func newCorrections(r *rig.Rig) *corrections {
 	}
 	c := &corrections{angle: r.Lift.AngleChannel, angleFixed: r.Lift.AngleRad, lastAngle: math.NaN()}
 	for _, t := range r.Tare {
-		s := scaleOf(r, t.Channel)
+		s := r.UnitScale(t.Channel)
 		c.tare = append(c.tare, tareSI{channel: t.Channel, coef: [3]float64{s * t.Coef[0], s * t.Coef[1], s * t.Coef[2]}})
 	}
 	if b := r.Balance; b != nil {
 		bs := &balanceSI{outputs: b.Outputs, components: b.Components,
 			m: calibrate.Balance{Components: len(b.Components), Outputs: len(b.Outputs), SecondOrder: b.SecondOrder(), C: b.Matrix}}
 		for _, o := range b.Outputs {
-			bs.inScale = append(bs.inScale, scaleOf(r, o))
+			bs.inScale = append(bs.inScale, r.UnitScale(o))
 		}
 		for _, k := range b.Components {
-			bs.outScale = append(bs.outScale, scaleOf(r, k))
+			bs.outScale = append(bs.outScale, r.UnitScale(k))
 		}
 		// Apply needs a covariance of the right shape; the matrix's
 		// uncertainty enters the budget through [balance] u instead.
@@ -81,15 +81,6 @@ func newCorrections(r *rig.Rig) *corrections {
 		c.bal = bs
 	}
 	return c
-}
-
-// scaleOf is the factor from a channel's Unit to SI (force and moment
-// units have no offset).
-func scaleOf(r *rig.Rig, name string) float64 {
-	if ch, ok := r.Channel(name); ok && ch.ToSI.Scale != 0 {
-		return ch.ToSI.Scale
-	}
-	return 1
 }
 
 // alphaAt returns the angle of sample i of b: the block's own angle
@@ -222,7 +213,7 @@ func correctionInputs(r *rig.Rig) []estimate.CorrectionInput {
 	if len(r.Tare) > 0 {
 		u := map[string]float64{}
 		for _, t := range r.Tare {
-			u[t.Channel] = scaleOf(r, t.Channel) * t.U
+			u[t.Channel] = r.UnitScale(t.Channel) * t.U
 		}
 		if b := r.Balance; b != nil {
 			// Map the output-space tare u through the matrix's linear terms.
@@ -233,8 +224,8 @@ func correctionInputs(r *rig.Rig) []estimate.CorrectionInput {
 			for k, comp := range b.Components {
 				s := 0.0
 				for j, o := range b.Outputs {
-					uj := u[o] / scaleOf(r, o)
-					s += math.Pow(b.Matrix[k][j]*uj*scaleOf(r, comp), 2)
+					uj := u[o] / r.UnitScale(o)
+					s += math.Pow(b.Matrix[k][j]*uj*r.UnitScale(comp), 2)
 				}
 				mapped[comp] = math.Sqrt(s)
 			}
@@ -246,7 +237,7 @@ func correctionInputs(r *rig.Rig) []estimate.CorrectionInput {
 		u := map[string]float64{}
 		for k, comp := range b.Components {
 			if k < len(b.U) {
-				u[comp] = scaleOf(r, comp) * b.U[k]
+				u[comp] = r.UnitScale(comp) * b.U[k]
 			}
 		}
 		out = append(out, estimate.CorrectionInput{Name: "balance interaction matrix", NormalUN: role(r.Lift.Normal, u), AxialUN: role(r.Lift.Axial, u)})

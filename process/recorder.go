@@ -311,11 +311,15 @@ func (rec *Recorder) Finish(ctx context.Context, runErr error, sources []acquire
 	if errors.Is(runErr, context.Canceled) || errors.Is(runErr, context.DeadlineExceeded) {
 		runErr = nil
 	}
-	if rec.p.zeros != nil && runErr == nil {
-		// Say in the run's log, which the report shows, when the run has no
-		// proper flow-off zero; the values then carry the zero offsets.
-		if _, err := rec.p.Drift(); err != nil {
-			rec.Event(acquire.Event{Kind: EventFlowOffZero, Message: "no zero-drift correction: " + err.Error()})
+	// The zero drift between the flow-off zeros before and after, taken
+	// once: said in the run's log (which the report shows) when the run has
+	// no proper flow-off zero — the values then carry the zero offsets —
+	// and applied below when it has.
+	var drift calibrate.Drift
+	var driftErr error
+	if rec.p.zeros != nil {
+		if drift, driftErr = rec.p.Drift(); driftErr != nil && runErr == nil {
+			rec.Event(acquire.Event{Kind: EventFlowOffZero, Message: "no zero-drift correction: " + driftErr.Error()})
 		}
 	}
 	close(rec.items)
@@ -331,7 +335,7 @@ func (rec *Recorder) Finish(ctx context.Context, runErr error, sources []acquire
 	ferr := errors.Join(rec.store.FinishRun(rec.runID, rec.cfg.Now(), fin.Status, sources),
 		rec.store.SetRunChannels(rec.runID, rec.p.Channels(), rec.p.Loads()))
 	if ferr == nil && werr == nil && rec.p.zeros != nil {
-		ferr = rec.correctZeroDrift(context.WithoutCancel(ctx), &fin)
+		ferr = rec.correctZeroDrift(context.WithoutCancel(ctx), &fin, drift, driftErr)
 	}
 	if werr != nil && errors.Is(runErr, rec.wfail) {
 		werr = nil // the caller's error already says it (StoreFailed)
@@ -342,10 +346,9 @@ func (rec *Recorder) Finish(ctx context.Context, runErr error, sources []acquire
 // correctZeroDrift applies the flow-off zeros before and after the run: the
 // segments are recomputed from the stored raw blocks with the zero drift
 // removed, and the drift is stored and reported.
-func (rec *Recorder) correctZeroDrift(ctx context.Context, fin *Finished) error {
-	d, err := rec.p.Drift()
-	if err != nil {
-		fin.ZeroNote = "no zero-drift correction: " + err.Error()
+func (rec *Recorder) correctZeroDrift(ctx context.Context, fin *Finished, d calibrate.Drift, derr error) error {
+	if derr != nil {
+		fin.ZeroNote = "no zero-drift correction: " + derr.Error()
 		rec.log.Info(fin.ZeroNote, "run", rec.runID)
 		return nil
 	}

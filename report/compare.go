@@ -208,34 +208,11 @@ func (c *Comparison) overlay(drag bool) (*plot.Plot, error) {
 // addRunPoints draws one run's points with U95 bars in both directions in
 // the run's colour and glyph.
 func addRunPoints(p *plot.Plot, pts *errPts, i int, id uint64) error {
-	col := runColours[i%len(runColours)]
-	sc, err := plotter.NewScatter(pts.XYs)
-	if err != nil {
-		return err
-	}
-	sc.GlyphStyle.Color, sc.GlyphStyle.Shape, sc.GlyphStyle.Radius = col, runGlyphs[i%len(runGlyphs)], vg.Points(2.8)
-	yb, err := plotter.NewYErrorBars(struct {
-		plotter.XYs
-		plotter.YErrors
-	}{pts.XYs, pts.YErrors})
-	if err != nil {
-		return err
-	}
-	xb, err := plotter.NewXErrorBars(struct {
-		plotter.XYs
-		plotter.XErrors
-	}{pts.XYs, pts.XErrors})
-	if err != nil {
-		return err
-	}
-	yb.LineStyle.Color, xb.LineStyle.Color = col, col
-	p.Add(yb, xb, sc)
 	legend := "run " + strconv.FormatUint(id, 10)
 	if i == 0 {
 		legend += " (reference)"
 	}
-	p.Legend.Add(legend+" ± U95", sc)
-	return nil
+	return drawPoints(p, pts, true, runColours[i%len(runColours)], runGlyphs[i%len(runGlyphs)], vg.Points(2.8), legend+" ± U95")
 }
 
 // DiffDoc is one point of a pair in the comparison's JSON (Doc).

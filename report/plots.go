@@ -120,13 +120,17 @@ func padY(lo, hi float64) (float64, float64) {
 
 // addPoints draws points with error bars (x bars only when xBars).
 func addPoints(p *plot.Plot, pts *errPts, xBars bool, legend string) error {
+	return drawPoints(p, pts, xBars, colPoints, draw.CircleGlyph{}, vg.Points(2.5), legend)
+}
+
+// drawPoints draws points in colour col with glyph shape, their U95 bars
+// in y (and in x when xBars), and a legend entry.
+func drawPoints(p *plot.Plot, pts *errPts, xBars bool, col color.Color, shape draw.GlyphDrawer, radius vg.Length, legend string) error {
 	sc, err := plotter.NewScatter(pts.XYs)
 	if err != nil {
 		return err
 	}
-	sc.GlyphStyle.Color = colPoints
-	sc.GlyphStyle.Shape = draw.CircleGlyph{}
-	sc.GlyphStyle.Radius = vg.Points(2.5)
+	sc.GlyphStyle.Color, sc.GlyphStyle.Shape, sc.GlyphStyle.Radius = col, shape, radius
 	yb, err := plotter.NewYErrorBars(struct {
 		plotter.XYs
 		plotter.YErrors
@@ -134,7 +138,7 @@ func addPoints(p *plot.Plot, pts *errPts, xBars bool, legend string) error {
 	if err != nil {
 		return err
 	}
-	yb.LineStyle.Color = colPoints
+	yb.LineStyle.Color = col
 	p.Add(yb)
 	if xBars {
 		xb, err := plotter.NewXErrorBars(struct {
@@ -144,7 +148,7 @@ func addPoints(p *plot.Plot, pts *errPts, xBars bool, legend string) error {
 		if err != nil {
 			return err
 		}
-		xb.LineStyle.Color = colPoints
+		xb.LineStyle.Color = col
 		p.Add(xb)
 	}
 	p.Add(sc)

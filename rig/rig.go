@@ -255,6 +255,16 @@ func (r *Rig) Channel(name string) (Channel, bool) {
 	return Channel{}, false
 }
 
+// UnitScale is the factor from channel name's Unit to SI (ToSI.Scale; the
+// offset of a temperature unit is left out, as a difference needs), or 1
+// for a channel the rig does not declare.
+func (r *Rig) UnitScale(name string) float64 {
+	if ch, ok := r.Channel(name); ok && ch.ToSI.Scale != 0 {
+		return ch.ToSI.Scale
+	}
+	return 1
+}
+
 // Deg converts radians to degrees, for display and export (radians inside,
 // degrees only at the boundary). Deg and Rad are liftyard's one pair of
 // angle converters; a slope per rad times Rad(1) is a slope per degree.

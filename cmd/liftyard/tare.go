@@ -69,7 +69,7 @@ func printTareHolds(w io.Writer, sw process.TareSweep) {
 		row := []string{strconv.Itoa(i + 1), fmt.Sprintf("%.3f", rig.Deg(h.AlphaRad)),
 			fmt.Sprintf("%.1f", h.End.Sub(h.Start).Seconds()), fmt.Sprintf("%.3g", h.QPa)}
 		for _, c := range sw.Channels {
-			row = append(row, fmt.Sprintf("%.5g", h.Readings[c]/scaleOf(sw.Rig, c)))
+			row = append(row, fmt.Sprintf("%.5g", h.Readings[c]/sw.Rig.UnitScale(c)))
 		}
 		fmt.Fprintln(tw, strings.Join(row, "\t")+"\t")
 	}
@@ -88,21 +88,13 @@ func printTareTOML(w io.Writer, id uint64, sw process.TareSweep) {
 	fmt.Fprintf(w, "# Outside that range the tare is extrapolated. Paste into the rig file (docs/rig-file.md).\n")
 	for _, c := range sw.Channels {
 		f := sw.Fit.Channels[c]
-		s := scaleOf(sw.Rig, c)
+		s := sw.Rig.UnitScale(c)
 		fmt.Fprintf(w, "\n[[tare]]\nchannel = %q\ncoef    = [%s, %s, %s]   # %s: a + b·sin α + c·cos α\nu       = %s   # %s (the larger of the fit's residual SD, %d degrees of freedom, and the holds' standard error)\n",
 			c, num6(f.Coef[0]/s), num6(f.Coef[1]/s), num6(f.Coef[2]/s), unitOf(sw.Rig, c), num6(sw.U[c]/s), unitOf(sw.Rig, c), f.Dof)
 	}
 }
 
 func num6(v float64) string { return strconv.FormatFloat(v, 'g', 6, 64) }
-
-// scaleOf is the factor from a channel's file unit to SI (1 when unknown).
-func scaleOf(r *rig.Rig, name string) float64 {
-	if ch, ok := r.Channel(name); ok && ch.ToSI.Scale != 0 {
-		return ch.ToSI.Scale
-	}
-	return 1
-}
 
 func unitOf(r *rig.Rig, name string) string {
 	if ch, ok := r.Channel(name); ok && ch.Unit != "" {
