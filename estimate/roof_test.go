@@ -888,4 +888,3 @@ func TestRoof_DesignLikeWithLike(t *testing.T) {
 		t.Logf("%s: result %.3f design %.3f En %.2f (%s)", tc.name, m, s.DesignCp.X, s.En, estimate.DesignSide(s.En))
 	}
 }
-
