@@ -205,7 +205,7 @@ func TestRecorder_StoreFailureIsLoud(t *testing.T) {
 				// Give the writer time to hit the closed file before the
 				// file runs out.
 				select {
-				case <-rec.WriterDone():
+				case <-rec.StoreChanged():
 				case <-time.After(20 * time.Millisecond):
 				}
 			}
@@ -217,7 +217,11 @@ func TestRecorder_StoreFailureIsLoud(t *testing.T) {
 	select {
 	case err := <-done:
 		require.Error(t, err)
-		assert.ErrorContains(t, err, "store stopped taking data")
+		assert.ErrorContains(t, err, "store is not taking data")
+		assert.ErrorContains(t, err, "could not be stored")
+		acc := rec.Accounting()
+		assert.Equal(t, acc.Received, acc.Stored+acc.Rejected+acc.Dropped+acc.Lost, "%s", acc)
+		assert.Positive(t, acc.Lost, "%s", acc)
 		t.Log(err)
 	case <-time.After(30 * time.Second):
 		t.Fatal("the recorder hung on a failed store")
