@@ -71,8 +71,8 @@ type Recorder struct {
 	lost     atomic.Uint64 // results and events not stored because the writer had returned
 	changed  chan struct{} // the writer's state changed (buffered, 1)
 	expired  []acquire.Event
-	log     *slog.Logger
-	done    bool
+	log      *slog.Logger
+	done     bool
 }
 
 // NewRecorder checks that the rig can be processed (calibrations, stage,

@@ -297,9 +297,9 @@ func (w *Writer) Run(ctx context.Context, in <-chan Item) error {
 		return errors.New("storage writer: Run called twice")
 	}
 	var (
-		b      batch
-		timer  = time.NewTimer(time.Hour)
-		timerC <-chan time.Time
+		b       batch
+		timer   = time.NewTimer(time.Hour)
+		timerC  <-chan time.Time
 		lastErr error
 	)
 	timer.Stop()
