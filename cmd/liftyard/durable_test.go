@@ -31,10 +31,11 @@ import (
 // child is a liftyard run by the test binary itself (TestChildMain) whose
 // output lines are kept with the time each arrived.
 type child struct {
-	cmd  *exec.Cmd
-	mu   sync.Mutex
-	out  []line
-	done chan struct{} // closed when both pipes are drained
+	cmd    *exec.Cmd
+	mu     sync.Mutex
+	out    []line
+	exited chan struct{} // closed when the child has exited and its output is read
+	err    error         // cmd.Wait's, set before exited closes
 }
 
 type line struct {
@@ -49,7 +50,7 @@ func spawn(t *testing.T, fsize int64, args ...string) *child {
 	t.Helper()
 	js, err := json.Marshal(args)
 	require.NoError(t, err)
-	c := &child{cmd: exec.Command(os.Args[0], "-test.run=^TestChildMain$"), done: make(chan struct{})}
+	c := &child{cmd: exec.Command(os.Args[0], "-test.run=^TestChildMain$"), exited: make(chan struct{})}
 	c.cmd.Env = append(os.Environ(), childEnv+"="+string(js))
 	if fsize > 0 {
 		c.cmd.Env = append(c.cmd.Env, childFileSizeEnv+"="+strconv.FormatInt(fsize, 10))
@@ -59,7 +60,7 @@ func spawn(t *testing.T, fsize int64, args ...string) *child {
 	stderr, err := c.cmd.StderrPipe()
 	require.NoError(t, err)
 	require.NoError(t, c.cmd.Start())
-	t.Cleanup(func() { _ = c.cmd.Process.Kill(); <-c.done; _ = c.cmd.Wait() })
+	t.Cleanup(func() { _ = c.cmd.Process.Kill(); <-c.exited })
 	var wg sync.WaitGroup
 	for _, p := range []struct {
 		r   io.Reader
@@ -75,7 +76,7 @@ func spawn(t *testing.T, fsize int64, args ...string) *child {
 			}
 		})
 	}
-	go func() { wg.Wait(); close(c.done) }()
+	go func() { wg.Wait(); c.err = c.cmd.Wait(); close(c.exited) }()
 	return c
 }
 
@@ -108,22 +109,26 @@ func (c *child) text() string {
 	return b.String()
 }
 
-// wait waits up to within for the child to exit (the test fails and the
-// child is killed otherwise) and returns its exit status.
+// wait waits up to within for the child to exit and returns its exit
+// status. A child that hangs fails the test: it gets SIGQUIT first, so
+// that its goroutines are in the output, then SIGKILL.
 func (c *child) wait(t *testing.T, within time.Duration) int {
 	t.Helper()
-	done := make(chan error, 1)
-	go func() { <-c.done; done <- c.cmd.Wait() }()
 	select {
-	case err := <-done:
+	case <-c.exited:
 		var ee *exec.ExitError
-		if errors.As(err, &ee) {
+		if errors.As(c.err, &ee) {
 			return ee.ExitCode()
 		}
-		require.NoError(t, err)
+		require.NoError(t, c.err)
 		return 0
 	case <-time.After(within):
-		_ = c.cmd.Process.Kill()
+		_ = c.cmd.Process.Signal(syscall.SIGQUIT)
+		select {
+		case <-c.exited:
+		case <-time.After(5 * time.Second):
+			_ = c.cmd.Process.Kill()
+		}
 		t.Fatalf("child hung: not exited within %s; output:\n%s", within, c.text())
 		return -1
 	}
@@ -282,8 +287,10 @@ func runsJSON(t *testing.T, db string) []storage.Run {
 // and every sample received is either stored or counted as lost (issue 16).
 func TestRecord_DiskFull(t *testing.T) {
 	db := filepath.Join(t.TempDir(), "full.db")
-	limit := nearlyFullStore(t, db, 256<<10)
-	rigPath := simRigFile(t, 2000) // 6 channels at 2 kHz: about 100 kB/s
+	limit := nearlyFullStore(t, db, 64<<10)
+	// 6 channels at 500 Hz: about 25 kB/s, so the room lasts a few seconds;
+	// slow enough for a race-instrumented recorder on a busy machine.
+	rigPath := simRigFile(t, 500)
 	c := spawn(t, limit, "record", "--rig", rigPath, "--db", db, "--addr", "127.0.0.1:0", "--for", "60s")
 	fail := c.waitLine(t, "the store failed to commit", 30*time.Second)
 	assert.True(t, fail.stderr, "the failure is on stderr")

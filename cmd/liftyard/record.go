@@ -297,11 +297,15 @@ func (g *liveGate) block(rec *process.Recorder, pub publisher) {
 	}
 }
 
-func (g *liveGate) publish(rec *process.Recorder, pub publisher, now time.Time) {
+func (g *liveGate) publish(rec *process.Recorder, pub publisher, _ time.Time) {
 	if l, ok := rec.Live(); ok {
 		pub.live(l)
 	}
-	g.last = now
+	// Counted from the end of the estimate: on a machine where one takes
+	// longer than livePeriod, the loop still gets livePeriod for the blocks
+	// between two (and a Ctrl-C drains the queue) instead of estimating
+	// after every block.
+	g.last = time.Now()
 }
 
 // startSources runs every source into one bounded channel, closed when
