@@ -241,7 +241,7 @@ loop:
 			// now. The recording goes on: the writer holds the data and
 			// retries, and Finish says what could not be stored.
 			pub.health(m.health(rec))
-			live.publish(rec, pub, time.Now())
+			live.publish(rec, pub)
 		case b, ok := <-raw:
 			if !ok {
 				break loop
@@ -288,16 +288,16 @@ func (g *liveGate) age(rec *process.Recorder, pub publisher, health func() dashb
 		pub.health(health())
 	}
 	g.stale = stale
-	g.publish(rec, pub, now)
+	g.publish(rec, pub)
 }
 
 func (g *liveGate) block(rec *process.Recorder, pub publisher) {
 	if now := time.Now(); now.Sub(g.last) >= livePeriod {
-		g.publish(rec, pub, now)
+		g.publish(rec, pub)
 	}
 }
 
-func (g *liveGate) publish(rec *process.Recorder, pub publisher, _ time.Time) {
+func (g *liveGate) publish(rec *process.Recorder, pub publisher) {
 	if l, ok := rec.Live(); ok {
 		pub.live(l)
 	}
