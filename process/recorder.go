@@ -148,8 +148,9 @@ func (rec *Recorder) Block(b acquire.Block) Step {
 // Keep stores a stepped block (nil: none), its events and its segments. A
 // segment is never dropped while the store works; a live raw block is
 // dropped (and counted) rather than waited for. Keep has the signature
-// Replay's each wants: it fails once the store's writer has stopped on an
-// error, so an offline replay stops there.
+// Replay's each wants: it fails while the store's commits fail
+// (StoreFailed), so an offline replay stops there; a live recording ignores
+// it and goes on (the writer holds the data and retries).
 func (rec *Recorder) Keep(b *acquire.Block, st Step) error {
 	for _, ev := range st.Events {
 		rec.Event(ev)
@@ -359,7 +360,8 @@ type Finished struct {
 // Finish waits for the writer's last commit and stores how the run ended
 // with the final health of its sources. runErr is the error that ended the
 // data (nil for a normal end; cancellation counts as normal): with one, or
-// a failed commit, the run is stored interrupted. A complete run whose
+// when the store lost data, the run is stored interrupted, and the error
+// carries the Accounting. A complete run whose
 // flow-off zeros were taken before and after is then re-processed from its
 // stored raw blocks with the drift removed (storage.CorrectRun). Finish
 // returns the errors of the writer and of finishing; calling it twice does
