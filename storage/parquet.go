@@ -240,7 +240,7 @@ func (s *Store) writeAlignedParquet(w io.Writer, id uint64, run Run, what string
 // newParquetWriter makes a writer for the schema of fields, with Snappy
 // compression (read by every engine) and row groups of at most groupRows.
 // A bad configuration is an error, never a panic.
-func newParquetWriter(w io.Writer, fields orderedGroup, groupRows int64, meta []parquet.WriterOption) (*parquet.Writer, error) {
+func newParquetWriter(w io.Writer, fields orderedGroup, groupRows int64, meta []parquet.WriterOption) (*parquet.GenericWriter[any], error) {
 	opts := append([]parquet.WriterOption{
 		parquet.NewSchema("liftyard", fields),
 		parquet.Compression(&parquet.Snappy),
@@ -251,7 +251,7 @@ func newParquetWriter(w io.Writer, fields orderedGroup, groupRows int64, meta []
 	if err != nil {
 		return nil, fmt.Errorf("parquet writer: %w", err)
 	}
-	return parquet.NewWriter(w, cfg), nil
+	return parquet.NewGenericWriter[any](w, cfg), nil
 }
 
 // ExportSegmentsParquet writes the result rows of run as one Parquet file:
