@@ -129,4 +129,3 @@ func BenchmarkExportRaw(b *testing.B) {
 		b.Run(fmt.Sprintf("csv_%dmin", minutes), func(b *testing.B) { benchExport(b, minutes, csvRaw) })
 	}
 }
-
