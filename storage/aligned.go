@@ -26,12 +26,14 @@ import (
 //     AlignedT0Us − T0Us of the source's first block, taken again after a
 //     gap, a change of rate or a clock step, exactly as estimate.Estimator
 //     dates its samples, so exported times and segment times agree.
-//   - A channel of another source takes, at each row, that source's latest
-//     sample at or before the row's instant on the host timeline, if it is
-//     less than one of that source's sample periods old; otherwise the cell
-//     is blank. No value is invented (every cell is a reading as received,
-//     bit for bit), no future sample is used, and a source that stopped or
-//     had a gap shows blank rather than a stale value.
+//   - A channel of another source takes, at each row, that source's reading
+//     nearest to the row's instant on the host timeline (the earlier on a
+//     tie), if it is less than one of that source's sample periods away;
+//     otherwise the cell is blank. No value is invented (every cell is a
+//     reading as received, bit for bit), no systematic lag is added (a
+//     "latest before" rule would lag half a period on average, and a lag
+//     between loads and q biases C_L in turbulence), and a source that
+//     stopped or had a gap shows blank rather than a stale value.
 
 // gapUs is the gap in a timeline source's device time after which its
 // wall-clock offset is taken again (the estimator's tick).
@@ -270,10 +272,10 @@ type lane struct {
 	done   bool
 }
 
-// fill reads ln's source until it has reached untilUs or has ended,
+// fill reads ln's source until it holds a sample after untilUs or has ended,
 // dropping the blocks no row at or after floorUs can read.
 func (ln *lane) fill(untilUs, floorUs int64) error {
-	for !ln.done && (!ln.seen || ln.markUs < untilUs) {
+	for !ln.done && (!ln.seen || ln.markUs <= untilUs) {
 		b, ok, err := ln.cur.next()
 		if err != nil {
 			return err
@@ -291,30 +293,53 @@ func (ln *lane) fill(untilUs, floorUs int64) error {
 	return nil
 }
 
-// fillFromLane writes, into cells, the values of ln's latest sample at or
-// before at when it is less than one sample period old, and drops the
-// blocks no later row can need (rows come in time order).
+// fillFromLane writes, into cells, the values of ln's reading nearest to
+// at (the earlier on a tie) when it is less than one of its sample periods
+// away; otherwise the cells stay blank. It drops the blocks no later row
+// can need (rows come in time order). The lane holds a sample after at
+// (lane.fill), so both neighbours of at are at hand.
 func fillFromLane(ln *lane, at int64, cells []float64) {
 	trimLane(ln, at)
 	if len(ln.blocks) == 0 {
 		return
 	}
+	type pick struct {
+		b *alignedBlock
+		i int
+	}
+	var before, after *pick
 	b := ln.blocks[0]
 	if b.at(0) > at {
-		return
-	}
-	i := int((at - b.alignedT0Us) / b.dtUs)
-	if i >= b.n {
-		i = b.n - 1
-	}
-	if at-b.at(i) >= b.dtUs {
-		return // a gap, or the source ended: blank
-	}
-	for k, sr := range b.series {
-		if c := b.seriesCol[k]; c >= 0 && i < len(sr.v) {
-			cells[c] = sr.v[i]
+		after = &pick{b, 0}
+	} else {
+		i := min(int((at-b.alignedT0Us)/b.dtUs), b.n-1)
+		before = &pick{b, i}
+		switch {
+		case i+1 < b.n:
+			after = &pick{b, i + 1}
+		case len(ln.blocks) > 1:
+			after = &pick{ln.blocks[1], 0}
 		}
 	}
+	best := before
+	if best == nil || (after != nil && after.b.at(after.i)-at < at-best.b.at(best.i)) {
+		best = after
+	}
+	if best == nil || abs64(best.b.at(best.i)-at) >= best.b.dtUs {
+		return // a gap, or the source has not started or has ended: blank
+	}
+	for k, sr := range best.b.series {
+		if c := best.b.seriesCol[k]; c >= 0 && best.i < len(sr.v) {
+			cells[c] = sr.v[best.i]
+		}
+	}
+}
+
+func abs64(x int64) int64 {
+	if x < 0 {
+		return -x
+	}
+	return x
 }
 
 // trimLane drops the blocks of ln that no row at or after floor can

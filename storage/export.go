@@ -92,9 +92,9 @@ func exportSegmentsCSV(w io.Writer, run Run, rows []estimate.Row) error {
 // "Raw CSV", docs/export.md): a header t_s,<column>,..., then one row per
 // sample time of the run's timeline source on the aligned UTC timeline
 // (aligned.go): t_s is Unix time in seconds with microsecond digits,
-// written exactly; a cell of another source is that source's latest
-// reading at or before the row's instant when less than one of its sample
-// periods old, else blank; a blank cell is also a NaN reading. Every
+// written exactly; a cell of another source is that source's reading
+// nearest the row's instant when less than one of its sample periods
+// away, else blank; a blank cell is also a NaN reading. Every
 // reading is written with the fewest digits that give its float64 back
 // bit for bit.
 //

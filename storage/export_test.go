@@ -169,9 +169,9 @@ func TestExportSegments_Formats(t *testing.T) {
 
 // Ensure that the raw export of two sources at different rates writes one
 // row per sample of the timeline source (balance: the first by name when
-// the run has no rig file), each pitot cell the latest pitot reading at or
-// before the row within one pitot period (1.5 ms), else blank; columns say
-// their source; and matches its golden.
+// the run has no rig file), each pitot cell the pitot reading nearest the
+// row (the earlier on a tie) when less than one pitot period (1.5 ms)
+// away, else blank; columns say their source; and matches its golden.
 func TestExportRaw_Golden(t *testing.T) {
 	s := MustOpenStore(t)
 	id := mustCreateRun(t, s)
@@ -200,7 +200,7 @@ func TestExportRaw_Golden(t *testing.T) {
 		t.Errorf("header %q", recs[0])
 	}
 	// balance at 1.000000, .001, .002, .003, .004; pitot at .0005, .002, .0035
-	want := []string{"", "201.4", "201.9", "201.9", "202.25"}
+	want := []string{"201.4", "201.4", "201.9", "202.25", "202.25"}
 	if len(recs) != 1+len(want) {
 		t.Fatalf("%d rows, want %d", len(recs)-1, len(want))
 	}

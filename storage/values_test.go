@@ -16,8 +16,8 @@ import (
 
 // Ensure that the values export calibrates every sample with the given
 // calibrator, names each column with its source and SI unit, writes the
-// rows of the timeline source (balance) with the other source's latest value
-// within one of its periods, and leaves a blank where there is none.
+// rows of the timeline source (balance) with the other source's nearest
+// value within one of its periods, and leaves a blank where there is none.
 func TestExportValues(t *testing.T) {
 	s := MustOpenStore(t)
 	id := mustCreateRun(t, s)
@@ -56,11 +56,12 @@ func TestExportValues(t *testing.T) {
 		v, _ := strconv.ParseFloat(s, 64)
 		return v
 	}
-	// pitot samples at 2.0015 and 2.0025: only the first is at or before a
-	// balance row (2.002, 0.5 ms old).
+	// pitot samples (period 1 ms) at 2.0015 and 2.0025: none within 1 ms
+	// of 2.000; 2.0015 nearest to 2.001, and the earlier of the two 0.5 ms
+	// from 2.002.
 	want := [][4]float64{
 		{2.000000, 0, 12.5, math.NaN()},
-		{2.001, 2 * math.Pi / 180, math.NaN(), math.NaN()},
+		{2.001, 2 * math.Pi / 180, math.NaN(), 200},
 		{2.002, 4 * math.Pi / 180, 17.5, 200},
 	}
 	if len(recs)-1 != len(want) {

@@ -52,9 +52,9 @@ channels = ["pitot"]
 // twoSourceCase is one way the two devices' clocks and links differ.
 type twoSourceCase struct {
 	name string
-	// pitotEvery keeps every n-th simulator sample for the pitot node
-	// (2: the node samples at 50 Hz beside the amplifier's 100 Hz).
-	pitotEvery int
+	// ampEvery and pitotEvery keep every n-th simulator sample (100 Hz)
+	// for the amplifier and the pitot node (2: 50 Hz).
+	ampEvery, pitotEvery int
 	// device clocks (µs at the first sample) and minimum link delays
 	ampT0Us, pitotT0Us   int64
 	ampDelay, pitotDelay time.Duration
@@ -63,10 +63,13 @@ type twoSourceCase struct {
 var twoSourceCases = []twoSourceCase{
 	// The issue 15 report: amplifier from power-up at 3600 s, pitot node at
 	// 777 s, the node slower and on Wi-Fi.
-	{"pitot 50 Hz over Wi-Fi", 2, 3600_000_000, 777_000_000, time.Millisecond, 8 * time.Millisecond},
+	{"pitot 50 Hz over Wi-Fi", 1, 2, 3600_000_000, 777_000_000, time.Millisecond, 8 * time.Millisecond},
 	// Same rate, pitot clock on Unix time but 2.3 s off and 3 ms out of
 	// phase with the amplifier's samples.
-	{"pitot 100 Hz, Unix clock off by 2.3 s", 1, 120_000_000, 0, 2 * time.Millisecond, 25 * time.Millisecond},
+	{"pitot 100 Hz, Unix clock off by 2.3 s", 1, 1, 120_000_000, 0, 2 * time.Millisecond, 25 * time.Millisecond},
+	// The pitot faster than the balance: the export thins it to the
+	// reading nearest each balance sample.
+	{"balance 50 Hz, pitot 100 Hz", 2, 1, 60_000_000, 5_000_000, 3 * time.Millisecond, 4 * time.Millisecond},
 }
 
 // recordTwoSources builds the stored run of the two-source rig through the
@@ -91,18 +94,21 @@ func recordTwoSources(t *testing.T, c twoSourceCase, rigText string) (string, ui
 	for range importBlocks {
 		b := s.Next()
 		elapsed := b.T0Us - start.UnixMicro() // true time of sample 0 since start
-		amp := acquire.Block{Source: "amp", Seq: b.Seq, T0Us: c.ampT0Us + elapsed, DtUs: b.DtUs}
+		amp := acquire.Block{Source: "amp", Seq: b.Seq, T0Us: c.ampT0Us + elapsed, DtUs: b.DtUs * int64(c.ampEvery)}
 		pit := acquire.Block{Source: "pitotnode", Seq: b.Seq, T0Us: pitotT0 + elapsed, DtUs: b.DtUs * int64(c.pitotEvery)}
+		every := func(raw []float64, n int) []float64 {
+			var v []float64
+			for i := 0; i < len(raw); i += n {
+				v = append(v, raw[i])
+			}
+			return v
+		}
 		for _, sr := range b.Series {
 			if sr.Channel != "pitot" {
-				amp.Series = append(amp.Series, sr)
+				amp.Series = append(amp.Series, acquire.Series{Channel: sr.Channel, Raw: every(sr.Raw, c.ampEvery)})
 				continue
 			}
-			var v []float64
-			for i := 0; i < len(sr.Raw); i += c.pitotEvery {
-				v = append(v, sr.Raw[i])
-			}
-			pit.Series = []acquire.Series{{Channel: "pitot", Raw: v}}
+			pit.Series = []acquire.Series{{Channel: "pitot", Raw: every(sr.Raw, c.pitotEvery)}}
 		}
 		lastTrue := func(bl acquire.Block) time.Time {
 			return start.Add(time.Duration(elapsed+int64(bl.Len()-1)*bl.DtUs) * time.Microsecond)
@@ -204,8 +210,8 @@ func TestExportRaw_TwoSourcesImportGivesSameSegments(t *testing.T) {
 				filled++
 			}
 			t.Logf("%d rows, %d with a pitot value", len(recs)-1, filled)
-			require.Equal(t, importBlocks*10, len(recs)-1, "one row per amplifier sample")
-			require.Greater(t, filled, (len(recs)-1)*9/10, "the pitot is blank only where it had not started")
+			require.Equal(t, importBlocks*10/c.ampEvery, len(recs)-1, "one row per amplifier sample")
+			require.Greater(t, filled, (len(recs)-1)*9/10, "the pitot is blank only at the ends of the run")
 		})
 	}
 }
