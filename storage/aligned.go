@@ -137,6 +137,30 @@ func (s *Store) planAligned(id uint64, r *rig.Rig, keep func([]string) []string)
 	return p, nil
 }
 
+// runPlan reads run id, its stored rig file (nil when none) and the plan
+// of its sample exports with every channel of every source.
+func (s *Store) runPlan(id uint64) (Run, *rig.Rig, alignedPlan, error) {
+	run, err := s.Run(id)
+	if err != nil {
+		return Run{}, nil, alignedPlan{}, err
+	}
+	r, err := rigOf(run)
+	if err != nil {
+		return Run{}, nil, alignedPlan{}, err
+	}
+	p, err := s.planAligned(id, r, nil)
+	return run, r, p, err
+}
+
+// name is the column name of c in an export: base (the channel, or its
+// values column), prefixed with the source when the run has several.
+func (p alignedPlan) name(c alignedColumn, base string) string {
+	if p.multi {
+		return SourceColumn(c.Source, base)
+	}
+	return base
+}
+
 // alignedBlock is one converted block placed on the host timeline.
 type alignedBlock struct {
 	sampleBlock

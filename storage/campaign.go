@@ -36,15 +36,7 @@ func CampaignPath(run Run, day time.Time, what string) string {
 // UTC as the pipeline maps it. A run without samples gives its Started
 // time.
 func (s *Store) DataStart(id uint64) (time.Time, error) {
-	run, err := s.Run(id)
-	if err != nil {
-		return time.Time{}, err
-	}
-	r, err := rigOf(run)
-	if err != nil {
-		return time.Time{}, err
-	}
-	p, err := s.planAligned(id, r, nil)
+	run, _, p, err := s.runPlan(id)
 	if err != nil {
 		return time.Time{}, err
 	}

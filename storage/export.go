@@ -105,25 +105,13 @@ func exportSegmentsCSV(w io.Writer, run Run, rows []estimate.Row) error {
 // read in short chunks, so a long run streams with bounded memory; no read
 // transaction is held while w is written.
 func (s *Store) ExportRaw(w io.Writer, id uint64) error {
-	run, err := s.Run(id)
-	if err != nil {
-		return fmt.Errorf("export raw run %d: %w", id, err)
-	}
-	r, err := rigOf(run)
-	if err != nil {
-		return fmt.Errorf("export raw run %d: %w", id, err)
-	}
-	p, err := s.planAligned(id, r, nil)
+	_, _, p, err := s.runPlan(id)
 	if err != nil {
 		return fmt.Errorf("export raw run %d: %w", id, err)
 	}
 	header := []string{"t_s"}
 	for _, c := range p.cols {
-		if p.multi {
-			header = append(header, SourceColumn(c.Source, c.Channel))
-		} else {
-			header = append(header, c.Channel)
-		}
+		header = append(header, p.name(c, c.Channel))
 	}
 	if err := s.writeAlignedCSV(w, id, p, header, rawSamples); err != nil {
 		return fmt.Errorf("export raw run %d: %w", id, err)

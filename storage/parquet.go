@@ -81,24 +81,13 @@ const rawUnit = "raw"
 // the rows and columns of ExportRaw (aligned.go), t_utc a UTC timestamp,
 // each reading a DOUBLE with its float64 bits as stored.
 func (s *Store) ExportRawParquet(w io.Writer, id uint64) error {
-	run, err := s.Run(id)
-	if err != nil {
-		return fmt.Errorf("export raw run %d: %w", id, err)
-	}
-	r, err := rigOf(run)
-	if err != nil {
-		return fmt.Errorf("export raw run %d: %w", id, err)
-	}
-	p, err := s.planAligned(id, r, nil)
+	run, r, p, err := s.runPlan(id)
 	if err != nil {
 		return fmt.Errorf("export raw run %d: %w", id, err)
 	}
 	cols := make([]ParquetColumn, len(p.cols))
 	for i, c := range p.cols {
-		cols[i] = ParquetColumn{Name: c.Channel, Unit: rawUnit, Source: c.Source, Channel: c.Channel}
-		if p.multi {
-			cols[i].Name = SourceColumn(c.Source, c.Channel)
-		}
+		cols[i] = ParquetColumn{Name: p.name(c, c.Channel), Unit: rawUnit, Source: c.Source, Channel: c.Channel}
 		if r != nil {
 			if ch, ok := r.Channel(c.Channel); ok {
 				cols[i].Quantity = string(ch.Quantity)
@@ -129,10 +118,7 @@ func (s *Store) ExportValuesParquet(w io.Writer, id uint64, r *rig.Rig, cal *cal
 	cols := make([]ParquetColumn, len(p.cols))
 	for i, c := range p.cols {
 		ch, _ := r.Channel(c.Channel)
-		cols[i] = ParquetColumn{Name: ValueColumn(ch), Unit: SIUnit(ch.Quantity), Source: c.Source, Channel: c.Channel, Quantity: string(ch.Quantity)}
-		if p.multi {
-			cols[i].Name = SourceColumn(c.Source, cols[i].Name)
-		}
+		cols[i] = ParquetColumn{Name: p.name(c, ValueColumn(ch)), Unit: SIUnit(ch.Quantity), Source: c.Source, Channel: c.Channel, Quantity: string(ch.Quantity)}
 	}
 	if err := s.writeAlignedParquet(w, id, run, "values", p, cols, calibratedSamples(cal)); err != nil {
 		return fmt.Errorf("export values run %d: %w", id, err)

@@ -55,11 +55,7 @@ func (s *Store) ExportValues(w io.Writer, id uint64, r *rig.Rig, cal *calibrate.
 	header := []string{"t_s"}
 	for _, c := range p.cols {
 		ch, _ := r.Channel(c.Channel)
-		name := ValueColumn(ch)
-		if p.multi {
-			name = SourceColumn(c.Source, name)
-		}
-		header = append(header, name)
+		header = append(header, p.name(c, ValueColumn(ch)))
 	}
 	if err := s.writeAlignedCSV(w, id, p, header, calibratedSamples(cal)); err != nil {
 		return fmt.Errorf("export values run %d: %w", id, err)
