@@ -131,6 +131,15 @@ func TestExport_Campaign(t *testing.T) {
 	require.True(t, bytes.Equal(before, after), "the export is deterministic")
 	require.Equal(t, want, listFiles(t, out), "no temporary file is left")
 
+	// One run, one file: --format parquet --out.
+	for what, rows := range map[string]int64{"segments": 5, "raw": int64(len(recs) - 1), "values": int64(len(recs) - 1)} {
+		one := filepath.Join(dir, what+".parquet")
+		code, _, errOut = runCLI(t, "export", "--db", db, "--run", "1", "--what", what, "--format", "parquet", "--out", one)
+		require.Equal(t, 0, code, errOut)
+		n, _ := parquetRows(t, one)
+		require.Equal(t, rows, n, what)
+	}
+
 	// Bad usage exits 2.
 	for _, args := range [][]string{
 		{"--campaign", out, "--out", "x.parquet"},

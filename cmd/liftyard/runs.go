@@ -110,6 +110,11 @@ func runExport(_ context.Context, args []string, stdout, stderr io.Writer) error
 	default:
 		return usagef("--what %q: want segments, raw or values", *what)
 	}
+	if f, ok := stdout.(*os.File); ok && *format == "parquet" && *outPath == "" {
+		if fi, err := f.Stat(); err == nil && fi.Mode()&os.ModeCharDevice != 0 {
+			return usagef("--format parquet writes a binary file: give --out FILE (or redirect standard output)")
+		}
+	}
 	store, err := openStore(*db)
 	if err != nil {
 		return err
