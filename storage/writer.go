@@ -339,6 +339,7 @@ func (w *Writer) commit(b *batch) (err error) {
 	w.samples.Add(nSamples)
 	w.rejected.Add(rejected)
 	w.commits.Add(1)
+	ackBlocks(b.blocks) // only now may a broker forget them
 	return nil
 }
 
@@ -373,9 +374,11 @@ func Offer(ch chan Item, it Item, dropped *atomic.Uint64) bool {
 				continue
 			}
 			count()
+			old.Block.Done() // dropped and counted: nothing to keep it for
 		default:
 		}
 	}
 	count()
+	it.Block.Done()
 	return false
 }

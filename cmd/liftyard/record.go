@@ -132,6 +132,7 @@ func buildSources(r *rig.Rig, logger *slog.Logger, rhoKgPerM3 float64, onEvent a
 				return nil, err
 			}
 			src.Logger, src.OnEvent = logger, onEvent
+			src.AckOnStore = true          // the broker keeps each message until the store has it
 			for _, c := range r.Channels { // only the rig's channels are recorded
 				src.Channels = append(src.Channels, c.Name)
 			}
@@ -265,6 +266,7 @@ loop:
 	}
 	fin, ferr := rec.Finish(ctx, runErr, final.Sources[:len(m.Sources)])
 	m.Finished = fin
+	settle(m.Sources)
 	if run, err := store.Run(m.runID); err == nil {
 		dash.SetRun(run)
 	}
@@ -320,6 +322,17 @@ func (m *Main) startSources(ctx context.Context, cancel context.CancelCauseFunc)
 	}
 	go func() { wg.Wait(); close(raw) }()
 	return raw
+}
+
+// settle waits until the sources that acknowledge after the store's commit
+// (MQTT with AckOnStore) have sent the acknowledgements of the last commit
+// and closed their connections; each bounds its own wait.
+func settle(srcs []Source) {
+	for _, s := range srcs {
+		if st, ok := s.Src.(interface{ Settled() <-chan struct{} }); ok {
+			<-st.Settled()
+		}
+	}
 }
 
 // health is the recording's health now: each source, then the store edge,
