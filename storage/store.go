@@ -72,6 +72,11 @@ type Options struct {
 	// a commit that would pass it fails with ErrFull instead of filling the
 	// disk of a field computer. Zero means no limit.
 	MaxSizeBytes int64
+
+	// FullCheck adds bbolt's own consistency check of the whole file
+	// (Check) to the structural check Open makes before it lets anyone
+	// write to an existing file (Survey). Read-only opens check nothing.
+	FullCheck bool
 }
 
 // Store is a liftyard store: one bbolt file holding runs, raw blocks,
@@ -91,6 +96,10 @@ type Store struct {
 // not exist. When the file is held by another process, Open returns an error
 // wrapping ErrLocked after opts.Timeout. A file that is not a liftyard store
 // gives ErrCorrupt or ErrNotStore, never a panic.
+//
+// Opened read-write, an existing file is checked first (Survey; with
+// opts.FullCheck also Check): one with unreadable pages gives an error
+// wrapping ErrDamaged, which names `liftyard repair`.
 //
 // Opened read-write, Open marks every run still in StatusRecording as
 // StatusInterrupted: such a run was being recorded when a process died.
@@ -143,6 +152,9 @@ func Open(path string, opts Options) (*Store, error) {
 		err = s.initialise()
 	} else {
 		err = s.checkFormat()
+	}
+	if err == nil && !opts.ReadOnly && !fresh {
+		err = s.checkBeforeWrite(opts.FullCheck) // nothing is written to a damaged file
 	}
 	if err == nil && !opts.ReadOnly {
 		err = s.recover()
