@@ -54,10 +54,10 @@ type Main struct {
 	// FullCheck adds bbolt's full consistency check of an existing store
 	// to the structural check made before writing (--check).
 	FullCheck bool
-	Addr    string // dashboard listen address
-	Token   string // dashboard token when Addr is not loopback
-	Logger  *slog.Logger
-	Sources []Source // built from the rig unless set
+	Addr      string // dashboard listen address
+	Token     string // dashboard token when Addr is not loopback
+	Logger    *slog.Logger
+	Sources   []Source // built from the rig unless set
 
 	// OnReady, when set, is called once the dashboard listens and the run
 	// exists, with the dashboard URL and the run id.
@@ -493,7 +493,7 @@ func runRecord(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	tokenOf := tokenFlags(fs)
 	dur := fs.Duration("for", 0, "stop after this long (0: until Ctrl-C)")
 	block := fs.Duration("block", 0, "roof rigs: length of one result block (default 10m, common practice)")
-fullCheck := fs.Bool("check", false, checkFlagUsage)
+	fullCheck := fs.Bool("check", false, checkFlagUsage)
 	verbose := fs.Bool("v", false, "log progress to stderr")
 	if _, err := parseFlags(fs, args); err != nil {
 		return err
