@@ -24,7 +24,7 @@ var (
 	// importCSV is a raw record of the simulated tow-tank foil, made by
 	// TestImportData_UpToDate (go test ./cmd/liftyard -run ImportData -update).
 	importCSV  = filepath.Join("..", "..", "testdata", "import", "foil-towtank-raw.csv")
-	designCSV  = filepath.Join("..", "..", "testdata", "design", "foil-towtank-design.csv")
+	designCSV  = filepath.Join("..", "..", "testdata", "rigs", "design", "foil-towtank-design.csv")
 	importStep = []float64{-4, 0, 4, 8, 12}
 )
 
