@@ -250,3 +250,39 @@ func TestRepair_IntactFile(t *testing.T) {
 		}
 	}
 }
+
+// Ensure that a run left "recording" by a crash reads as interrupted from a
+// read-only store (issue 16: runs showed it as recording, though no writer
+// can hold the file while a reader has it), without the file changing.
+func TestReadOnly_CrashedRunShowsInterrupted(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "crash.db")
+	s := MustOpenStoreAt(t, path, storage.Options{})
+	id := mustCreateRun(t, s) // recording, never finished: the process "died"
+	if err := s.Close(); err != nil {
+		t.Fatal(err)
+	}
+	before, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ro := MustOpenStoreAt(t, path, storage.Options{ReadOnly: true})
+	r, err := ro.Run(id)
+	if err != nil || r.Status != storage.StatusInterrupted {
+		t.Errorf("Run: %v, %v", r.Status, err)
+	}
+	runs, err := ro.Runs()
+	if err != nil || len(runs) != 1 || runs[0].Status != storage.StatusInterrupted {
+		t.Errorf("Runs: %+v, %v", runs, err)
+	}
+	if r, err := ro.LatestRun(); err != nil || r.Status != storage.StatusInterrupted {
+		t.Errorf("LatestRun: %v, %v", r.Status, err)
+	}
+	ro.Close()
+	after, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if string(before) != string(after) {
+		t.Error("a read-only open changed the file")
+	}
+}

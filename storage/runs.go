@@ -137,7 +137,18 @@ func (s *Store) Run(id uint64) (r Run, err error) {
 		r, err = getRun(tx, id)
 		return err
 	})
-	return r, err
+	return s.shown(r), err
+}
+
+// shown is r as a reader sees it. In a store opened read-only no recorder
+// can be writing (bbolt's file lock keeps a writer and readers apart), so a
+// run still marked recording was cut short by a crash: it is shown
+// interrupted. The file is not changed; the next read-write Open marks it.
+func (s *Store) shown(r Run) Run {
+	if s.readOnly && r.Status == StatusRecording {
+		r.Status = StatusInterrupted
+	}
+	return r
 }
 
 // Runs returns every run, newest first.
@@ -153,7 +164,7 @@ func (s *Store) Runs() (runs []Run, err error) {
 			if err != nil {
 				return err
 			}
-			runs = append(runs, r)
+			runs = append(runs, s.shown(r))
 		}
 		return nil
 	})
@@ -178,7 +189,7 @@ func (s *Store) LatestRun() (r Run, err error) {
 		r, err = decodeRun(binary.BigEndian.Uint64(k), v)
 		return err
 	})
-	return r, err
+	return s.shown(r), err
 }
 
 // ResolveRun turns a run reference given by a user into a run id: a decimal

@@ -154,7 +154,7 @@ func TestResolveRun(t *testing.T) {
 
 // Ensure that opening read-write marks runs left recording as interrupted,
 // with the last block's time as their end and an event saying why, and
-// that a read-only open changes nothing.
+// that a read-only open shows them interrupted and changes nothing.
 func TestOpen_MarksInterrupted(t *testing.T) {
 	path := t.TempDir() + "/s.db"
 	s, err := storage.Open(path, storage.Options{Now: newTestClock().Now})
@@ -169,9 +169,15 @@ func TestOpen_MarksInterrupted(t *testing.T) {
 	writeBlocks(t, s, id, testBlock("bal", 0, 10, "n"), testBlock("bal", 1, 10, "n"))
 	s.Close() // the "crash": run 1 is never finished
 
+	// A read-only open shows the run interrupted (no writer can hold the
+	// file beside it) but writes nothing: no end time, no event yet
+	// (TestReadOnly_CrashedRunShowsInterrupted compares the bytes).
 	ro := MustOpenStoreAt(t, path, storage.Options{ReadOnly: true})
-	if r, _ := ro.Run(id); r.Status != storage.StatusRecording {
-		t.Errorf("read-only open changed status to %q", r.Status)
+	if r, _ := ro.Run(id); r.Status != storage.StatusInterrupted || !r.Ended.IsZero() {
+		t.Errorf("read-only open shows status %q, ended %v", r.Status, r.Ended)
+	}
+	if evs, _ := ro.Events(id); len(evs) != 0 {
+		t.Errorf("read-only open stored events %+v", evs)
 	}
 	ro.Close()
 
