@@ -8,6 +8,7 @@ import (
 	"log/slog"
 	"net"
 	"os"
+	"strings"
 	"sync"
 	"time"
 
@@ -230,6 +231,7 @@ func (m *Main) Run(ctx context.Context) error {
 	age := time.NewTicker(ageTick)
 	defer age.Stop()
 	var live liveGate
+	blocks := 0 // blocks received; none by the end is said, not stored silently
 	storeDown := rec.WriterDone()
 loop:
 	for {
@@ -252,6 +254,7 @@ loop:
 			if !ok {
 				break loop
 			}
+			blocks++
 			pub.segments(rec.Block(b).Segments)
 			live.block(rec, pub)
 		}
@@ -266,6 +269,13 @@ loop:
 	runErr := context.Cause(ctx)
 	if errors.Is(runErr, context.Canceled) || errors.Is(runErr, context.DeadlineExceeded) {
 		runErr = nil
+	}
+	if blocks == 0 && runErr == nil {
+		// A run without a single sample is not a complete run: say why
+		// with the run (event), on the way out (exit 1), and mark it
+		// interrupted.
+		runErr = noData(final.Sources[:len(m.Sources)])
+		rec.Event(acquire.Event{Kind: eventNoData, Message: runErr.Error()})
 	}
 	fin, ferr := rec.Finish(ctx, runErr, final.Sources[:len(m.Sources)])
 	m.Finished = fin
@@ -329,6 +339,25 @@ func (m *Main) startSources(ctx context.Context, cancel context.CancelCauseFunc)
 
 // checkFlagUsage is the help of --check on the verbs that write runs.
 const checkFlagUsage = "before writing to an existing store, also run bbolt's full consistency check of the file (a structural check of every page always runs; a damaged file is never written to: see liftyard repair)"
+
+// eventNoData is the kind of the event stored with a run that received no
+// block at all.
+const eventNoData = "no_data"
+
+// noData says why a recording got no block: the sources that never reached
+// their broker or port, or that none sent anything.
+func noData(sources []acquire.HealthSnapshot) error {
+	var down []string
+	for _, h := range sources {
+		if h.ConnectFailures > 0 && h.Frames == 0 {
+			down = append(down, fmt.Sprintf("%s could not connect (%d failed attempts)", h.Source, h.ConnectFailures))
+		}
+	}
+	if len(down) > 0 {
+		return fmt.Errorf("no samples were recorded: %s; the run is kept as interrupted", strings.Join(down, "; "))
+	}
+	return errors.New("no samples were recorded: no source delivered a block; the run is kept as interrupted")
+}
 
 // settle waits until the sources that acknowledge after the store's commit
 // (MQTT with AckOnStore) have sent the acknowledgements of the last commit
