@@ -26,13 +26,15 @@ var ErrDamaged = errors.New("store has damaged pages")
 const EventRepaired = "repaired"
 
 // checkBeforeWrite is the check Open makes before it lets anyone write to
-// an existing file: Survey, and with full also bbolt's own Check (the
-// freelist, pages reachable twice or never). Survey reads every page once:
-// about 13 ms for a 135 MB file in the page cache (BenchmarkOpenSurvey,
-// docs/performance.md); a cold file costs one read of it from disk.
-func (s *Store) checkBeforeWrite(full bool) error {
+// an existing file: Survey (every branch and leaf page readable, keys in
+// order), then bbolt's own Check (the free-page list, pages reachable twice
+// or never: a page both free and in use would be overwritten by the next
+// commit). Each reads every page once: about 12 ms and 9–13 ms for a 135 MB
+// file in the page cache (BenchmarkOpenSurvey, docs/performance.md); a cold
+// file costs one read of it from disk.
+func (s *Store) checkBeforeWrite() error {
 	damage, err := s.Survey()
-	if err == nil && len(damage) == 0 && full {
+	if err == nil && len(damage) == 0 {
 		// bbolt's walk runs in a goroutine of its own, where a fault is
 		// fatal: only after Survey found every page readable.
 		err = s.Check()

@@ -72,11 +72,6 @@ type Options struct {
 	// a commit that would pass it fails with ErrFull instead of filling the
 	// disk of a field computer. Zero means no limit.
 	MaxSizeBytes int64
-
-	// FullCheck adds bbolt's own consistency check of the whole file
-	// (Check) to the structural check Open makes before it lets anyone
-	// write to an existing file (Survey). Read-only opens check nothing.
-	FullCheck bool
 }
 
 // Store is a liftyard store: one bbolt file holding runs, raw blocks,
@@ -97,9 +92,9 @@ type Store struct {
 // wrapping ErrLocked after opts.Timeout. A file that is not a liftyard store
 // gives ErrCorrupt or ErrNotStore, never a panic.
 //
-// Opened read-write, an existing file is checked first (Survey; with
-// opts.FullCheck also Check): one with unreadable pages gives an error
-// wrapping ErrDamaged, which names `liftyard repair`.
+// Opened read-write, an existing file is checked first (Survey, then
+// bbolt's Check): a damaged one gives an error wrapping ErrDamaged, which
+// names `liftyard repair`. Read-only opens check nothing.
 //
 // Opened read-write, Open marks every run still in StatusRecording as
 // StatusInterrupted: such a run was being recorded when a process died.
@@ -154,7 +149,7 @@ func Open(path string, opts Options) (*Store, error) {
 		err = s.checkFormat()
 	}
 	if err == nil && !opts.ReadOnly && !fresh {
-		err = s.checkBeforeWrite(opts.FullCheck) // nothing is written to a damaged file
+		err = s.checkBeforeWrite() // nothing is written to a damaged file
 	}
 	if err == nil && !opts.ReadOnly {
 		err = s.recover()

@@ -104,7 +104,6 @@ func runDemo(ctx context.Context, args []string, stdout, stderr io.Writer) error
 	db := fs.String("db", "liftyard-demo.db", "bbolt store file")
 	dur := fs.Duration("for", 0, "stop after this long, e.g. 30s (0: until Ctrl-C)")
 	seed := fs.Uint64("seed", 1, "random seed of the simulated turbulence and sensor noise")
-	fullCheck := fs.Bool("check", false, checkFlagUsage)
 	verbose := fs.Bool("v", false, "log progress to stderr")
 	if _, err := parseFlags(fs, args); err != nil {
 		return err
@@ -114,7 +113,7 @@ func runDemo(ctx context.Context, args []string, stdout, stderr io.Writer) error
 		ctx, cancel = context.WithTimeout(ctx, *dur)
 		defer cancel()
 	}
-	m := &Main{DBPath: *db, FullCheck: *fullCheck, Addr: *addr, Logger: newLogger(stderr, *verbose)}
+	m := &Main{DBPath: *db, Addr: *addr, Logger: newLogger(stderr, *verbose)}
 	start := time.Now()
 	m.OnReady = func(url string, id uint64) {
 		fmt.Fprintf(stdout, "liftyard demo: simulated foil on a water tow rig, via an embedded MQTT broker\n")

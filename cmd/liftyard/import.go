@@ -105,7 +105,6 @@ func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) err
 		return nil
 	})
 	startS := fs.String("start", "", "UTC time of the file's first row, RFC 3339 (e.g. 2026-03-14T09:00:00Z); needed when t_s is relative and the file has no \"# start\" line")
-	fullCheck := fs.Bool("check", false, checkFlagUsage)
 	verbose := fs.Bool("v", false, "log progress to stderr")
 	pos, err := parseFlags(fs, args)
 	if err != nil {
@@ -151,7 +150,7 @@ func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	if err != nil {
 		return err
 	}
-	store, err := storage.Open(*db, storage.Options{FullCheck: *fullCheck})
+	store, err := storage.Open(*db, storage.Options{})
 	if err != nil {
 		return err
 	}

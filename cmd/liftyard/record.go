@@ -52,13 +52,10 @@ type Main struct {
 	Rig     *rig.Rig
 	RigTOML string // the rig file text, stored with the run
 	DBPath  string
-	// FullCheck adds bbolt's full consistency check of an existing store
-	// to the structural check made before writing (--check).
-	FullCheck bool
-	Addr      string // dashboard listen address
-	Token     string // dashboard token when Addr is not loopback
-	Logger    *slog.Logger
-	Sources   []Source // built from the rig unless set
+	Addr    string // dashboard listen address
+	Token   string // dashboard token when Addr is not loopback
+	Logger  *slog.Logger
+	Sources []Source // built from the rig unless set
 
 	// OnReady, when set, is called once the dashboard listens and the run
 	// exists, with the dashboard URL and the run id.
@@ -194,7 +191,7 @@ func (m *Main) Run(ctx context.Context) error {
 			return err
 		}
 	}
-	store, err := storage.Open(m.DBPath, storage.Options{FullCheck: m.FullCheck})
+	store, err := storage.Open(m.DBPath, storage.Options{})
 	if err != nil {
 		return err
 	}
@@ -336,9 +333,6 @@ func (m *Main) startSources(ctx context.Context, cancel context.CancelCauseFunc)
 	go func() { wg.Wait(); close(raw) }()
 	return raw
 }
-
-// checkFlagUsage is the help of --check on the verbs that write runs.
-const checkFlagUsage = "before writing to an existing store, also run bbolt's full consistency check of the file (a structural check of every page always runs; a damaged file is never written to: see liftyard repair)"
 
 // eventNoData is the kind of the event stored with a run that received no
 // block at all.
@@ -522,7 +516,6 @@ func runRecord(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	tokenOf := tokenFlags(fs)
 	dur := fs.Duration("for", 0, "stop after this long (0: until Ctrl-C)")
 	block := fs.Duration("block", 0, "roof rigs: length of one result block (default 10m, common practice)")
-	fullCheck := fs.Bool("check", false, checkFlagUsage)
 	verbose := fs.Bool("v", false, "log progress to stderr")
 	if _, err := parseFlags(fs, args); err != nil {
 		return err
@@ -541,7 +534,7 @@ func runRecord(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	if *block < 0 || (*block > 0 && r.Kind != rig.KindRoof) {
 		return usagef("--block %s: a positive duration, for roof rigs only", *block)
 	}
-	m := &Main{Rig: r, RigTOML: string(data), DBPath: *db, FullCheck: *fullCheck, Addr: *addr, Token: token, Logger: newLogger(stderr, *verbose),
+	m := &Main{Rig: r, RigTOML: string(data), DBPath: *db, Addr: *addr, Token: token, Logger: newLogger(stderr, *verbose),
 		Roof: estimate.RoofConfig{Block: *block}}
 	m.OnReady = func(url string, id uint64) {
 		fmt.Fprintf(stdout, "liftyard record: run %d of %q; dashboard on %s (Ctrl-C to stop)\n", id, r.Name, url)

@@ -59,7 +59,7 @@ func TestRepair_DamagedStoreCLI(t *testing.T) {
 	assert.Equal(t, 1, code)
 	assert.Contains(t, errOut, "damaged pages")
 	assert.Contains(t, errOut, "liftyard repair --db "+db)
-	code, _, errOut = runCLI(t, "import", "--rig", towtankRig, "--db", db, "--check", importCSV)
+	code, _, errOut = runCLI(t, "import", "--rig", towtankRig, "--db", db, importCSV)
 	assert.Equal(t, 1, code)
 	assert.Contains(t, errOut, "liftyard repair --db "+db)
 	after, err := os.ReadFile(db)
@@ -77,7 +77,7 @@ func TestRepair_DamagedStoreCLI(t *testing.T) {
 	assert.Contains(t, out, "not readable: raw/")
 	assert.Contains(t, errOut, "the new file holds everything else")
 
-	code, _, errOut = runCLI(t, "import", "--rig", towtankRig, "--db", fresh, "--check", importCSV)
+	code, _, errOut = runCLI(t, "import", "--rig", towtankRig, "--db", fresh, importCSV)
 	require.Equal(t, 0, code, "the repaired file takes new runs: %s", errOut)
 	st, err := storage.Open(fresh, storage.Options{ReadOnly: true})
 	require.NoError(t, err)
