@@ -101,3 +101,39 @@ func TestOffer_AcksDropped(t *testing.T) {
 		}
 	}
 }
+
+// Ensure that AckBatch blocks waiting for their acknowledgement are
+// committed without waiting for the interval (a broker's in-flight window
+// must not fill), while as many blocks without one still wait.
+func TestWriter_AckBatchCommitsEarly(t *testing.T) {
+	s := MustOpenStore(t)
+	id := mustCreateRun(t, s)
+	w := s.NewWriter(id, storage.WriterConfig{Interval: time.Hour})
+	in := w.NewQueue()
+	errc := make(chan error, 1)
+	go func() { errc <- w.Run(context.Background(), in) }()
+	for i := range storage.AckBatch - 1 {
+		in <- storage.Item{Block: testBlock("bal", uint64(i), 2, "n")} // no Ack: the hour-long interval applies
+	}
+	time.Sleep(100 * time.Millisecond)
+	if c := w.Commits(); c != 0 {
+		t.Fatalf("%d commits before the interval without acknowledgements waiting", c)
+	}
+	var acked atomic.Int32
+	for i := range storage.AckBatch {
+		b := testBlock("bal", uint64(100+i), 2, "n")
+		b.Ack = func() { acked.Add(1) }
+		in <- storage.Item{Block: b}
+	}
+	deadline := time.Now().Add(5 * time.Second)
+	for acked.Load() < int32(storage.AckBatch) && time.Now().Before(deadline) {
+		time.Sleep(5 * time.Millisecond)
+	}
+	if n := acked.Load(); n != int32(storage.AckBatch) || w.Commits() != 1 {
+		t.Errorf("%d of %d acknowledged after %d commits: the batch waited for the interval", n, storage.AckBatch, w.Commits())
+	}
+	close(in)
+	if err := <-errc; err != nil {
+		t.Fatal(err)
+	}
+}

@@ -137,9 +137,11 @@ func (w *Writer) Run(ctx context.Context, in <-chan Item) error {
 	timer.Stop()
 	defer timer.Stop()
 
+	acks := 0 // blocks in the batch whose source acknowledges them at the commit
 	flush := func() error {
 		timer.Stop()
 		timerC = nil
+		acks = 0
 		if b.empty() {
 			return nil
 		}
@@ -153,7 +155,10 @@ func (w *Writer) Run(ctx context.Context, in <-chan Item) error {
 			timerC = timer.C
 		}
 		b.add(it)
-		if len(b.blocks) >= w.cfg.MaxBlocks {
+		if it.Block != nil && it.Block.Ack != nil {
+			acks++
+		}
+		if len(b.blocks) >= w.cfg.MaxBlocks || acks >= AckBatch {
 			return flush()
 		}
 		return nil
