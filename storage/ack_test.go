@@ -87,7 +87,7 @@ func TestWriter_AckAfterCommit(t *testing.T) {
 // counted, and that the queued ones are not.
 func TestOffer_AcksDropped(t *testing.T) {
 	ch := make(chan storage.Item, 2)
-	var dropped atomic.Uint64
+	var dropped storage.Drops
 	acked := make([]bool, 5)
 	for i := range 5 {
 		b := testBlock("bal", uint64(i), 1, "n")
@@ -97,7 +97,7 @@ func TestOffer_AcksDropped(t *testing.T) {
 	want := []bool{true, true, true, false, false}
 	for i := range want {
 		if acked[i] != want[i] {
-			t.Errorf("block %d acknowledged = %v, want %v (dropped %d)", i, acked[i], want[i], dropped.Load())
+			t.Errorf("block %d acknowledged = %v, want %v (dropped %d)", i, acked[i], want[i], dropped.Items.Load())
 		}
 	}
 }

@@ -137,14 +137,15 @@ func (s *Store) Run(id uint64) (r Run, err error) {
 		r, err = getRun(tx, id)
 		return err
 	})
-	return s.shown(r), err
+	return s.seen(r), err
 }
 
-// shown is r as a reader sees it. In a store opened read-only no recorder
-// can be writing (bbolt's file lock keeps a writer and readers apart), so a
-// run still marked recording was cut short by a crash: it is shown
-// interrupted. The file is not changed; the next read-write Open marks it.
-func (s *Store) shown(r Run) Run {
+// seen is r as this store can tell it: a store opened read-only holds a
+// shared lock that no recorder can hold at the same time (bbolt's flock),
+// so a run it finds "recording" was cut off by a crash or a kill before it
+// could be finished, and it is shown as interrupted. The file is not
+// changed; the next read-write Open marks it (recover).
+func (s *Store) seen(r Run) Run {
 	if s.readOnly && r.Status == StatusRecording {
 		r.Status = StatusInterrupted
 	}
@@ -164,7 +165,7 @@ func (s *Store) Runs() (runs []Run, err error) {
 			if err != nil {
 				return err
 			}
-			runs = append(runs, s.shown(r))
+			runs = append(runs, s.seen(r))
 		}
 		return nil
 	})
@@ -189,7 +190,7 @@ func (s *Store) LatestRun() (r Run, err error) {
 		r, err = decodeRun(binary.BigEndian.Uint64(k), v)
 		return err
 	})
-	return s.shown(r), err
+	return s.seen(r), err
 }
 
 // ResolveRun turns a run reference given by a user into a run id: a decimal
