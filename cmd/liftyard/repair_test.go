@@ -102,3 +102,24 @@ func TestRepair_DamagedStoreCLI(t *testing.T) {
 	code, _, _ = runCLI(t, "repair", "--db", db, "--out", fresh)
 	assert.Equal(t, 2, code, "repair never overwrites a file")
 }
+
+// Ensure that serve shows a damaged store read-only (what is readable is
+// worth seeing) and still writes nothing to it.
+func TestServe_DamagedStoreReadOnly(t *testing.T) {
+	db := filepath.Join(t.TempDir(), "field.db")
+	code, _, errOut := runCLI(t, "import", "--rig", towtankRig, "--db", db, "--block-samples", "2", importCSV)
+	require.Equal(t, 0, code, errOut)
+	damageLeaf(t, db)
+	before, err := os.ReadFile(db)
+	require.NoError(t, err)
+	url, stop := startServe(t, db)
+	status, body := fetch(t, "GET", url+"api/v1/runs", "", nil)
+	assert.Equal(t, 200, status)
+	assert.Contains(t, body, `"status":"complete"`)
+	status, body = fetch(t, "POST", url+"api/v1/runs/1/marks", `{"start_s": 1, "end_s": 2}`, map[string]string{"Content-Type": "application/json"})
+	assert.Equal(t, 405, status, body)
+	require.NoError(t, stop())
+	after, err := os.ReadFile(db)
+	require.NoError(t, err)
+	assert.True(t, bytes.Equal(before, after), "serve changed the damaged file")
+}
