@@ -21,6 +21,20 @@ type Block struct {
 	// one timeline; 0 until an Aligner has seen the block.
 	AlignedT0Us int64
 	Series      []Series // one per channel, all of the same length
+	// Ack, when not nil, tells the source that the block has reached its
+	// end: committed to the store, or counted as dropped or rejected. An
+	// MQTT source acknowledges the QoS 1 message then, so that the broker
+	// keeps the message until the store has it. Whoever ends the block's
+	// life calls it (a second call is harmless); it never
+	// blocks. Offline sources leave it nil.
+	Ack func() `json:"-"`
+}
+
+// Done calls b.Ack when b has one.
+func (b *Block) Done() {
+	if b != nil && b.Ack != nil {
+		b.Ack()
+	}
 }
 
 // Series is one channel's raw readings in a Block. NaN marks "no sample".

@@ -7,6 +7,8 @@ import (
 	"math"
 	"slices"
 	"strconv"
+
+	"liftyard/rig"
 )
 
 // MaxPayloadSamples bounds the samples per channel in one payload, so a
@@ -31,7 +33,7 @@ type payload struct {
 // caller counts them and carries on.
 func DecodePayload(source string, data []byte) (Block, error) {
 	bad := func(r Reason, format string, args ...any) (Block, error) {
-		return Block{}, &PayloadError{Source: source, Reason: r, Msg: fmt.Sprintf(format, args...)}
+		return Block{}, &PayloadError{Source: source, Reason: r, Msg: fmt.Sprintf(format, rig.Excerpts(format, args...)...)}
 	}
 	var p payload
 	dec := json.NewDecoder(bytes.NewReader(data))

@@ -303,11 +303,11 @@ func parseStartLine(line string) (time.Time, error) {
 		key, val = "start", v
 	}
 	if key != "start" {
-		return time.Time{}, fmt.Errorf("comment line %q: the only line allowed before the header is \"# start 2026-03-14T09:00:00Z\" (the UTC time of the first row)", strings.TrimSpace(line))
+		return time.Time{}, fmt.Errorf("comment line %q: the only line allowed before the header is \"# start 2026-03-14T09:00:00Z\" (the UTC time of the first row)", rig.Excerpt(strings.TrimSpace(line)))
 	}
 	t, err := time.Parse(time.RFC3339Nano, strings.TrimSpace(val))
 	if err != nil {
-		return time.Time{}, fmt.Errorf("start %q is not an RFC 3339 time (write 2026-03-14T09:00:00Z)", strings.TrimSpace(val))
+		return time.Time{}, fmt.Errorf("start %q is not an RFC 3339 time (write 2026-03-14T09:00:00Z)", rig.Excerpt(strings.TrimSpace(val)))
 	}
 	return t.UTC(), nil
 }

@@ -150,6 +150,9 @@ func (s *Server) marksEditable(run storage.Run) (bool, string) {
 	if cur := s.current.Load(); (cur != nil && cur.ID == run.ID) || run.Status == storage.StatusRecording {
 		return false, fmt.Sprintf("run %d is recording: mark it after it has ended", run.ID)
 	}
+	if !viewOf(run.Kind).Marks {
+		return false, fmt.Sprintf("run %d is a %s run: its results are blocks of fixed length, which marks do not set", run.ID, run.Kind)
+	}
 	return true, ""
 }
 

@@ -202,8 +202,8 @@ func TestMarks_API(t *testing.T) {
 }
 
 // Ensure that marks cannot change without ApplyMarks (the recorder's
-// dashboard shows them read-only) nor on the run being recorded, and that
-// the API says why.
+// dashboard shows them read-only), nor on the run being recorded, nor on a
+// roof run, and that the API says why with a 4xx.
 func TestMarks_NotEditable(t *testing.T) {
 	s, ms := markServer(t, false)
 	h := s.Handler()
@@ -225,7 +225,29 @@ func TestMarks_NotEditable(t *testing.T) {
 			t.Errorf("POST %s while recording: %d %s", path, rec.Code, rec.Body)
 		}
 	}
-	if ms2.applied != 0 || ms.applied != 0 {
+	// A roof run's results are fixed blocks: marks are refused with 409
+	// and the reason (issue 16: they answered 500), and none is stored.
+	s3, ms3 := markServer(t, true)
+	roof, err := ms3.CreateRun(storage.Run{Rig: "yard roof", Kind: "roof", Fluid: "air", Started: epoch})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := ms3.FinishRun(roof, epoch.Add(time.Minute), storage.StatusComplete, nil); err != nil {
+		t.Fatal(err)
+	}
+	for _, path := range []string{"/api/v1/runs/2/marks", "/api/v1/runs/2/marks/apply"} {
+		rec := post(t, s3.Handler(), path, `{"start_s": 1, "end_s": 2}`, nil)
+		if rec.Code != http.StatusConflict || !strings.Contains(rec.Body.String(), "roof run") {
+			t.Errorf("POST %s on a roof run: %d %s", path, rec.Code, rec.Body)
+		}
+	}
+	if rec := get(t, s3.Handler(), "GET", "/api/v1/runs/2/marks", nil); !strings.Contains(rec.Body.String(), `"editable":false`) {
+		t.Errorf("GET marks of a roof run: %s", rec.Body)
+	}
+	if m, _ := ms3.Marks(roof); len(m) != 0 {
+		t.Errorf("marks stored on a roof run: %v", m)
+	}
+	if ms2.applied != 0 || ms.applied != 0 || ms3.applied != 0 {
 		t.Error("apply ran on a run that may not be marked")
 	}
 }

@@ -127,7 +127,7 @@ func TestParseDesignCurve_AlphaZero(t *testing.T) {
 		{"stated", "# alpha_zero_deg = -1.5\n" + rows, true, -1.5, 0, ""},
 		{"stated with u, after the rows", rows + "#Alpha_Zero_Deg=-1.5\n# alpha_zero_u95_deg = 0.2\n", true, -1.5, 0.2, ""},
 		{"twice", "# alpha_zero_deg = -1\n# alpha_zero_deg = -2\n" + rows, false, 0, 0, "d.csv:2: alpha_zero_deg is given twice (also on line 1)"},
-		{"not a number", "# alpha_zero_deg = minus two\n" + rows, false, 0, 0, `d.csv:1: alpha_zero_deg: "minus two" is not a number`},
+		{"not a number", "# alpha_zero_deg = minus two\n" + rows, false, 0, 0, `d.csv:1: alpha_zero_deg is not a number`},
 		{"too large", "# alpha_zero_deg = 45\n" + rows, false, 0, 0, "d.csv:1: alpha_zero_deg 45 is outside -30 to 30 degrees"},
 		{"u alone", rows + "# alpha_zero_u95_deg = 0.2\n", false, 0, 0, "d.csv:4: alpha_zero_u95_deg without alpha_zero_deg"},
 		{"negative u", "# alpha_zero_deg = 1\n# alpha_zero_u95_deg = -0.2\n" + rows, false, 0, 0, "d.csv:2: alpha_zero_u95_deg -0.2 is negative"},
@@ -153,7 +153,7 @@ func TestParseDesignCurve_AlphaZero(t *testing.T) {
 		})
 	}
 
-	path := filepath.Join("..", "testdata", "design", "foil-towtank-design.csv")
+	path := filepath.Join("..", "testdata", "rigs", "design", "foil-towtank-design.csv")
 	f, err := os.Open(path)
 	if err != nil {
 		t.Fatal(err)

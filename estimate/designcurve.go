@@ -31,8 +31,8 @@ type Design interface {
 var ErrDesignCurve = errors.New("bad design curve")
 
 // designCurveError is a problem in a design curve CSV, printed as
-// `foil.csv:4: column "cl": "x" is not a number`. col is the column at
-// fault, or "".
+// `foil.csv:4: column "cl": not a number`; the file's content is never
+// quoted. col is the column at fault, or "".
 func designCurveError(name string, line int, col, format string, args ...any) error {
 	if col != "" {
 		format = "column %q: " + format
@@ -150,11 +150,11 @@ func readCurve(data []byte, name, xCol string) ([]curveRow, error) {
 	line, _ := cr.FieldPos(0)
 	switch {
 	case iA < 0 && other == "spin_ratio":
-		return nil, fail(line, "", "header %q is against the spin ratio: such a design is for a rotor rig; a foil's or body's design is alpha_deg,cl[,cl_u95]", strings.Join(header, ","))
+		return nil, fail(line, "", "the header is against the spin ratio: such a design is for a rotor rig; a foil's or body's design is alpha_deg,cl[,cl_u95]")
 	case iA < 0 && other == "alpha_deg":
-		return nil, fail(line, "", "header %q is against the angle of attack: a rotor's design is against the spin ratio, spin_ratio,cl[,cl_u95]", strings.Join(header, ","))
+		return nil, fail(line, "", "the header is against the angle of attack: a rotor's design is against the spin ratio, spin_ratio,cl[,cl_u95]")
 	case iA < 0 || iC < 0:
-		return nil, fail(line, "", "header %q lacks %s and cl (want %s)", strings.Join(header, ","), xCol, want)
+		return nil, fail(line, "", "the first line is not a header with %s and cl (want %s)", xCol, want)
 	}
 	var rows []curveRow
 	for {
@@ -173,7 +173,7 @@ func readCurve(data []byte, name, xCol string) ([]curveRow, error) {
 			s := strings.TrimSpace(rec[i])
 			v, err := strconv.ParseFloat(s, 64)
 			if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
-				return 0, fail(line, col, "%q is not a number", s)
+				return 0, fail(line, col, "not a number")
 			}
 			return v, nil
 		}
@@ -226,7 +226,7 @@ func designSettings(data []byte, name string) (map[string]float64, error) {
 		seen[key] = line
 		v, err := strconv.ParseFloat(strings.TrimSpace(val), 64)
 		if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
-			return nil, designCurveError(name, line, "", "%s: %q is not a number", key, strings.TrimSpace(val))
+			return nil, designCurveError(name, line, "", "%s is not a number", key)
 		}
 		switch {
 		case key == "alpha_zero_deg" && math.Abs(v) > 30:

@@ -47,13 +47,13 @@ func TestParseDesignCurve_Interpolates(t *testing.T) {
 func TestParseDesignCurve_Errors(t *testing.T) {
 	for _, c := range []struct{ name, in, want string }{
 		{"empty", "", "d.csv: empty file"},
-		{"no header", "1,0.1\n2,0.2\n", `d.csv:1: header "1,0.1" lacks alpha_deg and cl`},
-		{"not a number", "alpha_deg,cl\n0,0.1\n2,1.2.3\n", `d.csv:3: column "cl": "1.2.3" is not a number`},
+		{"no header", "1,0.1\n2,0.2\n", `d.csv:1: the first line is not a header with alpha_deg and cl`},
+		{"not a number", "alpha_deg,cl\n0,0.1\n2,1.2.3\n", `d.csv:3: column "cl": not a number`},
 		{"missing field", "alpha_deg,cl\n0,0.1\n2\n", `d.csv:3: column "cl": missing`},
 		{"twice", "alpha_deg,cl\n0,0.1\n2,0.3\n0,0.2\n", `d.csv:4: column "alpha_deg": angle 0° is given twice (also on line 2)`},
 		{"negative u", "alpha_deg,cl,cl_u95\n0,0.1,-0.1\n2,0.3,0.1\n", `d.csv:2: column "cl_u95": -0.1 is negative`},
 		{"one row", "alpha_deg,cl\n0,0.1\n", "d.csv: 1 data rows"},
-		{"NaN", "alpha_deg,cl\n0,NaN\n2,0.3\n", `d.csv:2: column "cl": "NaN" is not a number`},
+		{"NaN", "alpha_deg,cl\n0,NaN\n2,0.3\n", `d.csv:2: column "cl": not a number`},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			_, err := estimate.ParseDesignCurve(strings.NewReader(c.in), "d.csv")

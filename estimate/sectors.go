@@ -15,13 +15,13 @@ import (
 // combined uncertainty: the blocks share their calibration errors, so
 // their U95 do not shrink by averaging.
 type SectorResult struct {
-	SectorRad        float64 // sector centre, rad from north; NaN for blocks without a vane
-	Zone             string
-	Blocks, Left     int
-	CpMeanLo, CpMean float64 // lowest block mean and the mean of the block means
-	CpMeanHi         float64 // highest block mean
-	CpPeak           float64 // most negative block peak suction (NaN when none)
-	CpPeakMax        float64 // most positive block peak (NaN when none)
+	SectorRad         float64 // sector centre, rad from north; NaN for blocks without a vane
+	Zone              string
+	Blocks, Left      int
+	CpMeanMin, CpMean float64 // lowest block mean and the mean of the block means
+	CpMeanMax         float64 // highest block mean
+	CpPeak            float64 // most negative block peak suction (NaN when none)
+	CpPeakMax         float64 // most positive block peak (NaN when none)
 }
 
 // RoofSectors sums the zone rows of a roof run (per-tap rows and rows of
@@ -53,7 +53,7 @@ func RoofSectors(segs []Segment) []SectorResult {
 			j = len(out)
 			index[k] = j
 			out = append(out, SectorResult{SectorRad: s.SectorRad, Zone: s.Zone,
-				CpMeanLo: math.NaN(), CpMean: math.NaN(), CpMeanHi: math.NaN(),
+				CpMeanMin: math.NaN(), CpMean: math.NaN(), CpMeanMax: math.NaN(),
 				CpPeak: math.NaN(), CpPeakMax: math.NaN()})
 			if !finite(s.SectorRad) {
 				out[j].SectorRad = math.NaN()
@@ -68,11 +68,11 @@ func RoofSectors(segs []Segment) []SectorResult {
 			continue
 		}
 		if r.Blocks == 0 {
-			r.CpMeanLo, r.CpMean, r.CpMeanHi = s.CpMean.X, 0, s.CpMean.X
+			r.CpMeanMin, r.CpMean, r.CpMeanMax = s.CpMean.X, 0, s.CpMean.X
 		}
 		r.Blocks++
 		r.CpMean += s.CpMean.X
-		r.CpMeanLo, r.CpMeanHi = math.Min(r.CpMeanLo, s.CpMean.X), math.Max(r.CpMeanHi, s.CpMean.X)
+		r.CpMeanMin, r.CpMeanMax = math.Min(r.CpMeanMin, s.CpMean.X), math.Max(r.CpMeanMax, s.CpMean.X)
 		if finite(s.CpPeak) && !(s.CpPeak >= r.CpPeak) {
 			r.CpPeak = s.CpPeak
 		}

@@ -46,7 +46,7 @@ func TestRoofSectors(t *testing.T) {
 		sameDeg := math.Abs(rig.Deg(g.SectorRad)-w.deg) < 1e-9 || math.IsNaN(w.deg) && math.IsNaN(g.SectorRad)
 		samePk := math.Abs(g.CpPeak-w.pk) < 1e-12 || math.IsNaN(w.pk) && math.IsNaN(g.CpPeak)
 		if !sameDeg || g.Zone != w.zone || g.Blocks != w.blocks || g.Left != w.left ||
-			math.Abs(g.CpMeanLo-w.lo) > 1e-12 || math.Abs(g.CpMean-w.mean) > 1e-12 || math.Abs(g.CpMeanHi-w.hi) > 1e-12 || !samePk {
+			math.Abs(g.CpMeanMin-w.lo) > 1e-12 || math.Abs(g.CpMean-w.mean) > 1e-12 || math.Abs(g.CpMeanMax-w.hi) > 1e-12 || !samePk {
 			t.Errorf("group %d: %+v, want %+v", i, g, w)
 		}
 	}

@@ -2,7 +2,6 @@ package process
 
 import (
 	"fmt"
-	"os"
 
 	"liftyard/calibrate"
 	"liftyard/estimate"
@@ -118,7 +117,7 @@ func LoadDesign(r *rig.Rig) (estimate.Design, error) {
 	case rig.DesignThinAirfoil:
 		return estimate.ThinAirfoil{AspectRatio: r.Reference.AspectRatio(), AlphaZeroRad: r.Lift.DesignAlphaZeroRad}, nil
 	default:
-		f, err := os.Open(d)
+		f, err := r.Lift.OpenDesign()
 		if err != nil {
 			return nil, &InputError{fmt.Errorf("[lift] design: %w", err)}
 		}
@@ -142,7 +141,7 @@ func LoadSpinDesign(r *rig.Rig) (*estimate.SpinDesignCurve, error) {
 	case rig.DesignThinAirfoil:
 		return nil, &InputError{fmt.Errorf("[lift] design: %q is a foil's design; a rotor's design is a CSV against the spin ratio (spin_ratio,cl[,cl_u95])", d)}
 	default:
-		f, err := os.Open(d)
+		f, err := r.Lift.OpenDesign()
 		if err != nil {
 			return nil, &InputError{fmt.Errorf("[lift] design: %w", err)}
 		}

@@ -5,7 +5,6 @@ import (
 	"fmt"
 	"math"
 	"os"
-	"path/filepath"
 	"sort"
 	"time"
 
@@ -211,15 +210,7 @@ func (r *Report) loadDesign(rigDir string) {
 		r.Design = estimate.ThinAirfoil{AspectRatio: r.Rig.Reference.AspectRatio(), AlphaZeroRad: r.Rig.Lift.DesignAlphaZeroRad}
 		return
 	}
-	path := d
-	if !filepath.IsAbs(path) {
-		dir := rigDir
-		if dir == "" {
-			dir = "."
-		}
-		path = filepath.Join(dir, d)
-	}
-	f, err := os.Open(path)
+	f, err := rig.OpenInDir(rigDir, d)
 	if err != nil {
 		r.DesignProblem = fmt.Sprintf("the design curve %q named in the rig file cannot be read (%v); give the rig file's folder with --rig-dir", d, unwrapPath(err))
 		return

@@ -67,7 +67,7 @@ func (r *Report) sectorRows() []sectorRow {
 		out = append(out, sectorRow{
 			Sector: sector, Zone: g.Zone, Blocks: fmt.Sprint(g.Blocks), Left: fmt.Sprint(g.Left),
 			CpMean:  fix(g.CpMean, 2),
-			CpRange: fix(g.CpMeanLo, 2) + " … " + fix(g.CpMeanHi, 2),
+			CpRange: fix(g.CpMeanMin, 2) + " … " + fix(g.CpMeanMax, 2),
 			Peak:    fix(g.CpPeak, 2) + " / " + fix(g.CpPeakMax, 2),
 		})
 	}

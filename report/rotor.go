@@ -3,8 +3,6 @@ package report
 import (
 	"fmt"
 	"math"
-	"os"
-	"path/filepath"
 	"strings"
 
 	"gonum.org/v1/plot"
@@ -12,6 +10,7 @@ import (
 	"gonum.org/v1/plot/vg"
 
 	"liftyard/estimate"
+	"liftyard/rig"
 )
 
 // The rotor section (issue 12): C_L, C_D and L/D against the spin ratio
@@ -35,14 +34,7 @@ func (r *Report) fitSpin() {
 // [lift] design CSV, relative to rigDir).
 func (r *Report) loadSpinDesign(rigDir string) {
 	d := r.Rig.Lift.Design
-	path := d
-	if !filepath.IsAbs(path) {
-		if rigDir == "" {
-			rigDir = "."
-		}
-		path = filepath.Join(rigDir, d)
-	}
-	f, err := os.Open(path)
+	f, err := rig.OpenInDir(rigDir, d)
 	if err != nil {
 		r.DesignProblem = fmt.Sprintf("the design curve %q named in the rig file cannot be read (%v); give the rig file's folder with --rig-dir", d, unwrapPath(err))
 		return

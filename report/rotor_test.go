@@ -27,7 +27,7 @@ func mustRotorStore(t *testing.T) (*storage.Store, uint64) {
 	t.Helper()
 	toml, err := os.ReadFile("../testdata/rigs/rotor-cylinder.toml")
 	require.NoError(t, err)
-	design, err := os.Open("../testdata/design/rotor-cylinder-design.csv")
+	design, err := os.Open("../testdata/rigs/design/rotor-cylinder-design.csv")
 	require.NoError(t, err)
 	defer design.Close()
 	d, err := estimate.ParseSpinDesignCurve(design, "rotor-cylinder-design.csv")

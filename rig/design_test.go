@@ -10,8 +10,10 @@ import (
 	"liftyard/rig"
 )
 
-// Ensure that [lift] design takes a CSV path (resolved against the rig
-// file's folder) or "thin-airfoil" (kept as is), and that anything else is
+// Ensure that [lift] design takes a CSV path in the rig file's folder or
+// below it (resolved against the folder) or "thin-airfoil" (kept as is),
+// and that anything else — a path leaving the folder (issue 16:
+// "../secrets.csv" made the report print another file's first line) — is
 // refused at its line.
 func TestParse_LiftDesign(t *testing.T) {
 	base, err := os.ReadFile(filepath.Join(rigsDir, "foil-towtank.toml"))
@@ -23,7 +25,10 @@ func TestParse_LiftDesign(t *testing.T) {
 		errText            string
 	}{
 		{"relative csv", "design/fin.csv", filepath.Join("some", "dir", "design", "fin.csv"), ""},
-		{"absolute csv", "/data/fin.CSV", "/data/fin.CSV", ""},
+		{"absolute csv outside", "/data/fin.CSV", "", `lift: design must name a CSV file in the rig file's folder or below it (a relative path without ..), not "/data/fin.CSV"`},
+		{"parent folder", "../secrets.csv", "", `not "../secrets.csv"`},
+		{"down and out", "design/../../x.csv", "", `not "design/../../x.csv"`},
+		{"down and back", "design/../fin.csv", filepath.Join("some", "dir", "fin.csv"), ""},
 		{"thin airfoil", "thin-airfoil", "thin-airfoil", ""},
 		{"unknown", "naca", "", `lift: design "naca": want a design-curve CSV file (columns alpha_deg,cl[,cl_u95]) or "thin-airfoil"`},
 	} {
@@ -100,5 +105,56 @@ func TestParse_DesignAlphaZero(t *testing.T) {
 				t.Errorf("got %v (line %d key %q), want %q at line %d", e, e.Line, e.Key, c.errText, line)
 			}
 		})
+	}
+}
+
+// Ensure that the design CSV is opened inside the rig file's folder only:
+// a file there opens, a symbolic link in the folder that points out of it
+// is refused (os.Root), and the refusal quotes the name, never the content.
+func TestOpenDesign_Confined(t *testing.T) {
+	base, err := os.ReadFile(filepath.Join(rigsDir, "foil-towtank.toml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	outside := t.TempDir()
+	secret := filepath.Join(outside, "secrets.csv")
+	if err := os.WriteFile(secret, []byte("alpha_deg,cl\nTOP-SECRET,1\n"), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	dir := t.TempDir()
+	if err := os.WriteFile(filepath.Join(dir, "fin.csv"), []byte("alpha_deg,cl\n0,0\n4,0.4\n"), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	if err := os.Symlink(secret, filepath.Join(dir, "linked.csv")); err != nil {
+		t.Fatal(err)
+	}
+	open := func(design string) error {
+		t.Helper()
+		text := string(base) + "design           = \"" + design + "\"\n"
+		r, err := rig.Parse(filepath.Join(dir, "rig.toml"), []byte(text))
+		if err != nil {
+			t.Fatal(err)
+		}
+		f, err := r.Lift.OpenDesign()
+		if err == nil {
+			f.Close()
+		}
+		return err
+	}
+	if err := open("fin.csv"); err != nil {
+		t.Errorf("a design in the rig's folder: %v", err)
+	}
+	err = open("linked.csv")
+	if err == nil {
+		t.Fatal("a symbolic link out of the rig's folder was followed")
+	}
+	if strings.Contains(err.Error(), "TOP-SECRET") || !strings.Contains(err.Error(), "linked.csv") {
+		t.Errorf("refusal: %v", err)
+	}
+	// A rig read from a run (no file name): the name is looked up inside
+	// the given folder only.
+	if f, err := rig.OpenInDir(dir, "../"+filepath.Base(outside)+"/secrets.csv"); err == nil {
+		f.Close()
+		t.Error("OpenInDir left its folder")
 	}
 }

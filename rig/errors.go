@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"strings"
+	"unicode/utf8"
 )
 
 // Sentinel errors of rig files. Every problem that Parse reports is an *Error whose chain
@@ -147,7 +148,68 @@ func (p *problem) Unwrap() error { return p.kind }
 
 // Problem returns the message of an Error: the formatted text, whose chain
 // ends in kind. The text is printed without kind's own words, so a reader
-// keeps its messages while errors.Is(err, kind) sorts them.
+// keeps its messages while errors.Is(err, kind) sorts them. Arguments
+// quoted with %q are cut to an Excerpt: a message quotes what it is about,
+// never a whole field of a hostile file.
 func Problem(kind error, format string, args ...any) error {
-	return &problem{msg: fmt.Sprintf(format, args...), kind: kind}
+	return &problem{msg: fmt.Sprintf(format, Excerpts(format, args...)...), kind: kind}
+}
+
+// ExcerptBytes is the most of an input field an error message quotes.
+const ExcerptBytes = 80
+
+// Excerpt returns s cut to ExcerptBytes bytes (at a character boundary)
+// with "…" appended when it was longer.
+func Excerpt(s string) string {
+	if len(s) <= ExcerptBytes {
+		return s
+	}
+	cut := ExcerptBytes
+	for cut > 0 && !utf8.RuneStart(s[cut]) {
+		cut--
+	}
+	return s[:cut] + "…"
+}
+
+// Excerpts returns args with every string (or []byte) that format quotes
+// with %q cut to an Excerpt: the arguments of a message that echoes its
+// input. Words of our own (%s, %v) are left whole.
+func Excerpts(format string, args ...any) []any {
+	out := args
+	n := 0 // index of the argument the next verb takes
+	for i := 0; i < len(format); i++ {
+		if format[i] != '%' {
+			continue
+		}
+		i++
+		for i < len(format) && strings.IndexByte("+-# 0123456789.*", format[i]) >= 0 {
+			if format[i] == '*' {
+				n++
+			}
+			i++
+		}
+		if i >= len(format) || format[i] == '%' {
+			continue
+		}
+		if format[i] == '[' { // explicit argument indexes: not used here
+			return out
+		}
+		if format[i] == 'q' && n < len(args) {
+			var s string
+			switch x := args[n].(type) {
+			case string:
+				s = x
+			case []byte:
+				s = string(x)
+			}
+			if len(s) > ExcerptBytes {
+				if &out[0] == &args[0] {
+					out = append([]any(nil), args...)
+				}
+				out[n] = Excerpt(s)
+			}
+		}
+		n++
+	}
+	return out
 }

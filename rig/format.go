@@ -2,6 +2,7 @@ package rig
 
 import (
 	"fmt"
+	"path/filepath"
 	"strconv"
 	"strings"
 )
@@ -107,8 +108,14 @@ func Format(r *Rig) []byte {
 	if l.PitotCoeffU != 0 {
 		w("pitot_coefficient_u = %s\n", num(l.PitotCoeffU))
 	}
+	design := l.Design
+	if l.DesignDir != "" { // written as the rig file gave it: relative to its folder
+		if rel, err := filepath.Rel(l.DesignDir, design); err == nil {
+			design = filepath.ToSlash(rel)
+		}
+	}
 	for _, kv := range [][2]string{{"moment", l.Moment}, {"dynamic_pressure", l.DynamicPressure}, {"speed", l.Speed},
-		{"spin", l.Spin}, {"direction", l.Direction}, {"temperature", l.Temperature}, {"design", l.Design}} {
+		{"spin", l.Spin}, {"direction", l.Direction}, {"temperature", l.Temperature}, {"design", design}} {
 		if kv[1] != "" {
 			w("%s = %s\n", kv[0], quote(kv[1]))
 		}

@@ -72,12 +72,17 @@ func Parse(filename string, data []byte) (*Rig, error) {
 	d.idx = buildIndex(string(data))
 	r := d.rig(doc)
 	validate(r, d)
+	if l := &r.Lift; l.Design != "" && l.Design != DesignThinAirfoil && filename != "" {
+		dir := filepath.Dir(filename)
+		if name, ok := localName(dir, l.Design); ok {
+			l.Design, l.DesignDir = filepath.Join(dir, name), dir
+		} else {
+			d.add("lift.design", ErrValue, "lift: design must name a CSV file in the rig file's folder or below it (a relative path without ..), not %q", l.Design)
+		}
+	}
 	if len(d.errs) > 0 {
 		d.sort()
 		return nil, d.errs
-	}
-	if r.Lift.Design != "" && r.Lift.Design != DesignThinAirfoil && !filepath.IsAbs(r.Lift.Design) && filename != "" {
-		r.Lift.Design = filepath.Join(filepath.Dir(filename), r.Lift.Design)
 	}
 	return r, nil
 }
@@ -85,7 +90,7 @@ func Parse(filename string, data []byte) (*Rig, error) {
 func syntaxMessage(pe toml.ParseError) string {
 	msg := pe.Message
 	if pe.LastKey != "" {
-		msg = fmt.Sprintf("%s (after key %q)", msg, pe.LastKey)
+		msg = fmt.Sprintf("%s (after key %q)", msg, Excerpt(pe.LastKey))
 	}
 	return "TOML syntax: " + msg
 }
@@ -107,12 +112,17 @@ type decoder struct {
 // add reports a problem at the key path. A second problem for the same path
 // is dropped, so a bad unit is not also reported as a missing one.
 func (d *decoder) add(path string, kind error, format string, args ...any) {
+	d.addProblem(path, Problem(kind, format, args...))
+}
+
+// addProblem records err at path, once per path.
+func (d *decoder) addProblem(path string, err error) {
 	if d.reported[path] {
 		return
 	}
 	d.reported[path] = true
 	p := d.idx.at(path)
-	d.errs = append(d.errs, &Error{File: d.file, Line: p.line, Col: p.col, Key: path, Err: Problem(kind, format, args...)})
+	d.errs = append(d.errs, &Error{File: d.file, Line: p.line, Col: p.col, Key: path, Err: err})
 }
 
 func (d *decoder) sort() {
@@ -142,11 +152,11 @@ func (d *decoder) table(path, subject string, m map[string]any, allowed ...strin
 func (t *table) keyPath(key string) string { return joinPath(t.path, key) }
 
 func (t *table) errf(key string, kind error, format string, args ...any) {
-	msg := fmt.Sprintf(format, args...)
+	msg := fmt.Sprintf(format, Excerpts(format, args...)...)
 	if t.subject != "" {
 		msg = t.subject + ": " + msg
 	}
-	t.d.add(t.keyPath(key), kind, "%s", msg)
+	t.d.addProblem(t.keyPath(key), &problem{msg: msg, kind: kind})
 }
 
 func (t *table) has(key string) bool { _, ok := t.m[key]; return ok }
@@ -268,6 +278,16 @@ func (t *table) toNum(key, label string, v any) (float64, bool) {
 		return 0, false
 	}
 	return f, true
+}
+
+// nameList reads an array of strings, and refuses a single string: a
+// source's channels and columns are always a list, even of one.
+func (t *table) nameList(key string) []string {
+	if _, isStr := t.m[key].(string); isStr {
+		t.errf(key, ErrValue, `%s must be an array of names in quotes, like ["a", "b"] (one name too: ["a"]), not a string`, key)
+		return nil
+	}
+	return t.strList(key)
 }
 
 // strList reads an array of strings; a single string counts as a list of one.
@@ -555,7 +575,7 @@ func defaultAreaKind(k Kind) string {
 // `[[channel]] #3` while it has no name.
 func itemSubject(kind string, i int, m map[string]any) string {
 	if n, ok := m["name"].(string); ok && n != "" {
-		return fmt.Sprintf("%s %q", kind, n)
+		return fmt.Sprintf("%s %q", kind, Excerpt(n))
 	}
 	return fmt.Sprintf("[[%s]] #%d", kind, i+1)
 }
@@ -595,9 +615,9 @@ func (d *decoder) source(i int, m map[string]any) Source {
 	if w, ok := t.word("format", formatWords); ok {
 		s.Format = w
 	}
-	s.Channels = t.strList("channels")
+	s.Channels = t.nameList("channels")
 	s.Delimiter, _ = t.str("delimiter")
-	s.Columns = t.strList("columns")
+	s.Columns = t.nameList("columns")
 	s.Broker, _ = t.str("broker")
 	s.Topic, _ = t.str("topic")
 	s.ClientID, _ = t.str("client_id")

@@ -1,6 +1,12 @@
 package rig
 
-import "math"
+import (
+	"errors"
+	"fmt"
+	"math"
+	"os"
+	"path/filepath"
+)
 
 // Kind names the body under test. It decides which results a run produces.
 type Kind string
@@ -200,6 +206,11 @@ type Lift struct {
 	Direction       string  // wind direction channel for roofs
 	Temperature     string  // fluid temperature channel (optional)
 	Design          string  // design-curve CSV path (optional)
+	// DesignDir is the folder the design CSV must be in: the rig file's
+	// (set by Parse when it reads a file; "" for a rig parsed from text,
+	// whose design is then looked up in the working directory). See
+	// OpenDesign.
+	DesignDir string
 	// DesignAlphaZeroRad is the zero-lift angle of the "thin-airfoil"
 	// design, rad (key design_alpha_zero_deg; default 0, a symmetric
 	// section; negative for positive camber). A design CSV states its own.
@@ -273,3 +284,57 @@ func Deg(rad float64) float64 { return rad * 180 / math.Pi }
 // Rad converts degrees to radians, where a degree enters: a flag, a design
 // curve's alpha_deg, a tolerance written in degrees.
 func Rad(deg float64) float64 { return deg * math.Pi / 180 }
+
+// localName returns name relative to dir when it lies in dir or below it
+// (an absolute path inside dir counts), cleaned; ok is false for a name
+// that leaves dir.
+func localName(dir, name string) (string, bool) {
+	if filepath.IsAbs(name) {
+		abs, err := filepath.Abs(dir)
+		if err != nil {
+			return "", false
+		}
+		if name, err = filepath.Rel(abs, name); err != nil {
+			return "", false
+		}
+	}
+	return filepath.Clean(name), filepath.IsLocal(name)
+}
+
+// OpenDesign opens the design CSV l names, inside l.DesignDir: a name
+// that leaves the folder, by .. or through a symbolic link, is refused
+// (os.Root), so a rig file cannot make liftyard read a file elsewhere.
+func (l Lift) OpenDesign() (*os.File, error) {
+	name := l.Design
+	if l.DesignDir != "" {
+		rel, err := filepath.Rel(l.DesignDir, l.Design)
+		if err != nil {
+			return nil, fmt.Errorf("design file: %w", err)
+		}
+		name = rel
+	}
+	return OpenInDir(l.DesignDir, name)
+}
+
+// OpenInDir opens the file name inside dir ("" is the working
+// directory), refusing a name that leaves dir by .. , by an absolute path
+// or through a symbolic link. Its errors name the file, never its content.
+func OpenInDir(dir, name string) (*os.File, error) {
+	if dir == "" {
+		dir = "."
+	}
+	root, err := os.OpenRoot(dir)
+	if err != nil {
+		return nil, fmt.Errorf("design file %q: %w", Excerpt(name), err)
+	}
+	defer root.Close()
+	f, err := root.Open(name)
+	if err != nil {
+		var pe *os.PathError
+		if errors.As(err, &pe) {
+			err = pe.Err
+		}
+		return nil, fmt.Errorf("design file %q (it must be in the rig file's folder or below it): %w", Excerpt(name), err)
+	}
+	return f, nil
+}

@@ -46,7 +46,9 @@ func (v *validator) publish() {
 	if p == nil || p.Broker == "" {
 		return
 	}
-	if !validBroker(p.Broker) {
+	if brokerUserInfo(p.Broker) {
+		v.add("publish.broker", ErrValue, "publish: "+brokerUserInfoMsg)
+	} else if !validBroker(p.Broker) {
 		v.add("publish.broker", ErrValue, `publish: broker %q needs a scheme, host and port, like "tcp://site-broker:1883"`, p.Broker)
 	}
 }
@@ -113,8 +115,10 @@ func (v *validator) conditions() {
 func (v *validator) reference() {
 	ref, kind := v.r.Reference, v.r.Kind
 	switch {
-	case !finite(ref.AreaM2) || ref.AreaM2 < 0:
+	case !finite(ref.AreaM2) || ref.AreaM2 < 0 || (ref.AreaM2 == 0 && v.present("reference.area_m2")):
 		v.add("reference.area_m2", ErrValue, "reference: area_m2 must be > 0, not %g", ref.AreaM2)
+	case ref.AreaM2 > MaxAreaM2:
+		v.add("reference.area_m2", ErrValue, "reference: area_m2 = %g m² is not plausible (more than %g m²); give the area in m²", ref.AreaM2, float64(MaxAreaM2))
 	case ref.AreaM2 == 0 && kind != KindRoof && kind != "":
 		v.add("reference.area_m2", ErrMissing, "reference: area_m2 missing (add [reference] area_m2 = the %s area that coefficients are made on, in m²)", defaultAreaKind(kind))
 	}
@@ -220,7 +224,7 @@ func itemName(kind string, i int, name string) string {
 	if name == "" {
 		return fmt.Sprintf("[[%s]] #%d", kind, i+1)
 	}
-	return fmt.Sprintf("%s %q", kind, name)
+	return fmt.Sprintf("%s %q", kind, Excerpt(name))
 }
 
 // ref checks that name is a defined channel of quantity want.
@@ -279,6 +283,8 @@ func (v *validator) sources() {
 			switch {
 			case s.Broker == "":
 				v.add(p+".broker", ErrMissing, `%s: broker missing (add broker = "tcp://127.0.0.1:1883")`, subj)
+			case brokerUserInfo(s.Broker):
+				v.add(p+".broker", ErrValue, "%s: "+brokerUserInfoMsg, subj)
 			case !validBroker(s.Broker):
 				v.add(p+".broker", ErrValue, `%s: broker %q needs a scheme, host and port, like "tcp://127.0.0.1:1883"`, subj, s.Broker)
 			}
@@ -347,6 +353,38 @@ func (v *validator) columns(i int, p, subj string, s Source, readBy map[string]s
 	if chans == 0 {
 		v.add(p+".columns", ErrValue, "%s: columns name no channel; at least one field must be a channel", subj)
 	}
+}
+
+// MaxAreaM2 is the largest reference or tap area a rig file may give:
+// 10 000 m², a hectare, far above any test article; a larger number is a
+// slip of units or of the keyboard.
+const MaxAreaM2 = 1e4
+
+// brokerUserInfoMsg says why a broker URL with a user or password is
+// refused (by check and record alike) and what to do instead. It never
+// quotes the URL, which would print the password.
+const brokerUserInfoMsg = "the broker URL holds a user name or password, which would show in logs and run records; " +
+	"give the user in username and the password in an environment variable named by password_env"
+
+// brokerUserInfo tells whether a broker URL holds user information
+// (tcp://user:pw@host:1883).
+func brokerUserInfo(b string) bool {
+	_, rest, ok := strings.Cut(b, "://")
+	if !ok {
+		return false
+	}
+	authority, _, _ := strings.Cut(rest, "/")
+	return strings.Contains(authority, "@")
+}
+
+// present tells whether the file gives the key at path (a zero value
+// written out is not a missing one).
+func (v *validator) present(path string) bool {
+	if v.d.idx == nil {
+		return false
+	}
+	_, ok := v.d.idx.pos[path]
+	return ok
 }
 
 func validBroker(b string) bool {
@@ -482,8 +520,10 @@ func (v *validator) roof() {
 			}
 		}
 		switch {
-		case !finite(t.AreaM2) || t.AreaM2 < 0:
-			v.add(p+".area_m2", ErrValue, "%s: area_m2 must be > 0", subj)
+		case !finite(t.AreaM2) || t.AreaM2 < 0 || (t.AreaM2 == 0 && v.present(p+".area_m2")):
+			v.add(p+".area_m2", ErrValue, "%s: area_m2 must be > 0, not %g", subj, t.AreaM2)
+		case t.AreaM2 > MaxAreaM2:
+			v.add(p+".area_m2", ErrValue, "%s: area_m2 = %g m² is not plausible (more than %g m²); give the area in m²", subj, t.AreaM2, float64(MaxAreaM2))
 		case t.AreaM2 == 0:
 			v.add(p+".area_m2", ErrMissing, "%s: area_m2 missing (add area_m2 = the tap's tributary area in m²)", subj)
 		}

@@ -74,4 +74,8 @@
 //   - A file damaged or cut short gives ErrCorrupt, never a crash: reads run
 //     with debug.SetPanicOnFault so that a fault in the mapped file becomes
 //     an error.
+//   - Nothing is written to a damaged file: a read-write Open of an
+//     existing file first walks every page (Survey) and runs bbolt's Check,
+//     and refuses with ErrDamaged. Repair copies every readable record of
+//     such a file into a new one, stepping over unreadable pages.
 package storage

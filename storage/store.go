@@ -92,6 +92,10 @@ type Store struct {
 // wrapping ErrLocked after opts.Timeout. A file that is not a liftyard store
 // gives ErrCorrupt or ErrNotStore, never a panic.
 //
+// Opened read-write, an existing file is checked first (Survey, then
+// bbolt's Check): a damaged one gives an error wrapping ErrDamaged, which
+// names `liftyard repair`. Read-only opens check nothing.
+//
 // Opened read-write, Open marks every run still in StatusRecording as
 // StatusInterrupted: such a run was being recorded when a process died.
 func Open(path string, opts Options) (*Store, error) {
@@ -143,6 +147,9 @@ func Open(path string, opts Options) (*Store, error) {
 		err = s.initialise()
 	} else {
 		err = s.checkFormat()
+	}
+	if err == nil && !opts.ReadOnly && !fresh {
+		err = s.checkBeforeWrite() // nothing is written to a damaged file
 	}
 	if err == nil && !opts.ReadOnly {
 		err = s.recover()

@@ -317,6 +317,7 @@ func (w *Writer) Run(ctx context.Context, in <-chan Item) error {
 			timerC = timer.C
 		}
 	}
+	acks := 0 // blocks in the batch whose source acknowledges them at the commit
 	flush := func() {
 		timer.Stop()
 		timerC = nil
@@ -333,6 +334,7 @@ func (w *Writer) Run(ctx context.Context, in <-chan Item) error {
 			return
 		}
 		b.reset()
+		acks = 0
 		if w.recovered(&b) {
 			arm(w.cfg.Interval) // store the recovery's event soon
 		}
@@ -342,11 +344,14 @@ func (w *Writer) Run(ctx context.Context, in <-chan Item) error {
 			arm(w.cfg.Interval)
 		}
 		b.add(it)
+		if it.Block != nil && it.Block.Ack != nil {
+			acks++
+		}
 		if w.failing() {
 			w.bound(&b)
 			return // the retry timer decides
 		}
-		if len(b.blocks) >= w.cfg.MaxBlocks {
+		if len(b.blocks) >= w.cfg.MaxBlocks || acks >= AckBatch {
 			flush()
 		}
 	}
@@ -461,6 +466,7 @@ func (w *Writer) bound(b *batch) {
 			blocks++
 			samples += uint64(b.blocks[0].Len())
 			b.bytes -= blockBytes(b.blocks[0])
+			b.blocks[0].Done() // given up and counted: a broker need not keep it
 			b.blocks[0] = nil
 			b.blocks = b.blocks[1:]
 		case len(b.events) > 0:
@@ -735,6 +741,7 @@ func (w *Writer) commit(b *batch) (err error) {
 	w.samples.Add(nSamples)
 	w.rejected.Add(rejected)
 	w.commits.Add(1)
+	ackBlocks(b.blocks) // only now may a broker forget them
 	return nil
 }
 
@@ -779,9 +786,11 @@ func Offer(ch chan Item, it Item, dropped *Drops) bool {
 				continue
 			}
 			dropped.count(old)
+			old.Block.Done() // dropped and counted: nothing to keep it for
 		default:
 		}
 	}
 	dropped.count(it)
+	it.Block.Done()
 	return false
 }

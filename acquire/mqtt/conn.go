@@ -62,7 +62,7 @@ func (l link) options() *paho.ClientOptions {
 func BrokerURL(raw string) (string, bool, error) {
 	u, err := url.Parse(raw)
 	if err != nil || u.Host == "" {
-		return "", false, fmt.Errorf("broker %q: want a URL like tcp://host:1883 or ssl://host:8883", raw)
+		return "", false, fmt.Errorf("broker %q: want a URL like tcp://host:1883 or ssl://host:8883", rig.Excerpt(raw))
 	}
 	if u.User != nil {
 		return "", false, fmt.Errorf("broker %q: no user name or password in the URL; use username and password_env", u.Redacted())
@@ -74,7 +74,7 @@ func BrokerURL(raw string) (string, bool, error) {
 	case "ssl", "tls", "mqtts":
 		u.Scheme, isTLS = "ssl", true
 	default:
-		return "", false, fmt.Errorf("broker %q: scheme %q not supported, use tcp:// or ssl:// (tls://, mqtts://)", raw, u.Scheme)
+		return "", false, fmt.Errorf("broker %q: scheme %q not supported, use tcp:// or ssl:// (tls://, mqtts://)", rig.Excerpt(raw), rig.Excerpt(u.Scheme))
 	}
 	if u.Port() == "" {
 		if isTLS {

@@ -576,3 +576,68 @@ func TestSource_UnreachableBrokerIsVisible(t *testing.T) {
 	cancel()
 	assert.NoError(t, <-done)
 }
+
+// Ensure that with AckOnStore a QoS 1 message is acknowledged only when its
+// block's Ack is called (issue 16): a source that stops before the store
+// committed some blocks leaves them with Debian's mosquitto, which
+// redelivers exactly those to the next session with the same client id.
+func TestSource_AckOnStore_RedeliversUncommitted(t *testing.T) {
+	br := mosquittotest.Start(t)
+	ctx, cancel := context.WithTimeout(t.Context(), 30*time.Second)
+	defer cancel()
+	newSource := func() *mqtt.Source {
+		return &mqtt.Source{Name: "s", Broker: br.URL(), Topic: "ack/raw", ClientID: "liftyard-ack-s", AckOnStore: true}
+	}
+	r := runSource(t, ctx, newSource())
+	c := rawClient(t, br.URL(), "ack-pub")
+	publishRaw(t, c, "ack/raw", seqRange(0, 10)...)
+	got := drain(t, ctx, r.out, 10)
+	for _, b := range got {
+		require.NotNil(t, b.Ack, "a block of an AckOnStore source carries its Ack")
+	}
+	for _, b := range got[:6] { // the store committed 0–5; 6–9 were still in memory
+		b.Ack()
+	}
+	got[0].Ack() // a second call is harmless
+	require.NoError(t, r.halt())
+	select {
+	case <-r.src.Settled(): // waits AckGrace for 6–9, then disconnects
+	case <-ctx.Done():
+		t.Fatal("the stopped source never settled")
+	}
+
+	r2 := runSource(t, ctx, newSource())
+	var again []uint64
+	for _, b := range drain(t, ctx, r2.out, 4) {
+		again = append(again, b.Seq)
+		b.Ack()
+	}
+	assert.Equal(t, []uint64{6, 7, 8, 9}, again, "the broker redelivers what was not acknowledged, and only that")
+	r2.quiet(t, 300*time.Millisecond)
+	publishRaw(t, c, "ack/raw", 10)
+	for _, b := range drain(t, ctx, r2.out, 1) {
+		assert.Equal(t, uint64(10), b.Seq)
+		b.Ack()
+	}
+	require.NoError(t, r2.halt())
+	select {
+	case <-r2.src.Settled():
+	case <-time.After(mqtt.AckGrace):
+		t.Fatal("a source whose blocks were all acknowledged kept its connection")
+	}
+}
+
+// drain receives n blocks from out.
+func drain(t *testing.T, ctx context.Context, out <-chan acquire.Block, n int) []acquire.Block {
+	t.Helper()
+	var bs []acquire.Block
+	for len(bs) < n {
+		select {
+		case b := <-out:
+			bs = append(bs, b)
+		case <-ctx.Done():
+			t.Fatalf("only %d of %d blocks", len(bs), n)
+		}
+	}
+	return bs
+}

@@ -5,8 +5,11 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"os"
 	"strings"
 
+	"liftyard/acquire/mqtt"
+	"liftyard/acquire/serial"
 	"liftyard/process"
 	"liftyard/rig"
 )
@@ -30,6 +33,10 @@ func runCheck(_ context.Context, args []string, stdout, _ io.Writer) error {
 	if err := process.CheckDesign(r); err != nil {
 		return err
 	}
+	unset, err := checkLinks(r)
+	if err != nil {
+		return usagef("%s: %v", pos[0], err)
+	}
 	fmt.Fprintf(stdout, "%s: ok: %q, %s in %s; %s, %s", pos[0], r.Name, r.Kind, strings.ReplaceAll(string(r.Fluid), "_", " "),
 		count(len(r.Sources), "source"), count(len(r.Channels), "channel"))
 	if r.Reference.AreaM2 > 0 {
@@ -42,7 +49,43 @@ func runCheck(_ context.Context, args []string, stdout, _ io.Writer) error {
 	if w := tributaryWarning(r); w != "" {
 		fmt.Fprintf(stdout, "%s: warning: %s\n", pos[0], w)
 	}
+	for _, name := range unset {
+		fmt.Fprintf(stdout, "%s: warning: password_env names %s, which is not set in this shell; record needs it\n", pos[0], name)
+	}
 	return nil
+}
+
+// checkLinks builds the rig's sources and [publish] link as record does,
+// without connecting, so check refuses what record would (issue 16): a
+// broker scheme paho cannot use, a ca_file on a broker without TLS or one
+// that does not hold a CA, bad serial settings. A password environment
+// variable that is not set here is no error (record runs elsewhere): it is
+// returned to be warned about.
+func checkLinks(r *rig.Rig) (unset []string, err error) {
+	getenv := func(name string) string {
+		if v := os.Getenv(name); v != "" {
+			return v
+		}
+		unset = append(unset, name)
+		return "set when record runs"
+	}
+	for _, s := range r.Sources {
+		switch s.Type {
+		case rig.SourceMQTT:
+			_, err = mqtt.FromRig(s, r.Name, getenv)
+		case rig.SourceSerial:
+			_, err = serial.FromRig(s, r)
+		}
+		if err != nil {
+			return nil, err
+		}
+	}
+	if r.Publish != nil {
+		if _, err := mqtt.OutboxFromRig(*r.Publish, r.Name, getenv); err != nil {
+			return nil, err
+		}
+	}
+	return unset, nil
 }
 
 // count writes n with its noun, plural when n ≠ 1 ("1 source", "4 channels").

@@ -68,7 +68,8 @@ func runDemoSession(ctx context.Context, m *Main, simCfg sim.Config) (*sim.Rig, 
 		return nil, err
 	}
 	m.Rig, m.RigTOML = r, string(demoRigTOML)
-	src := &mqtt.Source{Name: r.Sources[0].Name, Broker: broker.URL(), Topic: demoTopic, ClientID: "liftyard-demo-recorder", Logger: m.Logger, OnEvent: m.onEvent}
+	src := &mqtt.Source{Name: r.Sources[0].Name, Broker: broker.URL(), Topic: demoTopic, ClientID: "liftyard-demo-recorder", Logger: m.Logger, OnEvent: m.onEvent,
+		AckOnStore: true}
 	m.Sources = []Source{{Name: src.Name, Src: src, Health: &src.Health}}
 
 	// The simulated carriage starts publishing once the recorder has

@@ -24,7 +24,7 @@ var (
 	// importCSV is a raw record of the simulated tow-tank foil, made by
 	// TestImportData_UpToDate (go test ./cmd/liftyard -run ImportData -update).
 	importCSV  = filepath.Join("..", "..", "testdata", "import", "foil-towtank-raw.csv")
-	designCSV  = filepath.Join("..", "..", "testdata", "design", "foil-towtank-design.csv")
+	designCSV  = filepath.Join("..", "..", "testdata", "rigs", "design", "foil-towtank-design.csv")
 	importStep = []float64{-4, 0, 4, 8, 12}
 )
 
@@ -143,10 +143,12 @@ func TestImport_SegmentsAgreeWithTruth(t *testing.T) {
 func TestImport_DesignComparison(t *testing.T) {
 	base, err := os.ReadFile(towtankRig)
 	require.NoError(t, err)
-	abs, err := filepath.Abs(designCSV)
+	dir := t.TempDir() // the design CSV lives beside the rig file (a rig may name no file outside its folder)
+	design, err := os.ReadFile(designCSV)
 	require.NoError(t, err)
-	rigFile := filepath.Join(t.TempDir(), "foil-designed.toml")
-	require.NoError(t, os.WriteFile(rigFile, append(base, []byte("design = "+strconv.Quote(abs)+"\n")...), 0o644))
+	require.NoError(t, os.WriteFile(filepath.Join(dir, "design.csv"), design, 0o644))
+	rigFile := filepath.Join(dir, "foil-designed.toml")
+	require.NoError(t, os.WriteFile(rigFile, append(base, []byte("design = \"design.csv\"\n")...), 0o644))
 	db := filepath.Join(t.TempDir(), "import.db")
 	code, _, errOut := runCLI(t, "import", "--rig", rigFile, "--db", db, importCSV)
 	require.Equal(t, 0, code, errOut)

@@ -59,6 +59,7 @@ func verbs() []verb {
 		{"report", "write a printable HTML report of a run: plots, segments, uncertainty budgets, record quality", runReport},
 		{"balance", "fit a balance interaction matrix to combined bench loadings (prints the [balance] table)", runBalance},
 		{"tare", "fit the weight tare against the angle from a recorded flow-off angle sweep (prints [[tare]] tables)", runTare},
+		{"repair", repairSummary, runRepair},
 		{"reprocess", "re-process a run from its stored raw samples as a new run (e.g. with a corrected rig file)", runReprocess},
 		{"version", "print the module version and VCS revision of this build", runVersion},
 	}

@@ -31,6 +31,7 @@ var dimensionless = map[string]bool{
 	"CLUp":  true, "CLDown": true, "CLDiff": true, "SlopeEn": true, "AlphaZeroEn": true, // polar hysteresis and design line tests
 	"DeltaCL": true, "DeltaCD": true, "EnCD": true, "CLRef": true, "CLOther": true, "SpinRatioOther": true, "CLOffset": true, "MaxGapSpinRatio": true, // run against run (estimate/runcompare.go)
 	"CpMax": true, "CpPeakU": true, "CpPeakMax": true, "CpPeakMaxU": true, "CpInt": true, // roof pressure coefficients (estimate/roof.go)
+	"CpMeanMin": true, "CpMeanMax": true, // range of block means per sector (estimate/sectors.go)
 	"Exponent": true, "TapGustCorrelation": true, // a power-law profile's exponent; a correlation coefficient
 	// ratios and fractions
 	"RelHumidity": true, "TurbulenceIntensity": true, "NoiseFrac": true, "QTolFrac": true,

@@ -8,6 +8,7 @@ import (
 	"log/slog"
 	"net"
 	"os"
+	"strings"
 	"sync"
 	"time"
 
@@ -129,6 +130,7 @@ func buildSources(r *rig.Rig, logger *slog.Logger, rhoKgPerM3 float64, onEvent a
 				return nil, err
 			}
 			src.Logger, src.OnEvent = logger, onEvent
+			src.AckOnStore = true          // the broker keeps each message until the store has it
 			for _, c := range r.Channels { // only the rig's channels are recorded
 				src.Channels = append(src.Channels, c.Name)
 			}
@@ -223,6 +225,7 @@ func (m *Main) Run(ctx context.Context) error {
 	age := time.NewTicker(ageTick)
 	defer age.Stop()
 	var live liveGate
+	blocks := 0 // blocks received; none by the end is said, not stored silently
 loop:
 	for {
 		select {
@@ -246,6 +249,7 @@ loop:
 			if !ok {
 				break loop
 			}
+			blocks++
 			pub.segments(rec.Block(b).Segments)
 			live.block(rec, pub)
 		}
@@ -261,8 +265,16 @@ loop:
 	if errors.Is(runErr, context.Canceled) || errors.Is(runErr, context.DeadlineExceeded) {
 		runErr = nil
 	}
+	if blocks == 0 && runErr == nil {
+		// A run without a single sample is not a complete run: say why
+		// with the run (event), on the way out (exit 1), and mark it
+		// interrupted.
+		runErr = noData(final.Sources[:len(m.Sources)])
+		rec.Event(acquire.Event{Kind: eventNoData, Message: runErr.Error()})
+	}
 	fin, ferr := rec.Finish(ctx, runErr, final.Sources[:len(m.Sources)])
 	m.Finished = fin
+	settle(m.Sources)
 	if run, err := store.Run(m.runID); err == nil {
 		dash.SetRun(run)
 	}
@@ -322,6 +334,36 @@ func (m *Main) startSources(ctx context.Context, cancel context.CancelCauseFunc)
 	}
 	go func() { wg.Wait(); close(raw) }()
 	return raw
+}
+
+// eventNoData is the kind of the event stored with a run that received no
+// block at all.
+const eventNoData = "no_data"
+
+// noData says why a recording got no block: the sources that never reached
+// their broker or port, or that none sent anything.
+func noData(sources []acquire.HealthSnapshot) error {
+	var down []string
+	for _, h := range sources {
+		if h.ConnectFailures > 0 && h.Frames == 0 {
+			down = append(down, fmt.Sprintf("%s could not connect (%d failed attempts)", h.Source, h.ConnectFailures))
+		}
+	}
+	if len(down) > 0 {
+		return fmt.Errorf("no samples were recorded: %s; the run is kept as interrupted", strings.Join(down, "; "))
+	}
+	return errors.New("no samples were recorded: no source delivered a block; the run is kept as interrupted")
+}
+
+// settle waits until the sources that acknowledge after the store's commit
+// (MQTT with AckOnStore) have sent the acknowledgements of the last commit
+// and closed their connections; each bounds its own wait.
+func settle(srcs []Source) {
+	for _, s := range srcs {
+		if st, ok := s.Src.(interface{ Settled() <-chan struct{} }); ok {
+			<-st.Settled()
+		}
+	}
 }
 
 // health is the recording's health now: each source, then the store edge,

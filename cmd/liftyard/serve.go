@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"io"
 	"net"
@@ -87,17 +88,28 @@ func serve(ctx context.Context, o serveOptions, stderr io.Writer) error {
 		return usagef("store %s: %v", o.db, err)
 	}
 	store, err := storage.Open(o.db, storage.Options{})
+	damaged := errors.Is(err, storage.ErrDamaged)
+	if damaged {
+		// Nothing is written to a damaged file, but what is readable is
+		// worth showing: read-only, without marking.
+		fmt.Fprintf(stderr, "liftyard serve: warning: %v\nliftyard serve: serving it read-only: marks cannot be set\n", err)
+		store, err = storage.Open(o.db, storage.Options{ReadOnly: true})
+	}
 	if err != nil {
 		return err
 	}
 	defer store.Close()
 	// Stored runs only: no live feed. Marks are edited and applied here
 	// (the file is held read-write), and run pages link to the report.
-	dash, err := dashboard.New(dashboard.Config{Addr: o.addr, Token: o.token, Runs: store,
-		Marks: newMarkStore(store),
-		ApplyMarks: func(ctx context.Context, id uint64) (dashboard.MarksApplied, error) {
+	var apply func(ctx context.Context, runID uint64) (dashboard.MarksApplied, error)
+	if !damaged {
+		apply = func(ctx context.Context, id uint64) (dashboard.MarksApplied, error) {
 			return process.ApplyMarks(ctx, store, id)
-		},
+		}
+	}
+	dash, err := dashboard.New(dashboard.Config{Addr: o.addr, Token: o.token, Runs: store,
+		Marks:        newMarkStore(store),
+		ApplyMarks:   apply,
 		Timeline:     timeliner(store),
 		Report:       reportWriter(store, ""),
 		Compare:      comparer(store),
