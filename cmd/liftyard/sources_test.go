@@ -1,0 +1,136 @@
+package main
+
+import (
+	"context"
+	"os"
+	"path/filepath"
+	"regexp"
+	"strings"
+	"sync"
+	"testing"
+	"time"
+
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+
+	"liftyard/acquire/sim"
+	"liftyard/estimate"
+	"liftyard/internal/mosquittotest"
+	"liftyard/rig"
+	"liftyard/storage"
+)
+
+// mixedRigTOML is the example foil rig with its one MQTT source replaced by
+// two: the balance and the angle encoder on a third-party amplifier that
+// writes delimited lines on a serial port (port), and the pitot and the
+// water thermometer on an MQTT node (broker).
+func mixedRigTOML(t *testing.T, port, broker string) string {
+	t.Helper()
+	text, err := os.ReadFile("../../testdata/rigs/foil-towtank.toml")
+	require.NoError(t, err)
+	src := `[[source]]
+name      = "amp"
+type      = "serial"
+port      = "` + port + `"
+format    = "delimited"
+delimiter = ";"
+columns   = ["t_ms", "n_fore", "n_aft", "_", "a_main", "alpha"]
+
+[[source]]
+name     = "pitotnode"
+type     = "mqtt"
+broker   = "` + broker + `"
+topic    = "liftyard/mixed/pitot"
+channels = ["pitot", "t_water"]
+
+`
+	re := regexp.MustCompile(`(?s)\[\[source\]\].*?\n# Channels\.`)
+	toml := re.ReplaceAllString(string(text), src+"# Channels.")
+	require.NotEqual(t, string(text), toml, "the source table was replaced")
+	return toml
+}
+
+// Ensure the issue 15 "must show": for a rig whose balance is a serial
+// `delimited` amplifier and whose pitot is on MQTT, `liftyard simulate`
+// drives both sources at once — delimited lines into a real
+// pseudo-terminal, JSON blocks to Debian's mosquitto — each on its own
+// device clock (started apart, drifting), from one simulation; `liftyard
+// record` reads both through go.bug.st/serial and paho, aligns the clocks
+// and gives a segment at every step of the sweep with C_L within U95 of the
+// simulator's truth.
+func TestSimulateRecord_SerialDelimitedAndMQTT(t *testing.T) {
+	br := mosquittotest.Start(t)
+	dir := t.TempDir()
+	simRig := filepath.Join(dir, "sim.toml")
+	require.NoError(t, os.WriteFile(simRig, []byte(mixedRigTOML(t, "/dev/null", br.URL())), 0o644))
+
+	steps := []float64{-2, 4, 9}
+	ctx, cancel := context.WithTimeout(t.Context(), 30*time.Second)
+	defer cancel()
+	var wg sync.WaitGroup
+	var simOut syncBuf
+	var simCode int
+	wg.Go(func() {
+		simCode = run(ctx, []string{"simulate", "--rig", simRig, "--device", "amp=pty", "--seed", "15",
+			"--steps-deg", "-2,4,9", "--hold", "2200ms", "--for", "9s"}, &simOut, &simOut)
+	})
+	// The simulator prints the pseudo-terminal it made: the rig of the
+	// recorder names it as the amplifier's port.
+	portRe := regexp.MustCompile(`set port = "([^"]+)" in source "amp"`)
+	var port string
+	require.Eventually(t, func() bool {
+		if m := portRe.FindStringSubmatch(simOut.String()); m != nil {
+			port = m[1]
+			return true
+		}
+		return false
+	}, 10*time.Second, 10*time.Millisecond, "simulate prints its pty: %s", simOut.String())
+	recRig := filepath.Join(dir, "rec.toml")
+	require.NoError(t, os.WriteFile(recRig, []byte(mixedRigTOML(t, port, br.URL())), 0o644))
+	db := filepath.Join(dir, "mixed.db")
+	var recOut syncBuf
+	recCode := run(ctx, []string{"record", "--rig", recRig, "--db", db, "--addr", "127.0.0.1:0", "--for", "8500ms"}, &recOut, &recOut)
+	wg.Wait()
+	require.Equal(t, 0, recCode, recOut.String())
+	require.Equal(t, 0, simCode, simOut.String())
+	out := simOut.String()
+	assert.Contains(t, out, "source amp: writing n_fore, n_aft, a_main, alpha as delimited lines t_ms;n_fore;n_aft;_;a_main;alpha")
+	assert.Contains(t, out, "source pitotnode: publishing blocks of pitot, t_water as JSON to "+br.URL())
+	assert.Regexp(t, `source amp: .*device clock from 3600\.000 s, \+40 ppm`, out)
+	assert.Regexp(t, `source pitotnode: .*device clock from 777\.000 s, -85 ppm`, out)
+
+	st, err := storage.Open(db, storage.Options{ReadOnly: true})
+	require.NoError(t, err)
+	defer st.Close()
+	runRec, err := st.LatestRun()
+	require.NoError(t, err)
+	got := map[string]uint64{}
+	for _, h := range runRec.Sources {
+		got[h.Source] = h.Samples
+		assert.Zero(t, h.Rejected, "source %s: no line or payload rejected: %+v", h.Source, h.RejectedBy)
+	}
+	assert.Greater(t, got["amp"], uint64(1000), "the amplifier's delimited lines were read")
+	assert.Greater(t, got["pitotnode"], uint64(1000), "the pitot node's blocks were read")
+
+	segs, err := st.Segments(runRec.ID)
+	require.NoError(t, err)
+	r, err := rig.Load(recRig)
+	require.NoError(t, err)
+	fluid, err := estimate.Properties(r.Fluid, r.Conditions)
+	require.NoError(t, err)
+	truth, err := sim.New(r, sim.Config{QPa: estimate.DynamicPressure(fluid.RhoKgPerM3, 2)}, fluid.RhoKgPerM3)
+	require.NoError(t, err)
+	for _, step := range steps {
+		found := false
+		for _, seg := range segs {
+			if abs(rig.Deg(seg.AlphaRad.X)-step) > 0.3 || seg.N < 200 {
+				continue
+			}
+			found = true
+			clTrue, _ := truth.Foil().Truth(rig.Rad(step))
+			t.Logf("step %g°: segment %d, N %d, α %.2f°, C_L %.4f ± %.4f (truth %.4f)", step, seg.Index, seg.N, rig.Deg(seg.AlphaRad.X), seg.CL.X, seg.CL.U95(), clTrue)
+			assert.LessOrEqual(t, abs(seg.CL.X-clTrue), seg.CL.U95(), "step %g°: C_L %.4f ± %.4f vs %.4f", step, seg.CL.X, seg.CL.U95(), clTrue)
+		}
+		assert.True(t, found, "a segment at the %g° step; segments: %d\n%s", step, len(segs), strings.TrimSpace(recOut.String()))
+	}
+}
