@@ -66,9 +66,9 @@ type Estimator struct {
 	primary string               // source whose blocks carry the timeline
 	held    map[string]heldValue // latest value (and calibration u) of channels from other sources
 	join    joiner               // channels of other sources, joined by time (join.go)
-	dtUs        int64
-	nextTUs     int64 // device time expected for the next primary sample
-	started     bool
+	dtUs    int64
+	nextTUs int64 // device time expected for the next primary sample
+	started bool
 	// wallOffUs maps the timeline source's device clock to UTC wall time
 	// (µs): AlignedT0Us − T0Us of the first timeline block, taken again
 	// after each gap or clock step. Held fixed in between, so sample times

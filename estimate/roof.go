@@ -171,13 +171,13 @@ type RoofEstimator struct {
 
 	maxBlockQPa float64
 	segments    int
-	blocks      int // blocks that gave results
-	flowOff     int // blocks dropped as flow off
-	short       int // blocks dropped as shorter than half a block
-	ignored     int // unusable blocks
+	blocks      int    // blocks that gave results
+	flowOff     int    // blocks dropped as flow off
+	short       int    // blocks dropped as shorter than half a block
+	ignored     int    // unusable blocks
 	join        joiner // channels of other sources, joined by time (join.go)
-	unblocked   int // samples in no block, in total
-	unblockedAt int // unblocked at the last block that gave results
+	unblocked   int    // samples in no block, in total
+	unblockedAt int    // unblocked at the last block that gave results
 	missing     map[string]bool
 	lastAddAt   time.Time
 	lastTUs     int64
