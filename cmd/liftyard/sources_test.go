@@ -134,3 +134,91 @@ func TestSimulateRecord_SerialDelimitedAndMQTT(t *testing.T) {
 		assert.True(t, found, "a segment at the %g° step; segments: %d\n%s", step, len(segs), strings.TrimSpace(recOut.String()))
 	}
 }
+
+// roofMixedTOML is the example roof rig with its taps and vane on a serial
+// scanner at port and its mast pitot on an MQTT node at broker.
+func roofMixedTOML(t *testing.T, port, broker string) string {
+	t.Helper()
+	text, err := os.ReadFile("../../testdata/rigs/roof-yard.toml")
+	require.NoError(t, err)
+	src := `[[source]]
+name     = "scanner"
+type     = "serial"
+port     = "` + port + `"
+channels = ["p01", "p02", "p03", "p04", "p05", "p06", "p07", "p08", "p09", "p10", "p11", "p12", "vane"]
+
+[[source]]
+name     = "mast"
+type     = "mqtt"
+broker   = "` + broker + `"
+topic    = "yard/mast/raw"
+channels = ["q_ref"]
+
+`
+	re := regexp.MustCompile(`(?s)\[\[source\]\].*?\n# Tap transducers`)
+	toml := re.ReplaceAllString(string(text), src+"# Tap transducers")
+	require.NotEqual(t, string(text), toml, "the source table was replaced")
+	return toml
+}
+
+// Ensure the issue 15 "must show" end to end: a roof whose taps are on a
+// serial scanner (a real pseudo-terminal) and whose mast pitot is on MQTT
+// (Debian's mosquitto), driven by `liftyard simulate` on two device clocks
+// and recorded by `liftyard record`, gives result rows for every zone.
+func TestSimulateRecord_RoofMastOnMQTT(t *testing.T) {
+	br := mosquittotest.Start(t)
+	dir := t.TempDir()
+	simRig := filepath.Join(dir, "sim.toml")
+	require.NoError(t, os.WriteFile(simRig, []byte(roofMixedTOML(t, "/dev/null", br.URL())), 0o644))
+	ctx, cancel := context.WithTimeout(t.Context(), 30*time.Second)
+	defer cancel()
+	var wg sync.WaitGroup
+	var simOut syncBuf
+	var simCode int
+	wg.Go(func() {
+		simCode = run(ctx, []string{"simulate", "--rig", simRig, "--seed", "6", "--for", "8s"}, &simOut, &simOut)
+	})
+	portRe := regexp.MustCompile(`set port = "([^"]+)" in source "scanner"`)
+	var port string
+	require.Eventually(t, func() bool {
+		if m := portRe.FindStringSubmatch(simOut.String()); m != nil {
+			port = m[1]
+			return true
+		}
+		return false
+	}, 10*time.Second, 10*time.Millisecond, "simulate prints its pty: %s", simOut.String())
+	recRig := filepath.Join(dir, "rec.toml")
+	require.NoError(t, os.WriteFile(recRig, []byte(roofMixedTOML(t, port, br.URL())), 0o644))
+	db := filepath.Join(dir, "roof.db")
+	var recOut syncBuf
+	recCode := run(ctx, []string{"record", "--rig", recRig, "--db", db, "--addr", "127.0.0.1:0", "--block", "2s", "--for", "7500ms"}, &recOut, &recOut)
+	wg.Wait()
+	require.Equal(t, 0, recCode, recOut.String())
+	require.Equal(t, 0, simCode, simOut.String())
+	assert.Contains(t, simOut.String(), "source mast: publishing blocks of q_ref as JSON")
+
+	st, err := storage.Open(db, storage.Options{ReadOnly: true})
+	require.NoError(t, err)
+	defer st.Close()
+	runRec, err := st.LatestRun()
+	require.NoError(t, err)
+	segs, err := st.Segments(runRec.ID)
+	require.NoError(t, err)
+	r, err := rig.Load(recRig)
+	require.NoError(t, err)
+	truth, err := sim.NewRoof(r, sim.RoofConfig{QPa: 1})
+	require.NoError(t, err)
+	perZone := map[string]int{}
+	for _, s := range segs {
+		if s.Tap != "" || s.Zone == "" {
+			continue
+		}
+		perZone[s.Zone]++
+		want := truth.TrueCp(s.Zone)
+		t.Logf("block %d zone %-6s: Cp %.3f ± %.3f (truth %.3f), N %d", s.Block, s.Zone, s.CpMean.X, s.CpMean.U95(), want, s.N)
+		assert.LessOrEqual(t, abs(s.CpMean.X-want), 2*s.CpMean.U95(), "block %d zone %s", s.Block, s.Zone)
+	}
+	for _, z := range []string{"corner", "edge", "field", "roof"} {
+		assert.GreaterOrEqual(t, perZone[z], 2, "zone %s has results: %v\n%s", z, perZone, recOut.String())
+	}
+}
