@@ -135,3 +135,88 @@ channels = ["p01", "p02", "p03", "p04", "p05", "p06", "p07", "p08", "p09", "p10"
 		assert.LessOrEqual(t, math.Abs(g.CpMean.X-s.TrueCp(g.Zone)), 2*g.CpMean.U95(), "block %d zone %s: truth", g.Block, g.Zone)
 	}
 }
+
+// splitRecord cuts a one-source record into the blocks of the rig's
+// sources (sim.Routes), each on its own device clock (sim.DefaultClock),
+// stamped with host receive times a few milliseconds after their data and
+// put in arrival order, as the recorder would see them.
+func splitRecord(t *testing.T, r *rig.Rig, rec acquire.Blocks, made []string) acquire.Blocks {
+	t.Helper()
+	routes, unrouted, err := sim.Routes(r, made)
+	require.NoError(t, err)
+	require.Empty(t, unrouted)
+	clocks := make([]sim.DeviceClock, len(routes))
+	for i := range clocks {
+		clocks[i] = sim.DefaultClock(i)
+	}
+	sp := &sim.Splitter{Routes: routes, Clocks: clocks}
+	rng := rand.New(rand.NewPCG(5, 6))
+	host := time.Date(2026, 12, 2, 9, 0, 0, 0, time.UTC)
+	var out acquire.Blocks
+	for k, b := range rec {
+		sent := host.Add(time.Duration(b.T0Us+int64(b.Len())*b.DtUs) * time.Microsecond)
+		for i, o := range sp.Split(b) {
+			o.Received = sent.Add(time.Duration(1+4*i)*time.Millisecond + time.Duration(rng.ExpFloat64()*float64(2*time.Millisecond)))
+			if k == 0 {
+				t.Logf("source %s: device clock %.3f s, %+g ppm", o.Source, float64(o.T0Us)/1e6, clocks[i].DriftPPM)
+			}
+			out = append(out, o)
+		}
+	}
+	slices.SortStableFunc(out, func(a, b acquire.Block) int { return a.Received.Compare(b.Received) })
+	return out
+}
+
+// Ensure that a foil whose balance is on one device and whose pitot is on
+// another (clocks minutes apart, drifting) gets the same flow-off zeros,
+// zero drift and C_L as the same record from one source: the zero watch and
+// the estimator take channels from any source (issue 15).
+func TestPipeline_FoilFlowOffZeroAcrossSources(t *testing.T) {
+	s, rec := zeroAirRecord(t, 2*time.Second, 41)
+	for i := range rec { // as from one device whose clock the aligner maps
+		rec[i].Received = time.Date(2026, 12, 2, 9, 0, 0, 0, time.UTC).Add(time.Duration(rec[i].T0Us+int64(rec[i].Len())*rec[i].DtUs)*time.Microsecond + time.Millisecond)
+	}
+	single := airFoilRig(t, "1 kPa")
+	two := airFoilRig(t, "1 kPa")
+	two.Sources = []rig.Source{
+		{Name: "amp", Type: rig.SourceSerial, Format: "frame", Channels: []string{"n_fore", "n_aft", "a_main", "alpha"}},
+		{Name: "node", Type: rig.SourceMQTT, Channels: []string{"pitot"}},
+	}
+	split := splitRecord(t, two, rec, []string{"n_fore", "n_aft", "a_main", "pitot", "alpha"})
+	p1, segs1, _ := replay(t, single, rec)
+	p2, segs2, _ := replay(t, two, split)
+	d1, err := p1.Drift()
+	require.NoError(t, err)
+	d2, err := p2.Drift()
+	require.NoError(t, err, "flow-off zeros before and after, from two sources")
+	for _, ch := range []string{"n_fore", "n_aft", "a_main", "pitot"} {
+		assert.InDelta(t, d1.Start.Values[ch], d2.Start.Values[ch], 0.02, "zero before, %s", ch)
+		assert.InDelta(t, d1.End.Values[ch], d2.End.Values[ch], 0.02, "zero after, %s", ch)
+	}
+	require.GreaterOrEqual(t, len(segs1), 4)
+	require.Len(t, segs2, len(segs1))
+	// As the recorder does at the end of a run: replay with the drift
+	// between the zeros before and after removed.
+	corrected := func(r *rig.Rig, blocks acquire.Blocks, d calibrate.Drift) []estimate.Segment {
+		cal, err := calibrate.NewCalibrator(r)
+		require.NoError(t, err)
+		p, err := process.New(r, cal, process.Options{Drift: &d, Now: func() time.Time { return time.Unix(0, 0) }})
+		require.NoError(t, err)
+		segs, err := process.Replay(t.Context(), blocks, p, nil)
+		require.NoError(t, err)
+		return segs
+	}
+	c1, c2 := corrected(single, rec, d1), corrected(two, split, d2)
+	require.Len(t, c2, len(c1))
+	for _, pair := range [][2][]estimate.Segment{{segs1, segs2}, {c1, c2}} {
+		for i := range pair[0] {
+			a, b := pair[0][i].CL, pair[1][i].CL
+			assert.LessOrEqual(t, math.Abs(a.X-b.X), 0.1*a.U95(), "segment %d: C_L %.5f (one source) vs %.5f (two), U95 %.4f", i, a.X, b.X, a.U95())
+		}
+	}
+	for i, seg := range c2 {
+		clTrue, _ := s.Foil().Truth(seg.AlphaRad.X)
+		assert.LessOrEqual(t, math.Abs(seg.CL.X-clTrue), seg.CL.U95(), "segment %d at %.1f°: C_L %.4f ± %.4f vs truth %.4f",
+			i, rig.Deg(seg.AlphaRad.X), seg.CL.X, seg.CL.U95(), clTrue)
+	}
+}
