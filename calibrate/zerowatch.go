@@ -102,14 +102,14 @@ type ZeroWatch struct {
 	pending   []Block
 	pendAlpha []float64
 	sources   map[string]bool // sources seen: a chunk holds ZeroChunk of each
-	pre       []chunk   // before the flow came on (rolling, restKeep)
-	tail      []chunk   // after (rolling, restKeep)
-	flowQ     []float64 // chunk means of q after the flow came on
-	on        bool      // the flow has come on
-	start     []Rest    // rest stretches before the run, per angle
-	startSeen bool      // a candidate start rest was found (confirmed or not)
-	startOK   bool      // … and it is small against the flow
-	startQPa  float64   // the rest level of q before the run
+	pre       []chunk         // before the flow came on (rolling, restKeep)
+	tail      []chunk         // after (rolling, restKeep)
+	flowQ     []float64       // chunk means of q after the flow came on
+	on        bool            // the flow has come on
+	start     []Rest          // rest stretches before the run, per angle
+	startSeen bool            // a candidate start rest was found (confirmed or not)
+	startOK   bool            // … and it is small against the flow
+	startQPa  float64         // the rest level of q before the run
 	live      *Drift
 	startNote string   // why there is no proper rest before the run
 	notes     []string // notes not yet taken by Notes
@@ -469,7 +469,6 @@ func nanMean(v []float64) float64 {
 	}
 	return sum / float64(n)
 }
-
 
 // bounds is the time of the first sample of bs and the end of the last, on
 // the shared timeline.
