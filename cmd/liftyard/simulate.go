@@ -31,25 +31,25 @@ import (
 // MQTT sources, or a --serial/--mqtt the rig has no source for, sends every
 // channel down that one transport, as before issue 15.
 func runSimulate(ctx context.Context, args []string, stdout, stderr io.Writer) error {
-	fs := newFlags("simulate", "--rig RIG.toml [--device NAME=PATH|pty]... [--broker NAME=URL]... [--mqtt URL] [--serial DEVICE|pty] [--drift-ppm NAME=PPM]... [--clock-start-s NAME=S]... [--for DURATION] [--seed N]",
+	fs := newFlags("simulate", "--rig RIG.toml [--device NAME=PATH|pty]... [--broker NAME=URL]... [--mqtt URL] [--serial DEVICE|pty] [--drift-ppm NAME=PPM]... [--clock-start-s NAME=S]... [--steps-deg LIST] [--hold DURATION] [--for DURATION] [--seed N] [--speed-m-s V]",
 		"emit synthetic sensor traffic for every source of the rig, in its wire format, for dry runs before real hardware arrives", stdout)
 	rigPath := fs.String("rig", "", "rig file whose sources, channels and calibrations the traffic follows")
 	brokerURL := fs.String("mqtt", "", "broker of every MQTT source (default: each source's broker); for a rig with no MQTT source, publish every channel here")
 	topic := fs.String("topic", "", "MQTT topic when --mqtt sends every channel (a rig with no MQTT source)")
 	device := fs.String("serial", "", `device of the rig's one serial source; "pty" makes a pseudo-terminal and prints its path; for a rig with no serial source, write every channel as CRC frames here`)
 	devices := sourceFlag{}
-	fs.Var(devices, "device", `serial source NAME writes to PATH ("pty": a new pseudo-terminal, the default); repeat per source`)
+	fs.Var(devices, "device", "`NAME=PATH` writes serial source NAME into PATH (\"pty\": a new pseudo-terminal, the default); repeat per source")
 	brokers := sourceFlag{}
-	fs.Var(brokers, "broker", "MQTT source NAME publishes to broker URL (default: --mqtt, then the rig's broker); repeat per source")
+	fs.Var(brokers, "broker", "`NAME=URL` publishes MQTT source NAME to the broker at URL (default: --mqtt, then the rig's broker); repeat per source")
 	drifts := sourceFlag{}
-	fs.Var(drifts, "drift-ppm", "source NAME's device clock runs fast by PPM (negative: slow; default a few to 100 ppm, different per source)")
+	fs.Var(drifts, "drift-ppm", "`NAME=PPM` makes source NAME's device clock run fast by PPM (negative: slow; default a few to 100 ppm, different per source)")
 	starts := sourceFlag{}
-	fs.Var(starts, "clock-start-s", "source NAME's device clock reads S seconds at the start (default: a different time per source)")
+	fs.Var(starts, "clock-start-s", "`NAME=S` starts source NAME's device clock at S seconds (default: a different time per source)")
 	dur := fs.Duration("for", 0, "stop after this long (0: until Ctrl-C)")
 	seed := fs.Uint64("seed", 1, "random seed of the turbulence and sensor noise")
 	speed := fs.Float64("speed-m-s", 0, "flow speed, m/s (default 2 in water, 12 in air)")
 	stepsText := fs.String("steps-deg", "", "foil or body rigs: the angle-of-attack steps, degrees, comma separated (default -4,-2,...,12)")
-	hold := fs.Duration("hold", 0, "foil or body rigs: steady time per step (default 2.5s)")
+	hold := fs.Duration("hold", 2500*time.Millisecond, "foil or body rigs: steady time per step")
 	if _, err := parseFlags(fs, args); err != nil {
 		return err
 	}
@@ -64,7 +64,7 @@ func runSimulate(ctx context.Context, args []string, stdout, stderr io.Writer) e
 		}
 		steps = append(steps, x)
 	}
-	if *hold < 0 {
+	if *hold <= 0 {
 		return usagef("--hold %s: want a positive duration", *hold)
 	}
 	if *rigPath == "" {

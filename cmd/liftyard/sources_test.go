@@ -222,3 +222,41 @@ func TestSimulateRecord_RoofMastOnMQTT(t *testing.T) {
 		assert.GreaterOrEqual(t, perZone[z], 2, "zone %s has results: %v\n%s", z, perZone, recOut.String())
 	}
 }
+
+// Ensure that simulate's per-source flags refuse what they cannot do with
+// exit 2 and a message naming the rig's sources (issue 15).
+func TestSimulate_SourceFlagErrors(t *testing.T) {
+	dir := t.TempDir()
+	mixed := filepath.Join(dir, "mixed.toml")
+	require.NoError(t, os.WriteFile(mixed, []byte(mixedRigTOML(t, "/dev/null", "tcp://127.0.0.1:1")), 0o644))
+	openMQTT := strings.Replace(mixedRigTOML(t, "/dev/null", "tcp://127.0.0.1:1"), `channels = ["pitot", "t_water"]`, "", 1)
+	openMQTT = strings.Replace(openMQTT, `columns   = ["t_ms", "n_fore", "n_aft", "_", "a_main", "alpha"]`, `columns   = ["t_ms", "n_fore", "n_aft", "_", "a_main", "alpha"]
+
+[[source]]
+name   = "spare"
+type   = "mqtt"
+broker = "tcp://127.0.0.1:1"
+topic  = "spare"`, 1)
+	twoOpen := filepath.Join(dir, "two-open.toml")
+	require.NoError(t, os.WriteFile(twoOpen, []byte(openMQTT), 0o644))
+	tests := []struct {
+		name string
+		args []string
+		want string
+	}{
+		{"unknown source", []string{"--rig", mixed, "--device", "amp2=pty"}, `--device amp2: the rig has no serial or mqtt source "amp2" (sources: amp, pitotnode)`},
+		{"not NAME=VALUE", []string{"--rig", mixed, "--drift-ppm", "40"}, `want NAME=VALUE, got "40"`},
+		{"drift too large", []string{"--rig", mixed, "--drift-ppm", "amp=5000"}, "--drift-ppm amp=5000: want a number of ppm within ±1000"},
+		{"negative clock", []string{"--rig", mixed, "--clock-start-s", "pitotnode=-3"}, "--clock-start-s pitotnode=-3: want seconds ≥ 0"},
+		{"bad steps", []string{"--rig", mixed, "--steps-deg", "2,x"}, `--steps-deg "2,x": want angles in degrees`},
+		{"same source twice", []string{"--rig", mixed, "--device", "amp=pty", "--device", "amp=/dev/ttyS0"}, `source "amp" given twice`},
+		{"two mqtt sources without channels", []string{"--rig", twoOpen}, `mqtt sources "spare" and "pitotnode" both have no channels list`},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			var out, errb syncBuf
+			assert.Equal(t, 2, run(t.Context(), append([]string{"simulate"}, tt.args...), &out, &errb), "out %s", out.String())
+			assert.Contains(t, errb.String(), tt.want)
+		})
+	}
+}
