@@ -578,3 +578,25 @@ func TestWriteDelimited_MissingChannel(t *testing.T) {
 	err := serial.WriteDelimited(context.Background(), &sb, acquire.DelimitedFormat{Columns: []string{"a", "b"}}, in)
 	assert.ErrorContains(t, err, `channel "b" has 0 samples`)
 }
+
+// Ensure that OpenDevice opens a port with the rig source's line settings
+// and that what is written there comes out at the other end (a pty stands
+// for the null-modem cable of a dry run); bad settings are refused.
+func TestOpenDevice(t *testing.T) {
+	m, path := newPTY(t)
+	w, err := serial.OpenDevice(path, rig.Source{Name: "amp", Baud: 9600, DataBits: 7, Parity: "even", StopBits: 2})
+	require.NoError(t, err)
+	defer w.Close()
+	_, err = w.Write([]byte("1250.0;812.4\r\n"))
+	require.NoError(t, err)
+	require.NoError(t, m.SetReadDeadline(time.Now().Add(safety)))
+	buf := make([]byte, 64)
+	n, err := m.Read(buf)
+	require.NoError(t, err)
+	assert.Equal(t, "1250.0;812.4\r\n", string(buf[:n]))
+
+	_, err = serial.OpenDevice(path, rig.Source{Name: "amp", Parity: "mark"})
+	assert.ErrorContains(t, err, `source "amp": parity "mark"`)
+	_, err = serial.OpenDevice(path+"-gone", rig.Source{Name: "amp"})
+	assert.ErrorContains(t, err, "open "+path+"-gone")
+}

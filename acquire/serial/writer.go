@@ -6,6 +6,8 @@ import (
 	"io"
 	"strconv"
 
+	"go.bug.st/serial"
+
 	"liftyard/acquire"
 	"liftyard/rig"
 )
@@ -123,4 +125,20 @@ func WriteDelimited(ctx context.Context, w io.Writer, f acquire.DelimitedFormat,
 			return fmt.Errorf("write delimited: %w", err)
 		}
 	}
+}
+
+// OpenDevice opens the serial device at path as the device side of a dry
+// run of rig source s, with s's line settings (baud, data bits, parity,
+// stop bits): what WriteFrames or WriteDelimited then write into.
+func OpenDevice(path string, s rig.Source) (io.WriteCloser, error) {
+	src := &Source{Name: s.Name, BaudRate: s.Baud, DataBits: s.DataBits, Parity: s.Parity, StopBits: s.StopBits}
+	m, err := src.mode()
+	if err != nil {
+		return nil, err
+	}
+	p, err := serial.Open(path, m)
+	if err != nil {
+		return nil, fmt.Errorf("open %s: %w", path, err)
+	}
+	return p, nil
 }

@@ -13,8 +13,6 @@ import (
 	"sync/atomic"
 	"time"
 
-	goserial "go.bug.st/serial"
-
 	"liftyard/acquire"
 	"liftyard/acquire/mqtt"
 	"liftyard/acquire/serial"
@@ -171,7 +169,7 @@ func runSimulate(ctx context.Context, args []string, stdout, stderr io.Writer) e
 			run = func() error { return pub.Run(ctx, ins[i]) }
 		case rig.SourceSerial:
 			dev := cmp.Or(devices[src.Name], *device, "pty")
-			w, path, err := openSimDevice(dev, src.Baud)
+			w, path, err := openSimDevice(dev, src)
 			if err != nil {
 				return fmt.Errorf("source %q: %w", src.Name, err)
 			}
@@ -259,19 +257,16 @@ func (f sourceFlag) Set(s string) error {
 	return nil
 }
 
-// openSimDevice opens the device side of a serial dry run: a new
-// pseudo-terminal for "pty" (its port side's path is returned), else the
-// serial device at path.
-func openSimDevice(dev string, baud int) (io.WriteCloser, string, error) {
+// openSimDevice opens the device side of a serial dry run of source src: a
+// new pseudo-terminal for "pty" (its port side's path is returned), else
+// the serial device at dev with src's line settings.
+func openSimDevice(dev string, src rig.Source) (io.WriteCloser, string, error) {
 	if dev == "pty" {
 		master, path, err := serial.OpenPTY()
 		return master, path, err
 	}
-	p, err := goserial.Open(dev, &goserial.Mode{BaudRate: cmp.Or(baud, 115200)})
-	if err != nil {
-		return nil, "", fmt.Errorf("open %s: %w", dev, err)
-	}
-	return p, dev, nil
+	w, err := serial.OpenDevice(dev, src)
+	return w, dev, err
 }
 
 // simulateOne sends every channel of the simulation down one transport:
@@ -301,7 +296,7 @@ func simulateOne(ctx context.Context, r *rig.Rig, s sim.Simulator, brokerURL, to
 		return err
 	}
 	channels := simChannels(s)
-	w, path, err := openSimDevice(device, 115200)
+	w, path, err := openSimDevice(device, rig.Source{Name: "simulate"})
 	if err != nil {
 		return err
 	}
