@@ -1,6 +1,7 @@
 package process_test
 
 import (
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"os"
@@ -47,7 +48,8 @@ calibration = { poly = [0.1, 0.0305], u = 0.8 }
 // apart, drifting up to 100 ppm), gives a result row for every zone of
 // every block — the same rows, within a small fraction of their U95, as the
 // same simulation with every channel on one source, and each zone's mean Cp
-// within 2 U95 of the simulator's truth.
+// within 2 U95 of the simulator's truth — in weak and strong turbulence,
+// with short and long blocks, and clocks a day apart drifting ±100 ppm.
 func TestPipeline_RoofJoinsSources(t *testing.T) {
 	joined := roofSourcesTOML(t, `[[source]]
 name = "scanner"
@@ -75,64 +77,83 @@ type = "serial"
 port = "/dev/ttyUSB0"
 channels = ["p01", "p02", "p03", "p04", "p05", "p06", "p07", "p08", "p09", "p10", "p11", "p12", "vane", "q_ref", "p_int"]
 `)
-	const blockLen = 20 * time.Second
-	run := func(toml string) ([]estimate.Segment, *sim.Roof) {
-		t.Helper()
-		r, err := rig.Parse("roof-sources.toml", []byte(toml))
-		require.NoError(t, err)
-		s, err := sim.NewRoof(r, sim.RoofConfig{QPa: 90, Seed: 15})
-		require.NoError(t, err)
-		routes, unrouted, err := sim.Routes(r, []string{"p01", "p02", "p03", "p04", "p05", "p06", "p07", "p08", "p09", "p10", "p11", "p12", "q_ref", "vane", "p_int"})
-		require.NoError(t, err)
-		require.Empty(t, unrouted)
-		clocks := make([]sim.DeviceClock, len(routes))
-		for i := range clocks {
-			clocks[i] = sim.DefaultClock(i)
-		}
-		sp := &sim.Splitter{Routes: routes, Clocks: clocks}
-		delay := map[string]time.Duration{"scanner": 300 * time.Microsecond, "mast": 8 * time.Millisecond, "inside": 15 * time.Millisecond}
-		rng := rand.New(rand.NewPCG(3, 4))
-		host := time.Date(2026, 12, 2, 9, 0, 0, 0, time.UTC)
-		var blocks []acquire.Block
-		for range 62 * 10 { // 62 s in blocks of 100 ms
-			b := s.Next()
-			sent := host.Add(time.Duration(b.T0Us+int64(b.Len())*b.DtUs) * time.Microsecond)
-			for _, o := range sp.Split(b) {
-				o.Received = sent.Add(delay[o.Source] + time.Duration(rng.ExpFloat64()*float64(2*time.Millisecond)))
-				blocks = append(blocks, o)
-			}
-		}
-		slices.SortStableFunc(blocks, func(a, b acquire.Block) int { return a.Received.Compare(b.Received) })
-		cal, err := calibrate.NewCalibrator(r)
-		require.NoError(t, err)
-		p, err := process.New(r, cal, process.Options{Roof: estimate.RoofConfig{Block: blockLen}, Now: func() time.Time { return host }})
-		require.NoError(t, err)
-		segs, err := process.Replay(t.Context(), acquire.Blocks(blocks), p, nil)
-		require.NoError(t, err)
-		return segs, s
+	type regime struct {
+		name      string
+		seed      uint64
+		intensity float64           // u′/U of the approach flow
+		block     time.Duration     // result block
+		clocks    []sim.DeviceClock // scanner, mast, inside; nil: sim.DefaultClock
 	}
-	zonesOf := func(segs []estimate.Segment) []estimate.Segment {
-		var out []estimate.Segment
-		for _, s := range segs {
-			if s.Tap == "" {
-				out = append(out, s)
-			}
-		}
-		return out
+	regimes := []regime{
+		{"default clocks, open yard", 15, 0, 20 * time.Second, nil},
+		{"weak turbulence, short blocks, ±100 ppm", 16, 0.05, 5 * time.Second,
+			[]sim.DeviceClock{{StartUs: 12e6, DriftPPM: 100}, {StartUs: 86_000e6, DriftPPM: -100}, {StartUs: 3e6, DriftPPM: 3}}},
+		{"strong turbulence", 17, 0.3, 20 * time.Second, nil},
 	}
-	got, s := run(joined)
-	want, _ := run(single)
-	gotZ, wantZ := zonesOf(got), zonesOf(want)
-	require.Len(t, wantZ, 3*4, "three blocks of 20 s, three zones and the whole roof")
-	require.Len(t, gotZ, len(wantZ), "every zone of every block from the joined sources")
-	for i, g := range gotZ {
-		w := wantZ[i]
-		require.Equal(t, w.Zone, g.Zone)
-		t.Logf("block %d zone %-6s: joined Cp %.4f ± %.4f, one source %.4f, truth %.4f", g.Block, g.Zone, g.CpMean.X, g.CpMean.U95(), w.CpMean.X, s.TrueCp(g.Zone))
-		assert.InDelta(t, w.CpMean.X, g.CpMean.X, 0.05*w.CpMean.U95(), "block %d zone %s: joined as if from one source", g.Block, g.Zone)
-		assert.InDelta(t, w.CpPeak, g.CpPeak, 0.05*math.Abs(w.CpPeak)+0.01, "block %d zone %s: peak", g.Block, g.Zone)
-		assert.Greater(t, g.N, int(blockLen/(5*time.Millisecond))*9/10, "block %d zone %s: samples", g.Block, g.Zone)
-		assert.LessOrEqual(t, math.Abs(g.CpMean.X-s.TrueCp(g.Zone)), 2*g.CpMean.U95(), "block %d zone %s: truth", g.Block, g.Zone)
+	for _, rg := range regimes {
+		t.Run(rg.name, func(t *testing.T) {
+			run := func(toml string) ([]estimate.Segment, *sim.Roof) {
+				t.Helper()
+				r, err := rig.Parse("roof-sources.toml", []byte(toml))
+				require.NoError(t, err)
+				s, err := sim.NewRoof(r, sim.RoofConfig{QPa: 90, Seed: rg.seed, TurbulenceIntensity: rg.intensity})
+				require.NoError(t, err)
+				routes, unrouted, err := sim.Routes(r, []string{"p01", "p02", "p03", "p04", "p05", "p06", "p07", "p08", "p09", "p10", "p11", "p12", "q_ref", "vane", "p_int"})
+				require.NoError(t, err)
+				require.Empty(t, unrouted)
+				clocks := make([]sim.DeviceClock, len(routes))
+				for i := range clocks {
+					clocks[i] = sim.DefaultClock(i)
+					if i < len(rg.clocks) && len(routes) > 1 {
+						clocks[i] = rg.clocks[i]
+					}
+				}
+				sp := &sim.Splitter{Routes: routes, Clocks: clocks}
+				delay := map[string]time.Duration{"scanner": 300 * time.Microsecond, "mast": 8 * time.Millisecond, "inside": 15 * time.Millisecond}
+				rng := rand.New(rand.NewPCG(3, rg.seed))
+				host := time.Date(2026, 12, 2, 9, 0, 0, 0, time.UTC)
+				var blocks []acquire.Block
+				for range int(3*rg.block/(100*time.Millisecond)) + 20 { // three blocks and 2 s, in blocks of 100 ms
+					b := s.Next()
+					sent := host.Add(time.Duration(b.T0Us+int64(b.Len())*b.DtUs) * time.Microsecond)
+					for _, o := range sp.Split(b) {
+						o.Received = sent.Add(delay[o.Source] + time.Duration(rng.ExpFloat64()*float64(2*time.Millisecond)))
+						blocks = append(blocks, o)
+					}
+				}
+				slices.SortStableFunc(blocks, func(a, b acquire.Block) int { return a.Received.Compare(b.Received) })
+				cal, err := calibrate.NewCalibrator(r)
+				require.NoError(t, err)
+				p, err := process.New(r, cal, process.Options{Roof: estimate.RoofConfig{Block: rg.block}, Now: func() time.Time { return host }})
+				require.NoError(t, err)
+				segs, err := process.Replay(t.Context(), acquire.Blocks(blocks), p, nil)
+				require.NoError(t, err)
+				return segs, s
+			}
+			zonesOf := func(segs []estimate.Segment) []estimate.Segment {
+				var out []estimate.Segment
+				for _, s := range segs {
+					if s.Tap == "" {
+						out = append(out, s)
+					}
+				}
+				return out
+			}
+			got, s := run(joined)
+			want, _ := run(single)
+			gotZ, wantZ := zonesOf(got), zonesOf(want)
+			require.Len(t, wantZ, 3*4, "three blocks, three zones and the whole roof")
+			require.Len(t, gotZ, len(wantZ), "every zone of every block from the joined sources")
+			for i, g := range gotZ {
+				w := wantZ[i]
+				require.Equal(t, w.Zone, g.Zone)
+				t.Logf("block %d zone %-6s: joined Cp %.4f ± %.4f, one source %.4f, truth %.4f", g.Block, g.Zone, g.CpMean.X, g.CpMean.U95(), w.CpMean.X, s.TrueCp(g.Zone))
+				assert.InDelta(t, w.CpMean.X, g.CpMean.X, 0.05*w.CpMean.U95(), "block %d zone %s: joined as if from one source", g.Block, g.Zone)
+				assert.InDelta(t, w.CpPeak, g.CpPeak, 0.05*math.Abs(w.CpPeak)+0.01, "block %d zone %s: peak", g.Block, g.Zone)
+				assert.Greater(t, g.N, int(rg.block/(5*time.Millisecond))*9/10, "block %d zone %s: samples", g.Block, g.Zone)
+				assert.LessOrEqual(t, math.Abs(g.CpMean.X-s.TrueCp(g.Zone)), 2*g.CpMean.U95(), "block %d zone %s: truth", g.Block, g.Zone)
+			}
+		})
 	}
 }
 
@@ -172,7 +193,16 @@ func splitRecord(t *testing.T, r *rig.Rig, rec acquire.Blocks, made []string) ac
 // zero drift and C_L as the same record from one source: the zero watch and
 // the estimator take channels from any source (issue 15).
 func TestPipeline_FoilFlowOffZeroAcrossSources(t *testing.T) {
-	s, rec := zeroAirRecord(t, 2*time.Second, 41)
+	for _, tc := range []struct {
+		ramp time.Duration
+		seed uint64
+	}{{2 * time.Second, 41}, {8 * time.Second, 7}} {
+		t.Run(fmt.Sprintf("ramp %s seed %d", tc.ramp, tc.seed), func(t *testing.T) { foilFlowOffZeroAcrossSources(t, tc.ramp, tc.seed) })
+	}
+}
+
+func foilFlowOffZeroAcrossSources(t *testing.T, ramp time.Duration, seed uint64) {
+	s, rec := zeroAirRecord(t, ramp, seed)
 	for i := range rec { // as from one device whose clock the aligner maps
 		rec[i].Received = time.Date(2026, 12, 2, 9, 0, 0, 0, time.UTC).Add(time.Duration(rec[i].T0Us+int64(rec[i].Len())*rec[i].DtUs)*time.Microsecond + time.Millisecond)
 	}
@@ -194,7 +224,6 @@ func TestPipeline_FoilFlowOffZeroAcrossSources(t *testing.T) {
 		assert.InDelta(t, d1.End.Values[ch], d2.End.Values[ch], 0.02, "zero after, %s", ch)
 	}
 	require.GreaterOrEqual(t, len(segs1), 4)
-	require.Len(t, segs2, len(segs1))
 	// As the recorder does at the end of a run: replay with the drift
 	// between the zeros before and after removed.
 	corrected := func(r *rig.Rig, blocks acquire.Blocks, d calibrate.Drift) []estimate.Segment {
@@ -207,12 +236,24 @@ func TestPipeline_FoilFlowOffZeroAcrossSources(t *testing.T) {
 		return segs
 	}
 	c1, c2 := corrected(single, rec, d1), corrected(two, split, d2)
-	require.Len(t, c2, len(c1))
+	// Segments are matched by start time: every hold of the sweep is in
+	// both, with the same C_L; a short stretch in the flow ramp may pass
+	// the steady test in one and not the other (it is then checked
+	// against the truth below like every other).
 	for _, pair := range [][2][]estimate.Segment{{segs1, segs2}, {c1, c2}} {
-		for i := range pair[0] {
-			a, b := pair[0][i].CL, pair[1][i].CL
-			assert.LessOrEqual(t, math.Abs(a.X-b.X), 0.1*a.U95(), "segment %d: C_L %.5f (one source) vs %.5f (two), U95 %.4f", i, a.X, b.X, a.U95())
+		matched := 0
+		for _, a := range pair[0] {
+			for _, b := range pair[1] {
+				if d := a.TStart.Sub(b.TStart); d > 50*time.Millisecond || d < -50*time.Millisecond {
+					continue
+				}
+				matched++
+				assert.LessOrEqual(t, math.Abs(a.CL.X-b.CL.X), 0.1*a.CL.U95(), "segment at %s: C_L %.5f (one source) vs %.5f (two), U95 %.4f",
+					a.TStart.Format("15:04:05.000"), a.CL.X, b.CL.X, a.CL.U95())
+			}
 		}
+		assert.GreaterOrEqual(t, matched, 4, "every hold of the sweep (0°, 4°, 8°, 4°) in both")
+		assert.LessOrEqual(t, max(len(pair[0]), len(pair[1]))-matched, 1, "at most one ramp stretch differs")
 	}
 	for i, seg := range c2 {
 		clTrue, _ := s.Foil().Truth(seg.AlphaRad.X)
