@@ -26,15 +26,9 @@ func WriteFrames(ctx context.Context, w io.Writer, channels []string, in <-chan 
 	f := acquire.Frame{Values: make([]float64, len(channels))}
 	cols := make([][]float64, len(channels))
 	for {
-		var b acquire.Block
-		var ok bool
-		select {
-		case <-ctx.Done():
+		b, ok := receive(ctx, in)
+		if !ok {
 			return nil
-		case b, ok = <-in:
-			if !ok {
-				return nil
-			}
 		}
 		n := b.Len()
 		for i, ch := range channels {
@@ -78,15 +72,9 @@ func WriteDelimited(ctx context.Context, w io.Writer, f acquire.DelimitedFormat,
 	var buf []byte
 	cols := make([][]float64, len(f.Columns))
 	for {
-		var b acquire.Block
-		var ok bool
-		select {
-		case <-ctx.Done():
+		b, ok := receive(ctx, in)
+		if !ok {
 			return nil
-		case b, ok = <-in:
-			if !ok {
-				return nil
-			}
 		}
 		n := b.Len()
 		for i, c := range f.Columns {
@@ -141,4 +129,15 @@ func OpenDevice(path string, s rig.Source) (io.WriteCloser, error) {
 		return nil, fmt.Errorf("open %s: %w", path, err)
 	}
 	return p, nil
+}
+
+// receive takes the next block from in; false when in is closed or ctx is
+// done.
+func receive(ctx context.Context, in <-chan acquire.Block) (acquire.Block, bool) {
+	select {
+	case <-ctx.Done():
+		return acquire.Block{}, false
+	case b, ok := <-in:
+		return b, ok
+	}
 }

@@ -35,23 +35,15 @@ func Routes(r *rig.Rig, made []string) (routes []Route, unrouted []string, err e
 	claimed := map[string]bool{}
 	open := -1 // the MQTT source that takes the channels nobody claims
 	for _, s := range r.Sources {
-		var chans []string
-		switch {
-		case s.Type == rig.SourceSerial && s.Format == "delimited":
-			f := acquire.DelimitedFormat{Delimiter: s.Delimiter, Columns: s.Columns}
-			chans = f.Channels()
-		case s.Type == rig.SourceSerial:
-			chans = s.Channels
-		case s.Type == rig.SourceMQTT:
-			chans = s.Channels
-			if len(chans) == 0 {
-				if open >= 0 {
-					return nil, nil, fmt.Errorf("mqtt sources %q and %q both have no channels list: give each its channels = [...] so the simulation knows which source carries what", routes[open].Source.Name, s.Name)
-				}
-				open = len(routes)
-			}
-		default:
+		if s.Type != rig.SourceSerial && s.Type != rig.SourceMQTT {
 			continue // simulated: not a wire source
+		}
+		chans, listed := s.Carried()
+		if !listed {
+			if open >= 0 {
+				return nil, nil, fmt.Errorf("mqtt sources %q and %q both have no channels list: give each its channels = [...] so the simulation knows which source carries what", routes[open].Source.Name, s.Name)
+			}
+			open = len(routes)
 		}
 		rt := Route{Source: s, Channels: append([]string(nil), chans...)}
 		for _, c := range chans {

@@ -8,7 +8,6 @@ import (
 	"os"
 	"strings"
 
-	"liftyard/acquire"
 	"liftyard/calibrate"
 	"liftyard/process"
 	"liftyard/rig"
@@ -115,14 +114,8 @@ func carriedWarnings(r *rig.Rig) []string {
 	carried := map[string]bool{}
 	var names []string
 	for _, s := range r.Sources {
-		var chans []string
-		switch {
-		case s.Type == rig.SourceSerial && s.Format == "delimited":
-			f := acquire.DelimitedFormat{Delimiter: s.Delimiter, Columns: s.Columns}
-			chans = f.Channels()
-		case s.Type == rig.SourceSerial || (s.Type == rig.SourceMQTT && len(s.Channels) > 0):
-			chans = s.Channels
-		default:
+		chans, listed := s.Carried()
+		if !listed {
 			return nil
 		}
 		for _, c := range chans {

@@ -50,6 +50,51 @@ channels = ["pitot", "t_water"]
 	return toml
 }
 
+// dryRun is what simulateThenRecord gives: the record's rig file and
+// database, and both commands' output.
+type dryRun struct {
+	rigPath, db    string
+	simOut, recOut string
+}
+
+// simulateThenRecord runs `liftyard simulate` with simArgs on the rig text
+// rigFor("/dev/null") and, once it has printed the pseudo-terminal it made
+// for serial source src, `liftyard record` with recArgs on rigFor(that
+// path), as a user would; both must end with exit 0.
+func simulateThenRecord(t *testing.T, rigFor func(port string) string, src string, simArgs, recArgs []string) dryRun {
+	t.Helper()
+	dir := t.TempDir()
+	simRig := filepath.Join(dir, "sim.toml")
+	require.NoError(t, os.WriteFile(simRig, []byte(rigFor("/dev/null")), 0o644))
+	ctx, cancel := context.WithTimeout(t.Context(), 30*time.Second)
+	defer cancel()
+	var wg sync.WaitGroup
+	var simOut, recOut syncBuf
+	var simCode int
+	wg.Go(func() {
+		simCode = run(ctx, append([]string{"simulate", "--rig", simRig}, simArgs...), &simOut, &simOut)
+	})
+	// The simulator prints the pseudo-terminal it made: the rig of the
+	// recorder names it as the source's port.
+	portRe := regexp.MustCompile(`set port = "([^"]+)" in source "` + src + `"`)
+	var port string
+	require.Eventually(t, func() bool {
+		if m := portRe.FindStringSubmatch(simOut.String()); m != nil {
+			port = m[1]
+			return true
+		}
+		return false
+	}, 10*time.Second, 10*time.Millisecond, "simulate prints its pty: %s", simOut.String())
+	d := dryRun{rigPath: filepath.Join(dir, "rec.toml"), db: filepath.Join(dir, "rec.db")}
+	require.NoError(t, os.WriteFile(d.rigPath, []byte(rigFor(port)), 0o644))
+	recCode := run(ctx, append([]string{"record", "--rig", d.rigPath, "--db", d.db, "--addr", "127.0.0.1:0"}, recArgs...), &recOut, &recOut)
+	wg.Wait()
+	d.simOut, d.recOut = simOut.String(), recOut.String()
+	require.Equal(t, 0, recCode, d.recOut)
+	require.Equal(t, 0, simCode, d.simOut)
+	return d
+}
+
 // Ensure the issue 15 "must show": for a rig whose balance is a serial
 // `delimited` amplifier and whose pitot is on MQTT, `liftyard simulate`
 // drives both sources at once — delimited lines into a real
@@ -60,40 +105,12 @@ channels = ["pitot", "t_water"]
 // simulator's truth.
 func TestSimulateRecord_SerialDelimitedAndMQTT(t *testing.T) {
 	br := mosquittotest.Start(t)
-	dir := t.TempDir()
-	simRig := filepath.Join(dir, "sim.toml")
-	require.NoError(t, os.WriteFile(simRig, []byte(mixedRigTOML(t, "/dev/null", br.URL())), 0o644))
-
 	steps := []float64{-2, 4, 9}
-	ctx, cancel := context.WithTimeout(t.Context(), 30*time.Second)
-	defer cancel()
-	var wg sync.WaitGroup
-	var simOut syncBuf
-	var simCode int
-	wg.Go(func() {
-		simCode = run(ctx, []string{"simulate", "--rig", simRig, "--device", "amp=pty", "--seed", "15",
-			"--steps-deg", "-2,4,9", "--hold", "2200ms", "--for", "9s"}, &simOut, &simOut)
-	})
-	// The simulator prints the pseudo-terminal it made: the rig of the
-	// recorder names it as the amplifier's port.
-	portRe := regexp.MustCompile(`set port = "([^"]+)" in source "amp"`)
-	var port string
-	require.Eventually(t, func() bool {
-		if m := portRe.FindStringSubmatch(simOut.String()); m != nil {
-			port = m[1]
-			return true
-		}
-		return false
-	}, 10*time.Second, 10*time.Millisecond, "simulate prints its pty: %s", simOut.String())
-	recRig := filepath.Join(dir, "rec.toml")
-	require.NoError(t, os.WriteFile(recRig, []byte(mixedRigTOML(t, port, br.URL())), 0o644))
-	db := filepath.Join(dir, "mixed.db")
-	var recOut syncBuf
-	recCode := run(ctx, []string{"record", "--rig", recRig, "--db", db, "--addr", "127.0.0.1:0", "--for", "8500ms"}, &recOut, &recOut)
-	wg.Wait()
-	require.Equal(t, 0, recCode, recOut.String())
-	require.Equal(t, 0, simCode, simOut.String())
-	out := simOut.String()
+	d := simulateThenRecord(t, func(port string) string { return mixedRigTOML(t, port, br.URL()) }, "amp",
+		[]string{"--device", "amp=pty", "--seed", "15", "--steps-deg", "-2,4,9", "--hold", "2200ms", "--for", "9s"},
+		[]string{"--for", "8500ms"})
+	db, recRig, recOut := d.db, d.rigPath, d.recOut
+	out := d.simOut
 	assert.Contains(t, out, "source amp: writing n_fore, n_aft, a_main, alpha as delimited lines t_ms;n_fore;n_aft;_;a_main;alpha")
 	assert.Contains(t, out, "source pitotnode: publishing blocks of pitot, t_water as JSON to "+br.URL())
 	assert.Regexp(t, `source amp: .*device clock from 3600\.000 s, \+40 ppm`, out)
@@ -131,7 +148,7 @@ func TestSimulateRecord_SerialDelimitedAndMQTT(t *testing.T) {
 			t.Logf("step %g°: segment %d, N %d, α %.2f°, C_L %.4f ± %.4f (truth %.4f)", step, seg.Index, seg.N, rig.Deg(seg.AlphaRad.X), seg.CL.X, seg.CL.U95(), clTrue)
 			assert.LessOrEqual(t, abs(seg.CL.X-clTrue), seg.CL.U95(), "step %g°: C_L %.4f ± %.4f vs %.4f", step, seg.CL.X, seg.CL.U95(), clTrue)
 		}
-		assert.True(t, found, "a segment at the %g° step; segments: %d\n%s", step, len(segs), strings.TrimSpace(recOut.String()))
+		assert.True(t, found, "a segment at the %g° step; segments: %d\n%s", step, len(segs), strings.TrimSpace(recOut))
 	}
 }
 
@@ -167,35 +184,10 @@ channels = ["q_ref"]
 // and recorded by `liftyard record`, gives result rows for every zone.
 func TestSimulateRecord_RoofMastOnMQTT(t *testing.T) {
 	br := mosquittotest.Start(t)
-	dir := t.TempDir()
-	simRig := filepath.Join(dir, "sim.toml")
-	require.NoError(t, os.WriteFile(simRig, []byte(roofMixedTOML(t, "/dev/null", br.URL())), 0o644))
-	ctx, cancel := context.WithTimeout(t.Context(), 30*time.Second)
-	defer cancel()
-	var wg sync.WaitGroup
-	var simOut syncBuf
-	var simCode int
-	wg.Go(func() {
-		simCode = run(ctx, []string{"simulate", "--rig", simRig, "--seed", "6", "--for", "8s"}, &simOut, &simOut)
-	})
-	portRe := regexp.MustCompile(`set port = "([^"]+)" in source "scanner"`)
-	var port string
-	require.Eventually(t, func() bool {
-		if m := portRe.FindStringSubmatch(simOut.String()); m != nil {
-			port = m[1]
-			return true
-		}
-		return false
-	}, 10*time.Second, 10*time.Millisecond, "simulate prints its pty: %s", simOut.String())
-	recRig := filepath.Join(dir, "rec.toml")
-	require.NoError(t, os.WriteFile(recRig, []byte(roofMixedTOML(t, port, br.URL())), 0o644))
-	db := filepath.Join(dir, "roof.db")
-	var recOut syncBuf
-	recCode := run(ctx, []string{"record", "--rig", recRig, "--db", db, "--addr", "127.0.0.1:0", "--block", "2s", "--for", "7500ms"}, &recOut, &recOut)
-	wg.Wait()
-	require.Equal(t, 0, recCode, recOut.String())
-	require.Equal(t, 0, simCode, simOut.String())
-	assert.Contains(t, simOut.String(), "source mast: publishing blocks of q_ref as JSON")
+	d := simulateThenRecord(t, func(port string) string { return roofMixedTOML(t, port, br.URL()) }, "scanner",
+		[]string{"--seed", "6", "--for", "8s"}, []string{"--block", "2s", "--for", "7500ms"})
+	db, recRig, recOut := d.db, d.rigPath, d.recOut
+	assert.Contains(t, d.simOut, "source mast: publishing blocks of q_ref as JSON")
 
 	st, err := storage.Open(db, storage.Options{ReadOnly: true})
 	require.NoError(t, err)
@@ -219,7 +211,7 @@ func TestSimulateRecord_RoofMastOnMQTT(t *testing.T) {
 		assert.LessOrEqual(t, abs(s.CpMean.X-want), 2*s.CpMean.U95(), "block %d zone %s", s.Block, s.Zone)
 	}
 	for _, z := range []string{"corner", "edge", "field", "roof"} {
-		assert.GreaterOrEqual(t, perZone[z], 2, "zone %s has results: %v\n%s", z, perZone, recOut.String())
+		assert.GreaterOrEqual(t, perZone[z], 2, "zone %s has results: %v\n%s", z, perZone, recOut)
 	}
 }
 
