@@ -87,13 +87,20 @@ func TestPersistentSession_StaleReplayAfterBrokerRestart(t *testing.T) {
 	for seq := range uint64(40) {
 		assert.Equal(t, 1, fresh[seq], "fresh seq %d delivered once", seq)
 	}
+	staleN := 0
 	for seq := range uint64(11) {
+		staleN += stale[seq]
 		if seq >= 3 {
 			assert.Equal(t, 1, stale[seq], "stale seq %d delivered once", seq)
+		} else {
+			// QoS 1 is at least once: a block whose ack was in flight when
+			// the first source left is delivered again to the new one,
+			// which cannot know it was seen.
+			assert.LessOrEqual(t, stale[seq], 1, "stale seq %d delivered at most once", seq)
 		}
 	}
 	h := r2.src.Health.Snapshot("pitot")
 	assert.Equal(t, uint64(2), h.Duplicates, "the two copies, nothing else")
-	assert.Equal(t, uint64(40+8), h.Frames)
+	assert.Equal(t, uint64(40+staleN), h.Frames)
 	t.Logf("fresh %d, stale %d, duplicates %d, gaps %d", len(fresh), len(stale), h.Duplicates, h.Gaps)
 }
