@@ -112,7 +112,6 @@ func carriedWarnings(r *rig.Rig) []string {
 		return nil // import-only rig
 	}
 	carried := map[string]bool{}
-	var names []string
 	for _, s := range r.Sources {
 		chans, listed := s.Carried()
 		if !listed {
@@ -121,7 +120,6 @@ func carriedWarnings(r *rig.Rig) []string {
 		for _, c := range chans {
 			carried[c] = true
 		}
-		names = append(names, fmt.Sprintf("%s (%s: %s)", s.Name, s.Type, strings.Join(chans, ", ")))
 	}
 	l := r.Lift
 	need := append(append([]string{}, l.Normal...), l.Axial...)
@@ -136,9 +134,31 @@ func carriedWarnings(r *rig.Rig) []string {
 			continue
 		}
 		seen[c] = true
-		out = append(out, fmt.Sprintf("channel %q is used by the rig but no source carries it, so it will have no readings: add it to the channels (or columns) of one of the sources %s", c, strings.Join(names, "; ")))
+		out = append(out, fmt.Sprintf("channel %q is used by the rig but no source carries it, so it will have no readings: add it to the channels (or columns) of one of the sources %s", c, describeSources(r)))
 	}
 	return out
+}
+
+// describeSources lists the rig's sources with what each carries, for an
+// error that must name them: "amp (serial: n_fore, n_aft); node (mqtt: any
+// channel its payloads name)".
+func describeSources(r *rig.Rig) string {
+	if len(r.Sources) == 0 {
+		return "none"
+	}
+	var names []string
+	for _, s := range r.Sources {
+		chans, listed := s.Carried()
+		what := strings.Join(chans, ", ")
+		switch {
+		case !listed && s.Type == rig.SourceSimulated:
+			what = "every channel, simulated"
+		case !listed:
+			what = "any channel its payloads name"
+		}
+		names = append(names, fmt.Sprintf("%s (%s: %s)", s.Name, s.Type, what))
+	}
+	return strings.Join(names, "; ")
 }
 
 // count writes n with its noun, plural when n ≠ 1 ("1 source", "4 channels").

@@ -252,3 +252,17 @@ topic  = "spare"`, 1)
 		})
 	}
 }
+
+// Ensure that `calibrate --interactive` on a channel no source reads says
+// so with the rig's sources and what each carries (issue 15).
+func TestCalibrate_ChannelReadByNoSource(t *testing.T) {
+	dir := t.TempDir()
+	toml := strings.Replace(mixedRigTOML(t, "/dev/null", "tcp://127.0.0.1:1"), `channels = ["pitot", "t_water"]`, `channels = ["pitot"]`, 1)
+	path := filepath.Join(dir, "rig.toml")
+	require.NoError(t, os.WriteFile(path, []byte(toml), 0o644))
+	var out, errb syncBuf
+	code := run(t.Context(), []string{"calibrate", "--channel", "t_water", "--interactive", "--rig", path, "--steps", "0,10,20,30",
+		"--db", filepath.Join(dir, "cal.db")}, &out, &errb)
+	assert.Equal(t, 2, code, "out %s", out.String())
+	assert.Contains(t, errb.String(), `reads channel "t_water" (its sources: amp (serial: n_fore, n_aft, a_main, alpha); pitotnode (mqtt: pitot))`)
+}
