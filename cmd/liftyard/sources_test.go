@@ -107,8 +107,8 @@ func TestSimulateRecord_SerialDelimitedAndMQTT(t *testing.T) {
 	br := mosquittotest.Start(t)
 	steps := []float64{-2, 4, 9}
 	d := simulateThenRecord(t, func(port string) string { return mixedRigTOML(t, port, br.URL()) }, "amp",
-		[]string{"--device", "amp=pty", "--seed", "15", "--steps-deg", "-2,4,9", "--hold", "2200ms", "--for", "9s"},
-		[]string{"--for", "8500ms"})
+		[]string{"--device", "amp=pty", "--seed", "15", "--steps-deg", "-2,4,9", "--hold", "3s", "--for", "11s"},
+		[]string{"--for", "10500ms"})
 	db, recRig, recOut := d.db, d.rigPath, d.recOut
 	out := d.simOut
 	assert.Contains(t, out, "source amp: writing n_fore, n_aft, a_main, alpha as delimited lines t_ms;n_fore;n_aft;_;a_main;alpha")
