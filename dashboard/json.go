@@ -245,7 +245,7 @@ type segmentJSON struct {
 
 // roofView is the roof part of a segment row for the templates and the
 // zone plot: the zone's net Cp mean with U95, its rms over the block, the
-// Gumbel peak, the mean net force (negative = upward) and the design value.
+// block peak, the mean net force (negative = upward) and the design value.
 type roofView struct {
 	Zone, Tap, Block                                                         string
 	DirectionDeg, DirectionSpreadDeg, CpPeakMax                              num

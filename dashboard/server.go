@@ -338,6 +338,17 @@ type Health struct {
 	// Values is each channel's latest value (in JSON as "values", in
 	// display units: ° for angles, °C for temperatures, else SI).
 	Values []process.ChannelValue `json:"-"`
+	// Store is the state of the store the run is written to; the live
+	// page shows its message as a banner.
+	Store StoreHealth `json:"store"`
+}
+
+// StoreHealth is the state of the store a run is written to: State "alarm"
+// while commits fail or after data was lost, "warning" when disk space is
+// low, "ok" (or empty) otherwise; Message says it for people.
+type StoreHealth struct {
+	State   string `json:"state"`
+	Message string `json:"message,omitempty"`
 }
 
 // healthJSON is the wire form of a Health.
@@ -423,6 +434,10 @@ func (h Health) judged() healthJSON {
 			worse("stale")
 		}
 	}
+	if h.Store.State == "" {
+		h.Store.State = "ok"
+	}
+	worse(h.Store.State)
 	return healthJSON{Health: h, Ages: agesJSON(h.Ages), Values: valuesJSON(h.Values)}
 }
 

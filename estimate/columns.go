@@ -153,7 +153,7 @@ var columns = []Column{
 		Read: number(func(s *Segment) float64 { return s.CpMin })},
 	{Name: "cp_max", Type: TypeFloat, Kinds: kindsRoof, Doc: "most positive net pressure sample of the block, over q̄",
 		Read: number(func(s *Segment) float64 { return s.CpMax })},
-	{Name: "cp_peak", Type: TypeFloat, Kinds: kindsRoof, Doc: "block peak suction: the value the block's most negative net Cp stays above with probability 0.78 (Gumbel fit of epoch minima scaled to the block, Cook & Mayne fractile)",
+	{Name: "cp_peak", Type: TypeFloat, Kinds: kindsRoof, Doc: "block peak suction: the value the block's most negative net Cp stays above with probability 0.78 (Hermite-translated Gaussian peak calibrated on epoch minima, docs/roof.md §5)",
 		Read: number(func(s *Segment) float64 { return s.CpPeak })},
 	{Name: "cp_peak_u95", Type: TypeFloat, Kinds: kindsRoof, Doc: "expanded uncertainty (k = 2) of cp_peak: the fit's sampling error and q̄",
 		Read: number(func(s *Segment) float64 { return u95Of(s.CpPeak, s.CpPeakU) })},

@@ -17,7 +17,7 @@
 //
 // Roofs (RoofEstimator): tap pressures become net pressure coefficients per
 // zone per block of time, area-weighted, with the RMS, the expected peak
-// suction (Gumbel fit of epoch extremes, Cook & Mayne value) and the net
+// suction (a translated-Gaussian block peak at the Cook & Mayne probability) and the net
 // uplift force; roof.go states the method.
 //
 // # Uncertainty

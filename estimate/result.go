@@ -64,7 +64,7 @@ type Segment struct {
 	CpRMS               float64         // standard deviation of the net pressure over the block, / q̄
 	CpMin               float64         // most negative net pressure sample of the block, / q̄
 	CpMax               float64         // most positive net pressure sample of the block, / q̄
-	CpPeak              float64         // block peak suction: the 78 % fractile of the block's minimum net Cp (Gumbel fit of epoch minima scaled to the block); NaN when it cannot be fitted
+	CpPeak              float64         // block peak suction: the 78 % fractile of the block's minimum net Cp (docs/roof.md §5); NaN when it cannot be fitted
 	CpPeakU             float64         // standard uncertainty of CpPeak (fit and q̄)
 	CpPeakMax           float64         // block peak positive net Cp, the 78 % fractile of the block's maximum
 	CpPeakMaxU          float64         // standard uncertainty of CpPeakMax

@@ -7,6 +7,8 @@ import (
 	"slices"
 	"time"
 
+	"gonum.org/v1/gonum/dsp/fourier"
+
 	"liftyard/calibrate"
 	"liftyard/rig"
 )
@@ -83,19 +85,23 @@ const roofSectorOutFrac = 0.1
 //
 // # Block peaks
 //
-// CpPeak is an estimate of the block's own most negative net Cp: the block
-// is cut into Epochs sub-epochs, a Gumbel distribution (mode U, dispersion
-// 1/a) is fitted by maximum likelihood to the epoch maxima of −C_Z, and,
-// the epochs taken as independent, the maximum of n of them is Gumbel
-// with mode U + ln(n)/a and the same dispersion. The reported value is the
-// Cook & Mayne fractile of that block distribution, U + (ln n + 1.4)/a,
-// non-exceedance probability RoofPeakProb ≈ 0.78, with its sign turned
-// back. Its standard uncertainty is the Gumbel quantile's sampling error,
-// u² = (1/a)²·(1.1087 + 0.5140·y + 0.6079·y²)/m for m epochs and reduced
-// variate y = ln n + 1.4 (docs/references.md §20), combined with q̄'s
-// calibration and profile. CpPeakMax is the same on +C_Z (positive
-// pressure). With all epoch extremes equal the peak is that value; with
-// fewer than three epochs holding data it is NaN.
+// CpPeak is an estimate of the value the block's own most negative net Cp
+// stays above with probability RoofPeakProb ≈ 0.78 (Cook & Mayne's
+// fractile). The side's series x (−C_Z for suction) is taken as a
+// translated Gaussian process: Winterstein's moment-based Hermite model
+// maps a standard normal u to x from the block's mean, standard deviation,
+// skewness and kurtosis (a kurtosis below 3 is taken as 3). The block is
+// cut into epochs (Epochs, fewer when an epoch would be shorter than the
+// series' integral time scale); each epoch's maximum, mapped to u, gives
+// z = −ln S(u) (S the normal upper tail), which for the maximum of N_e
+// independent values is Gumbel with mode ln N_e and dispersion 1, so
+// ln N_e = mean(z) − γ_E. The block holds N_B = epochs·N_e such values, and
+// its maximum stays below u_p with probability p when S(u_p) = −ln p / N_B;
+// the peak is the translation of u_p, its sign turned back. Its standard
+// uncertainty is the sampling error of ln N_e, (π/√6)/√epochs, carried to
+// the peak through the translation, combined with q̄'s calibration and
+// profile (docs/references.md §20). CpPeakMax is the same on +C_Z
+// (positive pressure). With fewer than three epochs the peak is NaN.
 //
 // # Direction, design values
 //
@@ -877,8 +883,9 @@ func (e *RoofEstimator) reduce(buf *roofBuf, p []float64, withPeak bool) (r zone
 	if withPeak {
 		// q̄'s calibration and profile scale every coefficient of the block.
 		uq := math.Hypot(qU/qmBar, e.qRatioU)
-		r.peakMin = e.blockPeak(p, qBar, -1, uq)
-		r.peakMax = e.blockPeak(p, qBar, +1, uq)
+		epochs := e.peakEpochs(p, buf)
+		r.peakMin = e.blockPeak(p, qBar, -1, uq, epochs)
+		r.peakMax = e.blockPeak(p, qBar, +1, uq, epochs)
 	}
 	return r, true
 }
@@ -958,76 +965,212 @@ func (e *RoofEstimator) qTypeB(qBarPa float64) (float64, float64) {
 	return e.pitotC * e.pitotC * h.u, h.dof
 }
 
-// peakPower is the power k of the deviation whose epoch extremes the
-// Gumbel is fitted to: 1, the coefficient itself (Cook & Mayne). k = 2 is
-// the penultimate form for a Gaussian parent (Cook & Harris 2004, from
-// memory); on the lagged-gust test record k = 1 is conservative (suction
-// exceeded in 11 % of blocks against the stated 22 %) and k = 2 is not
-// (36 %), docs/roof.md §5.
-const peakPower = 1.0
-
-// gumbelQuantileVar is the sampling variance of a Gumbel quantile fitted to
-// m values, in units of (1/a)², at reduced variate y (the classic
-// large-sample formula, docs/references.md §20):
-// (1.1087 + 0.5140·y + 0.6079·y²)/m.
-func gumbelQuantileVar(y float64, m int) float64 {
-	return (1.1087 + 0.5140*y + 0.6079*y*y) / float64(m)
-}
-
 // blockPeak returns the block peak of the net Cp series p/q̄ − c_pi on the
-// side sign (−1 suction, +1 positive): the Cook & Mayne fractile of the
-// block's extreme (see RoofEstimator), with its standard uncertainty;
-// uqRel is q̄'s relative standard uncertainty. X is NaN when fewer than
-// three epochs hold data.
-func (e *RoofEstimator) blockPeak(p []float64, qBar, sign, uqRel float64) calibrate.Value {
+// side sign (−1 suction, +1 positive), the value the block's own extreme
+// stays within with probability RoofPeakProb, with its standard
+// uncertainty; uqRel is q̄'s relative standard uncertainty (see "Block
+// peaks" on RoofEstimator). X is NaN when fewer than three epochs hold
+// data or the series has no spread.
+func (e *RoofEstimator) blockPeak(p []float64, qBar, sign, uqRel float64, epochs int) calibrate.Value {
 	nan := calibrate.Value{X: math.NaN()}
 	n := len(p)
-	epochs := min(e.cfg.Epochs, n/2)
 	if epochs < 3 {
 		return nan
 	}
 	mean := nanMean(p) / qBar
-	ext := make([]float64, 0, epochs)
+	side := func(v float64) float64 { return sign * (v/qBar - mean) }
+	m := sideMoments(p, side)
+	if !(m.sd > 0) {
+		return nan
+	}
+	h := newHermite(m.skew, m.kurt)
+	// Each epoch's maximum, mapped to the standard normal u of the
+	// translation, gives z = −ln S(u); with N_e independent values per
+	// epoch, z is Gumbel with mode ln N_e and dispersion 1.
+	zSum, zN := 0.0, 0
 	for k := range epochs {
 		lo, hi := k*n/epochs, (k+1)*n/epochs
-		m := math.Inf(-1)
+		top := math.Inf(-1)
 		for _, v := range p[lo:hi] {
 			if finite(v) {
-				m = math.Max(m, sign*(v/qBar-mean))
+				top = math.Max(top, side(v))
 			}
 		}
-		if !math.IsInf(m, -1) {
-			ext = append(ext, math.Copysign(math.Pow(math.Abs(m), peakPower), m))
+		if !math.IsInf(top, -1) {
+			zSum += -math.Log(normalTail(max(h.u((top-m.mean)/m.sd), 0)))
+			zN++
 		}
 	}
-	if len(ext) < 3 {
+	if zN < 3 {
 		return nan
 	}
-	g, err := FitGumbelMLE(ext)
-	if err != nil {
-		if errors.Is(err, ErrGumbelData) {
-			// All epoch extremes equal: the extreme is that value.
-			same := true
-			for _, m := range ext {
-				same = same && m == ext[0]
-			}
-			if same {
-				return calibrate.Value{X: mean - e.intCp + sign*math.Copysign(math.Pow(math.Abs(ext[0]), 1/peakPower), ext[0]), Dof: math.Inf(1)}
-			}
-		}
-		return nan
-	}
-	y := math.Log(float64(len(ext))) + CookMayneReduced
-	x2 := g.ModeU + y*g.ScaleInvA
-	if !(x2 > 0) {
-		return nan
-	}
-	d := math.Pow(x2, 1/peakPower)
-	uFit := g.ScaleInvA * math.Sqrt(gumbelQuantileVar(y, len(ext))) * d / (peakPower * x2)
+	// ln N_B = ln N_e + ln(epochs); the block's maximum stays below u_p
+	// with probability p when S(u_p) = −ln p / N_B = e^{−(ln N_B + 1.4)}.
+	lnNB := zSum/float64(zN) - EulerGamma + math.Log(float64(zN))
+	sp := math.Exp(-(lnNB + CookMayneReduced))
+	up := math.Sqrt2 * math.Erfcinv(2*sp)
+	d := m.mean + m.sd*h.x(up)
+	// u(ln N_e) is the Gumbel's standard deviation π/√6 over √epochs;
+	// du_p = S(u_p)/φ(u_p) · d ln N_B.
+	uLn := math.Pi / math.Sqrt(6) / math.Sqrt(float64(zN))
+	phi := math.Exp(-up*up/2) / math.Sqrt(2*math.Pi)
+	uFit := m.sd * h.dx(up) * sp / phi * uLn
 	x := mean - e.intCp + sign*d
 	uQ := math.Abs(x+e.intCp) * uqRel
-	return calibrate.Value{X: x, U: math.Hypot(uFit, uQ), Dof: float64(len(ext) - 2)}
+	return calibrate.Value{X: x, U: math.Hypot(uFit, uQ), Dof: float64(zN - 1)}
 }
+
+// peakEpochs is the number of epochs a block's peak is estimated from:
+// Epochs, or fewer so that each epoch lasts at least the integral time
+// scale of the series (epochs much shorter than the gusts share their
+// gust, and their extremes are not independent); at most half the
+// samples.
+func (e *RoofEstimator) peakEpochs(p []float64, buf *roofBuf) int {
+	n := len(p)
+	epochs := min(e.cfg.Epochs, n/2)
+	if n < 2 || epochs < 3 {
+		return epochs
+	}
+	dtS := float64(buf.tUs[n-1]-buf.tUs[0]) / float64(n-1) / 1e6
+	ti := integralTimeS(p, dtS)
+	if ti > 0 {
+		epochs = min(epochs, int(float64(n)*dtS/ti))
+	}
+	return epochs
+}
+
+// integralTimeS is the integral time scale of the finite values of p
+// sampled every dtS seconds: the autocorrelation ρ(τ) (from the power
+// spectrum, Wiener–Khinchin) integrated up to its first zero crossing by
+// the trapezoidal rule. Non-finite values count as the mean.
+func integralTimeS(p []float64, dtS float64) float64 {
+	n := len(p)
+	mean := nanMean(p)
+	if !finite(mean) || !(dtS > 0) {
+		return 0
+	}
+	x := make([]float64, 2*n)
+	for i, v := range p {
+		if finite(v) {
+			x[i] = v - mean
+		}
+	}
+	fft := fourier.NewFFT(2 * n)
+	c := fft.Coefficients(nil, x)
+	for i, v := range c {
+		c[i] = complex(real(v)*real(v)+imag(v)*imag(v), 0)
+	}
+	r := fft.Sequence(x, c)
+	if !(r[0] > 0) {
+		return 0
+	}
+	sum := 0.5
+	for k := 1; k < n; k++ {
+		rho := r[k] / r[0]
+		if rho <= 0 {
+			break
+		}
+		sum += rho
+	}
+	return sum * dtS
+}
+
+// moments are the mean, standard deviation, skewness and kurtosis of the
+// finite values of a series (population forms).
+type moments struct{ mean, sd, skew, kurt float64 }
+
+// sideMoments returns the moments of f(v) over the finite values v of p.
+func sideMoments(p []float64, f func(float64) float64) moments {
+	var s1 float64
+	n := 0
+	for _, v := range p {
+		if finite(v) {
+			s1 += f(v)
+			n++
+		}
+	}
+	if n == 0 {
+		return moments{}
+	}
+	mean := s1 / float64(n)
+	var s2, s3, s4 float64
+	for _, v := range p {
+		if finite(v) {
+			d := f(v) - mean
+			s2 += d * d
+			s3 += d * d * d
+			s4 += d * d * d * d
+		}
+	}
+	v2 := s2 / float64(n)
+	sd := math.Sqrt(v2)
+	if !(sd > 0) {
+		return moments{mean: mean}
+	}
+	return moments{mean: mean, sd: sd, skew: s3 / float64(n) / (v2 * sd), kurt: s4 / float64(n) / (v2 * v2)}
+}
+
+// hermite is Winterstein's moment-based Hermite translation of a softening
+// non-Gaussian process, x = κ[u + h3(u² − 1) + h4(u³ − 3u)] with u standard
+// normal and x standardised (docs/references.md §20).
+type hermite struct{ k, h3, h4 float64 }
+
+// newHermite returns the translation for skewness g3 and kurtosis g4:
+// h4 = (√(1 + 1.5(g4 − 3)) − 1)/18, h3 = g3/(4 + 2√(1 + 1.5(g4 − 3))),
+// κ = 1/√(1 + 2h3² + 6h4²) (Winterstein 1988). A kurtosis below 3 (a
+// hardening process) is taken as 3, which overstates the tail: the peak
+// errs on the safe side.
+func newHermite(g3, g4 float64) hermite {
+	r := math.Sqrt(1 + 1.5*(max(g4, 3)-3))
+	h4 := (r - 1) / 18
+	h3 := g3 / (4 + 2*r)
+	h := hermite{k: 1 / math.Sqrt(1+2*h3*h3+6*h4*h4), h3: h3, h4: h4}
+	if !h.increasing() {
+		// A light tail skewed so far that the cubic turns back below
+		// u = 8: drop the skew term, which overstates the tail (safe side).
+		h.h3 = 0
+		h.k = 1 / math.Sqrt(1+6*h4*h4)
+	}
+	return h
+}
+
+// increasing reports whether x(u) increases on [0, 8].
+func (h hermite) increasing() bool {
+	for u := 0.0; u <= 8; u += 0.125 {
+		if h.dx(u) <= 0 {
+			return false
+		}
+	}
+	return true
+}
+
+// x is the standardised value at standard normal u.
+func (h hermite) x(u float64) float64 {
+	return h.k * (u + h.h3*(u*u-1) + h.h4*(u*u*u-3*u))
+}
+
+// dx is dx/du.
+func (h hermite) dx(u float64) float64 {
+	return h.k * (1 + 2*h.h3*u + 3*h.h4*(u*u-1))
+}
+
+// u inverts x on u ∈ [0, 8], where the translation of a record's upper
+// tail increases (bisection; x below x(0) gives 0, above x(8) gives 8).
+func (h hermite) u(x float64) float64 {
+	lo, hi := 0.0, 8.0
+	for range 50 {
+		m := (lo + hi) / 2
+		if h.x(m) < x {
+			lo = m
+		} else {
+			hi = m
+		}
+	}
+	return (lo + hi) / 2
+}
+
+// normalTail is S(u) = 1 − Φ(u), the standard normal's upper tail.
+func normalTail(u float64) float64 { return 0.5 * math.Erfc(u/math.Sqrt2) }
 
 // Live returns each zone's net Cp over the most recent Window of samples,
 // computed by the same code as a Segment, with the window's mean reference

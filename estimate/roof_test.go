@@ -470,11 +470,10 @@ func TestRoof_Coverage(t *testing.T) {
 // extreme: for white Gaussian net Cp (mean m, sd σ) the minimum of a block
 // of N samples has the exact distribution P(min ≥ x) = Φ((m − x)/σ)^N
 // (order statistics of independent samples), so the Cook & Mayne fractile
-// p = exp(−e^{−1.4}) is x = m − σ·Φ⁻¹(p^{1/N}). The Gumbel fit of 16 epoch
-// extremes scaled to the block (mode + ln 16 dispersions) is a model, not
-// the exact law: Gaussian extremes approach the Gumbel slowly, so the
-// estimate is checked within 2.5 of its own standard uncertainties (and
-// 0.5σ), and the same on the positive side.
+// p = exp(−e^{−1.4}) is x = m − σ·Φ⁻¹(p^{1/N}). The peak model (a
+// Hermite translation, Gaussian here, and independent values calibrated
+// on 16 epoch extremes, docs/roof.md §5) must find it within twice its
+// own standard uncertainty and 0.2σ, on both sides.
 func TestRoof_PeakMatchesGaussianBlockExtremes(t *testing.T) {
 	const m, sigma, q = -1.2, 0.3, 500.0
 	const epochs, perEpoch = 16, 625 // 10 000 samples: a 10 s block at 1 kHz
@@ -502,7 +501,7 @@ func TestRoof_PeakMatchesGaussianBlockExtremes(t *testing.T) {
 		{"suction", f.CpPeak, f.CpPeakU, m - sigma*z},
 		{"positive", f.CpPeakMax, f.CpPeakMaxU, m + sigma*z},
 	} {
-		if d := math.Abs(c.got - c.w); d > 2.5*c.u || d > 0.5*sigma || !(c.u > 0) {
+		if d := math.Abs(c.got - c.w); d > 2*c.u || d > 0.2*sigma || !(c.u > 0) {
 			t.Errorf("%s peak %.3f ± %.3f, want %.3f (exact 78 %% block fractile)", c.side, c.got, c.u, c.w)
 		}
 		t.Logf("%s peak %.4f ± %.4f, exact 78 %% block fractile %.4f", c.side, c.got, c.u, c.w)
@@ -623,16 +622,71 @@ func TestRoof_LaggedTapsCoverageAndPeakRate(t *testing.T) {
 	if cov < 0.80 {
 		t.Errorf("coverage %.3f below 0.80", cov)
 	}
-	// The Gumbel of epoch extremes is conservative on a near-Gaussian side
-	// (docs/roof.md §5): measured 0.11 on the suction side, 0.02 on the
-	// positive side against the stated 0.22. The band asserts that the
-	// suction peak is a block value (an epoch value is exceeded in almost
-	// every block) and not optimistic.
-	if rateMin < 0.05 || rateMin > 0.35 {
-		t.Errorf("suction exceedance rate %.3f outside 0.05–0.35 (stated %.3f)", rateMin, 1-estimate.RoofPeakProb)
+	// About the stated rate on the suction side (± about five binomial
+	// standard deviations of 480 blocks, 0.019); the positive side is the
+	// light tail, where the peak may be conservative but not optimistic
+	// (docs/roof.md §5).
+	if rateMin < 0.12 || rateMin > 0.32 {
+		t.Errorf("suction exceedance rate %.3f outside 0.12–0.32 (stated %.3f)", rateMin, 1-estimate.RoofPeakProb)
 	}
-	if rateMax > 0.35 {
-		t.Errorf("positive exceedance rate %.3f above 0.35 (stated %.3f)", rateMax, 1-estimate.RoofPeakProb)
+	if rateMax > 0.32 {
+		t.Errorf("positive exceedance rate %.3f above 0.32 (stated %.3f)", rateMax, 1-estimate.RoofPeakProb)
+	}
+}
+
+// Ensure that the block peaks mean what docs/roof.md §5 says across
+// regimes the lagged-taps test does not cover: short and long blocks,
+// strong and weak turbulence. In each, over 306 zone-blocks, the block's
+// own most negative net Cp goes beyond cp_peak at about the stated rate
+// 1 − RoofPeakProb = 0.22: between 0.12 and 0.32 (the stated rate ± four
+// binomial standard deviations of 306 blocks, 0.024). On the positive
+// side, the light tail of these records, cp_peak_max may be conservative
+// but must not be optimistic: at most 0.32. An epoch value would be
+// exceeded in nearly every block.
+func TestRoof_BlockPeakRateAcrossRegimes(t *testing.T) {
+	r := yardRig(t)
+	regimes := []struct {
+		name  string
+		cfg   sim.RoofConfig
+		block time.Duration
+	}{
+		{"short 2 s blocks", sim.RoofConfig{RateHz: 200}, 2 * time.Second},
+		{"strong turbulence, I 0.30", sim.RoofConfig{TurbulenceIntensity: 0.30, RateHz: 100}, 10 * time.Second},
+		{"weak turbulence, I 0.05", sim.RoofConfig{TurbulenceIntensity: 0.05, TapTurbulence: 0.05, RateHz: 100}, 10 * time.Second},
+		{"long 60 s blocks", sim.RoofConfig{TapGustCorrelation: 0.8, RateHz: 50}, 60 * time.Second},
+	}
+	for _, g := range regimes {
+		t.Run(g.name, func(t *testing.T) {
+			below, above, total := 0, 0, 0
+			for seed := range uint64(6) {
+				c := g.cfg
+				c.QPa, c.Seed, c.BlockSamples = 300, 700+seed, 50
+				_, _, segs := runRoof(t, r, c, estimate.RoofConfig{Block: g.block}, 17*g.block.Seconds())
+				for _, sg := range segs {
+					if sg.Zone == "roof" {
+						continue
+					}
+					total++
+					if sg.CpMin < sg.CpPeak {
+						below++
+					}
+					if sg.CpMax > sg.CpPeakMax {
+						above++
+					}
+				}
+			}
+			if total != 306 {
+				t.Fatalf("%d zone-blocks, want 306", total)
+			}
+			rMin, rMax := float64(below)/float64(total), float64(above)/float64(total)
+			t.Logf("block extreme beyond the peak: suction %.3f, positive %.3f (stated %.3f)", rMin, rMax, 1-estimate.RoofPeakProb)
+			if rMin < 0.12 || rMin > 0.32 {
+				t.Errorf("suction exceedance rate %.3f outside 0.12–0.32 (stated %.3f)", rMin, 1-estimate.RoofPeakProb)
+			}
+			if rMax > 0.32 {
+				t.Errorf("positive exceedance rate %.3f above 0.32 (stated %.3f)", rMax, 1-estimate.RoofPeakProb)
+			}
+		})
 	}
 }
 

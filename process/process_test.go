@@ -205,7 +205,7 @@ func TestRecorder_StoreFailureIsLoud(t *testing.T) {
 				// Give the writer time to hit the closed file before the
 				// file runs out.
 				select {
-				case <-rec.WriterDone():
+				case <-rec.StoreChanged():
 				case <-time.After(20 * time.Millisecond):
 				}
 			}
@@ -217,7 +217,11 @@ func TestRecorder_StoreFailureIsLoud(t *testing.T) {
 	select {
 	case err := <-done:
 		require.Error(t, err)
-		assert.ErrorContains(t, err, "store stopped taking data")
+		assert.ErrorContains(t, err, "store is not taking data")
+		assert.ErrorContains(t, err, "could not be stored")
+		acc := rec.Accounting()
+		assert.Equal(t, acc.Received, acc.Stored+acc.Rejected+acc.Dropped+acc.Lost, "%s", acc)
+		assert.Positive(t, acc.Lost, "%s", acc)
 		t.Log(err)
 	case <-time.After(30 * time.Second):
 		t.Fatal("the recorder hung on a failed store")
@@ -276,4 +280,52 @@ func TestRecorder_StaleWarnsOnce(t *testing.T) {
 	assert.Zero(t, idle, "warnings: %q", l.Warnings)
 	_, err = rec.Finish(t.Context(), nil, nil)
 	require.NoError(t, err)
+}
+
+// Ensure that a live recording whose store fails goes on and says so: the
+// live estimate's first warning names the failure, the "store" health line
+// counts what was lost, and Finish returns an error whose accounting
+// balances (issue 16).
+func TestRecorder_LiveStoreFailureWarnsAndCounts(t *testing.T) {
+	r, text := loadRig(t, foilRig)
+	store, err := storage.Open(filepath.Join(t.TempDir(), "broken.db"), storage.Options{})
+	require.NoError(t, err)
+	rec, err := process.NewRecorder(store, process.RecorderConfig{Rig: r, RigTOML: text})
+	require.NoError(t, err)
+	var blocks []acquire.Block
+	require.NoError(t, (&acquire.CSVFile{Path: rawCSV, Source: r.Sources[0].Name, BlockN: 10}).Replay(t.Context(), func(b acquire.Block) error {
+		blocks = append(blocks, b)
+		return nil
+	}))
+	require.Greater(t, len(blocks), 60)
+	for _, b := range blocks[:30] {
+		b.Received = time.Now()
+		rec.Block(b)
+	}
+	require.NoError(t, store.Close()) // every commit fails from here
+	for i, b := range blocks[30:] {
+		b.Received = time.Now()
+		rec.Block(b)
+		if i == 0 {
+			select {
+			case <-rec.StoreChanged():
+			case <-time.After(10 * time.Second):
+				t.Fatal("no word from the store within 10 s of its failure")
+			}
+		}
+	}
+	require.True(t, rec.StoreState().Failing)
+	l, ok := rec.Live()
+	require.True(t, ok)
+	require.NotEmpty(t, l.Warnings)
+	assert.True(t, strings.HasPrefix(l.Warnings[0], "STORE FAILING"), "warnings: %q", l.Warnings)
+	_, err = rec.Finish(t.Context(), nil, nil)
+	require.Error(t, err)
+	acc := rec.Accounting()
+	assert.ErrorContains(t, err, acc.String())
+	assert.Equal(t, acc.Received, acc.Stored+acc.Rejected+acc.Dropped+acc.Lost, "%s", acc)
+	assert.Positive(t, acc.Lost)
+	h := rec.StoreHealth()
+	assert.Equal(t, acc.Dropped+acc.Lost, h.SamplesDropped)
+	assert.Equal(t, acc.Stored, h.Samples)
 }

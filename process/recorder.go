@@ -60,14 +60,19 @@ type Recorder struct {
 	p       *Pipeline
 	runID   uint64
 	items   chan storage.Item
-	dropped atomic.Uint64
-	werr    chan error    // the writer's result, once
-	wdone   chan struct{} // closed when the writer has returned
-	wfail   error         // the writer's error, set before wdone closes
-	lost    atomic.Uint64 // results and events not stored because the writer had failed
-	expired []acquire.Event
-	log     *slog.Logger
-	done    bool
+	w       *storage.Writer
+	dropped storage.Drops
+	// received counts the sample times of the raw blocks handed to Keep:
+	// each is stored, rejected, dropped from the queue or lost in a failing
+	// store, and counted there (Accounting).
+	received atomic.Uint64
+	werr     chan error    // the writer's result, once
+	wdone    chan struct{} // closed when the writer has returned
+	lost     atomic.Uint64 // results and events not stored because the writer had returned
+	changed  chan struct{} // the writer's state changed (buffered, 1)
+	expired  []acquire.Event
+	log      *slog.Logger
+	done     bool
 }
 
 // NewRecorder checks that the rig can be processed (calibrations, stage,
@@ -105,17 +110,18 @@ func NewRecorder(store *storage.Store, cfg RecorderConfig) (*Recorder, error) {
 		return nil, err
 	}
 	rec := &Recorder{store: store, cfg: cfg, cal: cal, p: p, runID: id, log: log,
-		items: make(chan storage.Item, StoreQueue), werr: make(chan error, 1), wdone: make(chan struct{})}
+		items: make(chan storage.Item, StoreQueue), werr: make(chan error, 1), wdone: make(chan struct{}),
+		changed: make(chan struct{}, 1)}
 	if err := store.SetRunCalibrations(id, storedIDs(cal)); err != nil {
 		_ = store.FinishRun(id, cfg.Now(), storage.StatusInterrupted, nil)
 		return nil, err
 	}
-	w := store.NewWriter(id, storage.WriterConfig{})
+	rec.w = store.NewWriter(id, storage.WriterConfig{OnNotice: rec.notice})
 	// The writer commits until items is closed (Finish), whatever the
-	// caller's context does.
+	// caller's context does; a failing store does not stop it (it holds,
+	// retries and counts).
 	go func() {
-		err := w.Run(context.Background(), rec.items)
-		rec.wfail = err
+		err := rec.w.Run(context.Background(), rec.items)
 		close(rec.wdone)
 		rec.werr <- err
 	}()
@@ -142,13 +148,15 @@ func (rec *Recorder) Block(b acquire.Block) Step {
 // Keep stores a stepped block (nil: none), its events and its segments. A
 // segment is never dropped while the store works; a live raw block is
 // dropped (and counted) rather than waited for. Keep has the signature
-// Replay's each wants: it fails once the store's writer has stopped on an
-// error, so an offline replay stops there.
+// Replay's each wants: it fails while the store's commits fail
+// (StoreFailed), so an offline replay stops there; a live recording ignores
+// it and goes on (the writer holds the data and retries).
 func (rec *Recorder) Keep(b *acquire.Block, st Step) error {
 	for _, ev := range st.Events {
 		rec.Event(ev)
 	}
 	if b != nil {
+		rec.received.Add(uint64(b.Len()))
 		it := storage.Item{Block: b}
 		if rec.cfg.Offline {
 			rec.send(it) // not live: wait for the store
@@ -162,32 +170,77 @@ func (rec *Recorder) Keep(b *acquire.Block, st Step) error {
 	return rec.StoreFailed()
 }
 
-// send waits for the writer to take it, unless the writer has stopped on
-// an error: then it is counted as lost instead of blocking forever.
+// send waits for the writer to take it. The writer keeps taking items
+// even while its commits fail, so the wait is at most one commit; should
+// the writer have returned, it is counted as lost instead of blocking
+// forever.
 func (rec *Recorder) send(it storage.Item) {
 	select {
 	case rec.items <- it:
 	case <-rec.wdone:
 		rec.lost.Add(1)
+		if it.Block != nil {
+			rec.dropped.Samples.Add(uint64(it.Block.Len()))
+		}
 	}
 }
 
-// WriterDone is closed when the store's writer has stopped before Finish:
-// a commit failed (a full disk, a broken file). The recording should stop;
-// StoreFailed says why.
-func (rec *Recorder) WriterDone() <-chan struct{} { return rec.wdone }
-
-// StoreFailed returns the writer's error once it has stopped on one, else
-// nil.
-func (rec *Recorder) StoreFailed() error {
+// notice is the writer's WriterConfig.OnNotice: it says at once, on the
+// log, what happened to the store (the same words reach the run's events
+// once the store takes data again), and wakes StoreChanged.
+func (rec *Recorder) notice(n storage.Notice) {
+	switch n.Kind {
+	case storage.EventStoreFailed, storage.EventStoreLost:
+		rec.log.Error(n.Message, "run", rec.runID, "event", n.Kind)
+	default:
+		rec.log.Warn(n.Message, "run", rec.runID, "event", n.Kind)
+	}
 	select {
-	case <-rec.wdone:
-		if rec.wfail != nil {
-			return fmt.Errorf("the store stopped taking data: %w", rec.wfail)
-		}
+	case rec.changed <- struct{}{}:
 	default:
 	}
+}
+
+// StoreChanged receives a value when the store's state changed (a commit
+// failed, the store recovered, data was given up, disk space ran low or
+// came back): the time to publish the health again.
+func (rec *Recorder) StoreChanged() <-chan struct{} { return rec.changed }
+
+// StoreState is the store writer's state now.
+func (rec *Recorder) StoreState() storage.WriterState { return rec.w.State() }
+
+// StoreFailed returns an error while the store's last commit failed, else
+// nil. A live recording goes on (the writer holds and retries); an offline
+// one stops, since the file can be read again once there is room.
+func (rec *Recorder) StoreFailed() error {
+	if st := rec.w.State(); st.Failing {
+		return fmt.Errorf("the store is not taking data (since %s UTC): %w", st.Since.UTC().Format("15:04:05.000"), st.Err)
+	}
 	return nil
+}
+
+// Accounting is where the sample times handed to a Recorder went:
+// Received = Stored + Rejected + Dropped + Lost.
+type Accounting struct {
+	Received uint64 // sample times of the raw blocks handed to Keep
+	Stored   uint64 // committed to the store
+	Rejected uint64 // refused by the store as unstorable (each an event)
+	Dropped  uint64 // dropped from the recorder → store queue (live only)
+	Lost     uint64 // given up by a failing store
+}
+
+// String is the accounting in one line.
+func (a Accounting) String() string {
+	return fmt.Sprintf("sample times received %d = stored %d + rejected %d + dropped from the queue %d + lost in the failing store %d",
+		a.Received, a.Stored, a.Rejected, a.Dropped, a.Lost)
+}
+
+// Accounting returns the count so far; it balances once Finish has
+// returned (before, some samples are in flight).
+func (rec *Recorder) Accounting() Accounting {
+	_, stored := rec.w.Committed()
+	return Accounting{Received: rec.received.Load(), Stored: stored, Rejected: rec.w.RejectedSamples(),
+		Dropped: rec.dropped.Samples.Load(), Lost: rec.w.State().LostSamples}
 }
 
 // Event stores ev with the run and logs it.
@@ -216,6 +269,9 @@ func (rec *Recorder) Live() (estimate.Live, bool) {
 	l.Computed = rec.cfg.Now().UTC()
 	l.Sources = rec.p.Ages()
 	var ws []string
+	if w := rec.w.State().Warning(); w != "" {
+		ws = append(ws, w) // first: a store that fails loses the test
+	}
 	for _, a := range l.Sources {
 		if a.Stale {
 			l.Stale, l.Steady = true, false
@@ -273,9 +329,15 @@ func (rec *Recorder) AcknowledgeLoad(channel, by string) error {
 }
 
 // StoreHealth is the "store" health line: the items the recorder → store
-// edge dropped because the writer fell behind.
+// edge dropped because the writer fell behind, plus the blocks a failing
+// store gave up (BlocksDropped), and the sample times of both
+// (SamplesDropped); Samples is what was committed.
 func (rec *Recorder) StoreHealth() acquire.HealthSnapshot {
-	return acquire.HealthSnapshot{Source: "store", BlocksDropped: rec.dropped.Load()}
+	st := rec.w.State()
+	_, stored := rec.w.Committed()
+	return acquire.HealthSnapshot{Source: "store", Samples: stored,
+		BlocksDropped:  rec.dropped.Items.Load() + st.LostBlocks,
+		SamplesDropped: rec.dropped.Samples.Load() + st.LostSamples}
 }
 
 // Flush closes the open segment, stores it and returns it.
@@ -298,7 +360,8 @@ type Finished struct {
 // Finish waits for the writer's last commit and stores how the run ended
 // with the final health of its sources. runErr is the error that ended the
 // data (nil for a normal end; cancellation counts as normal): with one, or
-// a failed commit, the run is stored interrupted. A complete run whose
+// when the store lost data, the run is stored interrupted, and the error
+// carries the Accounting. A complete run whose
 // flow-off zeros were taken before and after is then re-processed from its
 // stored raw blocks with the drift removed (storage.CorrectRun). Finish
 // returns the errors of the writer and of finishing; calling it twice does
@@ -324,8 +387,17 @@ func (rec *Recorder) Finish(ctx context.Context, runErr error, sources []acquire
 	}
 	close(rec.items)
 	werr := <-rec.werr
-	if n := rec.lost.Load(); werr != nil && n > 0 {
-		werr = fmt.Errorf("%w; %d results and events after it were not stored", werr, n)
+	if n := rec.lost.Load(); n > 0 {
+		werr = errors.Join(werr, fmt.Errorf("%d items were not stored: the store writer had stopped", n))
+	}
+	if st := rec.w.State(); st.FailedCommits > 0 {
+		// Said on the log whatever the outcome, with the count that
+		// balances: nothing is lost without being counted.
+		acc := rec.Accounting()
+		rec.log.Warn(fmt.Sprintf("the store failed %d times during run %d; %s", st.FailedCommits, rec.runID, acc), "run", rec.runID)
+		if werr != nil {
+			werr = fmt.Errorf("%w (%s)", werr, acc)
+		}
 	}
 	fin := Finished{Status: storage.StatusComplete}
 	if runErr != nil || werr != nil {
@@ -336,9 +408,6 @@ func (rec *Recorder) Finish(ctx context.Context, runErr error, sources []acquire
 		rec.store.SetRunChannels(rec.runID, rec.p.Channels(), rec.p.Loads()))
 	if ferr == nil && werr == nil && rec.p.zeros != nil {
 		ferr = rec.correctZeroDrift(context.WithoutCancel(ctx), &fin, drift, driftErr)
-	}
-	if werr != nil && errors.Is(runErr, rec.wfail) {
-		werr = nil // the caller's error already says it (StoreFailed)
 	}
 	return fin, errors.Join(werr, ferr)
 }

@@ -98,6 +98,8 @@ type view struct {
 	// Roof runs show RoofRows (zones × blocks) instead of the polar.
 	Roof     bool
 	RoofRows []roofRow
+	// RoofSectors sums the roof's blocks by direction sector and zone.
+	RoofSectors []sectorRow
 
 	PolarRows     []row
 	PolarWarnings []string
@@ -189,7 +191,7 @@ func (r *Report) view() (*view, error) {
 	}
 	v.Heading = r.section().heading
 	if r.section().zones {
-		v.Roof, v.RoofRows = true, r.roofRows()
+		v.Roof, v.RoofRows, v.RoofSectors = true, r.roofRows(), r.sectorRows()
 		r.recordView(v)
 		return v, nil
 	}

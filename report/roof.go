@@ -49,6 +49,34 @@ func (r *Report) roofRows() []roofRow {
 	return out
 }
 
+// sectorRow is one zone in one direction sector, rounded to text.
+type sectorRow struct {
+	Sector, Zone, Blocks, Left, CpMean, CpRange, Peak string
+}
+
+// sectorRows sums the run's zone rows by direction sector
+// (estimate.RoofSectors); nil when no block has a direction.
+func (r *Report) sectorRows() []sectorRow {
+	var out []sectorRow
+	vane := false
+	for _, g := range estimate.RoofSectors(r.Segments) {
+		sector := "no vane"
+		if finite(g.SectorRad) {
+			sector, vane = fix(rig.Deg(g.SectorRad), 0), true
+		}
+		out = append(out, sectorRow{
+			Sector: sector, Zone: g.Zone, Blocks: fmt.Sprint(g.Blocks), Left: fmt.Sprint(g.Left),
+			CpMean:  fix(g.CpMean, 2),
+			CpRange: fix(g.CpMeanLo, 2) + " … " + fix(g.CpMeanHi, 2),
+			Peak:    fix(g.CpPeak, 2) + " / " + fix(g.CpPeakMax, 2),
+		})
+	}
+	if !vane {
+		return nil
+	}
+	return out
+}
+
 // direction is a row's mean direction ± its spread in whole degrees, with
 // a flag when the block wandered out of its sector; a dash without a vane.
 func direction(row estimate.Row) string {

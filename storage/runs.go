@@ -137,7 +137,19 @@ func (s *Store) Run(id uint64) (r Run, err error) {
 		r, err = getRun(tx, id)
 		return err
 	})
-	return r, err
+	return s.seen(r), err
+}
+
+// seen is r as this store can tell it: a store opened read-only holds a
+// shared lock that no recorder can hold at the same time (bbolt's flock),
+// so a run it finds "recording" was cut off by a crash or a kill before it
+// could be finished, and it is shown as interrupted. The file is not
+// changed; the next read-write Open marks it (recover).
+func (s *Store) seen(r Run) Run {
+	if s.readOnly && r.Status == StatusRecording {
+		r.Status = StatusInterrupted
+	}
+	return r
 }
 
 // Runs returns every run, newest first.
@@ -153,7 +165,7 @@ func (s *Store) Runs() (runs []Run, err error) {
 			if err != nil {
 				return err
 			}
-			runs = append(runs, r)
+			runs = append(runs, s.seen(r))
 		}
 		return nil
 	})
@@ -178,7 +190,7 @@ func (s *Store) LatestRun() (r Run, err error) {
 		r, err = decodeRun(binary.BigEndian.Uint64(k), v)
 		return err
 	})
-	return r, err
+	return s.seen(r), err
 }
 
 // ResolveRun turns a run reference given by a user into a run id: a decimal

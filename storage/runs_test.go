@@ -154,7 +154,8 @@ func TestResolveRun(t *testing.T) {
 
 // Ensure that opening read-write marks runs left recording as interrupted,
 // with the last block's time as their end and an event saying why, and
-// that a read-only open changes nothing.
+// that a read-only open changes nothing in the file but shows the run as
+// interrupted: it could not open while a recorder held the file (issue 16).
 func TestOpen_MarksInterrupted(t *testing.T) {
 	path := t.TempDir() + "/s.db"
 	s, err := storage.Open(path, storage.Options{Now: newTestClock().Now})
@@ -170,8 +171,17 @@ func TestOpen_MarksInterrupted(t *testing.T) {
 	s.Close() // the "crash": run 1 is never finished
 
 	ro := MustOpenStoreAt(t, path, storage.Options{ReadOnly: true})
-	if r, _ := ro.Run(id); r.Status != storage.StatusRecording {
-		t.Errorf("read-only open changed status to %q", r.Status)
+	if r, _ := ro.Run(id); r.Status != storage.StatusInterrupted {
+		t.Errorf("read-only Run shows status %q, want interrupted", r.Status)
+	}
+	if r, _ := ro.LatestRun(); r.ID != done || r.Status != storage.StatusComplete {
+		t.Errorf("read-only LatestRun = run %d %q", r.ID, r.Status)
+	}
+	if runs, _ := ro.Runs(); len(runs) != 2 || runs[1].Status != storage.StatusInterrupted {
+		t.Errorf("read-only Runs = %+v", runs)
+	}
+	if evs, _ := ro.Events(id); len(evs) != 0 {
+		t.Errorf("read-only open wrote events: %+v", evs)
 	}
 	ro.Close()
 

@@ -317,6 +317,9 @@ func TestWriter_ErrFull(t *testing.T) {
 		t.Fatalf("err = %v, want ErrFull", err)
 	}
 	blocks, _ := w.Committed()
+	if st := w.State(); blocks+st.LostBlocks != 200 || st.FailedCommits == 0 {
+		t.Errorf("committed %d + lost %d blocks, want 200 (every block stored or counted); state %+v", blocks, st.LostBlocks, st)
+	}
 	r, err := s.Run(id)
 	if err != nil {
 		t.Fatal(err)

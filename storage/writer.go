@@ -4,6 +4,8 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"path/filepath"
+	"sync"
 	"sync/atomic"
 	"time"
 
@@ -31,6 +33,48 @@ const (
 	// 50–100 ms), enough to ride out a slow commit on an SD card without
 	// dropping, yet bounded.
 	DefaultQueue = 2048
+
+	// DefaultRetry is how often a Writer whose commit failed tries again
+	// with everything it holds (docs/design.md §5, "when the disk fills");
+	// less often when one attempt takes more than a quarter of it, so that
+	// retries take at most a fifth of the writer's time.
+	DefaultRetry = time.Second
+
+	// DefaultMaxPendingBytes bounds what a failing Writer holds for its
+	// retries: 64 MiB is about 20 minutes of a 6-channel rig at 1 kHz, and
+	// small beside a field computer's memory. Past it the oldest raw blocks
+	// are given up and counted (State().LostSamples).
+	DefaultMaxPendingBytes = 64 << 20
+
+	// DefaultSpaceCheck is how often the Writer looks at the free space of
+	// the store's file system (and once when it starts).
+	DefaultSpaceCheck = 10 * time.Second
+
+	// LowSpaceBytes and LowSpaceLead set the free-space warning: the Writer
+	// warns when the store's file system has less free space than
+	// LowSpaceBytes, or than LowSpaceLead of data at the rate it has been
+	// writing, whichever is more. 256 MiB is also bbolt's room for 16 of its
+	// 16 MiB growth steps.
+	LowSpaceBytes = 256 << 20
+	LowSpaceLead  = 10 * time.Minute
+)
+
+// Event kinds a Writer stores in its run's log (each also passed to
+// WriterConfig.OnNotice at once, so that the recorder logs it while the
+// disk is still full).
+const (
+	// EventStoreFailed is stored when a commit fails after the ones before
+	// it worked: the Writer keeps the data and retries.
+	EventStoreFailed = "store_failed"
+	// EventStoreRecovered is stored when a commit works again.
+	EventStoreRecovered = "store_recovered"
+	// EventStoreLost is stored when a failing Writer gives up data: its
+	// pending data passed MaxPendingBytes, or the last commit failed.
+	EventStoreLost = "store_lost"
+	// EventLowSpace is stored when the store's file system runs low
+	// (LowSpaceBytes, LowSpaceLead); EventSpaceOK when it has room again.
+	EventLowSpace = "disk_low"
+	EventSpaceOK  = "disk_ok"
 )
 
 // WriterConfig configures a Writer. A zero WriterConfig uses the defaults.
@@ -44,6 +88,89 @@ type WriterConfig struct {
 	// Queue is the capacity of the channel returned by NewQueue. Zero means
 	// DefaultQueue.
 	Queue int
+	// Retry is how often a failed commit is tried again. Zero means
+	// DefaultRetry.
+	Retry time.Duration
+	// MaxPendingBytes bounds the data a failing Writer holds for retry
+	// (estimated in memory: 8 bytes a reading plus names). Zero means
+	// DefaultMaxPendingBytes.
+	MaxPendingBytes int64
+	// SpaceCheck is how often free space is looked at. Zero means
+	// DefaultSpaceCheck.
+	SpaceCheck time.Duration
+	// FreeBytes returns the free space for the store's file. Nil means the
+	// file system's own figure (statfs of the store's directory); tests
+	// set it.
+	FreeBytes func() (uint64, error)
+	// OnNotice, when set, is called on the Writer's goroutine at once when
+	// its state changes (a failed commit, a recovery, data given up, low
+	// space). It must not block. The same notice is stored as an event of
+	// the run when the store takes data again.
+	OnNotice func(Notice)
+}
+
+// Notice is a change in a Writer's state, for people: Kind is one of the
+// EventStore* and EventLowSpace/EventSpaceOK kinds.
+type Notice struct {
+	T       time.Time
+	Kind    string
+	Message string
+}
+
+// WriterState is what a Writer knows about its store's health.
+type WriterState struct {
+	// Failing is true from a failed commit until one succeeds; Err is that
+	// commit's error and Since the time of the first failure.
+	Failing bool
+	Err     error
+	Since   time.Time
+	// FailedCommits counts every failed commit attempt of the run.
+	FailedCommits uint64
+	// PendingBytes is the estimated size of what is held for the next
+	// commit.
+	PendingBytes int64
+	// LostBlocks and LostSamples count the raw blocks (and their sample
+	// times) the Writer was handed but gave up; LostItems the segments and
+	// events. Every one is counted: received = stored + rejected + lost.
+	LostBlocks, LostSamples, LostItems uint64
+	// FreeBytes is the free space at the last check (FreeKnown false when
+	// it could not be read); LowSpace is true while it is below
+	// LowSpaceThreshold.
+	FreeBytes         uint64
+	FreeKnown         bool
+	LowSpace          bool
+	LowSpaceThreshold uint64
+}
+
+// Warning is the line a live display shows for s, or "" when the store is
+// well: the failure first, then low space.
+func (s WriterState) Warning() string {
+	switch {
+	case s.Failing:
+		msg := fmt.Sprintf("STORE FAILING since %s UTC: %v. Data is held in memory (%s) and retried every few seconds",
+			s.Since.UTC().Format("15:04:05"), s.Err, bytesText(uint64(max(s.PendingBytes, 0))))
+		if s.LostSamples > 0 || s.LostItems > 0 {
+			msg += fmt.Sprintf("; %d sample times and %d results/events could not be kept", s.LostSamples, s.LostItems)
+		}
+		return msg + ". Free space on the store's disk now."
+	case s.LostSamples > 0 || s.LostItems > 0:
+		return fmt.Sprintf("the store failed earlier in this run: %d sample times and %d results/events were not stored", s.LostSamples, s.LostItems)
+	case s.LowSpace:
+		return fmt.Sprintf("LOW DISK SPACE: %s free on the store's disk, less than %s; make room or stop the recording before the disk is full",
+			bytesText(s.FreeBytes), bytesText(s.LowSpaceThreshold))
+	}
+	return ""
+}
+
+// bytesText is n in kB, MB or GB (powers of 1000, as df -H shows).
+func bytesText(n uint64) string {
+	switch {
+	case n >= 1e9:
+		return fmt.Sprintf("%.1f GB", float64(n)/1e9)
+	case n >= 1e6:
+		return fmt.Sprintf("%.1f MB", float64(n)/1e6)
+	}
+	return fmt.Sprintf("%.0f kB", float64(n)/1e3)
 }
 
 // Item is one thing to store for the Writer's run: exactly one of its fields
@@ -59,18 +186,33 @@ type Item struct {
 // per interval, so a run of thousands of blocks per second costs a few
 // fsyncs per second. Run must be called once; the counters may be read from
 // any goroutine at any time.
+//
+// A failed commit (a full disk, a file-size limit, an I/O error) never
+// stops the Writer: it says so at once (OnNotice, State), keeps taking
+// items so that nothing upstream waits, holds them with the failed batch up
+// to MaxPendingBytes (the oldest raw blocks past that are given up and
+// counted) and retries every Retry until a commit works again.
 type Writer struct {
 	s     *Store
 	runID uint64
 	cfg   WriterConfig
 
-	started       atomic.Bool
-	blocks        atomic.Uint64
-	samples       atomic.Uint64
-	commits       atomic.Uint64
-	rejected      atomic.Uint64
-	lastCommitNs  atomic.Int64
-	lastCommitted atomic.Int64 // Unix ns of the host clock at the last commit
+	started         atomic.Bool
+	blocks          atomic.Uint64
+	samples         atomic.Uint64
+	commits         atomic.Uint64
+	rejected        atomic.Uint64
+	rejectedSamples atomic.Uint64
+	bytes           atomic.Uint64 // encoded bytes committed
+	lastCommitNs    atomic.Int64
+	lastCommitted   atomic.Int64 // Unix ns of the host clock at the last commit
+
+	mu    sync.Mutex
+	state WriterState
+
+	// failHook, when set (tests only), is called before each commit; an
+	// error from it fails the commit as a full disk would.
+	failHook func() error
 }
 
 // NewWriter returns a Writer for run id, which must exist when Run commits.
@@ -83,6 +225,19 @@ func (s *Store) NewWriter(runID uint64, cfg WriterConfig) *Writer {
 	}
 	if cfg.Queue <= 0 {
 		cfg.Queue = DefaultQueue
+	}
+	if cfg.Retry <= 0 {
+		cfg.Retry = DefaultRetry
+	}
+	if cfg.MaxPendingBytes <= 0 {
+		cfg.MaxPendingBytes = DefaultMaxPendingBytes
+	}
+	if cfg.SpaceCheck <= 0 {
+		cfg.SpaceCheck = DefaultSpaceCheck
+	}
+	if cfg.FreeBytes == nil {
+		dir := filepath.Dir(s.path)
+		cfg.FreeBytes = func() (uint64, error) { return FreeBytes(dir) }
 	}
 	return &Writer{s: s, runID: runID, cfg: cfg}
 }
@@ -106,6 +261,16 @@ func (w *Writer) Commits() uint64 { return w.commits.Load() }
 // be stored (each also logged as an EventRejected event).
 func (w *Writer) Rejected() uint64 { return w.rejected.Load() }
 
+// RejectedSamples returns the sample times of the rejected blocks.
+func (w *Writer) RejectedSamples() uint64 { return w.rejectedSamples.Load() }
+
+// State returns the Writer's health now.
+func (w *Writer) State() WriterState {
+	w.mu.Lock()
+	defer w.mu.Unlock()
+	return w.state
+}
+
 // LastCommit returns how long the last commit took, fsync included.
 func (w *Writer) LastCommit() time.Duration { return time.Duration(w.lastCommitNs.Load()) }
 
@@ -122,72 +287,266 @@ func (w *Writer) LastCommitted() time.Time {
 // Run stores the items from in until in is closed or ctx is done, then
 // commits what it holds and returns. The sender closes in. On ctx done, Run
 // also takes what is already queued in in (without waiting for more) and
-// commits it, so a cancel loses nothing that was handed over. Run returns
-// nil in both cases, and the first commit error otherwise (the pending batch
-// is then lost, and the error says how much).
+// commits it, so a cancel loses nothing that was handed over.
+//
+// A failed commit does not end Run (see Writer). Run returns nil when
+// everything it was handed is stored (or rejected as unstorable, with an
+// event), and otherwise an error that says how much was lost and wraps the
+// last commit error: the final commit failed, or data was given up past
+// MaxPendingBytes while the store failed.
 func (w *Writer) Run(ctx context.Context, in <-chan Item) error {
 	if w.started.Swap(true) {
 		return errors.New("storage writer: Run called twice")
 	}
 	var (
-		b      batch
-		timer  = time.NewTimer(time.Hour)
-		timerC <-chan time.Time
+		b       batch
+		timer   = time.NewTimer(time.Hour)
+		timerC  <-chan time.Time
+		lastErr error
 	)
 	timer.Stop()
 	defer timer.Stop()
+	space := time.NewTicker(w.cfg.SpaceCheck)
+	defer space.Stop()
+	sp := spaceWatch{last: time.Now()}
+	w.checkSpace(&b, &sp)
 
-	flush := func() error {
+	arm := func(d time.Duration) {
+		if timerC == nil {
+			timer.Reset(d)
+			timerC = timer.C
+		}
+	}
+	flush := func() {
 		timer.Stop()
 		timerC = nil
 		if b.empty() {
-			return nil
+			return
 		}
-		err := w.commit(&b)
+		start := time.Now()
+		if err := w.commit(&b); err != nil {
+			lastErr = err
+			w.failed(&b, err)
+			// A failed attempt with much held costs CPU (encoding, bbolt's
+			// pages): at most a fifth of the time goes to retries.
+			arm(max(w.cfg.Retry, 4*time.Since(start)))
+			return
+		}
 		b.reset()
-		return err
+		if w.recovered(&b) {
+			arm(w.cfg.Interval) // store the recovery's event soon
+		}
 	}
-	add := func(it Item) error {
+	add := func(it Item) {
 		if b.empty() {
-			timer.Reset(w.cfg.Interval)
-			timerC = timer.C
+			arm(w.cfg.Interval)
 		}
 		b.add(it)
-		if len(b.blocks) >= w.cfg.MaxBlocks {
-			return flush()
+		if w.failing() {
+			w.bound(&b)
+			return // the retry timer decides
 		}
-		return nil
+		if len(b.blocks) >= w.cfg.MaxBlocks {
+			flush()
+		}
+	}
+	finish := func() error {
+		flush()
+		if !b.empty() && !w.failing() {
+			flush() // the recovery's own event
+		}
+		if !b.empty() {
+			w.giveUp(&b, "the last commit failed")
+		}
+		st := w.State()
+		if st.LostSamples == 0 && st.LostItems == 0 {
+			return nil // it may have failed for a while, but everything was stored
+		}
+		bl, sa := w.Committed()
+		return fmt.Errorf("store run %d: %d blocks (%d sample times) and %d results/events could not be stored; %d blocks (%d sample times) are on disk up to the last good commit: %w",
+			w.runID, st.LostBlocks, st.LostSamples, st.LostItems, bl, sa, lastErr)
 	}
 
 	for {
 		select {
 		case it, ok := <-in:
 			if !ok {
-				return flush()
+				return finish()
 			}
-			if err := add(it); err != nil {
-				return err
-			}
+			add(it)
 		case <-timerC:
-			if err := flush(); err != nil {
-				return err
+			timerC = nil
+			flush()
+		case <-space.C:
+			if w.checkSpace(&b, &sp) {
+				arm(w.cfg.Interval)
 			}
 		case <-ctx.Done():
 			for {
 				select {
 				case it, ok := <-in:
 					if ok {
-						if err := add(it); err != nil {
-							return err
-						}
+						add(it)
 						continue
 					}
 				default:
 				}
-				return flush()
+				return finish()
 			}
 		}
 	}
+}
+
+func (w *Writer) failing() bool {
+	w.mu.Lock()
+	defer w.mu.Unlock()
+	return w.state.Failing
+}
+
+// notice tells OnNotice at once and stores the same words as an event of
+// the run with the next commit that works.
+func (w *Writer) notice(b *batch, kind, msg string) {
+	n := Notice{T: w.s.now(), Kind: kind, Message: msg}
+	b.add(Item{Event: &Event{T: n.T, Kind: kind, Message: msg}})
+	if w.cfg.OnNotice != nil {
+		w.cfg.OnNotice(n)
+	}
+}
+
+// failed records a failed commit of b: the first of a streak is a notice.
+func (w *Writer) failed(b *batch, err error) {
+	w.mu.Lock()
+	first := !w.state.Failing
+	w.state.FailedCommits++
+	w.state.Err = err
+	if first {
+		w.state.Failing = true
+		w.state.Since = w.s.now()
+	}
+	w.state.PendingBytes = b.bytes
+	w.mu.Unlock()
+	if first {
+		w.notice(b, EventStoreFailed, fmt.Sprintf("the store failed to commit: %v; nothing is thrown away yet: the data is held in memory (up to %s) and the commit is retried every %s",
+			err, bytesText(uint64(w.cfg.MaxPendingBytes)), w.cfg.Retry))
+	}
+	w.bound(b)
+}
+
+// recovered ends a failure streak after a commit worked; it reports
+// whether it added an event to b.
+func (w *Writer) recovered(b *batch) bool {
+	w.mu.Lock()
+	was, since, lost, lostItems := w.state.Failing, w.state.Since, w.state.LostSamples, w.state.LostItems
+	w.state.Failing, w.state.Err, w.state.PendingBytes = false, nil, b.bytes
+	w.mu.Unlock()
+	if !was {
+		return false
+	}
+	msg := fmt.Sprintf("the store takes data again after failing for %s; everything held was stored", w.s.now().Sub(since).Round(time.Millisecond))
+	if lost > 0 || lostItems > 0 {
+		msg = fmt.Sprintf("the store takes data again after failing for %s; %d sample times and %d results/events of this run could not be kept", w.s.now().Sub(since).Round(time.Millisecond), lost, lostItems)
+	}
+	w.notice(b, EventStoreRecovered, msg)
+	return true
+}
+
+// bound keeps a failing Writer's batch within MaxPendingBytes: the oldest
+// raw blocks go first, then the oldest events, then the oldest segments.
+// Each is counted; the first loss of a streak is a notice.
+func (w *Writer) bound(b *batch) {
+	var blocks, samples, items uint64
+	for b.bytes > w.cfg.MaxPendingBytes {
+		switch {
+		case len(b.blocks) > 0:
+			blocks++
+			samples += uint64(b.blocks[0].Len())
+			b.bytes -= blockBytes(b.blocks[0])
+			b.blocks[0] = nil
+			b.blocks = b.blocks[1:]
+		case len(b.events) > 0:
+			items++
+			b.bytes -= eventBytes(&b.events[0])
+			b.events = b.events[1:]
+		case len(b.segments) > 0:
+			items++
+			b.bytes -= segmentBytes
+			b.segments[0] = nil
+			b.segments = b.segments[1:]
+		default:
+			b.bytes = 0
+		}
+	}
+	w.mu.Lock()
+	first := w.state.LostSamples == 0 && w.state.LostItems == 0 && (samples > 0 || items > 0)
+	w.state.LostBlocks += blocks
+	w.state.LostSamples += samples
+	w.state.LostItems += items
+	w.state.PendingBytes = b.bytes
+	w.mu.Unlock()
+	if first {
+		w.notice(b, EventStoreLost, fmt.Sprintf("the store is still failing and the data held for it passed %s: the oldest raw blocks are now given up (and counted)",
+			bytesText(uint64(w.cfg.MaxPendingBytes))))
+	}
+}
+
+// giveUp counts everything in b as lost (the last commit failed) and says so.
+func (w *Writer) giveUp(b *batch, why string) {
+	var samples uint64
+	for _, blk := range b.blocks {
+		samples += uint64(blk.Len())
+	}
+	items := uint64(len(b.segments) + len(b.events))
+	w.mu.Lock()
+	w.state.LostBlocks += uint64(len(b.blocks))
+	w.state.LostSamples += samples
+	w.state.LostItems += items
+	w.state.PendingBytes = 0
+	w.mu.Unlock()
+	if w.cfg.OnNotice != nil {
+		w.cfg.OnNotice(Notice{T: w.s.now(), Kind: EventStoreLost, Message: fmt.Sprintf("%s: %d blocks (%d sample times) and %d results/events held for the store are lost",
+			why, len(b.blocks), samples, items)})
+	}
+	b.reset()
+}
+
+// spaceWatch is the Writer's free-space look-out.
+type spaceWatch struct {
+	last  time.Time
+	bytes uint64 // w.bytes at last
+}
+
+// checkSpace looks at the free space: below the threshold (LowSpaceBytes,
+// or LowSpaceLead at the rate written since the last look) it warns once,
+// and says so again when there is room. It reports whether it added an
+// event to b.
+func (w *Writer) checkSpace(b *batch, sp *spaceWatch) bool {
+	now := time.Now()
+	written := w.bytes.Load()
+	rate := 0.0 // bytes a second
+	if dt := now.Sub(sp.last).Seconds(); dt > 0 {
+		rate = float64(written-sp.bytes) / dt
+	}
+	sp.last, sp.bytes = now, written
+	free, err := w.cfg.FreeBytes()
+	threshold := max(uint64(LowSpaceBytes), uint64(rate*LowSpaceLead.Seconds()))
+	w.mu.Lock()
+	w.state.FreeKnown = err == nil
+	w.state.FreeBytes = free
+	w.state.LowSpaceThreshold = threshold
+	was := w.state.LowSpace
+	low := err == nil && free < threshold
+	w.state.LowSpace = low
+	w.mu.Unlock()
+	switch {
+	case low && !was:
+		w.notice(b, EventLowSpace, fmt.Sprintf("low disk space: %s free on the disk of %s, less than %s (%s, or %s of data at the %s/s written lately): make room or stop the recording before the disk is full",
+			bytesText(free), w.s.path, bytesText(threshold), bytesText(LowSpaceBytes), LowSpaceLead, bytesText(uint64(rate))))
+		return true
+	case !low && was && err == nil:
+		w.notice(b, EventSpaceOK, fmt.Sprintf("disk space is back: %s free on the disk of %s", bytesText(free), w.s.path))
+		return true
+	}
+	return false
 }
 
 // batch is what the Writer holds between commits.
@@ -195,6 +554,7 @@ type batch struct {
 	blocks   []*acquire.Block
 	segments []*estimate.Segment
 	events   []Event
+	bytes    int64 // estimated memory held (blockBytes, segmentBytes, eventBytes)
 }
 
 func (b *batch) empty() bool {
@@ -204,12 +564,15 @@ func (b *batch) empty() bool {
 func (b *batch) add(it Item) {
 	if it.Block != nil {
 		b.blocks = append(b.blocks, it.Block)
+		b.bytes += blockBytes(it.Block)
 	}
 	if it.Segment != nil {
 		b.segments = append(b.segments, it.Segment)
+		b.bytes += segmentBytes
 	}
 	if it.Event != nil {
 		b.events = append(b.events, *it.Event)
+		b.bytes += eventBytes(it.Event)
 	}
 }
 
@@ -217,6 +580,25 @@ func (b *batch) reset() {
 	clear(b.blocks)
 	clear(b.segments)
 	b.blocks, b.segments, b.events = b.blocks[:0], b.segments[:0], b.events[:0]
+	b.bytes = 0
+}
+
+// segmentBytes is what a held segment is counted as: a Segment with its
+// values and strings is about 1–2 kB.
+const segmentBytes = 2048
+
+// blockBytes estimates the memory a held block takes: 8 bytes a reading,
+// its names and the slices' headers.
+func blockBytes(b *acquire.Block) int64 {
+	n := int64(96 + len(b.Source))
+	for _, s := range b.Series {
+		n += int64(40 + len(s.Channel) + 8*len(s.Raw))
+	}
+	return n
+}
+
+func eventBytes(e *Event) int64 {
+	return int64(80 + len(e.Kind) + len(e.Source) + len(e.Message))
 }
 
 // encoded is a block ready to put.
@@ -231,13 +613,18 @@ type encoded struct {
 // the run record's Samples and Segments counts.
 func (w *Writer) commit(b *batch) (err error) {
 	defer guard(&err, fmt.Sprintf("store run %d", w.runID))()
+	if w.failHook != nil {
+		if err := w.failHook(); err != nil {
+			return writeError(fmt.Sprintf("store run %d: commit of %d blocks, %d segments, %d events", w.runID, len(b.blocks), len(b.segments), len(b.events)), err)
+		}
+	}
 	now := w.s.now()
 	// Encode outside the transaction: the write lock is held for the puts
 	// only. A block that cannot be encoded is counted and logged, and the
 	// rest of the batch is stored.
 	enc := make([]encoded, 0, len(b.blocks))
 	events := b.events
-	var rejected uint64
+	var rejected, rejectedSamples, encBytes uint64
 	for _, blk := range b.blocks {
 		var err error
 		if blk.Source == "" {
@@ -249,18 +636,25 @@ func (w *Writer) commit(b *batch) (err error) {
 		}
 		if err != nil {
 			rejected++
+			rejectedSamples += uint64(blk.Len())
 			events = append(events, Event{T: now, Kind: EventRejected, Source: blk.Source, Message: err.Error()})
 			continue
 		}
+		encBytes += uint64(len(val))
 		enc = append(enc, encoded{source: blk.Source, key: blockKey(nil, blk), value: val, n: blk.Len()})
 	}
-	segs := make([][]byte, len(b.segments))
-	for i, sg := range b.segments {
+	// A segment that cannot be encoded is logged and left out, like a
+	// block: retrying would never store it.
+	segs := make([][]byte, 0, len(b.segments))
+	segIdx := make([]int, 0, len(b.segments))
+	for _, sg := range b.segments {
 		data, err := encodeSegment(sg)
 		if err != nil {
-			return fmt.Errorf("store run %d: %w", w.runID, err)
+			events = append(events, Event{T: now, Kind: EventRejected, Message: fmt.Sprintf("segment result not stored: %v", err)})
+			continue
 		}
-		segs[i] = data
+		segs = append(segs, data)
+		segIdx = append(segIdx, sg.Index)
 	}
 
 	var nBlocks, nSamples uint64
@@ -307,7 +701,7 @@ func (w *Writer) commit(b *batch) (err error) {
 			}
 			sb.FillPercent = appendFill
 			for i, data := range segs {
-				if err := sb.Put(segmentKey(b.segments[i].Index), data); err != nil {
+				if err := sb.Put(segmentKey(segIdx[i]), data); err != nil {
 					return err
 				}
 			}
@@ -330,9 +724,11 @@ func (w *Writer) commit(b *batch) (err error) {
 		return putRun(tx, r)
 	})
 	if err != nil {
-		return writeError(fmt.Sprintf("store run %d: commit of %d blocks, %d segments, %d events lost",
+		return writeError(fmt.Sprintf("store run %d: commit of %d blocks, %d segments, %d events",
 			w.runID, len(enc), len(segs), len(events)), err)
 	}
+	w.bytes.Add(encBytes)
+	w.rejectedSamples.Add(rejectedSamples)
 	w.lastCommitNs.Store(int64(time.Since(start)))
 	w.lastCommitted.Store(now.UnixNano())
 	w.blocks.Add(nBlocks)
@@ -342,20 +738,30 @@ func (w *Writer) commit(b *batch) (err error) {
 	return nil
 }
 
+// Drops counts what Offer discarded: items of any kind, and the sample
+// times of the raw blocks among them.
+type Drops struct {
+	Items, Samples atomic.Uint64
+}
+
+func (d *Drops) count(it Item) {
+	if d == nil {
+		return
+	}
+	d.Items.Add(1)
+	if it.Block != nil {
+		d.Samples.Add(uint64(it.Block.Len()))
+	}
+}
+
 // Offer puts it on ch without ever blocking (the recorder → storage edge
 // policy: acquisition never waits for the disk). When ch is full it drops
-// the oldest queued raw block to make room and adds 1 to dropped (if not
-// nil) for each item discarded. Results and events are never the ones
-// dropped: one found at the head goes back to the tail. It returns true when
-// it was queued, and false when, with other producers racing for the room
-// (or a queue full of results), it gave up and dropped it itself (also
-// counted). dropped counts items, whatever they hold.
-func Offer(ch chan Item, it Item, dropped *atomic.Uint64) bool {
-	count := func() {
-		if dropped != nil {
-			dropped.Add(1)
-		}
-	}
+// the oldest queued raw block to make room and counts it in dropped (if not
+// nil). Results and events are never the ones dropped: one found at the
+// head goes back to the tail. It returns true when it was queued, and false
+// when, with other producers racing for the room (or a queue full of
+// results), it gave up and dropped it itself (also counted).
+func Offer(ch chan Item, it Item, dropped *Drops) bool {
 	for range 4 {
 		select {
 		case ch <- it:
@@ -368,14 +774,14 @@ func Offer(ch chan Item, it Item, dropped *atomic.Uint64) bool {
 				select {
 				case ch <- old:
 				default:
-					count() // a racing producer took the room back
+					dropped.count(old) // a racing producer took the room back
 				}
 				continue
 			}
-			count()
+			dropped.count(old)
 		default:
 		}
 	}
-	count()
+	dropped.count(it)
 	return false
 }

@@ -153,14 +153,14 @@ func TestWriter_Interval(t *testing.T) {
 // full, and counts every drop.
 func TestOffer_DropsOldest(t *testing.T) {
 	ch := make(chan storage.Item, 3)
-	var dropped atomic.Uint64
+	var dropped storage.Drops
 	for i := range 5 {
 		if !storage.Offer(ch, storage.Item{Block: testBlock("bal", uint64(i), 1, "n")}, &dropped) {
 			t.Fatalf("Offer %d refused with no competing producer", i)
 		}
 	}
-	if d := dropped.Load(); d != 2 {
-		t.Errorf("dropped = %d, want 2", d)
+	if d, n := dropped.Items.Load(), dropped.Samples.Load(); d != 2 || n != 2 {
+		t.Errorf("dropped %d items of %d samples, want 2 blocks of 1", d, n)
 	}
 	var seqs []uint64
 	for len(ch) > 0 {
@@ -179,7 +179,7 @@ func TestOffer_DropsOldest(t *testing.T) {
 // the head of the queue survives any number of offers.
 func TestOffer_NeverDropsResults(t *testing.T) {
 	ch := make(chan storage.Item, 3)
-	var dropped atomic.Uint64
+	var dropped storage.Drops
 	seg := &estimate.Segment{Index: 7}
 	ch <- storage.Item{Segment: seg}
 	for i := range 10 {
@@ -194,7 +194,7 @@ func TestOffer_NeverDropsResults(t *testing.T) {
 	if !found {
 		t.Fatal("the segment result was dropped from a full queue")
 	}
-	if d := dropped.Load(); d != 8 {
+	if d := dropped.Items.Load(); d != 8 {
 		t.Errorf("dropped = %d, want 8 blocks", d)
 	}
 }
@@ -203,7 +203,7 @@ func TestOffer_NeverDropsResults(t *testing.T) {
 // either received or counted as dropped: none vanishes uncounted.
 func TestOffer_ConcurrentAccounting(t *testing.T) {
 	ch := make(chan storage.Item, 8)
-	var dropped atomic.Uint64
+	var dropped storage.Drops
 	var received atomic.Uint64
 	done := make(chan struct{})
 	go func() {
@@ -224,7 +224,7 @@ func TestOffer_ConcurrentAccounting(t *testing.T) {
 	wg.Wait()
 	close(ch)
 	<-done
-	if got := received.Load() + dropped.Load(); got != producers*each {
-		t.Errorf("received %d + dropped %d = %d, want %d", received.Load(), dropped.Load(), got, producers*each)
+	if got := received.Load() + dropped.Items.Load(); got != producers*each {
+		t.Errorf("received %d + dropped %d = %d, want %d", received.Load(), dropped.Items.Load(), got, producers*each)
 	}
 }

@@ -42,9 +42,6 @@ const livePeriod = 200 * time.Millisecond
 // longer. A look costs a loop over the sources.
 const ageTick = 25 * time.Millisecond
 
-// errStoreStopped ends a recording whose store stopped taking data.
-var errStoreStopped = errors.New("recording stopped because the store failed")
-
 // Main is one recording session: sources → calibrate → estimate → store and
 // dashboard. The demo and record verbs and the end-to-end tests share it.
 type Main struct {
@@ -226,7 +223,6 @@ func (m *Main) Run(ctx context.Context) error {
 	age := time.NewTicker(ageTick)
 	defer age.Stop()
 	var live liveGate
-	storeDown := rec.WriterDone()
 loop:
 	for {
 		select {
@@ -239,11 +235,13 @@ loop:
 			live.age(rec, pub, func() dashboard.Health { return m.health(rec) })
 		case <-tick.C:
 			pub.health(m.health(rec))
-		case <-storeDown:
-			// A failed commit (full disk, broken file) ends the recording
-			// loudly rather than losing data in silence; Finish says why.
-			cancel(errStoreStopped)
-			storeDown = nil
+		case <-rec.StoreChanged():
+			// A failed commit (full disk, broken file), a recovery or low
+			// disk space: the writer has logged it; the dashboard shows it
+			// now. The recording goes on: the writer holds the data and
+			// retries, and Finish says what could not be stored.
+			pub.health(m.health(rec))
+			live.publish(rec, pub)
 		case b, ok := <-raw:
 			if !ok {
 				break loop
@@ -290,20 +288,24 @@ func (g *liveGate) age(rec *process.Recorder, pub publisher, health func() dashb
 		pub.health(health())
 	}
 	g.stale = stale
-	g.publish(rec, pub, now)
+	g.publish(rec, pub)
 }
 
 func (g *liveGate) block(rec *process.Recorder, pub publisher) {
 	if now := time.Now(); now.Sub(g.last) >= livePeriod {
-		g.publish(rec, pub, now)
+		g.publish(rec, pub)
 	}
 }
 
-func (g *liveGate) publish(rec *process.Recorder, pub publisher, now time.Time) {
+func (g *liveGate) publish(rec *process.Recorder, pub publisher) {
 	if l, ok := rec.Live(); ok {
 		pub.live(l)
 	}
-	g.last = now
+	// Counted from the end of the estimate: on a machine where one takes
+	// longer than livePeriod, the loop still gets livePeriod for the blocks
+	// between two (and a Ctrl-C drains the queue) instead of estimating
+	// after every block.
+	g.last = time.Now()
 }
 
 // startSources runs every source into one bounded channel, closed when
@@ -331,7 +333,19 @@ func (m *Main) health(rec *process.Recorder) dashboard.Health {
 	}
 	hs = append(hs, rec.StoreHealth())
 	return dashboard.Health{Sources: hs, Channels: rec.Pipeline().Channels(), Loads: rec.Pipeline().Loads(),
-		Ages: rec.Pipeline().Ages(), Values: rec.Pipeline().Values()}
+		Ages: rec.Pipeline().Ages(), Values: rec.Pipeline().Values(), Store: storeHealth(rec.StoreState())}
+}
+
+// storeHealth is the dashboard's view of the store writer's state.
+func storeHealth(st storage.WriterState) dashboard.StoreHealth {
+	h := dashboard.StoreHealth{State: "ok", Message: st.Warning()}
+	switch {
+	case st.Failing || st.LostSamples > 0 || st.LostItems > 0:
+		h.State = "alarm"
+	case st.LowSpace:
+		h.State = "warning"
+	}
+	return h
 }
 
 func anyStale(ages []acquire.SourceAge) bool {

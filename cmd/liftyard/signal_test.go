@@ -8,6 +8,7 @@ import (
 	"os/exec"
 	"os/signal"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"syscall"
 	"testing"
@@ -25,6 +26,11 @@ import (
 // or kill).
 const childEnv = "LIFTYARD_TEST_CHILD_ARGS"
 
+// childFileSizeEnv, when set, is the file-size limit in bytes
+// (RLIMIT_FSIZE) the child sets on itself before it runs: writes past it
+// fail with EFBIG as on a full disk (Go ignores SIGXFSZ).
+const childFileSizeEnv = "LIFTYARD_TEST_CHILD_FSIZE"
+
 // TestChildMain is not a test: it is the child process of the signal tests.
 func TestChildMain(t *testing.T) {
 	raw := os.Getenv(childEnv)
@@ -34,6 +40,15 @@ func TestChildMain(t *testing.T) {
 	var args []string
 	if err := json.Unmarshal([]byte(raw), &args); err != nil {
 		os.Exit(3)
+	}
+	if v := os.Getenv(childFileSizeEnv); v != "" {
+		n, err := strconv.ParseUint(v, 10, 64)
+		if err != nil {
+			os.Exit(3)
+		}
+		if err := syscall.Setrlimit(syscall.RLIMIT_FSIZE, &syscall.Rlimit{Cur: n, Max: n}); err != nil {
+			os.Exit(3)
+		}
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
 	code := run(ctx, args, os.Stdout, os.Stderr)

@@ -357,12 +357,17 @@
         const dropped = (s.blocks_dropped || 0) + " blocks + " + (s.samples_dropped || 0) + " samples dropped";
         if (s.rejected || s.samples_dropped || s.blocks_dropped || s.gaps) bad = true;
         // The "store" line is the recorder → store queue: only drops apply.
-        if (s.name === "store") return "store queue: " + dropped;
+        if (s.name === "store") return "store: " + (s.blocks_dropped || 0) + " blocks (" + (s.samples_dropped || 0) + " sample times) dropped or lost";
         return s.name + ": " + s.frames + " blocks, " + s.rejected + " rejected, " + dropped + ", " +
           s.gaps + " gaps, " + s.reconnects + " reconnects";
       }).join(" · ");
       el.className = "health" + (bad ? " bad" : "");
     }
+    // A failing store or a disk running low: said above everything else.
+    const sb = $("store-banner");
+    const store = h.store || {};
+    sb.textContent = store.message || "";
+    sb.hidden = !store.message;
     values = {};
     (h.values || []).forEach((v) => { values[v.channel] = v; });
     onChannels(h.channels || [], h.loads || []);
