@@ -8,7 +8,6 @@ import (
 	"math"
 	"slices"
 	"strconv"
-	"time"
 
 	"liftyard/acquire"
 	"liftyard/estimate"
@@ -89,79 +88,45 @@ func exportSegmentsCSV(w io.Writer, run Run, rows []estimate.Row) error {
 	return cw.Error()
 }
 
-// ExportRaw writes the raw readings of run id as CSV (docs/design.md §3.3 "Raw CSV"):
-// a header t_s,<channel>,..., then one row per sample time, in device time
-// order across all sources; a blank cell means that channel has no sample at
-// that time (another source's time, or a NaN reading). t_s is the device
-// clock in seconds with microsecond digits, written exactly from t_us. When
-// the device clock counts from power-up (t_s below acquire.RelativeBeforeUs)
-// and the run maps it to UTC, a first line "# start <RFC 3339>" gives the
-// wall time of the first row, which import reads back
-// (acquire.ReadRawCSVAt), so the round trip keeps the run's wall times.
-// Channels appear in the order of their sources' names, then as each source
-// first sends them. Blocks are read in short chunks, so a long run streams
-// with bounded memory; no read transaction is held while w is written.
+// ExportRaw writes the raw readings of run id as CSV (docs/design.md §3.3
+// "Raw CSV", docs/export.md): a header t_s,<column>,..., then one row per
+// sample time of the run's timeline source on the aligned UTC timeline
+// (aligned.go): t_s is Unix time in seconds with microsecond digits,
+// written exactly; a cell of another source is that source's reading
+// nearest the row's instant when less than one of its sample periods
+// away, else blank; a blank cell is also a NaN reading. Every
+// reading is written with the fewest digits that give its float64 back
+// bit for bit.
+//
+// A run with one source names its columns by channel, as files written
+// before the aligned export did; a run with several names each column
+// source/channel (SourceColumn), the timeline source's first, so import
+// gives each channel back to its source without being told. Blocks are
+// read in short chunks, so a long run streams with bounded memory; no read
+// transaction is held while w is written.
 func (s *Store) ExportRaw(w io.Writer, id uint64) error {
-	sources, err := s.rawSources(id)
+	_, _, p, err := s.runPlan(id)
 	if err != nil {
 		return fmt.Errorf("export raw run %d: %w", id, err)
 	}
-	// Pass 1: the channel set, from every block (cheap next to pass 2, and a
-	// channel that appears late still gets its column).
-	names, err := s.channelsOf(id, sources)
-	if err != nil {
-		return fmt.Errorf("export raw run %d: %w", id, err)
-	}
-	col := map[string]int{}
 	header := []string{"t_s"}
-	for _, n := range names {
-		col[n] = len(header)
-		header = append(header, n)
+	for _, c := range p.cols {
+		header = append(header, p.name(c, c.Channel))
 	}
-	raw := func(b acquire.Block) sampleBlock {
-		sb := sampleBlock{t0Us: b.T0Us, dtUs: b.DtUs, n: b.Len()}
-		for _, sr := range b.Series {
-			sb.series = append(sb.series, sampleSeries{sr.Channel, sr.Raw})
-		}
-		return sb
-	}
-	off, err := s.wallOffsets(id, sources)
-	if err != nil {
-		return fmt.Errorf("export raw run %d: %w", id, err)
-	}
-	if len(off) > 0 {
-		first, ok, err := s.firstSampleUs(id, sources)
-		if err != nil {
-			return fmt.Errorf("export raw run %d: %w", id, err)
-		}
-		if o, has := off[first.source]; ok && has {
-			if _, err := fmt.Fprintf(w, "# start %s\n", time.UnixMicro(first.tUs+o).UTC().Format(time.RFC3339Nano)); err != nil {
-				return err
-			}
-		}
-	}
-	if err := s.writeSampleCSV(w, id, sources, header, col, raw); err != nil {
+	if err := s.writeAlignedCSV(w, id, p, header, rawSamples); err != nil {
 		return fmt.Errorf("export raw run %d: %w", id, err)
 	}
 	return nil
 }
 
-// firstSampleUs returns the earliest first-block device time over sources,
-// the first row ExportRaw writes.
-func (s *Store) firstSampleUs(id uint64, sources []string) (first struct {
-	source string
-	tUs    int64
-}, ok bool, err error) {
-	for _, src := range sources {
-		b, has, err := s.newBlockIter(id, src).next()
-		if err != nil {
-			return first, false, err
-		}
-		if has && b.Len() > 0 && (!ok || b.T0Us < first.tUs) {
-			first.source, first.tUs, ok = src, b.T0Us, true
-		}
+// rawSamples is a stored block's raw readings as the sample exports take
+// them.
+func rawSamples(b acquire.Block) sampleBlock {
+	sb := sampleBlock{t0Us: b.T0Us, dtUs: b.DtUs, n: b.Len()}
+	for _, sr := range b.Series {
+		sb.series = append(sb.series, sampleSeries{sr.Channel, sr.Raw})
 	}
-	return first, ok, nil
+	return sb
 }
 
 // sampleBlock is one block's series as the sample CSV exports write them.
@@ -202,39 +167,9 @@ func (s *Store) channelsOf(id uint64, sources []string) ([]string, error) {
 	return names, nil
 }
 
-// writeSampleCSV writes one CSV row per sample time, merging the sources'
-// blocks by their device time (T0Us + i·DtUs). conv turns each stored block
-// into the series to write (raw or calibrated); a series whose channel has
-// no column is left out, and a non-finite value is a blank cell. Blocks are
-// read in short chunks (blockIter), never in one long read transaction.
-func (s *Store) writeSampleCSV(w io.Writer, id uint64, sources []string, header []string, col map[string]int, conv func(acquire.Block) sampleBlock) error {
-	type cursor struct {
-		it  *blockIter
-		b   sampleBlock
-		i   int // next sample in b
-		end bool
-	}
-	advance := func(c *cursor) error {
-		for !c.end && c.i >= c.b.n {
-			b, ok, err := c.it.next()
-			if err != nil {
-				return err
-			}
-			if !ok {
-				c.end = true
-				return nil
-			}
-			c.b, c.i = conv(b), 0
-		}
-		return nil
-	}
-	curs := make([]*cursor, len(sources))
-	for i, src := range sources {
-		curs[i] = &cursor{it: s.newBlockIter(id, src)}
-		if err := advance(curs[i]); err != nil {
-			return err
-		}
-	}
+// writeAlignedCSV writes the header, then one CSV row per row of the
+// aligned timeline (alignedRows); a non-finite value is a blank cell.
+func (s *Store) writeAlignedCSV(w io.Writer, id uint64, p alignedPlan, header []string, conv func(acquire.Block) sampleBlock) error {
 	bw := bufio.NewWriterSize(w, 64<<10)
 	cw := csv.NewWriter(bw)
 	if err := cw.Write(header); err != nil {
@@ -242,42 +177,19 @@ func (s *Store) writeSampleCSV(w io.Writer, id uint64, sources []string, header 
 	}
 	row := make([]string, len(header))
 	var buf []byte
-	at := func(c *cursor) int64 { return c.b.t0Us + int64(c.i)*c.b.dtUs }
-	for {
-		var tMin int64
-		found := false
-		for _, c := range curs {
-			if !c.end && (!found || at(c) < tMin) {
-				tMin, found = at(c), true
+	err := s.alignedRows(id, p, conv, func(tUs int64, cells []float64) error {
+		row[0] = formatMicros(tUs)
+		for j, v := range cells {
+			row[j+1] = ""
+			if !math.IsNaN(v) && !math.IsInf(v, 0) {
+				buf = strconv.AppendFloat(buf[:0], v, 'g', -1, 64)
+				row[j+1] = string(buf)
 			}
 		}
-		if !found {
-			break
-		}
-		clear(row)
-		row[0] = formatMicros(tMin)
-		for _, c := range curs {
-			if c.end || at(c) != tMin {
-				continue
-			}
-			for _, sr := range c.b.series {
-				j, ok := col[sr.channel]
-				if !ok || c.i >= len(sr.v) {
-					continue
-				}
-				if v := sr.v[c.i]; !math.IsNaN(v) && !math.IsInf(v, 0) {
-					buf = strconv.AppendFloat(buf[:0], v, 'g', -1, 64)
-					row[j] = string(buf)
-				}
-			}
-			c.i++
-			if err := advance(c); err != nil {
-				return err
-			}
-		}
-		if err := cw.Write(row); err != nil {
-			return err
-		}
+		return cw.Write(row)
+	})
+	if err != nil {
+		return err
 	}
 	cw.Flush()
 	if err := cw.Error(); err != nil {

@@ -167,8 +167,11 @@ func TestExportSegments_Formats(t *testing.T) {
 	}
 }
 
-// Ensure that the raw export merges two sources at different rates on one
-// time axis, blank where a channel has no sample, and matches its golden.
+// Ensure that the raw export of two sources at different rates writes one
+// row per sample of the timeline source (balance: the first by name when
+// the run has no rig file), each pitot cell the pitot reading nearest the
+// row (the earlier on a tie) when less than one pitot period (1.5 ms)
+// away, else blank; columns say their source; and matches its golden.
 func TestExportRaw_Golden(t *testing.T) {
 	s := MustOpenStore(t)
 	id := mustCreateRun(t, s)
@@ -193,11 +196,17 @@ func TestExportRaw_Golden(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if strings.Join(recs[0], ",") != "t_s,n_fore,axial,dp" {
+	if strings.Join(recs[0], ",") != "t_s,balance/n_fore,balance/axial,pitot/dp" {
 		t.Errorf("header %q", recs[0])
 	}
 	// balance at 1.000000, .001, .002, .003, .004; pitot at .0005, .002, .0035
-	if len(recs) != 1+7 {
-		t.Errorf("%d rows, want 7", len(recs)-1)
+	want := []string{"201.4", "201.4", "201.9", "202.25", "202.25"}
+	if len(recs) != 1+len(want) {
+		t.Fatalf("%d rows, want %d", len(recs)-1, len(want))
+	}
+	for i, w := range want {
+		if got := recs[i+1][3]; got != w {
+			t.Errorf("row %d (t %s): dp %q, want %q", i+1, recs[i+1][0], got, w)
+		}
 	}
 }

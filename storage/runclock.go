@@ -69,30 +69,3 @@ func (s *Store) RunClock(id uint64) (RunClock, error) {
 	}
 	return RunClock{}, fmt.Errorf("run %d has no stored samples of %s", id, r.Lift.Normal[0])
 }
-
-// relativeBeforeUs: a device time below it counts from power-up (or from
-// the start of a file), not from the Unix epoch (acquire.RelativeBeforeUs).
-const relativeBeforeUs = acquire.RelativeBeforeUs
-
-// wallOffsets returns, for each source of run id whose device clock counts
-// from power-up, the µs to add to its device times to get UTC wall time:
-// its first block's device time mapped by acquire.Aligner, held fixed (as
-// the estimator holds it). Sources on Unix time, and blocks without a
-// receive time, are left out (offset 0).
-func (s *Store) wallOffsets(id uint64, sources []string) (map[string]int64, error) {
-	out := map[string]int64{}
-	for _, src := range sources {
-		it := s.newBlockIter(id, src)
-		b, ok, err := it.next()
-		if err != nil {
-			return nil, err
-		}
-		if !ok || b.Len() == 0 || b.Received.IsZero() || b.T0Us >= relativeBeforeUs {
-			continue
-		}
-		var a acquire.Aligner
-		a.Align(&b)
-		out[src] = b.AlignedT0Us - b.T0Us
-	}
-	return out, nil
-}

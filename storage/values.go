@@ -34,49 +34,56 @@ func ValueColumn(ch rig.Channel) string {
 }
 
 // ExportValues writes the calibrated values of run id as CSV: a header
-// t_s,<channel>_<SI unit>,... (ValueColumn), then one row per sample time
-// in time order across all sources, like ExportRaw. t_s is Unix time: the
-// device clock, or for a device counting from power-up its clock mapped to
-// UTC wall time (wallOffsets), so no value is dated 1970. Each raw block
-// goes through cal (the calibrator built for r, with the stored
+// t_s,<channel>_<SI unit>,... (ValueColumn; source/<channel>_<SI unit>
+// when the run has several sources, as in ExportRaw), then one row per
+// sample time of the timeline source on the aligned UTC timeline, with the
+// same rule for other sources' cells as ExportRaw (aligned.go). Each raw
+// block goes through cal (the calibrator built for r, with the stored
 // calibrations the run used), so the values are exactly those the
-// estimator saw. Columns are r's channels in the rig file's order, those
-// that the run's blocks carry; a blank cell is no sample (another source's
-// time, or NaN). Blocks are read in short chunks, as in ExportRaw.
+// estimator saw before its zero and drift corrections. Columns are r's
+// channels in the rig file's order, those that the run's blocks carry; a
+// blank cell is no sample (or NaN). Blocks are read in short chunks, as in
+// ExportRaw.
 func (s *Store) ExportValues(w io.Writer, id uint64, r *rig.Rig, cal *calibrate.Calibrator) error {
 	if r == nil || cal == nil {
 		return fmt.Errorf("export values run %d: a rig and a calibrator are needed", id)
 	}
-	sources, err := s.rawSources(id)
+	p, err := s.planAligned(id, r, rigOrder(r))
 	if err != nil {
 		return fmt.Errorf("export values run %d: %w", id, err)
 	}
-	names, err := s.channelsOf(id, sources)
-	if err != nil {
-		return fmt.Errorf("export values run %d: %w", id, err)
-	}
-	col := map[string]int{}
 	header := []string{"t_s"}
-	for _, ch := range r.Channels {
-		if slices.Contains(names, ch.Name) {
-			col[ch.Name] = len(header)
-			header = append(header, ValueColumn(ch))
-		}
+	for _, c := range p.cols {
+		ch, _ := r.Channel(c.Channel)
+		header = append(header, p.name(c, ValueColumn(ch)))
 	}
-	off, err := s.wallOffsets(id, sources)
-	if err != nil {
+	if err := s.writeAlignedCSV(w, id, p, header, calibratedSamples(cal)); err != nil {
 		return fmt.Errorf("export values run %d: %w", id, err)
 	}
-	values := func(b acquire.Block) sampleBlock {
+	return nil
+}
+
+// rigOrder keeps the channels of r, in the rig file's order.
+func rigOrder(r *rig.Rig) func([]string) []string {
+	return func(names []string) []string {
+		var out []string
+		for _, ch := range r.Channels {
+			if slices.Contains(names, ch.Name) {
+				out = append(out, ch.Name)
+			}
+		}
+		return out
+	}
+}
+
+// calibratedSamples is a stored block's values through cal, SI units.
+func calibratedSamples(cal *calibrate.Calibrator) func(acquire.Block) sampleBlock {
+	return func(b acquire.Block) sampleBlock {
 		cb := cal.Apply(&b)
-		sb := sampleBlock{t0Us: cb.T0Us + off[b.Source], dtUs: cb.DtUs, n: cb.Len()}
+		sb := sampleBlock{t0Us: cb.T0Us, dtUs: cb.DtUs, n: cb.Len()}
 		for _, sr := range cb.Series {
 			sb.series = append(sb.series, sampleSeries{sr.Channel, sr.Values})
 		}
 		return sb
 	}
-	if err := s.writeSampleCSV(w, id, sources, header, col, values); err != nil {
-		return fmt.Errorf("export values run %d: %w", id, err)
-	}
-	return nil
 }

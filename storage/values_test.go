@@ -7,6 +7,7 @@ import (
 	"strconv"
 	"strings"
 	"testing"
+	"time"
 
 	"liftyard/acquire"
 	"liftyard/calibrate"
@@ -14,8 +15,9 @@ import (
 )
 
 // Ensure that the values export calibrates every sample with the given
-// calibrator, names each column with its SI unit, merges sources by device
-// time and leaves a blank where a channel has no sample.
+// calibrator, names each column with its source and SI unit, writes the
+// rows of the timeline source (balance) with the other source's nearest
+// value within one of its periods, and leaves a blank where there is none.
 func TestExportValues(t *testing.T) {
 	s := MustOpenStore(t)
 	id := mustCreateRun(t, s)
@@ -44,7 +46,7 @@ func TestExportValues(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if got := strings.Join(recs[0], ","); got != "t_s,alpha_rad,n_fore_n,dp_pa" {
+	if got := strings.Join(recs[0], ","); got != "t_s,balance/alpha_rad,balance/n_fore_n,pitot/dp_pa" {
 		t.Errorf("header %q", got)
 	}
 	num := func(s string) float64 {
@@ -54,12 +56,13 @@ func TestExportValues(t *testing.T) {
 		v, _ := strconv.ParseFloat(s, 64)
 		return v
 	}
+	// pitot samples (period 1 ms) at 2.0015 and 2.0025: none within 1 ms
+	// of 2.000; 2.0015 nearest to 2.001, and the earlier of the two 0.5 ms
+	// from 2.002.
 	want := [][4]float64{
 		{2.000000, 0, 12.5, math.NaN()},
-		{2.001, 2 * math.Pi / 180, math.NaN(), math.NaN()},
-		{2.0015, math.NaN(), math.NaN(), 200},
-		{2.002, 4 * math.Pi / 180, 17.5, math.NaN()},
-		{2.0025, math.NaN(), math.NaN(), 250},
+		{2.001, 2 * math.Pi / 180, math.NaN(), 200},
+		{2.002, 4 * math.Pi / 180, 17.5, 200},
 	}
 	if len(recs)-1 != len(want) {
 		t.Fatalf("%d rows, want %d:\n%v", len(recs)-1, len(want), recs)
@@ -88,6 +91,7 @@ func TestExportRaw_ImportRoundTrip(t *testing.T) {
 			b.T0Us += 250_000 // a gap of 0.25 s
 		}
 		b.Series[1].Raw[3] = math.NaN()
+		b.Received = time.Time{} // device time is UTC: t_s is written as stored
 		blocks = append(blocks, b)
 	}
 	writeBlocks(t, s, id, blocks...)

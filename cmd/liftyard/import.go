@@ -1,6 +1,7 @@
 package main
 
 import (
+	"bufio"
 	"context"
 	"errors"
 	"fmt"
@@ -56,8 +57,21 @@ func checkRawCSV(path, source string, r *rig.Rig, start time.Time) (channels []s
 				filepath.Base(path), float64(firstUs)/1e6)
 		}
 	}()
+	// A multi-source export names its columns source/channel
+	// (docs/export.md): each source must be one of the rig's.
+	plain := make([]string, len(channels))
+	for i, c := range channels {
+		plain[i] = c
+		if src, ch, ok := acquire.SplitColumn(c); ok {
+			if !slices.ContainsFunc(r.Sources, func(s rig.Source) bool { return s.Name == src }) {
+				return nil, 0, usagef("raw CSV %s: column %q names source %q, which is not a [[source]] of rig %q (its sources: %s)",
+					path, c, src, r.Name, strings.Join(sourceNames(r), ", "))
+			}
+			plain[i] = ch
+		}
+	}
 	var known []string
-	for _, c := range channels {
+	for _, c := range plain {
 		if _, ok := r.Channel(c); ok {
 			known = append(known, c)
 		}
@@ -66,11 +80,46 @@ func checkRawCSV(path, source string, r *rig.Rig, start time.Time) (channels []s
 		return nil, 0, usagef("raw CSV %s: none of its channels (%s) is a channel of rig %q", path, strings.Join(channels, ", "), r.Name)
 	}
 	for _, c := range r.Lift.Normal {
-		if !containsString(channels, c) {
+		if !containsString(plain, c) {
 			return nil, 0, usagef("raw CSV %s has no column for the normal-force channel %q of rig %q", path, c, r.Name)
 		}
 	}
 	return channels, samples, nil
+}
+
+// sourceNames lists the names of r's sources.
+func sourceNames(r *rig.Rig) []string {
+	names := make([]string, len(r.Sources))
+	for i, s := range r.Sources {
+		names[i] = s.Name
+	}
+	return names
+}
+
+// fileSources reads the header of a raw CSV and returns the source of its
+// first column when its columns are named source/channel (a multi-source
+// export, docs/export.md), else "".
+func fileSources(path string) (string, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return "", usagef("raw CSV: %v", err)
+	}
+	defer f.Close()
+	br := bufio.NewReader(f)
+	line, err := br.ReadString('\n')
+	if strings.HasPrefix(line, "#") { // the "# start" line
+		line, err = br.ReadString('\n')
+	}
+	if err != nil && err != io.EOF {
+		return "", usagef("raw CSV: %v", err)
+	}
+	cols := strings.Split(strings.TrimRight(line, "\r\n"), ",")
+	for _, c := range cols[min(1, len(cols)):] {
+		if src, _, ok := acquire.SplitColumn(strings.Trim(strings.TrimSpace(c), `"`)); ok {
+			return src, nil
+		}
+	}
+	return "", nil
 }
 
 func containsString(xs []string, s string) bool {
@@ -127,11 +176,14 @@ func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) err
 		return usagef("--block %s: a result block length is for roof rigs only (rig %q is a %s); --block-samples sets rows per acquisition block", block, r.Name, r.Kind)
 	}
 	name := *source
-	names := make([]string, len(r.Sources))
-	for i, s := range r.Sources {
-		names[i] = s.Name
+	names := sourceNames(r)
+	fileSrc, err := fileSources(pos[0])
+	if err != nil {
+		return err
 	}
 	switch {
+	case name == "" && fileSrc != "":
+		name = fileSrc // the columns say where they belong
 	case name == "" && len(r.Sources) == 0:
 		return usagef("rig %q declares no [[source]]: give --source NAME", r.Name)
 	case name == "":
@@ -157,7 +209,7 @@ func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	defer store.Close()
 	src := &acquire.CSVFile{Path: pos[0], Source: name, BlockN: *blockN, Start: start}
 	id, fin, err := recordOffline(ctx, store, r, string(data), fmt.Sprintf("imported from %s", filepath.Base(pos[0])),
-		src, &src.Health, name, newLogger(stderr, *verbose), block)
+		acquire.SplitReplayer{R: src}, &src.Health, name, newLogger(stderr, *verbose), block)
 	if err != nil {
 		return err
 	}

@@ -61,33 +61,59 @@ func runRuns(_ context.Context, args []string, stdout, _ io.Writer) error {
 	return tw.Flush()
 }
 
-// runExport is `liftyard export --db FILE --run ID|latest --what raw|values|segments [--format csv|json] [--out FILE]`.
-func runExport(_ context.Context, args []string, stdout, _ io.Writer) error {
-	fs := newFlags("export", "--db FILE --run ID|latest --what raw|values|segments [--format csv|json] [--out FILE]",
-		"export a run's segment results, raw samples or calibrated values", stdout)
+// runExport is `liftyard export --db FILE --run ID|latest --what raw|values|segments [--format csv|json|parquet] [--out FILE]`,
+// or with --campaign DIR, Parquet files of many runs in a partitioned
+// directory (campaign.go).
+func runExport(_ context.Context, args []string, stdout, stderr io.Writer) error {
+	fs := newFlags("export", "--db FILE --run ID|latest --what raw|values|segments [--format csv|json|parquet] [--out FILE]\n       liftyard export --db FILE --campaign DIR [--run all|ID|latest] [--what all|raw|values|segments] [--replace]",
+		"export a run's segment results, raw samples or calibrated values; or Parquet files of every run into a campaign directory", stdout)
 	db := fs.String("db", "liftyard.db", "bbolt store file")
-	ref := fs.String("run", "latest", "run id, or latest")
-	what := fs.String("what", "segments", "segments (one row per steady segment), raw (raw readings, CSV) or values (calibrated values in SI units, CSV; no zero or drift correction)")
-	format := fs.String("format", "json", "json or csv (raw is always csv)")
+	ref := fs.String("run", "", "run id, or latest (with --campaign: all, the default, or one run)")
+	what := fs.String("what", "", "segments (one row per steady segment; the default), raw (raw readings) or values (calibrated values in SI units; no zero or drift correction); with --campaign also all (the default)")
+	format := fs.String("format", "", "json (the default for segments), csv (the default for raw and values) or parquet")
 	outPath := fs.String("out", "", "output file (default: standard output)")
+	campaign := fs.String("campaign", "", "write Parquet files into DIR/<what>/rig=<rig>/date=<YYYY-MM-DD>/run-<id>.parquet (docs/export.md)")
+	replace := fs.Bool("replace", false, "with --campaign: write files that already exist again (default: keep them)")
 	if _, err := parseFlags(fs, args); err != nil {
 		return err
 	}
+	if *campaign != "" {
+		if *outPath != "" || (*format != "" && *format != "parquet") {
+			return usagef("--campaign writes Parquet files into its directory: drop --out and --format")
+		}
+		return exportCampaign(*db, *campaign, *ref, *what, *replace, stderr)
+	}
+	if *replace {
+		return usagef("--replace is for --campaign")
+	}
+	if *ref == "" {
+		*ref = "latest"
+	}
+	if *what == "" {
+		*what = "segments"
+	}
 	switch *what {
 	case "segments":
-		if *format != "json" && *format != "csv" {
-			return usagef("--format %q: want json or csv", *format)
+		if *format == "" {
+			*format = "json"
 		}
-	case "raw":
-		if *format != "csv" && *format != "json" {
-			return usagef("--format %q: want csv", *format)
+		if *format != "json" && *format != "csv" && *format != "parquet" {
+			return usagef("--format %q: want json, csv or parquet", *format)
 		}
-	case "values":
-		if *format != "csv" && *format != "json" {
-			return usagef("--format %q: want csv", *format)
+	case "raw", "values":
+		if *format == "" || *format == "json" { // json: accepted, as before parquet, and written as CSV
+			*format = "csv"
+		}
+		if *format != "csv" && *format != "parquet" {
+			return usagef("--format %q: want csv or parquet", *format)
 		}
 	default:
 		return usagef("--what %q: want segments, raw or values", *what)
+	}
+	if f, ok := stdout.(*os.File); ok && *format == "parquet" && *outPath == "" {
+		if fi, err := f.Stat(); err == nil && fi.Mode()&os.ModeCharDevice != 0 {
+			return usagef("--format parquet writes a binary file: give --out FILE (or redirect standard output)")
+		}
 	}
 	store, err := openStore(*db)
 	if err != nil {
@@ -111,18 +137,7 @@ func runExport(_ context.Context, args []string, stdout, _ io.Writer) error {
 		defer f.Close()
 		w = f
 	}
-	switch *what {
-	case "raw":
-		err = store.ExportRaw(w, id)
-	case "values":
-		err = exportValues(store, w, run)
-	default:
-		segs, serr := store.Segments(id)
-		if serr != nil {
-			return serr
-		}
-		err = storage.ExportSegments(w, run, segs, *format)
-	}
+	err = exportOne(store, w, run, *what, *format)
 	if err != nil {
 		return err
 	}
@@ -132,10 +147,32 @@ func runExport(_ context.Context, args []string, stdout, _ io.Writer) error {
 	return nil
 }
 
+// exportOne writes what (raw, values or segments) of run in format.
+func exportOne(store *storage.Store, w io.Writer, run storage.Run, what, format string) error {
+	pq := format == "parquet"
+	switch what {
+	case "raw":
+		if pq {
+			return store.ExportRawParquet(w, run.ID)
+		}
+		return store.ExportRaw(w, run.ID)
+	case "values":
+		return exportValues(store, w, run, pq)
+	}
+	segs, err := store.Segments(run.ID)
+	if err != nil {
+		return err
+	}
+	if pq {
+		return storage.ExportSegmentsParquet(w, run, segs)
+	}
+	return storage.ExportSegments(w, run, segs, format)
+}
+
 // exportValues writes the calibrated values of run through the calibrations
 // of the rig file stored with it (stored calibration ids resolved in the
 // same store).
-func exportValues(store *storage.Store, w io.Writer, run storage.Run) error {
+func exportValues(store *storage.Store, w io.Writer, run storage.Run, parquet bool) error {
 	if run.RigTOML == "" {
 		return fmt.Errorf("run %d has no stored rig file: its calibrations are unknown", run.ID)
 	}
@@ -146,6 +183,9 @@ func exportValues(store *storage.Store, w io.Writer, run storage.Run) error {
 	cal, err := calibrate.NewCalibratorFrom(r, store.Calibration)
 	if err != nil {
 		return fmt.Errorf("run %d: %w", run.ID, err)
+	}
+	if parquet {
+		return store.ExportValuesParquet(w, run.ID, r, cal)
 	}
 	return store.ExportValues(w, run.ID, r, cal)
 }
