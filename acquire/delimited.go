@@ -42,19 +42,7 @@ type DelimitedRecord struct {
 
 // Channels returns the channel names in the order of DelimitedRecord.Values:
 // the columns that are neither "_" nor a time column.
-func (f *DelimitedFormat) Channels() []string {
-	var names []string
-	for _, c := range f.Columns {
-		if c == "_" {
-			continue
-		}
-		if _, isTime := rig.TimeColumns[c]; isTime {
-			continue
-		}
-		names = append(names, c)
-	}
-	return names
-}
+func (f *DelimitedFormat) Channels() []string { return rig.ColumnChannels(f.Columns) }
 
 // Parse parses one line into dst, reusing dst.Values. The line may end in
 // "\n" or "\r\n". Errors are *FrameError wrapping ErrFrameTooLong,

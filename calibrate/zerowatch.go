@@ -101,14 +101,15 @@ type ZeroWatch struct {
 
 	pending   []Block
 	pendAlpha []float64
-	pre       []chunk   // before the flow came on (rolling, restKeep)
-	tail      []chunk   // after (rolling, restKeep)
-	flowQ     []float64 // chunk means of q after the flow came on
-	on        bool      // the flow has come on
-	start     []Rest    // rest stretches before the run, per angle
-	startSeen bool      // a candidate start rest was found (confirmed or not)
-	startOK   bool      // … and it is small against the flow
-	startQPa  float64   // the rest level of q before the run
+	sources   map[string]bool // sources seen: a chunk holds ZeroChunk of each
+	pre       []chunk         // before the flow came on (rolling, restKeep)
+	tail      []chunk         // after (rolling, restKeep)
+	flowQ     []float64       // chunk means of q after the flow came on
+	on        bool            // the flow has come on
+	start     []Rest          // rest stretches before the run, per angle
+	startSeen bool            // a candidate start rest was found (confirmed or not)
+	startOK   bool            // … and it is small against the flow
+	startQPa  float64         // the rest level of q before the run
 	live      *Drift
 	startNote string   // why there is no proper rest before the run
 	notes     []string // notes not yet taken by Notes
@@ -138,9 +139,34 @@ func (z *ZeroWatch) Observe(b *Block) {
 	if s := b.Find(z.angle); s != nil && z.angle != "" {
 		z.pendAlpha = append(z.pendAlpha, s.Values...)
 	}
-	if span(z.pending) >= ZeroChunk {
+	if z.sources == nil {
+		z.sources = map[string]bool{}
+	}
+	z.sources[b.Source] = true
+	if z.chunkFull() {
 		z.chunkDone()
 	}
+}
+
+// chunkFull reports whether the pending blocks make a chunk: ZeroChunk of
+// samples from every source seen so far, so that a chunk of a rig whose
+// load cells and pitot are on different devices holds both (issue 15).
+// A source that fell silent does not hold the chunk open: four ZeroChunks
+// of any one source close it. With one source this is ZeroChunk of its
+// samples, as it always was.
+func (z *ZeroWatch) chunkFull() bool {
+	per := map[string]time.Duration{}
+	for _, b := range z.pending {
+		per[b.Source] += time.Duration(int64(b.Len())*b.DtUs) * time.Microsecond
+	}
+	all := true
+	for src := range z.sources {
+		if per[src] >= 4*ZeroChunk {
+			return true
+		}
+		all = all && per[src] >= ZeroChunk
+	}
+	return all
 }
 
 // chunkDone closes the pending chunk and runs the rest test on it.
@@ -442,15 +468,6 @@ func nanMean(v []float64) float64 {
 		return math.NaN()
 	}
 	return sum / float64(n)
-}
-
-// span is the time covered by blocks, by their sample counts.
-func span(bs []Block) time.Duration {
-	var d time.Duration
-	for _, b := range bs {
-		d += time.Duration(int64(b.Len())*b.DtUs) * time.Microsecond
-	}
-	return d
 }
 
 // bounds is the time of the first sample of bs and the end of the last, on

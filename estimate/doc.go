@@ -44,11 +44,10 @@
 //
 //   - Channels from several sources are joined on the aligned host timeline
 //     (Block.AlignedT0Us, set by acquire.Aligner): read by linear
-//     interpolation at each sample of the source carrying the normal force,
-//     waiting up to JoinWait for late sources. The alignment is only as good
-//     as the sources' smallest transport delay (acquire's Clock). The
-//     RoofEstimator reads every channel from one source and counts blocks
-//     of others in a Live warning.
+//     interpolation at each sample of the source carrying the normal force
+//     (a roof: a tap), waiting up to JoinWait for late sources (join.go, one
+//     joiner for every stage). The alignment is only as good as the
+//     sources' smallest transport delay (acquire's Clock).
 //   - q from a pitot is incompressible; Live warns above Mach 0.3.
 //   - Water properties are at 1 atm and 0–40 °C; seawater at non-standard
 //     salinity is scaled by the EOS-80 shape (≤ 0.035 kg/m³ off ITTC Table 4).

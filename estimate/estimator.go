@@ -65,14 +65,10 @@ type Estimator struct {
 
 	primary string               // source whose blocks carry the timeline
 	held    map[string]heldValue // latest value (and calibration u) of channels from other sources
-	hist    map[string]*history  // recent samples of channels from other sources, on the shared timeline
-	marks   map[string]int64     // newest timeline time delivered by each other source
-	pending []*calibrate.Block   // timeline blocks waiting for other sources
-	// primaryMark is the newest timeline time of the timeline source.
-	primaryMark int64
-	dtUs        int64
-	nextTUs     int64 // device time expected for the next primary sample
-	started     bool
+	join    joiner               // channels of other sources, joined by time (join.go)
+	dtUs    int64
+	nextTUs int64 // device time expected for the next primary sample
+	started bool
 	// wallOffUs maps the timeline source's device clock to UTC wall time
 	// (µs): AlignedT0Us − T0Us of the first timeline block, taken again
 	// after each gap or clock step. Held fixed in between, so sample times
@@ -275,10 +271,7 @@ func (e *Estimator) Add(b *calibrate.Block) []Segment {
 		e.ignored++
 		return nil
 	}
-	e.pending = append(e.pending, b)
-	if end := alignedEnd(b); end > e.primaryMark {
-		e.primaryMark = end
-	}
+	e.join.queue(b)
 	return e.drain(false)
 }
 
@@ -290,18 +283,7 @@ const JoinWait = 500 * time.Millisecond
 // caught up (all of them when force is set).
 func (e *Estimator) drain(force bool) []Segment {
 	var out []Segment
-	for len(e.pending) > 0 {
-		b := e.pending[0]
-		end := alignedEnd(b)
-		if !force && e.primaryMark-end < int64(JoinWait/time.Microsecond) {
-			for _, mark := range e.marks {
-				if mark < end {
-					return out
-				}
-			}
-		}
-		e.pending[0] = nil
-		e.pending = e.pending[1:]
+	for b := e.join.next(force); b != nil; b = e.join.next(force) {
 		out = append(out, e.addPrimary(b)...)
 	}
 	return out
@@ -734,30 +716,11 @@ func (h *history) at(tUs int64) float64 {
 // recordOther keeps the samples of a block from a source other than the
 // timeline's, for joining by time, and its calibration uncertainties.
 func (e *Estimator) recordOther(b *calibrate.Block) {
-	if b.DtUs <= 0 || b.Len() == 0 {
+	ok := e.join.record(b, func(s *calibrate.Series, v float64) {
+		e.held[s.Channel] = heldValue{v: v, u: s.U, dof: s.Dof, uRel: s.URel}
+	})
+	if !ok {
 		e.ignored++
-		return
-	}
-	if e.hist == nil {
-		e.hist = map[string]*history{}
-		e.marks = map[string]int64{}
-	}
-	at0 := alignedStart(b)
-	for _, s := range b.Series {
-		h := e.hist[s.Channel]
-		if h == nil {
-			h = &history{}
-			e.hist[s.Channel] = h
-		}
-		for i, v := range s.Values {
-			if finite(v) {
-				h.push(at0+int64(i)*b.DtUs, v)
-				e.held[s.Channel] = heldValue{v: v, u: s.U, dof: s.Dof, uRel: s.URel}
-			}
-		}
-	}
-	if end := alignedEnd(b); end > e.marks[b.Source] {
-		e.marks[b.Source] = end
 	}
 }
 
@@ -774,10 +737,7 @@ func (e *Estimator) value(name string, vals []float64, i int, atUs int64, def fl
 		}
 		return math.NaN()
 	}
-	if h := e.hist[name]; h != nil {
-		return h.at(atUs)
-	}
-	return math.NaN()
+	return e.join.at(name, atUs)
 }
 
 // sum adds the channels of one force role at sample i; any missing channel

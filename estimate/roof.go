@@ -128,10 +128,15 @@ const roofSectorOutFrac = 0.1
 // the sample spacing (timestamp jitter) does not close a block; only a
 // clock step backwards restarts the grid. Samples that end in no block
 // (a short or unusable stretch) are counted (Unblocked, the whole-roof row's
-// SamplesUnblocked and a Live warning). Tap, q, internal and vane channels
-// are read from the same calibrated block: the source that first delivers
-// the q channel carries the timeline, and blocks of other sources are
-// ignored and counted. (Joining separate sources by time is not done here.)
+// SamplesUnblocked and a Live warning).
+//
+// Tap, q, internal and vane channels may come from any source: the source
+// that first delivers a tap channel carries the timeline, and the channels
+// of every other source (a mast pitot on an MQTT node, an internal-pressure
+// transducer on its own logger, taps on a second scanner) are joined by
+// time on the shared host timeline, as the Estimator joins them (join.go:
+// linear interpolation between samples, held past the newest, a timeline
+// block waits up to JoinWait for late sources).
 //
 // A RoofEstimator is not safe for concurrent use: the caller serialises
 // Add, Live and Flush. Memory holds one block and one live window of
@@ -172,13 +177,13 @@ type RoofEstimator struct {
 
 	maxBlockQPa float64
 	segments    int
-	blocks      int // blocks that gave results
-	flowOff     int // blocks dropped as flow off
-	short       int // blocks dropped as shorter than half a block
-	ignored     int // unusable blocks
-	otherSrc    int // blocks of other sources
-	unblocked   int // samples in no block, in total
-	unblockedAt int // unblocked at the last block that gave results
+	blocks      int    // blocks that gave results
+	flowOff     int    // blocks dropped as flow off
+	short       int    // blocks dropped as shorter than half a block
+	ignored     int    // unusable blocks
+	join        joiner // channels of other sources, joined by time (join.go)
+	unblocked   int    // samples in no block, in total
+	unblockedAt int    // unblocked at the last block that gave results
 	missing     map[string]bool
 	lastAddAt   time.Time
 	lastTUs     int64
@@ -410,7 +415,8 @@ func (e *RoofEstimator) Block() time.Duration { return e.cfg.Block }
 
 // Unblocked returns the number of samples so far that fell in no block:
 // stretches shorter than half a block, blocks without a positive sample
-// spacing, and blocks of sources other than the one carrying q.
+// spacing, and blocks of other sources that could not be placed on the
+// timeline.
 func (e *RoofEstimator) Unblocked() int { return e.unblocked }
 
 // Add feeds one calibrated block and returns the segments of the blocks of
@@ -427,52 +433,95 @@ func (e *RoofEstimator) Add(b *calibrate.Block) []Segment {
 	if b == nil || len(b.Series) == 0 {
 		return nil
 	}
+	if e.primary == "" {
+		for _, t := range e.taps {
+			if b.Find(t.channel) != nil {
+				e.primary = b.Source
+				break
+			}
+		}
+	}
+	if b.Source != e.primary {
+		ok := e.join.record(b, func(s *calibrate.Series, _ float64) {
+			e.uB[s.Channel] = heldValue{u: s.U, dof: dofOrInf(s.Dof)}
+		})
+		if !ok {
+			e.ignored++
+			e.unblocked += b.Len()
+			return nil
+		}
+		return e.drain(false)
+	}
 	n := 0
 	for _, s := range b.Series {
 		n = max(n, len(s.Values))
-	}
-	if e.primary == "" && b.Find(e.q) != nil {
-		e.primary = b.Source
-	}
-	if b.Source != e.primary {
-		e.otherSrc++
-		e.unblocked += n
-		return nil
 	}
 	if b.DtUs <= 0 || n == 0 {
 		e.ignored++
 		e.unblocked += n
 		return nil
 	}
+	e.join.queue(b)
+	return e.drain(false)
+}
+
+// drain processes the timeline blocks whose other sources have caught up
+// (all of them when force is set).
+func (e *RoofEstimator) drain(force bool) []Segment {
+	var out []Segment
+	for b := e.join.next(force); b != nil; b = e.join.next(force) {
+		out = e.addPrimary(b, out)
+	}
+	return out
+}
+
+// addPrimary runs one timeline block through the join and into the open
+// block and the live window.
+func (e *RoofEstimator) addPrimary(b *calibrate.Block, out []Segment) []Segment {
+	n := 0
+	for _, s := range b.Series {
+		n = max(n, len(s.Values))
+	}
 	for _, s := range b.Series {
 		e.uB[s.Channel] = heldValue{u: s.U, dof: dofOrInf(s.Dof)}
 	}
-	pick := func(name string) []float64 {
-		if s := b.Find(name); s != nil {
-			return s.Values
-		}
-		e.missing[name] = true
-		return nil
+	// col reads a channel at sample i: from this block when it carries
+	// it, else from another source at the sample's timeline time.
+	at0 := alignedStart(b)
+	type col struct {
+		name string
+		v    []float64
 	}
-	at := func(v []float64, i int) float64 {
-		if i < len(v) {
-			return v[i]
+	pick := func(name string) col {
+		if s := b.Find(name); s != nil {
+			return col{name, s.Values}
 		}
-		return math.NaN()
+		if !e.join.has(name) {
+			e.missing[name] = true
+		}
+		return col{name: name}
+	}
+	at := func(c col, i int) float64 {
+		if c.v != nil {
+			if i < len(c.v) {
+				return c.v[i]
+			}
+			return math.NaN()
+		}
+		return e.join.at(c.name, at0+int64(i)*b.DtUs)
 	}
 	qv := pick(e.q)
-	var iv, dv []float64
+	var iv, dv col
 	if e.intChan != "" {
 		iv = pick(e.intChan)
 	}
 	if e.dirChan != "" {
 		dv = pick(e.dirChan)
 	}
-	tapV := make([][]float64, len(e.taps))
+	tapV := make([]col, len(e.taps))
 	for j, t := range e.taps {
 		tapV[j] = pick(t.channel)
 	}
-	var out []Segment
 	// A clock step backwards closes the open block and restarts the grid;
 	// a change of spacing (jitter) does not.
 	if e.started && b.T0Us+e.wallOffUs <= e.lastTUs {
@@ -543,7 +592,7 @@ func (b *roofBuf) push(tUs int64, q, pInt, dir float64, pTap, pZ []float64) {
 // Flush ends the run: the open block is closed and its segments returned
 // when it holds at least half a block.
 func (e *RoofEstimator) Flush() []Segment {
-	return e.closeBlock(nil)
+	return e.closeBlock(e.drain(true))
 }
 
 // closeBlock reduces the open block, appends its segments to out when it
@@ -1159,16 +1208,15 @@ func (e *RoofEstimator) Live() (Live, bool) {
 	if !flowOn {
 		lv.Warnings = append(lv.Warnings, "reference q below the flow-off level (2 % of the pitot's rated capacity): no pressure coefficients")
 	}
-	if len(e.missing) > 0 {
-		names := make([]string, 0, len(e.missing))
-		for c := range e.missing {
+	var names []string
+	for c := range e.missing {
+		if !e.join.has(c) { // another source may have delivered it since
 			names = append(names, c)
 		}
-		slices.Sort(names)
-		lv.Warnings = append(lv.Warnings, fmt.Sprintf("channels missing from source %q: %v (their taps and zones have no values)", e.primary, names))
 	}
-	if e.otherSrc > 0 {
-		lv.Warnings = append(lv.Warnings, fmt.Sprintf("%d blocks from sources other than %q ignored: roof channels must come from the source carrying the reference q", e.otherSrc, e.primary))
+	if len(names) > 0 {
+		slices.Sort(names)
+		lv.Warnings = append(lv.Warnings, fmt.Sprintf("channels missing: %v are in no block of %q (the taps' source) and no other source has sent them (their taps and zones have no values)", names, e.primary))
 	}
 	if e.ignored > 0 {
 		lv.Warnings = append(lv.Warnings, fmt.Sprintf("%d blocks ignored: no positive sample spacing", e.ignored))

@@ -273,7 +273,9 @@ func TestRoof_BadInput(t *testing.T) {
 	p1 := constSeries(100, -1080)
 	p1[10], p1[11] = math.NaN(), math.Inf(-1)
 	e.Add(block(0, 10000, 1, map[string][]float64{"p1": p1, "p2": constSeries(60, -1080), "q": constSeries(100, 600)}))
-	// A block of another source is not mixed in.
+	// A block of another source carrying the same channels does not
+	// replace the timeline source's own readings (it is joined only for
+	// channels the timeline block lacks, which these are not).
 	other := block(1_000_000, 10000, 1, map[string][]float64{"p1": constSeries(100, 99999), "q": constSeries(100, 1)})
 	other.Source = "elsewhere"
 	e.Add(other)
@@ -291,7 +293,7 @@ func TestRoof_BadInput(t *testing.T) {
 		t.Fatal("Live not ok")
 	}
 	joined := strings.Join(lv.Warnings, "\n")
-	for _, w := range []string{"1 blocks from sources other", "1 blocks ignored", "101 samples fell in no result block"} {
+	for _, w := range []string{"1 blocks ignored", "1 samples fell in no result block"} {
 		if !strings.Contains(joined, w) {
 			t.Errorf("warnings %q lack %q", joined, w)
 		}

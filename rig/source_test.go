@@ -3,6 +3,7 @@ package rig_test
 import (
 	"errors"
 	"os"
+	"slices"
 	"strings"
 	"testing"
 
@@ -173,6 +174,29 @@ func TestParse_RoofZones(t *testing.T) {
 	for _, e := range errs {
 		if e.Line == 0 {
 			t.Errorf("problem without a line: %v", e)
+		}
+	}
+}
+
+// Ensure that Carried names the channels each kind of source lists, in
+// wire order, and says when a source lists none (issue 15).
+func TestSource_Carried(t *testing.T) {
+	tests := []struct {
+		name   string
+		s      rig.Source
+		want   []string
+		listed bool
+	}{
+		{"frame", rig.Source{Type: rig.SourceSerial, Channels: []string{"b", "a"}}, []string{"b", "a"}, true},
+		{"delimited", rig.Source{Type: rig.SourceSerial, Format: "delimited", Columns: []string{"t_ms", "n", "_", "q", "t_s"}}, []string{"n", "q"}, true},
+		{"mqtt with channels", rig.Source{Type: rig.SourceMQTT, Channels: []string{"q"}}, []string{"q"}, true},
+		{"mqtt without", rig.Source{Type: rig.SourceMQTT}, nil, false},
+		{"simulated", rig.Source{Type: rig.SourceSimulated, Channels: []string{"q"}}, nil, false},
+	}
+	for _, tt := range tests {
+		got, listed := tt.s.Carried()
+		if !slices.Equal(got, tt.want) || listed != tt.listed {
+			t.Errorf("%s: Carried() = %v, %v; want %v, %v", tt.name, got, listed, tt.want, tt.listed)
 		}
 	}
 }

@@ -320,6 +320,37 @@ func (v *validator) sources() {
 // device time, with their factor to microseconds.
 var TimeColumns = map[string]float64{"t_us": 1, "t_ms": 1e3, "t_s": 1e6}
 
+// ColumnChannels returns the channel names among a delimited source's
+// columns, in order: the columns that are neither "_" nor a time column.
+func ColumnChannels(columns []string) []string {
+	var names []string
+	for _, c := range columns {
+		if _, isTime := TimeColumns[c]; isTime || c == "_" {
+			continue
+		}
+		names = append(names, c)
+	}
+	return names
+}
+
+// Carried returns the channels source s says it carries, in its wire
+// order: a serial frame source's channels, a delimited source's channel
+// columns, an MQTT source's channels. listed is false when s lists none
+// and may carry any channel (an MQTT source without a channels list, a
+// simulated source).
+func (s Source) Carried() (chans []string, listed bool) {
+	switch {
+	case s.Type == SourceSerial && s.Format == "delimited":
+		return ColumnChannels(s.Columns), true
+	case s.Type == SourceSerial:
+		return s.Channels, true
+	case s.Type == SourceMQTT && len(s.Channels) > 0:
+		return s.Channels, true
+	default:
+		return nil, false
+	}
+}
+
 // columns checks a delimited source's column list: channel names that exist
 // and are read by no other source, "_" to skip a field, at most one time column.
 func (v *validator) columns(i int, p, subj string, s Source, readBy map[string]string) {

@@ -60,8 +60,9 @@ const QueueWait = time.Second
 // Every payload carries the sender's seq. The Source remembers the last
 // SeqWindow seqs below the highest one seen:
 //
-//   - a seq seen already (same seq, same t_us) is dropped and counted in
-//     Health.Duplicates;
+//   - the same block again (same seq, same t_us, same readings: a QoS 1
+//     copy; seq.go has the rule), also of the epoch before a restart, is
+//     dropped and counted in Health.Duplicates;
 //   - a jump ahead counts the skipped seqs in Health.Gaps and emits an
 //     EventGap, whose Duration is skipped × the block's length when known;
 //   - a seq below the highest that was not seen yet arrives late: it is
@@ -69,7 +70,8 @@ const QueueWait = time.Second
 //     acquire.Health contract), so the blocks missing now are
 //     Gaps − Late (see Missing);
 //   - a seq more than SeqWindow below the highest, or a seen seq with a
-//     different t_us, means the sender restarted its counter: the block is
+//     different t_us or other readings, means the sender restarted its
+//     counter (or a stale block of an earlier power-up): the block is
 //     delivered, the window starts over from it, and an EventGap says so.
 //
 // Blocks reach out in arrival order, so a late block comes after blocks
@@ -551,7 +553,7 @@ func (s *Source) accept(r received, log *slog.Logger) (acquire.Block, bool) {
 			return b, false
 		}
 	}
-	v, missing := s.seq.observe(b.Seq, b.T0Us, int64(b.Len())*b.DtUs)
+	v, missing := s.seq.observe(b.Seq, b.T0Us, blockSum(&b), int64(b.Len())*b.DtUs)
 	switch v {
 	case seqDuplicate:
 		s.Health.Duplicates.Add(1)

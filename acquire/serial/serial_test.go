@@ -524,3 +524,79 @@ func TestFromRig(t *testing.T) {
 	_, err = serial.FromRig(rig.Source{Name: "m", Type: rig.SourceMQTT}, r)
 	assert.ErrorContains(t, err, "not")
 }
+
+// Ensure that lines written by WriteDelimited parse back with the rig's
+// own DelimitedFormat: every value bit for bit, each time column to the
+// microsecond it can carry, with every delimiter kind (issue 15).
+func TestWriteDelimited_ParsesBack(t *testing.T) {
+	tests := []struct {
+		name, delim, timeCol string
+	}{
+		{"comma t_us", ",", "t_us"},
+		{"semicolon t_ms", ";", "t_ms"},
+		{"spaces t_s", " ", "t_s"},
+		{"tab no time", "\t", ""},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			cols := []string{"n_fore", "_", "pitot"}
+			if tt.timeCol != "" {
+				cols = append([]string{tt.timeCol}, cols...)
+			}
+			f := acquire.DelimitedFormat{Delimiter: tt.delim, Columns: cols}
+			b := acquire.Block{Source: "amp", T0Us: 3_600_123_457, DtUs: 5000, Series: []acquire.Series{
+				{Channel: "pitot", Raw: []float64{1.25e-3, -7, 0.1 + 0.2}},
+				{Channel: "n_fore", Raw: []float64{8388607, -8388608, 12345.678901234}},
+			}}
+			in := make(chan acquire.Block, 1)
+			in <- b
+			close(in)
+			var sb strings.Builder
+			require.NoError(t, serial.WriteDelimited(context.Background(), &sb, f, in))
+			lines := strings.SplitAfter(sb.String(), "\n")
+			require.Len(t, lines, 4) // three lines and the empty rest
+			for i, line := range lines[:3] {
+				var rec acquire.DelimitedRecord
+				require.NoError(t, f.Parse([]byte(line), &rec), "line %q", line)
+				assert.Equal(t, math.Float64bits(b.Raw("n_fore")[i]), math.Float64bits(rec.Values[0]), "n_fore of line %d", i)
+				assert.Equal(t, math.Float64bits(b.Raw("pitot")[i]), math.Float64bits(rec.Values[1]), "pitot of line %d", i)
+				assert.Equal(t, tt.timeCol != "", rec.HasTime)
+				if rec.HasTime {
+					assert.Equal(t, b.T0Us+int64(i)*b.DtUs, rec.TUs, "time of line %d", i)
+				}
+			}
+		})
+	}
+}
+
+// Ensure that WriteDelimited refuses a block without a column's channel.
+func TestWriteDelimited_MissingChannel(t *testing.T) {
+	in := make(chan acquire.Block, 1)
+	in <- acquire.Block{Source: "x", DtUs: 1, Series: []acquire.Series{{Channel: "a", Raw: []float64{1}}}}
+	close(in)
+	var sb strings.Builder
+	err := serial.WriteDelimited(context.Background(), &sb, acquire.DelimitedFormat{Columns: []string{"a", "b"}}, in)
+	assert.ErrorContains(t, err, `channel "b" has 0 samples`)
+}
+
+// Ensure that OpenDevice opens a port with the rig source's line settings
+// and that what is written there comes out at the other end (a pty stands
+// for the null-modem cable of a dry run); bad settings are refused.
+func TestOpenDevice(t *testing.T) {
+	m, path := newPTY(t)
+	w, err := serial.OpenDevice(path, rig.Source{Name: "amp", Baud: 9600, DataBits: 7, Parity: "even", StopBits: 2})
+	require.NoError(t, err)
+	defer w.Close()
+	_, err = w.Write([]byte("1250.0;812.4\r\n"))
+	require.NoError(t, err)
+	require.NoError(t, m.SetReadDeadline(time.Now().Add(safety)))
+	buf := make([]byte, 64)
+	n, err := m.Read(buf)
+	require.NoError(t, err)
+	assert.Equal(t, "1250.0;812.4\r\n", string(buf[:n]))
+
+	_, err = serial.OpenDevice(path, rig.Source{Name: "amp", Parity: "mark"})
+	assert.ErrorContains(t, err, `source "amp": parity "mark"`)
+	_, err = serial.OpenDevice(path+"-gone", rig.Source{Name: "amp"})
+	assert.ErrorContains(t, err, "open "+path+"-gone")
+}

@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"time"
 
 	"liftyard/acquire"
 	"liftyard/rig"
@@ -28,6 +29,11 @@ type Common struct {
 	RateHz     float64 // samples per second
 	Seed       uint64  // random seed of turbulence and noise
 	RhoKgPerM3 float64 // fluid density, for a rig that measures speed instead of Δp
+	// StepsDeg and Hold set a foil or body sweep's angle steps and the
+	// steady time per step (Config); nil and 0 take Config's defaults.
+	// Rotor and roof rigs ignore them.
+	StepsDeg []float64
+	Hold     time.Duration
 }
 
 // ForRig builds the simulator for r's kind: the one place that maps a rig
@@ -44,7 +50,7 @@ func ForRig(r *rig.Rig, c Common) (Simulator, error) {
 		}
 		return s, nil
 	case rig.KindFoil, rig.KindBody, rig.KindRotor:
-		s, err := New(r, Config{QPa: c.QPa, RateHz: c.RateHz, Seed: c.Seed}, c.RhoKgPerM3)
+		s, err := New(r, Config{QPa: c.QPa, RateHz: c.RateHz, Seed: c.Seed, StepsDeg: c.StepsDeg, Hold: c.Hold}, c.RhoKgPerM3)
 		if err != nil {
 			return nil, fmt.Errorf("%s simulator: %w", r.Kind, err)
 		}

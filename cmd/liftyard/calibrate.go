@@ -509,7 +509,7 @@ func sourcesFor(r *rig.Rig, channel string) *rig.Rig {
 	c := *r
 	c.Sources = nil
 	for _, s := range r.Sources {
-		if s.Type == rig.SourceSerial && !slices.Contains(s.Channels, channel) && !slices.Contains(s.Columns, channel) {
+		if chans, listed := s.Carried(); listed && !slices.Contains(chans, channel) {
 			continue
 		}
 		c.Sources = append(c.Sources, s)
@@ -540,7 +540,7 @@ func capturePoints(ctx context.Context, o calOptions, r *rig.Rig, stdin io.Reade
 	}
 	sub := sourcesFor(r, o.channel)
 	if len(sub.Sources) == 0 {
-		return nil, usagef("no [[source]] in %s reads channel %q", o.rigPath, o.channel)
+		return nil, usagef("no [[source]] in %s reads channel %q (its sources: %s): add it to the channels of one", o.rigPath, o.channel, describeSources(r))
 	}
 	log := newLogger(stderr, o.verbose)
 	fluid, err := estimate.Properties(r.Fluid, r.Conditions)
