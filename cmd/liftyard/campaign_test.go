@@ -129,7 +129,7 @@ func TestExport_Campaign(t *testing.T) {
 	// --replace writes them again, byte for byte the same.
 	code, _, errOut = runCLI(t, "export", "--db", db, "--campaign", out, "--what", "segments", "--replace")
 	require.Equal(t, 0, code, errOut)
-	require.Contains(t, errOut, "3 files written, 0 kept")
+	require.Contains(t, errOut, "4 files written, 0 kept")
 	after, err := os.ReadFile(filepath.Join(out, want[4]))
 	require.NoError(t, err)
 	require.True(t, bytes.Equal(before, after), "the export is deterministic")
