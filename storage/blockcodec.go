@@ -68,40 +68,53 @@ func isException(v float64) bool {
 // the decimal text k·10^-d, and a value that scales at d scales at every
 // larger d as well (the same rational), which the final pass confirms.
 func decimalsOf(raw []float64, ks []int64) (d, exceptions int, ok bool) {
-	for _, v := range raw {
-		if isException(v) {
-			exceptions++
-			continue
-		}
-		_, ok := scaleExact(v, d)
-		for !ok && d < maxScaledDecimals {
-			d++
-			_, ok = scaleExact(v, d)
-		}
+	rose := 0 // values before this index were scaled at a smaller d
+	first := -1
+	for i, v := range raw {
+		k, ok := scaleExact(v, d)
 		if !ok {
-			return 0, 0, false
+			if isException(v) {
+				exceptions++
+				continue
+			}
+			for !ok && d < maxScaledDecimals {
+				d++
+				k, ok = scaleExact(v, d)
+			}
+			if !ok {
+				return 0, 0, false
+			}
+			rose = i
 		}
+		if first < 0 {
+			first = i
+		}
+		ks[i] = k
 	}
-	if exceptions == len(raw) {
+	if first < 0 {
 		return 0, 0, false
 	}
-	var prev int64
-	for _, v := range raw {
-		if !isException(v) {
-			prev, _ = scaleExact(v, d)
-			break
-		}
-	}
-	for i, v := range raw {
+	for i, v := range raw[:rose] {
 		if isException(v) {
-			ks[i] = prev
 			continue
 		}
 		k, ok := scaleExact(v, d)
 		if !ok {
 			return 0, 0, false
 		}
-		ks[i], prev = k, k
+		ks[i] = k
+	}
+	if exceptions > 0 {
+		// An exception takes the integer before it (the first value's for
+		// leading ones), so that it costs no residual.
+		prev := ks[first]
+		for i, v := range raw {
+			if isException(v) {
+				ks[i] = prev
+			} else {
+				prev = ks[i]
+			}
+		}
 	}
 	return d, exceptions, true
 }
@@ -164,7 +177,7 @@ func appendChannel(dst []byte, raw []float64, ks []int64) []byte {
 			}
 		}
 		if bestBits/8+12+9*uint64(exc) < uint64(8*n) {
-			return appendScaled(dst, raw, ks, d, best, exc)
+			return appendScaled(dst, raw, ks, d, best, exc, uint(bits.Len64(or[best])))
 		}
 	}
 	xorStart := len(dst)
@@ -185,7 +198,7 @@ func appendChannel(dst []byte, raw []float64, ks []int64) []byte {
 // bits); then the first order values as zigzag varints (k0, then k1−k0),
 // u8 width w, and the residuals of values order… as w-bit zigzag codes,
 // packed most significant bit first.
-func appendScaled(dst []byte, raw []float64, ks []int64, d, order, exc int) []byte {
+func appendScaled(dst []byte, raw []float64, ks []int64, d, order, exc int, w uint) []byte {
 	flag := byte(d | order<<4)
 	if exc > 0 {
 		flag |= 0x80
@@ -205,19 +218,25 @@ func appendScaled(dst []byte, raw []float64, ks []int64, d, order, exc int) []by
 	for i := range order {
 		dst = binary.AppendUvarint(dst, zigzag(residual(ks, i, i)))
 	}
-	var or uint64
-	for i := order; i < len(ks); i++ {
-		or |= zigzag(residual(ks, i, order))
-	}
-	w := uint(bits.Len64(or))
 	dst = append(dst, byte(w))
 	if w == 0 {
 		return dst
 	}
 	var bw bitWriter
 	bw.buf = dst
-	for i := order; i < len(ks); i++ {
-		bw.write(zigzag(residual(ks, i, order)), w)
+	switch order {
+	case 0:
+		for _, k := range ks {
+			bw.write(zigzag(k), w)
+		}
+	case 1:
+		for i := 1; i < len(ks); i++ {
+			bw.write(zigzag(ks[i]-ks[i-1]), w)
+		}
+	case 2:
+		for i := 2; i < len(ks); i++ {
+			bw.write(zigzag(ks[i]-2*ks[i-1]+ks[i-2]), w)
+		}
 	}
 	return bw.flush()
 }
@@ -360,18 +379,47 @@ func decodeScaled(data []byte, out []float64) ([]byte, error) {
 		return nil, errShort
 	}
 	br := bitReader{buf: data[:nbytes]}
+	// Most values are read as one 64-bit load; the last few bytes and
+	// widths above 57 bits take bitReader's careful path.
+	packed := data[:nbytes]
+	fast := uint64(0)
+	if w <= 57 && nbytes >= 8 {
+		fast = ((nbytes-8)*8)/uint64(max(w, 1)) + 1 // values whose load stays inside
+		fast = min(fast, cnt)
+	}
+	get := func(j uint64) uint64 {
+		pos := j * uint64(w)
+		v := binary.BigEndian.Uint64(packed[pos>>3:])
+		return v << (pos & 7) >> (64 - w)
+	}
+	var j uint64
 	switch order {
 	case 0:
-		for i := range out {
+		for ; j < fast; j++ {
+			out[j] = float64(unzigzag(get(j))) / p
+		}
+		br.pos = j * uint64(w)
+		for i := int(j); i < n; i++ {
 			out[i] = float64(unzigzag(br.read(w))) / p
 		}
 	case 1:
-		for i := 1; i < n; i++ {
+		for ; j < fast; j++ {
+			k1 += unzigzag(get(j))
+			out[j+1] = float64(k1) / p
+		}
+		br.pos = j * uint64(w)
+		for i := int(j) + 1; i < n; i++ {
 			k1 += unzigzag(br.read(w))
 			out[i] = float64(k1) / p
 		}
 	case 2:
-		for i := 2; i < n; i++ {
+		for ; j < fast; j++ {
+			k := 2*k1 - k2 + unzigzag(get(j))
+			k2, k1 = k1, k
+			out[j+2] = float64(k) / p
+		}
+		br.pos = j * uint64(w)
+		for i := int(j) + 2; i < n; i++ {
 			k := 2*k1 - k2 + unzigzag(br.read(w))
 			k2, k1 = k1, k
 			out[i] = float64(k) / p
@@ -437,16 +485,20 @@ func (b *bitWriter) write(v uint64, w uint) {
 		return
 	}
 	v &= 1<<w - 1
-	b.acc = b.acc<<w | v
+	b.acc = b.acc<<w | v // nacc < 32 before, so nothing is lost
 	b.nacc += w
-	for b.nacc >= 8 {
-		b.nacc -= 8
-		b.buf = append(b.buf, byte(b.acc>>b.nacc))
+	if b.nacc >= 32 {
+		b.nacc -= 32
+		b.buf = binary.BigEndian.AppendUint32(b.buf, uint32(b.acc>>b.nacc))
 	}
 }
 
 // flush writes the last partial byte (zero-padded) and returns the buffer.
 func (b *bitWriter) flush() []byte {
+	for b.nacc >= 8 {
+		b.nacc -= 8
+		b.buf = append(b.buf, byte(b.acc>>b.nacc))
+	}
 	if b.nacc > 0 {
 		b.buf = append(b.buf, byte(b.acc<<(8-b.nacc)))
 		b.nacc = 0

@@ -353,7 +353,7 @@ func TestRead_FileTruncatedWhileOpen(t *testing.T) {
 	if err := w.Run(context.Background(), in); err != nil {
 		t.Fatal(err)
 	}
-	if err := os.Truncate(path, 16<<10); err != nil {
+	if err := os.Truncate(path, 64<<10); err != nil { // past both meta pages (32 KiB pages), short of the data
 		t.Fatal(err)
 	}
 	err := s.RawBlocks(id, func(acquire.Block) error { return nil })
