@@ -11,7 +11,7 @@ import (
 // of a block is stored by the smallest of these that gives every reading
 // back bit for bit:
 //
-//   - chanScaled: the readings are k/10^d for integers k (|k| < 2^53) and
+//   - scaled (tag 0x80 | exceptions<<6 | order<<4 | d): the readings are k/10^d for integers k (|k| < 2^53) and
 //     one d in 0…9, bit for bit; k is stored as itself (order 0), its first
 //     difference (order 1) or its second-order linear prediction residual
 //     (order 2), zigzag mapped and bit-packed at the width of the largest.
@@ -21,9 +21,9 @@ import (
 //   - chanConst: one float64 for every reading (any bits, NaN included).
 const (
 	chanRaw    = 0
-	chanScaled = 1
 	chanXOR    = 2
 	chanConst  = 3
+	chanScaled = 0x80 // | 0x40 with exceptions | order<<4 | d
 )
 
 // maxScaledDecimals is the most decimals decimal scaling tries: 10^9 keeps
@@ -192,18 +192,18 @@ func appendChannel(dst []byte, raw []float64, ks []int64) []byte {
 	return dst
 }
 
-// appendScaled writes: u8 chanScaled, u8 d | order<<4 | 0x80 when there
-// are exceptions; if so, uvarint count E and E × (uvarint gap to the
+// appendScaled writes: u8 tag 0x80 | 0x40 when there are exceptions |
+// order<<4 | d; with exceptions, uvarint count E and E × (uvarint gap to the
 // previous exception's index (the first: its index), 8 bytes of float64
 // bits); then the first order values as zigzag varints (k0, then k1−k0),
 // u8 width w, and the residuals of values order… as w-bit zigzag codes,
 // packed most significant bit first.
 func appendScaled(dst []byte, raw []float64, ks []int64, d, order, exc int, w uint) []byte {
-	flag := byte(d | order<<4)
+	tag := byte(chanScaled | order<<4 | d)
 	if exc > 0 {
-		flag |= 0x80
+		tag |= 0x40
 	}
-	dst = append(dst, chanScaled, flag)
+	dst = append(dst, tag)
 	if exc > 0 {
 		dst = binary.AppendUvarint(dst, uint64(exc))
 		last := 0
@@ -285,6 +285,9 @@ func decodeChannel(data []byte, out []float64) ([]byte, error) {
 		return nil, errShort
 	}
 	n := len(out)
+	if data[0]&chanScaled != 0 {
+		return decodeScaled(data, out)
+	}
 	switch data[0] {
 	case chanConst:
 		if len(data) < 9 {
@@ -304,8 +307,6 @@ func decodeChannel(data []byte, out []float64) ([]byte, error) {
 			out[i] = math.Float64frombits(binary.BigEndian.Uint64(data[8*i:]))
 		}
 		return data[8*n:], nil
-	case chanScaled:
-		return decodeScaled(data[1:], out)
 	case chanXOR:
 		return decodeXOR(data[1:], out)
 	}
@@ -316,7 +317,7 @@ func decodeScaled(data []byte, out []float64) ([]byte, error) {
 	if len(data) < 1 {
 		return nil, errShort
 	}
-	d, order, hasExc := int(data[0]&0x0f), int(data[0]>>4&0x07), data[0]&0x80 != 0
+	d, order, hasExc := int(data[0]&0x0f), int(data[0]>>4&0x03), data[0]&0x40 != 0
 	data = data[1:]
 	n := len(out)
 	if d > maxScaledDecimals || order > 2 || order > n || (n > 0 && order == n) {

@@ -225,6 +225,7 @@ type encoded struct {
 	key    []byte
 	value  []byte
 	n      int
+	blk    *acquire.Block // for the rollups
 }
 
 // commit writes b in one transaction: the blocks, segments and events, and
@@ -252,7 +253,7 @@ func (w *Writer) commit(b *batch) (err error) {
 			events = append(events, Event{T: now, Kind: EventRejected, Source: blk.Source, Message: err.Error()})
 			continue
 		}
-		enc = append(enc, encoded{source: blk.Source, key: blockKey(nil, blk), value: val, n: blk.Len()})
+		enc = append(enc, encoded{source: blk.Source, key: blockKey(nil, blk), value: val, n: blk.Len(), blk: blk})
 	}
 	segs := make([][]byte, len(b.segments))
 	for i, sg := range b.segments {
@@ -267,6 +268,7 @@ func (w *Writer) commit(b *batch) (err error) {
 	start := time.Now()
 	err = w.s.db.Update(func(tx *bolt.Tx) error {
 		nBlocks, nSamples = 0, 0 // Update may not re-run fn, but keep it idempotent
+		roll := rollupSet{}      // trend rollups of the new blocks (rollup.go)
 		r, err := getRun(tx, w.runID)
 		if err != nil {
 			return err
@@ -291,11 +293,15 @@ func (w *Writer) commit(b *batch) (err error) {
 				}
 				if sb.Get(e.key) == nil { // a repeated block replaces, not adds
 					nSamples += uint64(e.n)
+					roll.add(e.blk)
 				}
 				if err := sb.Put(e.key, e.value); err != nil {
 					return err
 				}
 				nBlocks++
+			}
+			if err := putRollups(tx, w.runID, roll); err != nil {
+				return err
 			}
 		}
 		if len(segs) > 0 {
