@@ -88,7 +88,8 @@ func timelineSource(store *storage.Store, runID uint64, points int) (acquire.Rep
 			return raw, 0, nil // no blocks
 		}
 		if wUs*int64(points) <= hi-lo {
-			return rollupBlocks(bins, wUs), wUs, nil
+			pointUs := (hi - lo + int64(points) - 1) / int64(points)
+			return rollupBlocks(bins, wUs, lo, pointUs), wUs, nil
 		}
 	}
 	return raw, 0, nil
@@ -101,29 +102,53 @@ func timelineSource(store *storage.Store, runID uint64, points int) (acquire.Rep
 // channel means), which its window sees as it would a steady hold.
 const rollupSampleUs = 250_000
 
-// rollupBlocks turns rollup bins into one block each: the bin's channel
-// means, repeated every rollupSampleUs across the bin; blocks ordered by
-// receive time across sources as storage.Store.ReplayBlocks orders raw
-// blocks.
-func rollupBlocks(bins map[string][]storage.RollupBin, wUs int64) acquire.Blocks {
-	n := int(max(1, wUs/rollupSampleUs))
-	dt := wUs / int64(n)
+// rollupBlocks turns rollup bins into blocks: each bin is its channel
+// means repeated every rollupSampleUs across the bin, and the consecutive
+// bins of a source that fall in one point of the timeline (pointUs wide,
+// from loUs) make one block, so the pipeline steps and estimates about
+// once per point. Blocks are ordered by receive time across sources as
+// storage.Store.ReplayBlocks orders raw blocks.
+func rollupBlocks(bins map[string][]storage.RollupBin, wUs, loUs, pointUs int64) acquire.Blocks {
+	per := int(max(1, wUs/rollupSampleUs))
+	dt := wUs / int64(per)
+	sameChannels := func(a, b storage.RollupBin) bool {
+		if len(a.Channels) != len(b.Channels) {
+			return false
+		}
+		for i := range a.Channels {
+			if a.Channels[i].Channel != b.Channels[i].Channel {
+				return false
+			}
+		}
+		return true
+	}
 	var out acquire.Blocks
 	for src, bs := range bins {
-		for _, b := range bs {
-			blk := acquire.Block{Source: src, Seq: uint64(b.T0Us / wUs), T0Us: b.T0Us + dt/2, DtUs: dt}
-			if b.HasOffset {
-				blk.Received = time.UnixMicro(blk.T0Us + int64(n-1)*dt + b.OffsetUs).UTC()
+		for i := 0; i < len(bs); {
+			j := i + 1
+			point := (bs[i].T0Us - loUs) / pointUs
+			for j < len(bs) && bs[j].T0Us == bs[j-1].T0Us+wUs && (bs[j].T0Us-loUs)/pointUs == point && sameChannels(bs[i], bs[j]) {
+				j++
 			}
-			for _, c := range b.Channels {
-				raw := make([]float64, n)
-				m := c.Mean()
-				for i := range raw {
-					raw[i] = m
+			group := bs[i:j]
+			n := per * len(group)
+			blk := acquire.Block{Source: src, Seq: uint64(bs[i].T0Us / wUs), T0Us: bs[i].T0Us + dt/2, DtUs: dt}
+			last := group[len(group)-1]
+			if last.HasOffset {
+				blk.Received = time.UnixMicro(blk.T0Us + int64(n-1)*dt + last.OffsetUs).UTC()
+			}
+			for c := range bs[i].Channels {
+				raw := make([]float64, 0, n)
+				for _, b := range group {
+					m := b.Channels[c].Mean()
+					for range per {
+						raw = append(raw, m)
+					}
 				}
-				blk.Series = append(blk.Series, acquire.Series{Channel: c.Channel, Raw: raw})
+				blk.Series = append(blk.Series, acquire.Series{Channel: bs[i].Channels[c].Channel, Raw: raw})
 			}
 			out = append(out, blk)
+			i = j
 		}
 	}
 	sort.SliceStable(out, func(i, j int) bool {

@@ -59,7 +59,10 @@ func agree(t *testing.T, fine, coarse process.Timeline) {
 		assert.InDelta(t, q, coarse.QPa[i], 0.06*math.Abs(q)+2, "q at point %d (%s)", i, tc)
 		if ncl >= 3 && !math.IsNaN(coarse.CL[i]) {
 			cl /= float64(ncl)
-			assert.InDelta(t, cl, coarse.CL[i], 0.1*math.Abs(cl)+0.05, "C_L at point %d", i)
+			// C_L moves within a point while α sweeps; the raw 2 s windows
+			// and the rollup bins see different parts of the move, so the
+			// band is wider than q's.
+			assert.InDelta(t, cl, coarse.CL[i], 0.2*math.Abs(cl)+0.05, "C_L at point %d", i)
 		}
 		compared++
 	}
