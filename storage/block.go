@@ -35,7 +35,8 @@ const maxBlockReadings = 1 << 24
 //
 // Layout (docs/storage.md §2): u8 version (2); uvarint seq; zigzag varints
 // t0_us, dt_us and received Unix ns (0 = zero time); uvarint channel count
-// C; uvarint sample count N; C × (uvarint name length, name bytes); then C
+// C; uvarint sample count N; C names, each as (uvarint bytes shared with the
+// previous name's start, uvarint length of the rest, the rest); then C
 // channels, each in the smallest exact codec of blockcodec.go. Every
 // reading decodes to the same float64 bits (NaN payloads and −0 included).
 func encodeBlock(dst []byte, b *acquire.Block) ([]byte, error) {
@@ -77,9 +78,17 @@ func encodeBlock(dst []byte, b *acquire.Block) ([]byte, error) {
 	dst = binary.AppendVarint(dst, recv)
 	dst = binary.AppendUvarint(dst, uint64(len(b.Series)))
 	dst = binary.AppendUvarint(dst, uint64(n))
+	prev := ""
 	for i := range b.Series {
-		dst = binary.AppendUvarint(dst, uint64(len(b.Series[i].Channel)))
-		dst = append(dst, b.Series[i].Channel...)
+		name := b.Series[i].Channel
+		shared := 0
+		for shared < len(name) && shared < len(prev) && name[shared] == prev[shared] {
+			shared++
+		}
+		dst = binary.AppendUvarint(dst, uint64(shared))
+		dst = binary.AppendUvarint(dst, uint64(len(name)-shared))
+		dst = append(dst, name[shared:]...)
+		prev = name
 	}
 	ks := make([]int64, n)
 	for i := range b.Series {
@@ -131,14 +140,21 @@ func decodeBlockV2(data []byte, b *acquire.Block) error {
 	}
 	n := int(n64)
 	names := make([]string, nch)
+	prev := ""
 	for i := range names {
-		l, m := binary.Uvarint(rest)
-		if m <= 0 || uint64(len(rest)-m) < l {
+		shared, m := binary.Uvarint(rest)
+		if m <= 0 || shared > uint64(len(prev)) {
 			return fmt.Errorf("block record seq %d: channel %d name cut short: %w", seq, i, ErrCorrupt)
 		}
 		rest = rest[m:]
-		names[i] = string(rest[:l])
+		l, m := binary.Uvarint(rest)
+		if m <= 0 || uint64(len(rest)-m) < l || shared+l > math.MaxUint16 {
+			return fmt.Errorf("block record seq %d: channel %d name cut short: %w", seq, i, ErrCorrupt)
+		}
+		rest = rest[m:]
+		names[i] = prev[:shared] + string(rest[:l])
 		rest = rest[l:]
+		prev = names[i]
 	}
 	series := make([]acquire.Series, nch)
 	all := make([]float64, int(nch)*n)

@@ -59,7 +59,8 @@ func TestDecodeBlock_V2Errors(t *testing.T) {
 	hdr := []byte{blockV2, 9, 10, 0xd0, 0x0f, 0}
 	huge := binary.AppendUvarint(append(bytes.Clone(hdr), 1), 1<<30)
 	noCh := append(bytes.Clone(hdr), 0, 5)
-	badCodec := append(append(bytes.Clone(hdr), 1, 2, 1, 'x'), 9)
+	badCodec := append(append(bytes.Clone(hdr), 1, 2, 0, 1, 'x'), 9)
+	badShare := append(bytes.Clone(hdr), 2, 0, 0, 1, 'x', 2, 0) // second name shares 2 bytes of "x"
 	for _, tc := range []struct {
 		name string
 		data []byte
@@ -72,6 +73,7 @@ func TestDecodeBlock_V2Errors(t *testing.T) {
 		{"huge", huge, "1 channels × 1073741824 samples"},
 		{"samples without channels", noCh, "5 samples but no channel"},
 		{"unknown codec", badCodec, "channel data cut short or malformed"},
+		{"name shares more than the previous", badShare, "channel 1 name cut short"},
 	} {
 		var b acquire.Block
 		err := decodeBlock(tc.data, &b)
@@ -127,6 +129,12 @@ func TestEncodeBlock_RoundTrip(t *testing.T) {
 			{Channel: "", Raw: []float64{nanPayload, math.Inf(1), 1e-300}},
 		}}
 	roundTrip(t, &in)
+
+	taps := acquire.Block{Seq: 1, DtUs: 10_000}
+	for _, name := range []string{"tap_01", "tap_02", "tap_10", "tap_1", "pitot", "", "tap_01", "tap_01_ref", "τ_ü"} {
+		taps.Series = append(taps.Series, acquire.Series{Channel: name, Raw: []float64{-12.25, 3}})
+	}
+	roundTrip(t, &taps)
 }
 
 // Ensure that every regime of sensor data round-trips bit for bit, and
@@ -201,7 +209,8 @@ func TestEncodeBlock_Regimes(t *testing.T) {
 // blockOverhead is the header and names of b's encoding.
 func blockOverhead(b *acquire.Block) int {
 	e, _ := encodeBlock(nil, &acquire.Block{Seq: b.Seq, T0Us: b.T0Us, DtUs: b.DtUs, Received: b.Received})
-	for _, s := range b.Series {
+	for _, s := range b.Series { // each test block has one channel: nothing shared
+		e = binary.AppendUvarint(e, 0)
 		e = binary.AppendUvarint(e, uint64(len(s.Channel)))
 		e = append(e, s.Channel...)
 	}
