@@ -134,6 +134,7 @@ var storeCases = []struct {
 	{"pressure_1kHz16ch_white2Pa", 600, 1000, 16, 100, func(c int) signal { return pressure(123.45+float64(c)*10, 2, 0) }},
 	{"pressure_1kHz16ch_white20Pa", 600, 1000, 16, 100, func(c int) signal { return pressure(123.45+float64(c)*10, 20, 0) }},
 	{"pressure_1kHz16ch_turb20Pa_tau20", 600, 1000, 16, 100, func(c int) signal { return pressure(123.45+float64(c)*10, 20, 20) }},
+	{"pressure_100Hz64taps_turb5Pa_tau3", 1200, 100, 64, 10, func(c int) signal { return pressure(-300+float64(c)*7.5, 5, 3) }},
 	{"pressure_100Hz64taps_turb15Pa_tau3", 1200, 100, 64, 10, func(c int) signal { return pressure(-300+float64(c)*7.5, 15, 3) }},
 	{"pressure_100Hz64taps_turb15Pa_tau3_blocks100", 1200, 100, 64, 100, func(c int) signal { return pressure(-300+float64(c)*7.5, 15, 3) }},
 	{"pressure_100Hz64taps_white40Pa", 1200, 100, 64, 10, func(c int) signal { return pressure(-300+float64(c)*7.5, 40, 0) }},
