@@ -194,9 +194,12 @@ func (rs rollupSet) bin(source string, level int, t0 int64) *RollupBin {
 	return b
 }
 
-// add summarises blk into the finest level's bins and merges them into
-// the coarser levels.
-func (rs rollupSet) add(blk *acquire.Block) {
+// add summarises blk into the bins of every level.
+func (rs rollupSet) add(blk *acquire.Block) { rs.addLevel(blk, -1) }
+
+// addLevel summarises blk at the finest width and merges the parts into the
+// bins of level only (every level when only < 0).
+func (rs rollupSet) addLevel(blk *acquire.Block, only int) {
 	n := blk.Len()
 	if n == 0 || blk.DtUs <= 0 && n > 1 {
 		return
@@ -231,6 +234,9 @@ func (rs rollupSet) add(blk *acquire.Block) {
 			part.Channels[c] = rc
 		}
 		for level, w := range RollupWidths {
+			if only >= 0 && level != only {
+				continue
+			}
 			wu := w.Microseconds()
 			rs.bin(blk.Source, level, floorDiv(start, wu)*wu).merge(&part)
 		}
@@ -320,10 +326,11 @@ func (s *Store) RunRollups(id uint64, level int) (bins map[string][]RollupBin, s
 	if err != nil || stored {
 		return bins, stored, err
 	}
-	// No stored rollups: compute them from the raw blocks.
+	// No stored rollups: compute this level from the raw blocks (only
+	// this one: the finest level of a long run would be large).
 	rs := rollupSet{}
 	if err := s.RawBlocks(id, func(b acquire.Block) error {
-		rs.add(&b)
+		rs.addLevel(&b, level)
 		return nil
 	}); err != nil {
 		return nil, false, err
