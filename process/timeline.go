@@ -140,7 +140,7 @@ func rollupBlocks(bins map[string][]storage.RollupBin, wUs, loUs, pointUs int64)
 			for c := range bs[i].Channels {
 				raw := make([]float64, 0, n)
 				for _, b := range group {
-					m := b.Channels[c].Mean()
+					m := b.Channels[c].RawMean()
 					for range per {
 						raw = append(raw, m)
 					}

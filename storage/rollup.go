@@ -28,21 +28,23 @@ var bucketRollup = []byte("rollup")
 // rollupVersion is the first byte of a stored bin.
 const rollupVersion = 1
 
-// RollupChannel is one channel's summary over a bin: the finite readings'
-// count, least, greatest and sum (NaN and ±Inf are not counted).
+// RollupChannel is one channel's summary over a bin: the finite raw
+// readings' count, least, greatest and sum, in the instrument's own units
+// (NaN and ±Inf are not counted).
 type RollupChannel struct {
-	Channel  string
-	N        int
-	Min, Max float64
-	Sum      float64
+	Channel        string
+	N              int
+	RawMin, RawMax float64
+	sum            float64 // of the finite readings: RawMean is sum/N
 }
 
-// Mean returns Sum/N, or NaN for a bin without a finite reading.
-func (c RollupChannel) Mean() float64 {
+// RawMean returns the mean of the finite readings, or NaN for a bin
+// without one.
+func (c RollupChannel) RawMean() float64 {
 	if c.N == 0 {
 		return math.NaN()
 	}
-	return c.Sum / float64(c.N)
+	return c.sum / float64(c.N)
 }
 
 // RollupBin is one bin of one source's rollup.
@@ -69,13 +71,13 @@ func (b *RollupBin) merge(o *RollupBin) {
 			i++
 		}
 		if i == len(b.Channels) {
-			b.Channels = append(b.Channels, RollupChannel{Channel: oc.Channel, Min: math.Inf(1), Max: math.Inf(-1)})
+			b.Channels = append(b.Channels, RollupChannel{Channel: oc.Channel, RawMin: math.Inf(1), RawMax: math.Inf(-1)})
 		}
 		c := &b.Channels[i]
 		c.N += oc.N
-		c.Sum += oc.Sum
-		c.Min = math.Min(c.Min, oc.Min)
-		c.Max = math.Max(c.Max, oc.Max)
+		c.sum += oc.sum
+		c.RawMin = math.Min(c.RawMin, oc.RawMin)
+		c.RawMax = math.Max(c.RawMax, oc.RawMax)
 	}
 }
 
@@ -93,7 +95,7 @@ func encodeRollupBin(b *RollupBin) []byte {
 		dst = binary.AppendUvarint(dst, uint64(len(c.Channel)))
 		dst = append(dst, c.Channel...)
 		dst = binary.AppendUvarint(dst, uint64(c.N))
-		for _, v := range [3]float64{c.Min, c.Max, c.Sum} {
+		for _, v := range [3]float64{c.RawMin, c.RawMax, c.sum} {
 			dst = binary.BigEndian.AppendUint64(dst, math.Float64bits(v))
 		}
 	}
@@ -148,9 +150,9 @@ func decodeRollupBin(data []byte, b *RollupBin) error {
 			return bad("channel summary cut short")
 		}
 		b.Channels[i] = RollupChannel{Channel: name, N: int(cnt),
-			Min: math.Float64frombits(binary.BigEndian.Uint64(rest)),
-			Max: math.Float64frombits(binary.BigEndian.Uint64(rest[8:])),
-			Sum: math.Float64frombits(binary.BigEndian.Uint64(rest[16:]))}
+			RawMin: math.Float64frombits(binary.BigEndian.Uint64(rest)),
+			RawMax: math.Float64frombits(binary.BigEndian.Uint64(rest[8:])),
+			sum:    math.Float64frombits(binary.BigEndian.Uint64(rest[16:]))}
 		rest = rest[24:]
 	}
 	if len(rest) != 0 {
@@ -221,15 +223,15 @@ func (rs rollupSet) addLevel(blk *acquire.Block, only int) {
 		part := RollupBin{T0Us: start, Samples: j - i, OffsetUs: offset, HasOffset: hasOffset,
 			Channels: make([]RollupChannel, len(blk.Series))}
 		for c, s := range blk.Series {
-			rc := RollupChannel{Channel: s.Channel, Min: math.Inf(1), Max: math.Inf(-1)}
+			rc := RollupChannel{Channel: s.Channel, RawMin: math.Inf(1), RawMax: math.Inf(-1)}
 			for _, v := range s.Raw[i:j] {
 				if math.IsNaN(v) || math.IsInf(v, 0) {
 					continue
 				}
 				rc.N++
-				rc.Sum += v
-				rc.Min = math.Min(rc.Min, v)
-				rc.Max = math.Max(rc.Max, v)
+				rc.sum += v
+				rc.RawMin = math.Min(rc.RawMin, v)
+				rc.RawMax = math.Max(rc.RawMax, v)
 			}
 			part.Channels[c] = rc
 		}

@@ -100,16 +100,16 @@ func checkRollups(t *testing.T, s *storage.Store, id uint64, wantStored bool) {
 						t.Fatalf("level %d %s bin %d: %d finite readings, want %d", level, c.Channel, b.T0Us, c.N, nb.n[c.Channel])
 					}
 					if c.N == 0 {
-						if !math.IsNaN(c.Mean()) {
-							t.Errorf("empty bin has mean %v", c.Mean())
+						if !math.IsNaN(c.RawMean()) {
+							t.Errorf("empty bin has mean %v", c.RawMean())
 						}
 						continue
 					}
-					if c.Min != nb.min[c.Channel] || c.Max != nb.max[c.Channel] {
-						t.Errorf("level %d %s bin %d: min/max %v/%v, want %v/%v", level, c.Channel, b.T0Us, c.Min, c.Max,
+					if c.RawMin != nb.min[c.Channel] || c.RawMax != nb.max[c.Channel] {
+						t.Errorf("level %d %s bin %d: min/max %v/%v, want %v/%v", level, c.Channel, b.T0Us, c.RawMin, c.RawMax,
 							nb.min[c.Channel], nb.max[c.Channel])
 					}
-					if m, wm := c.Mean(), nb.mean[c.Channel]; math.Abs(m-wm) > 1e-12*math.Max(1, math.Abs(wm)) {
+					if m, wm := c.RawMean(), nb.mean[c.Channel]; math.Abs(m-wm) > 1e-12*math.Max(1, math.Abs(wm)) {
 						t.Errorf("level %d %s bin %d: mean %v, want %v", level, c.Channel, b.T0Us, m, wm)
 					}
 				}
