@@ -14,7 +14,9 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"liftyard/acquire"
+	"liftyard/acquire/sim"
 	"liftyard/process"
+	"liftyard/rig"
 	"liftyard/storage"
 )
 
@@ -193,4 +195,43 @@ func BenchmarkRunTimeline_Hour(b *testing.B) {
 			b.Fatalf("%d points", len(tl.T))
 		}
 	}
+}
+
+// Ensure that a roof run's timeline (q only) from its stored rollups
+// agrees with the one from its raw blocks.
+func TestRunTimeline_RoofFromRollups(t *testing.T) {
+	r, text := loadRig(t, roofRig)
+	store := openStore(t)
+	id, err := store.CreateRun(storage.Run{Rig: r.Name, Kind: "roof", Fluid: "air", RigTOML: text, AreaM2: 1})
+	require.NoError(t, err)
+	start := time.Date(2026, 12, 2, 10, 0, 0, 0, time.UTC)
+	sim, err := simRoof(r, start)
+	require.NoError(t, err)
+	w := store.NewWriter(id, storage.WriterConfig{})
+	q := w.NewQueue()
+	done := make(chan error)
+	go func() { done <- w.Run(context.Background(), q) }()
+	for {
+		b := sim.Next()
+		if b.T0Us > start.Add(40*time.Second).UnixMicro() {
+			break
+		}
+		b.Received = time.UnixMicro(b.T0Us + int64(b.Len())*b.DtUs + 2000).UTC()
+		q <- storage.Item{Block: &b}
+	}
+	close(q)
+	require.NoError(t, <-done)
+	run, err := store.Run(id)
+	require.NoError(t, err)
+	fine, err := process.RunTimeline(t.Context(), store, run, 200)
+	require.NoError(t, err)
+	coarse, err := process.RunTimeline(t.Context(), store, run, 13)
+	require.NoError(t, err)
+	assert.GreaterOrEqual(t, coarse.Bin, time.Second)
+	assert.GreaterOrEqual(t, len(coarse.T), 10)
+	agree(t, fine, coarse)
+}
+
+func simRoof(r *rig.Rig, start time.Time) (*sim.Roof, error) {
+	return sim.NewRoof(r, sim.RoofConfig{QPa: 250, Seed: 4, Start: start})
 }
