@@ -26,8 +26,9 @@ const blockHeaderLen = 1 + 8 + 8 + 8 + 8 + 2 + 4
 // maxBlockReadings bounds channels × samples of one block. A compact channel
 // may hold any number of equal readings in a few bytes, so the decoder
 // needs a bound before it allocates; a real block is a fraction of a second
-// of data, far below it (16 M readings, 128 MB of float64).
-const maxBlockReadings = 1 << 24
+// of data, far below it (4 M readings, 32 MB of float64; an MQTT payload
+// holds at most about 0.2 M).
+const maxBlockReadings = 1 << 22
 
 // encodeBlock appends the binary form of b (block format version 2) to
 // dst. The source name is not part of it: it is the name of the bucket the
