@@ -56,10 +56,15 @@ func RunTimeline(ctx context.Context, store *storage.Store, run storage.Run, poi
 	if points < 1 || points > MaxTimelinePoints {
 		return Timeline{}, fmt.Errorf("timeline points %d: give 1 to %d", points, MaxTimelinePoints)
 	}
-	if _, err := StoredRig(run); err != nil {
+	r, err := StoredRig(run)
+	if err != nil {
 		return Timeline{}, err
 	}
-	src, widthUs, err := timelineSource(store, run.ID, points)
+	declared := make(map[string]bool, len(r.Channels))
+	for _, c := range r.Channels {
+		declared[c.Name] = true
+	}
+	src, widthUs, err := timelineSource(store, run.ID, points, declared)
 	if err != nil {
 		return Timeline{}, err
 	}
@@ -70,7 +75,7 @@ func RunTimeline(ctx context.Context, store *storage.Store, run storage.Run, poi
 // whose width times points is at most the run's span (its bins as blocks
 // of one sample), or the raw blocks (widthUs 0) when even the finest is too
 // coarse.
-func timelineSource(store *storage.Store, runID uint64, points int) (acquire.Replayer, int64, error) {
+func timelineSource(store *storage.Store, runID uint64, points int, declared map[string]bool) (acquire.Replayer, int64, error) {
 	raw := &acquire.StoredRun{Store: store, RunID: runID}
 	for level := len(storage.RollupWidths) - 1; level >= 0; level-- {
 		wUs := storage.RollupWidths[level].Microseconds()
@@ -89,7 +94,7 @@ func timelineSource(store *storage.Store, runID uint64, points int) (acquire.Rep
 		}
 		if wUs*int64(points) <= hi-lo {
 			pointUs := (hi - lo + int64(points) - 1) / int64(points)
-			return rollupBlocks(bins, wUs, lo, pointUs), wUs, nil
+			return rollupBlocks(bins, wUs, lo, pointUs, declared), wUs, nil
 		}
 	}
 	return raw, 0, nil
@@ -106,9 +111,10 @@ const rollupSampleUs = 250_000
 // means repeated every rollupSampleUs across the bin, and the consecutive
 // bins of a source that fall in one point of the timeline (pointUs wide,
 // from loUs) make one block, so the pipeline steps and estimates about
-// once per point. Blocks are ordered by receive time across sources as
-// storage.Store.ReplayBlocks orders raw blocks.
-func rollupBlocks(bins map[string][]storage.RollupBin, wUs, loUs, pointUs int64) acquire.Blocks {
+// once per point. Only the channels the rig declares are kept (the
+// pipeline would drop the others). Blocks are ordered by receive time
+// across sources as storage.Store.ReplayBlocks orders raw blocks.
+func rollupBlocks(bins map[string][]storage.RollupBin, wUs, loUs, pointUs int64, declared map[string]bool) rollupReplay {
 	per := int(max(1, wUs/rollupSampleUs))
 	dt := wUs / int64(per)
 	sameChannels := func(a, b storage.RollupBin) bool {
@@ -122,7 +128,7 @@ func rollupBlocks(bins map[string][]storage.RollupBin, wUs, loUs, pointUs int64)
 		}
 		return true
 	}
-	var out acquire.Blocks
+	var out rollupReplay
 	for src, bs := range bins {
 		for i := 0; i < len(bs); {
 			j := i + 1
@@ -138,6 +144,9 @@ func rollupBlocks(bins map[string][]storage.RollupBin, wUs, loUs, pointUs int64)
 				blk.Received = time.UnixMicro(blk.T0Us + int64(n-1)*dt + last.OffsetUs).UTC()
 			}
 			for c := range bs[i].Channels {
+				if !declared[bs[i].Channels[c].Channel] {
+					continue
+				}
 				raw := make([]float64, 0, n)
 				for _, b := range group {
 					m := b.Channels[c].RawMean()
@@ -162,6 +171,23 @@ func rollupBlocks(bins map[string][]storage.RollupBin, wUs, loUs, pointUs int64)
 		return a.Source < b.Source
 	})
 	return out
+}
+
+// rollupReplay replays blocks made for one replay only: unlike
+// acquire.Blocks it hands them over without copying their readings.
+type rollupReplay []acquire.Block
+
+// Replay implements acquire.Replayer.
+func (bs rollupReplay) Replay(ctx context.Context, fn func(acquire.Block) error) error {
+	for _, b := range bs {
+		if err := ctx.Err(); err != nil {
+			return err
+		}
+		if err := fn(b); err != nil {
+			return err
+		}
+	}
+	return nil
 }
 
 // runTimeline replays src (raw blocks, or rollup bins of widthUs) through

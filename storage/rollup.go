@@ -102,7 +102,12 @@ func encodeRollupBin(b *RollupBin) []byte {
 	return dst
 }
 
-func decodeRollupBin(data []byte, b *RollupBin) error {
+func decodeRollupBin(data []byte, b *RollupBin) error { return decodeRollupBinAfter(data, b, nil) }
+
+// decodeRollupBinAfter decodes data into b, reusing the channel name
+// strings of prev (the bin before, or nil) where they are the same: a
+// run's bins repeat their channels, and an hour at 1 s is 3,600 bins.
+func decodeRollupBinAfter(data []byte, b *RollupBin, prev *RollupBin) error {
 	bad := func(what string) error {
 		return fmt.Errorf("rollup bin of %d bytes: %s: %w", len(data), what, ErrCorrupt)
 	}
@@ -143,7 +148,12 @@ func decodeRollupBin(data []byte, b *RollupBin) error {
 		if !ok || l > uint64(len(rest)) {
 			return bad("channel name cut short")
 		}
-		name := string(rest[:l])
+		var name string
+		if prev != nil && i < len(prev.Channels) && prev.Channels[i].Channel == string(rest[:l]) {
+			name = prev.Channels[i].Channel // the comparison does not allocate
+		} else {
+			name = string(rest[:l])
+		}
 		rest = rest[l:]
 		cnt, ok := uv()
 		if !ok || len(rest) < 24 || cnt > math.MaxInt32 {
@@ -315,7 +325,11 @@ func (s *Store) RunRollups(id uint64, level int) (bins map[string][]RollupBin, s
 			var list []RollupBin
 			for k, v := c.Seek(prefix); k != nil && k[0] == byte(level); k, v = c.Next() {
 				var b RollupBin
-				if err := decodeRollupBin(v, &b); err != nil {
+				var prev *RollupBin
+				if len(list) > 0 {
+					prev = &list[len(list)-1]
+				}
+				if err := decodeRollupBinAfter(v, &b, prev); err != nil {
 					return fmt.Errorf("run %d source %q key %x: %w", id, src, k, err)
 				}
 				b.T0Us = i64FromKey(k[1:])
