@@ -256,9 +256,17 @@ func (rs rollupSet) addLevel(blk *acquire.Block, only int) {
 	}
 }
 
-// putRollups merges rs into the run's stored bins, in tx.
-func putRollups(tx *bolt.Tx, runID uint64, rs rollupSet) error {
+// putRollups merges rs into the run's stored bins, in tx. hadBlocks says
+// the run had blocks before this commit: when it has them but no rollups
+// (blocks stored by a liftyard of before rollups), it gets none now either,
+// so that RunRollups computes them from all its blocks rather than
+// returning the new blocks' only.
+func putRollups(tx *bolt.Tx, runID uint64, rs rollupSet, hadBlocks bool) error {
 	if len(rs) == 0 {
+		return nil
+	}
+	top := tx.Bucket(bucketRollup)
+	if hadBlocks && (top == nil || top.Bucket(u64(runID)) == nil) {
 		return nil
 	}
 	top, err := tx.CreateBucketIfNotExists(bucketRollup)

@@ -192,3 +192,22 @@ func TestRollups_OldStoreComputedFromRaw(t *testing.T) {
 		t.Error("rollup level out of range: no error")
 	}
 }
+
+// Ensure that blocks appended to a run stored before rollups existed do not
+// start a rollup of the new blocks only: the run's rollups still come from
+// all its blocks, old and new.
+func TestRollups_AppendToOldRun(t *testing.T) {
+	fx := loadV1Fixture(t)
+	s := openFixtureCopy(t, storeV1Path)
+	id := fx.Runs[1].ID // the roof run
+	w := s.NewWriter(id, storage.WriterConfig{})
+	q := w.NewQueue()
+	b := &acquire.Block{Source: "scanner", Seq: 99, T0Us: 5_000_000, DtUs: 10_000,
+		Series: []acquire.Series{{Channel: "tap_01", Raw: []float64{-120.5, -119.25}}}}
+	q <- storage.Item{Block: b}
+	close(q)
+	if err := w.Run(context.Background(), q); err != nil {
+		t.Fatal(err)
+	}
+	checkRollups(t, s, id, false)
+}

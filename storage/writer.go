@@ -276,6 +276,7 @@ func (w *Writer) commit(b *batch) (err error) {
 		if len(enc) > 0 {
 			raw := tx.Bucket(bucketRaw)
 			raw.FillPercent = appendFill
+			hadBlocks := raw.Bucket(u64(w.runID)) != nil
 			rb, err := raw.CreateBucketIfNotExists(u64(w.runID))
 			if err != nil {
 				return err
@@ -300,7 +301,7 @@ func (w *Writer) commit(b *batch) (err error) {
 				}
 				nBlocks++
 			}
-			if err := putRollups(tx, w.runID, roll); err != nil {
+			if err := putRollups(tx, w.runID, roll, hadBlocks); err != nil {
 				return err
 			}
 		}
