@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"sort"
 	"time"
 
 	"liftyard/acquire"
@@ -39,14 +40,159 @@ type Timeline struct {
 	SpinRatio []float64 // rotors: ωR/V
 }
 
-// RunTimeline replays run's stored raw blocks through the pipeline of the
-// rig stored with it (the flow-off zero before the run applied, as live)
-// and returns its timeline in at most points points (1 … MaxTimelinePoints).
-// It reads every raw block of the run: callers cache the result.
+// RunTimeline returns run's timeline in at most points points (1 …
+// MaxTimelinePoints), from the pipeline of the rig stored with it (the
+// flow-off zero before the run applied, as live).
+//
+// When a point spans at least the finest rollup width (storage.RollupWidths,
+// 1 s), it replays the run's trend rollups instead of its raw blocks: the
+// coarsest rollup whose bins still give the points asked for, each bin's
+// channel means as one sample at the bin's middle. A long run then costs a
+// few thousand samples, not every reading (docs/performance.md). A run
+// stored before rollups existed has them computed from its raw blocks
+// (storage.Store.RunRollups). Shorter spans replay every raw block.
+// Callers cache the result.
 func RunTimeline(ctx context.Context, store *storage.Store, run storage.Run, points int) (Timeline, error) {
 	if points < 1 || points > MaxTimelinePoints {
 		return Timeline{}, fmt.Errorf("timeline points %d: give 1 to %d", points, MaxTimelinePoints)
 	}
+	r, err := StoredRig(run)
+	if err != nil {
+		return Timeline{}, err
+	}
+	declared := make(map[string]bool, len(r.Channels))
+	for _, c := range r.Channels {
+		declared[c.Name] = true
+	}
+	src, widthUs, err := timelineSource(store, run.ID, points, declared)
+	if err != nil {
+		return Timeline{}, err
+	}
+	return runTimeline(ctx, store, run, points, src, widthUs)
+}
+
+// timelineSource picks what RunTimeline replays: the coarsest rollup level
+// whose width times points is at most the run's span (its bins as blocks
+// of one sample), or the raw blocks (widthUs 0) when even the finest is too
+// coarse.
+func timelineSource(store *storage.Store, runID uint64, points int, declared map[string]bool) (acquire.Replayer, int64, error) {
+	raw := &acquire.StoredRun{Store: store, RunID: runID}
+	for level := len(storage.RollupWidths) - 1; level >= 0; level-- {
+		wUs := storage.RollupWidths[level].Microseconds()
+		bins, _, err := store.RunRollups(runID, level)
+		if err != nil {
+			return nil, 0, err
+		}
+		lo, hi := int64(math.MaxInt64), int64(math.MinInt64)
+		for _, bs := range bins {
+			if len(bs) > 0 {
+				lo, hi = min(lo, bs[0].T0Us), max(hi, bs[len(bs)-1].T0Us+wUs)
+			}
+		}
+		if lo >= hi {
+			return raw, 0, nil // no blocks
+		}
+		if wUs*int64(points) <= hi-lo {
+			pointUs := (hi - lo + int64(points) - 1) / int64(points)
+			return rollupBlocks(bins, wUs, lo, pointUs, declared), wUs, nil
+		}
+	}
+	return raw, 0, nil
+}
+
+// rollupSampleUs is the spacing of the samples a rollup bin is replayed
+// as. The estimator judges steadiness and withholds coefficients until its
+// moving window (2 s) holds enough samples: one sample per bin would leave
+// it waiting, so each bin is replayed as width/250 ms equal samples (its
+// channel means), which its window sees as it would a steady hold.
+const rollupSampleUs = 250_000
+
+// rollupBlocks turns rollup bins into blocks: each bin is its channel
+// means repeated every rollupSampleUs across the bin, and the consecutive
+// bins of a source that fall in one point of the timeline (pointUs wide,
+// from loUs) make one block, so the pipeline steps and estimates about
+// once per point. Only the channels the rig declares are kept (the
+// pipeline would drop the others). Blocks are ordered by receive time
+// across sources as storage.Store.ReplayBlocks orders raw blocks.
+func rollupBlocks(bins map[string][]storage.RollupBin, wUs, loUs, pointUs int64, declared map[string]bool) rollupReplay {
+	per := int(max(1, wUs/rollupSampleUs))
+	dt := wUs / int64(per)
+	sameChannels := func(a, b storage.RollupBin) bool {
+		if len(a.Channels) != len(b.Channels) {
+			return false
+		}
+		for i := range a.Channels {
+			if a.Channels[i].Channel != b.Channels[i].Channel {
+				return false
+			}
+		}
+		return true
+	}
+	var out rollupReplay
+	for src, bs := range bins {
+		for i := 0; i < len(bs); {
+			j := i + 1
+			point := (bs[i].T0Us - loUs) / pointUs
+			for j < len(bs) && bs[j].T0Us == bs[j-1].T0Us+wUs && (bs[j].T0Us-loUs)/pointUs == point && sameChannels(bs[i], bs[j]) {
+				j++
+			}
+			group := bs[i:j]
+			n := per * len(group)
+			blk := acquire.Block{Source: src, Seq: uint64(bs[i].T0Us / wUs), T0Us: bs[i].T0Us + dt/2, DtUs: dt}
+			last := group[len(group)-1]
+			if last.HasOffset {
+				blk.Received = time.UnixMicro(blk.T0Us + int64(n-1)*dt + last.OffsetUs).UTC()
+			}
+			for c := range bs[i].Channels {
+				if !declared[bs[i].Channels[c].Channel] {
+					continue
+				}
+				raw := make([]float64, 0, n)
+				for _, b := range group {
+					m := b.Channels[c].RawMean()
+					for range per {
+						raw = append(raw, m)
+					}
+				}
+				blk.Series = append(blk.Series, acquire.Series{Channel: bs[i].Channels[c].Channel, Raw: raw})
+			}
+			out = append(out, blk)
+			i = j
+		}
+	}
+	sort.SliceStable(out, func(i, j int) bool {
+		a, b := out[i], out[j]
+		if !a.Received.Equal(b.Received) {
+			return a.Received.Before(b.Received)
+		}
+		if a.T0Us != b.T0Us {
+			return a.T0Us < b.T0Us
+		}
+		return a.Source < b.Source
+	})
+	return out
+}
+
+// rollupReplay replays blocks made for one replay only: unlike
+// acquire.Blocks it hands them over without copying their readings.
+type rollupReplay []acquire.Block
+
+// Replay implements acquire.Replayer.
+func (bs rollupReplay) Replay(ctx context.Context, fn func(acquire.Block) error) error {
+	for _, b := range bs {
+		if err := ctx.Err(); err != nil {
+			return err
+		}
+		if err := fn(b); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// runTimeline replays src (raw blocks, or rollup bins of widthUs) through
+// the run's pipeline and bins the live estimates into points.
+func runTimeline(ctx context.Context, store *storage.Store, run storage.Run, points int, src acquire.Replayer, widthUs int64) (Timeline, error) {
 	r, err := StoredRig(run)
 	if err != nil {
 		return Timeline{}, err
@@ -69,7 +215,6 @@ func RunTimeline(ctx context.Context, store *storage.Store, run storage.Run, poi
 	}
 	var samples []sample
 	var firstUs int64 = math.MaxInt64
-	src := &acquire.StoredRun{Store: store, RunID: run.ID}
 	_, err = Replay(ctx, src, p, func(b *acquire.Block, _ Step) error {
 		if b == nil {
 			return nil
@@ -83,7 +228,9 @@ func RunTimeline(ctx context.Context, store *storage.Store, run storage.Run, poi
 		}
 		// The window's middle; before the window has filled, the middle
 		// of the samples so far.
-		span := min(lv.Window, lv.T.Sub(time.UnixMicro(firstUs)))
+		// A rollup bin is one block: its estimate stands for the bin.
+		window := max(lv.Window, time.Duration(widthUs)*time.Microsecond)
+		span := min(window, lv.T.Sub(time.UnixMicro(firstUs)))
 		mid := lv.T.Add(-span / 2)
 		s := sample{tUs: mid.UnixMicro(), q: lv.QPa.X, alpha: math.NaN(), cl: math.NaN(), spin: math.NaN()}
 		if kind != rig.KindRoof {

@@ -9,41 +9,48 @@ import (
 	"liftyard/acquire"
 )
 
-// blockVersion is the first byte of every stored block.
-const blockVersion = 1
+// Block record versions: the first byte of every stored block. Version 1
+// (float64 bits per reading) is still read; new blocks are written as
+// version 2 (per-channel compact codecs). docs/storage.md describes both.
+const (
+	blockV1      = 1
+	blockV2      = 2
+	blockVersion = blockV2
+)
 
-// blockHeaderLen is the fixed part of an encoded block: version (1), seq (8),
-// t0_us (8), dt_us (8), received unix ns (8), channel count (2), sample
-// count (4).
+// blockHeaderLen is the fixed header of a version 1 record: version (1),
+// seq (8), t0_us (8), dt_us (8), received unix ns (8), channel count (2),
+// sample count (4).
 const blockHeaderLen = 1 + 8 + 8 + 8 + 8 + 2 + 4
 
-// encodeBlock appends the binary form of b to dst. The source name is not
-// part of it: it is the name of the bucket the block is stored in.
+// maxBlockReadings bounds channels × samples of one block. A compact channel
+// may hold any number of equal readings in a few bytes, so the decoder
+// needs a bound before it allocates; a real block is a fraction of a second
+// of data, far below it (4 M readings, 32 MB of float64; an MQTT payload
+// holds at most about 0.2 M).
+const maxBlockReadings = 1 << 22
+
+// encodeBlock appends the binary form of b (block format version 2) to
+// dst. The source name is not part of it: it is the name of the bucket the
+// block is stored in.
 //
-// Layout, all integers big-endian:
-//
-//	u8  version (1)
-//	u64 seq
-//	i64 t0_us
-//	i64 dt_us
-//	i64 received, Unix ns (0 = zero time)
-//	u16 channel count C
-//	u32 sample count N
-//	C × (u16 name length, name bytes)
-//	C × N × float64 bits, channel by channel (NaN kept bit for bit)
-//
-// The encoding is canonical: decoding and encoding again gives the same
-// bytes.
+// Layout (docs/storage.md §2): u8 version (2); uvarint seq; zigzag varints
+// t0_us, dt_us and received Unix ns (0 = zero time); uvarint channel count
+// C; uvarint sample count N; C names, each as (uvarint bytes shared with the
+// previous name's start, uvarint length of the rest, the rest); then C
+// channels, each in the smallest exact codec of blockcodec.go. Every
+// reading decodes to the same float64 bits (NaN payloads and −0 included).
 func encodeBlock(dst []byte, b *acquire.Block) ([]byte, error) {
 	n := b.Len()
 	if len(b.Series) > math.MaxUint16 {
 		return dst, fmt.Errorf("block %s seq %d: %d channels (at most %d): %w",
 			b.Source, b.Seq, len(b.Series), math.MaxUint16, ErrBadRecord)
 	}
-	if n > math.MaxUint32 {
-		return dst, fmt.Errorf("block %s seq %d: %d samples: %w", b.Source, b.Seq, n, ErrBadRecord)
+	if uint64(n)*uint64(max(len(b.Series), 1)) > maxBlockReadings {
+		return dst, fmt.Errorf("block %s seq %d: %d channels × %d samples (at most %d readings): %w",
+			b.Source, b.Seq, len(b.Series), n, maxBlockReadings, ErrBadRecord)
 	}
-	size := blockHeaderLen
+	size := 1 + 5*binary.MaxVarintLen64
 	for i := range b.Series {
 		s := &b.Series[i]
 		if len(s.Raw) != n {
@@ -54,7 +61,7 @@ func encodeBlock(dst []byte, b *acquire.Block) ([]byte, error) {
 			return dst, fmt.Errorf("block %s seq %d: channel name of %d bytes: %w",
 				b.Source, b.Seq, len(s.Channel), ErrBadRecord)
 		}
-		size += 2 + len(s.Channel) + 8*n
+		size += 3 + len(s.Channel) + 3*n + 16
 	}
 	var recv int64
 	if !b.Received.IsZero() {
@@ -65,34 +72,133 @@ func encodeBlock(dst []byte, b *acquire.Block) ([]byte, error) {
 		copy(grown, dst)
 		dst = grown
 	}
-	dst = append(dst, blockVersion)
-	dst = binary.BigEndian.AppendUint64(dst, b.Seq)
-	dst = binary.BigEndian.AppendUint64(dst, uint64(b.T0Us))
-	dst = binary.BigEndian.AppendUint64(dst, uint64(b.DtUs))
-	dst = binary.BigEndian.AppendUint64(dst, uint64(recv))
-	dst = binary.BigEndian.AppendUint16(dst, uint16(len(b.Series)))
-	dst = binary.BigEndian.AppendUint32(dst, uint32(n))
+	dst = append(dst, blockV2)
+	dst = binary.AppendUvarint(dst, b.Seq)
+	dst = binary.AppendVarint(dst, b.T0Us)
+	dst = binary.AppendVarint(dst, b.DtUs)
+	dst = binary.AppendVarint(dst, recv)
+	dst = binary.AppendUvarint(dst, uint64(len(b.Series)))
+	dst = binary.AppendUvarint(dst, uint64(n))
+	prev := ""
 	for i := range b.Series {
-		dst = binary.BigEndian.AppendUint16(dst, uint16(len(b.Series[i].Channel)))
-		dst = append(dst, b.Series[i].Channel...)
-	}
-	for i := range b.Series {
-		for _, v := range b.Series[i].Raw {
-			dst = binary.BigEndian.AppendUint64(dst, math.Float64bits(v))
+		name := b.Series[i].Channel
+		shared := 0
+		for shared < len(name) && shared < len(prev) && name[shared] == prev[shared] {
+			shared++
 		}
+		dst = binary.AppendUvarint(dst, uint64(shared))
+		dst = binary.AppendUvarint(dst, uint64(len(name)-shared))
+		dst = append(dst, name[shared:]...)
+		prev = name
+	}
+	ks := make([]int64, n)
+	for i := range b.Series {
+		dst = appendChannel(dst, b.Series[i].Raw, ks)
 	}
 	return dst, nil
 }
 
-// decodeBlock decodes data into b (all but b.Source). Every slice and string
-// in b is a copy, so data may be a bbolt page that goes away when its
-// transaction ends. A malformed record returns an error wrapping ErrCorrupt.
+// decodeBlock decodes data (block format version 1 or 2) into b (all but
+// b.Source). Every slice and string in b is a copy, so data may be a bbolt
+// page that goes away when its transaction ends. A malformed record returns
+// an error wrapping ErrCorrupt; no input makes it panic (FuzzDecodeBlock).
 func decodeBlock(data []byte, b *acquire.Block) error {
+	if len(data) == 0 {
+		return fmt.Errorf("block record of 0 bytes: %w", ErrCorrupt)
+	}
+	switch data[0] {
+	case blockV1:
+		return decodeBlockV1(data, b)
+	case blockV2:
+		return decodeBlockV2(data, b)
+	}
+	return fmt.Errorf("block record version %d (this liftyard reads 1 and 2; a newer one wrote it?): %w", data[0], ErrCorrupt)
+}
+
+func decodeBlockV2(data []byte, b *acquire.Block) error {
+	rest := data[1:]
+	var fields [6]uint64
+	for i := range fields {
+		u, m := binary.Uvarint(rest)
+		if m <= 0 {
+			return fmt.Errorf("block record of %d bytes: header cut short: %w", len(data), ErrCorrupt)
+		}
+		fields[i] = u
+		rest = rest[m:]
+	}
+	seq := fields[0]
+	t0, dt, recv := unzigzag(fields[1]), unzigzag(fields[2]), unzigzag(fields[3])
+	nch, n64 := fields[4], fields[5]
+	if nch > math.MaxUint16 {
+		return fmt.Errorf("block record seq %d: %d channels: %w", seq, nch, ErrCorrupt)
+	}
+	if nch == 0 && n64 != 0 {
+		return fmt.Errorf("block record seq %d: %d samples but no channel: %w", seq, n64, ErrCorrupt)
+	}
+	if n64*max(nch, 1) > maxBlockReadings || n64 > maxBlockReadings {
+		return fmt.Errorf("block record seq %d: %d channels × %d samples (at most %d readings): %w",
+			seq, nch, n64, maxBlockReadings, ErrCorrupt)
+	}
+	n := int(n64)
+	names := make([]string, nch)
+	prev := ""
+	for i := range names {
+		shared, m := binary.Uvarint(rest)
+		if m <= 0 || shared > uint64(len(prev)) {
+			return fmt.Errorf("block record seq %d: channel %d name cut short: %w", seq, i, ErrCorrupt)
+		}
+		rest = rest[m:]
+		l, m := binary.Uvarint(rest)
+		if m <= 0 || uint64(len(rest)-m) < l || shared+l > math.MaxUint16 {
+			return fmt.Errorf("block record seq %d: channel %d name cut short: %w", seq, i, ErrCorrupt)
+		}
+		rest = rest[m:]
+		names[i] = prev[:shared] + string(rest[:l])
+		rest = rest[l:]
+		prev = names[i]
+	}
+	series := make([]acquire.Series, nch)
+	all := make([]float64, int(nch)*n)
+	for i := range series {
+		raw := all[i*n : (i+1)*n : (i+1)*n]
+		var err error
+		if rest, err = decodeChannel(rest, raw); err != nil {
+			return fmt.Errorf("block record seq %d: channel %d (%q) of %d samples: %w: %w", seq, i, names[i], n, err, ErrCorrupt)
+		}
+		series[i] = acquire.Series{Channel: names[i], Raw: raw}
+	}
+	if len(rest) != 0 {
+		return fmt.Errorf("block record seq %d: %d bytes after the last channel: %w", seq, len(rest), ErrCorrupt)
+	}
+	setBlock(b, seq, t0, dt, recv, series)
+	return nil
+}
+
+func setBlock(b *acquire.Block, seq uint64, t0, dt, recv int64, series []acquire.Series) {
+	b.Seq, b.T0Us, b.DtUs = seq, t0, dt
+	b.Received = time.Time{}
+	if recv != 0 {
+		b.Received = time.Unix(0, recv).UTC()
+	}
+	b.Series = series
+}
+
+// decodeBlockV1 decodes a version 1 record:
+//
+//	u8  version (1)
+//	u64 seq
+//	i64 t0_us
+//	i64 dt_us
+//	i64 received, Unix ns (0 = zero time)
+//	u16 channel count C
+//	u32 sample count N
+//	C × (u16 name length, name bytes)
+//	C × N × float64 bits, channel by channel
+//
+// all integers big-endian.
+func decodeBlockV1(data []byte, b *acquire.Block) error {
 	if len(data) < blockHeaderLen {
 		return fmt.Errorf("block record of %d bytes (header is %d): %w", len(data), blockHeaderLen, ErrCorrupt)
-	}
-	if data[0] != blockVersion {
-		return fmt.Errorf("block record version %d (want %d): %w", data[0], blockVersion, ErrCorrupt)
 	}
 	seq := binary.BigEndian.Uint64(data[1:])
 	t0 := int64(binary.BigEndian.Uint64(data[9:]))
@@ -132,12 +238,7 @@ func decodeBlock(data []byte, b *acquire.Block) error {
 		}
 		series[i] = acquire.Series{Channel: names[i], Raw: raw}
 	}
-	b.Seq, b.T0Us, b.DtUs = seq, t0, dt
-	b.Received = time.Time{}
-	if recv != 0 {
-		b.Received = time.Unix(0, recv).UTC()
-	}
-	b.Series = series
+	setBlock(b, seq, t0, dt, recv, series)
 	return nil
 }
 

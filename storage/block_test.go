@@ -5,21 +5,26 @@ import (
 	"encoding/binary"
 	"errors"
 	"math"
+	"math/rand/v2"
+	"strconv"
 	"testing"
 	"time"
+
+	bolt "go.etcd.io/bbolt"
 
 	"liftyard/acquire"
 )
 
-// Ensure that malformed block records give ErrCorrupt, each for its reason.
-func TestDecodeBlock_Errors(t *testing.T) {
-	good, err := encodeBlock(nil, &acquire.Block{Seq: 9, T0Us: 5, DtUs: 1000,
+// Ensure that malformed version 1 records give ErrCorrupt, each for its
+// reason.
+func TestDecodeBlock_V1Errors(t *testing.T) {
+	good, err := encodeBlockV1(nil, &acquire.Block{Seq: 9, T0Us: 5, DtUs: 1000,
 		Series: []acquire.Series{{Channel: "n_fore", Raw: []float64{1, 2}}}})
 	if err != nil {
 		t.Fatal(err)
 	}
 	withVersion := bytes.Clone(good)
-	withVersion[0] = 2
+	withVersion[0] = 3
 	noChannels := bytes.Clone(good[:blockHeaderLen])
 	binary.BigEndian.PutUint16(noChannels[33:], 0)
 	for _, tc := range []struct {
@@ -27,9 +32,9 @@ func TestDecodeBlock_Errors(t *testing.T) {
 		data []byte
 		msg  string
 	}{
-		{"empty", nil, "block record of 0 bytes (header is 39)"},
-		{"short header", good[:20], "block record of 20 bytes"},
-		{"future version", withVersion, "block record version 2 (want 1)"},
+		{"empty", nil, "block record of 0 bytes"},
+		{"short header", good[:20], "block record of 20 bytes (header is 39)"},
+		{"future version", withVersion, "block record version 3 (this liftyard reads 1 and 2"},
 		{"name cut", good[:blockHeaderLen+4], "channel 0 name cut short"},
 		{"readings cut", good[:len(good)-1], "15 bytes of readings for 1 channels × 2 samples"},
 		{"readings extra", append(bytes.Clone(good), 0), "17 bytes of readings"},
@@ -43,6 +48,76 @@ func TestDecodeBlock_Errors(t *testing.T) {
 	}
 }
 
+// Ensure that malformed version 2 records give ErrCorrupt, each for its
+// reason.
+func TestDecodeBlock_V2Errors(t *testing.T) {
+	good, err := encodeBlock(nil, &acquire.Block{Seq: 9, T0Us: 5, DtUs: 1000,
+		Series: []acquire.Series{{Channel: "n_fore", Raw: []float64{1, 2, 4, 7.5}}}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	hdr := []byte{blockV2, 9, 10, 0xd0, 0x0f, 0}
+	huge := binary.AppendUvarint(append(bytes.Clone(hdr), 1), 1<<30)
+	noCh := append(bytes.Clone(hdr), 0, 5)
+	badCodec := append(append(bytes.Clone(hdr), 1, 2, 0, 1, 'x'), 9)
+	badShare := append(bytes.Clone(hdr), 2, 0, 0, 1, 'x', 2, 0) // second name shares 2 bytes of "x"
+	for _, tc := range []struct {
+		name string
+		data []byte
+		msg  string
+	}{
+		{"header cut", good[:3], "header cut short"},
+		{"name cut", good[:10], "channel 0 name cut short"},
+		{"readings cut", good[:len(good)-1], `channel 0 ("n_fore") of 4 samples: channel data cut short`},
+		{"trailing bytes", append(bytes.Clone(good), 0), "1 bytes after the last channel"},
+		{"huge", huge, "1 channels × 1073741824 samples"},
+		{"samples without channels", noCh, "5 samples but no channel"},
+		{"unknown codec", badCodec, "channel data cut short or malformed"},
+		{"name shares more than the previous", badShare, "channel 1 name cut short"},
+	} {
+		var b acquire.Block
+		err := decodeBlock(tc.data, &b)
+		if !errors.Is(err, ErrCorrupt) || !bytes.Contains([]byte(err.Error()), []byte(tc.msg)) {
+			t.Errorf("%s: err = %v, want ErrCorrupt with %q", tc.name, err, tc.msg)
+		}
+	}
+}
+
+// roundTrip encodes b, decodes it and fails unless every reading comes back
+// bit for bit; it returns the encoded size.
+func roundTrip(t testing.TB, in *acquire.Block) int {
+	t.Helper()
+	data, err := encodeBlock(nil, in)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var out acquire.Block
+	if err := decodeBlock(data, &out); err != nil {
+		t.Fatalf("own encoding does not decode: %v", err)
+	}
+	if out.Seq != in.Seq || out.T0Us != in.T0Us || out.DtUs != in.DtUs || !out.Received.Equal(in.Received) ||
+		len(out.Series) != len(in.Series) {
+		t.Fatalf("header %+v, want %+v", out, in)
+	}
+	for c := range in.Series {
+		if out.Series[c].Channel != in.Series[c].Channel || len(out.Series[c].Raw) != len(in.Series[c].Raw) {
+			t.Fatalf("channel %d: %q of %d, want %q of %d", c, out.Series[c].Channel, len(out.Series[c].Raw),
+				in.Series[c].Channel, len(in.Series[c].Raw))
+		}
+		for i, v := range in.Series[c].Raw {
+			if got := out.Series[c].Raw[i]; math.Float64bits(got) != math.Float64bits(v) {
+				t.Fatalf("channel %d reading %d: %x (%v), want %x (%v)", c, i,
+					math.Float64bits(got), got, math.Float64bits(v), v)
+			}
+		}
+	}
+	again, err := encodeBlock(nil, &out)
+	if err != nil || !bytes.Equal(again, data) {
+		t.Fatalf("encode → decode → encode changed the bytes (%v)", err)
+	}
+	return len(data)
+}
+
 // Ensure that a block decodes back to itself, NaN payload bits included,
 // and that the encoding is canonical.
 func TestEncodeBlock_RoundTrip(t *testing.T) {
@@ -53,7 +128,125 @@ func TestEncodeBlock_RoundTrip(t *testing.T) {
 			{Channel: "n_fore", Raw: []float64{1.5, math.NaN(), math.Copysign(0, -1)}},
 			{Channel: "", Raw: []float64{nanPayload, math.Inf(1), 1e-300}},
 		}}
-	data, err := encodeBlock(nil, &in)
+	roundTrip(t, &in)
+
+	taps := acquire.Block{Seq: 1, DtUs: 10_000}
+	for _, name := range []string{"tap_01", "tap_02", "tap_10", "tap_1", "pitot", "", "tap_01", "tap_01_ref", "τ_ü"} {
+		taps.Series = append(taps.Series, acquire.Series{Channel: name, Raw: []float64{-12.25, 3}})
+	}
+	roundTrip(t, &taps)
+}
+
+// Ensure that every regime of sensor data round-trips bit for bit, and
+// that each takes the codec it should (its size per reading says so).
+func TestEncodeBlock_Regimes(t *testing.T) {
+	rng := rand.New(rand.NewPCG(3, 14))
+	gen := func(n int, f func(i int) float64) []float64 {
+		v := make([]float64, n)
+		for i := range v {
+			v[i] = f(i)
+		}
+		return v
+	}
+	parse := func(s string) float64 {
+		v, err := strconv.ParseFloat(s, 64)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return v
+	}
+	for _, tc := range []struct {
+		name    string
+		raw     []float64
+		maxByte float64 // bytes per reading at most (codec choice), 0: no check
+	}{
+		{"adc counts, noise 100", gen(1000, func(i int) float64 {
+			return math.Round(2_100_000 + 5000*math.Sin(float64(i)/300) + 100*rng.NormFloat64())
+		}), 1.45},
+		{"adc counts at full scale", gen(1000, func(i int) float64 {
+			return float64([]int{-8_388_608, 8_388_607}[i%2])
+		}), 3.2},
+		{"two-decimal pressures", gen(1000, func(i int) float64 {
+			return parse(strconv.FormatFloat(123.45+8*math.Sin(float64(i)/50)+2*rng.NormFloat64(), 'f', 2, 64))
+		}), 1.6},
+		{"six-decimal volts", gen(500, func(i int) float64 {
+			return parse(strconv.FormatFloat(-0.5+float64(i)*1e-6+rng.Float64()*1e-4, 'f', 6, 64))
+		}), 1.3},
+		{"nine decimals", gen(100, func(i int) float64 { return parse("0.00000000" + strconv.Itoa(1+i%9)) }), 0.7},
+		{"ten decimals (falls back)", gen(100, func(i int) float64 { return parse("0.000000000" + strconv.Itoa(1+i%9)) }), 0},
+		{"random float64 bits", gen(300, func(int) float64 { return math.Float64frombits(rng.Uint64()) }), 8.1},
+		{"random in [0,1)", gen(300, func(int) float64 { return rng.Float64() }), 8.1},
+		{"constant", gen(5000, func(int) float64 { return 812.25 }), 0.01},
+		{"constant NaN", gen(100, func(int) float64 { return math.NaN() }), 0.1},
+		{"NaN gaps in counts", gen(400, func(i int) float64 {
+			if i%50 == 7 {
+				return math.NaN()
+			}
+			return float64(1000 + i%13)
+		}), 1},
+		{"±Inf and −0", []float64{math.Inf(1), math.Inf(-1), math.Copysign(0, -1), 0, 1}, 0},
+		{"negative zero in decimals", []float64{-0.5, math.Copysign(0, -1), 0.25}, 0},
+		{"near 2^53", []float64{1 << 52, -(1 << 52), 1<<53 - 1, 1 << 53, 1<<53 + 2}, 0},
+		{"huge and tiny", []float64{math.MaxFloat64, -math.MaxFloat64, math.SmallestNonzeroFloat64, 1e-320}, 0},
+		{"single sample", []float64{-4721}, 0},
+		{"no samples", []float64{}, 0},
+		{"linear ramp (second order)", gen(1000, func(i int) float64 { return float64(1_000_000 + 37*i) }), 0.05},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			b := acquire.Block{Seq: 7, T0Us: 1_773_478_800_000_000, DtUs: 1000, Received: time.Unix(1_773_478_800, 5),
+				Series: []acquire.Series{{Channel: "ch", Raw: tc.raw}}}
+			size := roundTrip(t, &b)
+			if tc.maxByte > 0 {
+				per := float64(size-blockOverhead(&b)) / float64(len(tc.raw))
+				if per > tc.maxByte {
+					t.Errorf("%.2f bytes per reading, want at most %.2f", per, tc.maxByte)
+				}
+			}
+		})
+	}
+}
+
+// blockOverhead is the header and names of b's encoding.
+func blockOverhead(b *acquire.Block) int {
+	e, _ := encodeBlock(nil, &acquire.Block{Seq: b.Seq, T0Us: b.T0Us, DtUs: b.DtUs, Received: b.Received})
+	for _, s := range b.Series { // each test block has one channel: nothing shared
+		e = binary.AppendUvarint(e, 0)
+		e = binary.AppendUvarint(e, uint64(len(s.Channel)))
+		e = append(e, s.Channel...)
+	}
+	return len(e)
+}
+
+// Ensure that many channels and long channels round-trip, and that a block
+// above the reading bound is refused as a bad record, not stored.
+func TestEncodeBlock_Huge(t *testing.T) {
+	rng := rand.New(rand.NewPCG(1, 2))
+	b := acquire.Block{Seq: 1, DtUs: 10}
+	for c := range 300 {
+		raw := make([]float64, 2000)
+		for i := range raw {
+			raw[i] = math.Round(rng.NormFloat64()*float64(c*c+1)) / 100
+		}
+		b.Series = append(b.Series, acquire.Series{Channel: strconv.Itoa(c), Raw: raw})
+	}
+	roundTrip(t, &b)
+	long := acquire.Block{Seq: 2, Series: []acquire.Series{{Channel: "x", Raw: make([]float64, 1_000_000)}}}
+	for i := range long.Series[0].Raw {
+		long.Series[0].Raw[i] = float64(i % 1000)
+	}
+	roundTrip(t, &long)
+	over := acquire.Block{Seq: 3, Series: []acquire.Series{{Channel: "a", Raw: make([]float64, maxBlockReadings/2+1)},
+		{Channel: "b", Raw: make([]float64, maxBlockReadings/2+1)}}}
+	if _, err := encodeBlock(nil, &over); !errors.Is(err, ErrBadRecord) {
+		t.Errorf("block of %d readings: %v, want ErrBadRecord", maxBlockReadings+2, err)
+	}
+}
+
+// Ensure that version 1 records still decode, bit for bit.
+func TestDecodeBlock_V1(t *testing.T) {
+	in := acquire.Block{Seq: 3, T0Us: -5, DtUs: 1000, Received: time.Unix(1_750_000_000, 0).UTC(),
+		Series: []acquire.Series{{Channel: "pitot", Raw: []float64{201.4, math.Float64frombits(0x7ff8_0000_dead_beef), math.Copysign(0, -1)}}}}
+	data, err := encodeBlockV1(nil, &in)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -61,15 +254,13 @@ func TestEncodeBlock_RoundTrip(t *testing.T) {
 	if err := decodeBlock(data, &out); err != nil {
 		t.Fatal(err)
 	}
-	again, _ := encodeBlock(nil, &out)
-	if !bytes.Equal(data, again) {
-		t.Error("decode → encode changed the bytes")
-	}
-	if out.Seq != in.Seq || out.T0Us != in.T0Us || out.DtUs != in.DtUs || !out.Received.Equal(in.Received) {
+	if out.Seq != 3 || out.T0Us != -5 || !out.Received.Equal(in.Received) {
 		t.Errorf("header %+v", out)
 	}
-	if math.Float64bits(out.Series[1].Raw[0]) != 0x7ff8_0000_dead_beef || !math.Signbit(out.Series[0].Raw[2]) {
-		t.Error("NaN payload or negative zero lost")
+	for i, v := range in.Series[0].Raw {
+		if math.Float64bits(out.Series[0].Raw[i]) != math.Float64bits(v) {
+			t.Errorf("reading %d changed", i)
+		}
 	}
 }
 
@@ -89,38 +280,41 @@ func TestBlockKey_Order(t *testing.T) {
 	}
 }
 
-// FuzzDecodeBlock: decoding arbitrary bytes never panics; anything accepted
-// encodes back to the same bytes; and a block built from the fuzz input
-// round-trips through encode → decode.
+// FuzzDecodeBlock: decoding arbitrary bytes never panics and every error
+// wraps ErrCorrupt; anything accepted encodes (as version 2) to a record
+// that decodes to the same readings bit for bit; and a block built from the
+// fuzz input round-trips through encode → decode.
 func FuzzDecodeBlock(f *testing.F) {
-	seed, _ := encodeBlock(nil, &acquire.Block{Seq: 1, T0Us: 1000, DtUs: 1000,
+	blk := &acquire.Block{Seq: 1, T0Us: 1000, DtUs: 1000,
 		Received: time.Unix(1_750_000_000, 0),
-		Series: []acquire.Series{{Channel: "pitot", Raw: []float64{201.4, math.NaN()}},
-			{Channel: "n_fore", Raw: []float64{812.1, 813}}}})
-	f.Add(seed)
-	f.Add(seed[:blockHeaderLen])
+		Series: []acquire.Series{{Channel: "pitot", Raw: []float64{201.4, math.NaN(), 201.5}},
+			{Channel: "n_fore", Raw: []float64{812.1, 813, 815}},
+			{Channel: "k", Raw: []float64{1, 1, 1}},
+			{Channel: "x", Raw: []float64{1e300, -1e-300, 3}}}}
+	v1, _ := encodeBlockV1(nil, blk)
+	v2, _ := encodeBlock(nil, blk)
+	f.Add(v1)
+	f.Add(v1[:blockHeaderLen])
+	f.Add(v2)
+	f.Add(v2[:12])
 	f.Add([]byte{1})
+	f.Add([]byte{2})
 	f.Add([]byte{})
 	f.Fuzz(func(t *testing.T, data []byte) {
 		var b acquire.Block
 		if err := decodeBlock(data, &b); err == nil {
-			again, err := encodeBlock(nil, &b)
-			if err != nil {
-				t.Fatalf("decoded block does not encode: %v", err)
-			}
-			if !bytes.Equal(again, data) {
-				t.Fatalf("decode → encode changed the bytes:\n%x\n%x", data, again)
-			}
+			roundTrip(t, &b)
 		} else if !errors.Is(err, ErrCorrupt) {
 			t.Fatalf("error %v does not wrap ErrCorrupt", err)
 		}
 
-		// Build a block from the bytes: channels of names and readings.
+		// Build a block from the bytes: channels of names and readings,
+		// some as decimals so that the scaled codec is exercised.
 		if len(data) < 3 {
 			return
 		}
 		nch := int(data[0]%4) + 1
-		n := int(data[1] % 16)
+		n := int(data[1] % 64)
 		body := data[2:]
 		in := acquire.Block{Seq: uint64(len(data)), T0Us: int64(len(data)) * -7, DtUs: int64(data[1])}
 		for c := range nch {
@@ -128,32 +322,18 @@ func FuzzDecodeBlock(f *testing.F) {
 			for i := range raw {
 				var buf [8]byte
 				copy(buf[:], body[min(len(body), (c*n+i)%max(len(body), 1)):])
-				raw[i] = math.Float64frombits(binary.LittleEndian.Uint64(buf[:]))
+				u := binary.LittleEndian.Uint64(buf[:])
+				switch c {
+				case 0:
+					raw[i] = math.Float64frombits(u)
+				default:
+					raw[i] = float64(int64(u)>>(8*c+8)) / pow10[int(u%10)%(c*3+1)]
+				}
 			}
 			name := string(body[:min(len(body), c)])
 			in.Series = append(in.Series, acquire.Series{Channel: name, Raw: raw})
 		}
-		enc, err := encodeBlock(nil, &in)
-		if err != nil {
-			t.Fatal(err)
-		}
-		var out acquire.Block
-		if err := decodeBlock(enc, &out); err != nil {
-			t.Fatalf("own encoding does not decode: %v", err)
-		}
-		if out.Seq != in.Seq || out.T0Us != in.T0Us || out.DtUs != in.DtUs || len(out.Series) != nch {
-			t.Fatalf("header changed: %+v vs %+v", out, in)
-		}
-		for c := range in.Series {
-			if out.Series[c].Channel != in.Series[c].Channel {
-				t.Fatalf("channel %d name changed", c)
-			}
-			for i, v := range in.Series[c].Raw {
-				if math.Float64bits(out.Series[c].Raw[i]) != math.Float64bits(v) {
-					t.Fatalf("reading %d/%d changed", c, i)
-				}
-			}
-		}
+		roundTrip(t, &in)
 	})
 }
 
@@ -181,5 +361,33 @@ func TestSegmentJSON_NaN(t *testing.T) {
 	sg.Index = -1
 	if _, err := encodeSegment(&sg); !errors.Is(err, ErrBadRecord) {
 		t.Errorf("negative index: %v", err)
+	}
+}
+
+// Ensure that the migration fixture really holds version 1 records (so
+// TestMigration_* test the old format, not what the generator writes now).
+func TestFixtureV1_IsVersion1(t *testing.T) {
+	db, err := bolt.Open("testdata/store-v1.db", 0o600, &bolt.Options{ReadOnly: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer db.Close()
+	n := 0
+	err = db.View(func(tx *bolt.Tx) error {
+		return tx.Bucket(bucketRaw).ForEachBucket(func(run []byte) error {
+			rb := tx.Bucket(bucketRaw).Bucket(run)
+			return rb.ForEachBucket(func(src []byte) error {
+				return rb.Bucket(src).ForEach(func(_, v []byte) error {
+					if v[0] != blockV1 {
+						t.Errorf("run %x source %s: record version %d", run, src, v[0])
+					}
+					n++
+					return nil
+				})
+			})
+		})
+	})
+	if err != nil || n < 20 {
+		t.Fatalf("%d records, %v", n, err)
 	}
 }

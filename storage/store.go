@@ -25,6 +25,14 @@ const DefaultTimeout = 500 * time.Millisecond
 // commit rarely has to re-map the file, so readers rarely stall the writer.
 const initialMmapBytes = 1 << 30
 
+// pageBytes is the bbolt page size of a store created now (a file keeps the
+// page size it was created with; older stores have the system's 4 KiB).
+// A compact raw block (docs/storage.md) is 1–4 KiB; in 4 KiB pages bbolt
+// fits one or two of them per page and leaves the rest empty, while 32 KiB
+// pages hold a dozen and waste at most about one block per page
+// (docs/performance.md, "bytes on disk per reading").
+const pageBytes = 32 << 10
+
 // formatVersion is written to meta/format when a store is created.
 const formatVersion = "1"
 
@@ -133,6 +141,9 @@ func Open(path string, opts Options) (*Store, error) {
 		Timeout:         timeout,
 		ReadOnly:        opts.ReadOnly,
 		InitialMmapSize: initialMmapBytes,
+	}
+	if fresh {
+		bopts.PageSize = pageBytes // an existing file keeps its own
 	}
 	if opts.MaxSizeBytes > 0 {
 		bopts.MaxSize = int(opts.MaxSizeBytes)

@@ -4,6 +4,7 @@ import (
 	"bufio"
 	"context"
 	"errors"
+	"math"
 	"math/rand/v2"
 	"os"
 	"os/exec"
@@ -308,8 +309,15 @@ func TestWriter_ErrFull(t *testing.T) {
 	id := mustCreateRun(t, s)
 	w := s.NewWriter(id, storage.WriterConfig{MaxBlocks: 10})
 	in := make(chan storage.Item, 200)
-	for i := range 200 { // 200 × 8 ch × 100 samples × 8 B ≈ 1.3 MB
-		in <- storage.Item{Block: testBlock("bal", uint64(i), 100, "a", "b", "c", "d", "e", "f", "g", "h")}
+	rng := rand.New(rand.NewPCG(5, 6))
+	for i := range 200 { // 200 × 8 ch × 100 samples × 8 B ≈ 1.3 MB (random bits do not compress)
+		b := testBlock("bal", uint64(i), 100, "a", "b", "c", "d", "e", "f", "g", "h")
+		for _, sr := range b.Series {
+			for j := range sr.Raw {
+				sr.Raw[j] = math.Float64frombits(rng.Uint64())
+			}
+		}
+		in <- storage.Item{Block: b}
 	}
 	close(in)
 	err := w.Run(context.Background(), in)
@@ -348,7 +356,7 @@ func TestRead_FileTruncatedWhileOpen(t *testing.T) {
 	if err := w.Run(context.Background(), in); err != nil {
 		t.Fatal(err)
 	}
-	if err := os.Truncate(path, 16<<10); err != nil {
+	if err := os.Truncate(path, 64<<10); err != nil { // past both meta pages (32 KiB pages), short of the data
 		t.Fatal(err)
 	}
 	err := s.RawBlocks(id, func(acquire.Block) error { return nil })

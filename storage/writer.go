@@ -613,6 +613,7 @@ type encoded struct {
 	key    []byte
 	value  []byte
 	n      int
+	blk    *acquire.Block // for the rollups
 }
 
 // commit writes b in one transaction: the blocks, segments and events, and
@@ -647,7 +648,7 @@ func (w *Writer) commit(b *batch) (err error) {
 			continue
 		}
 		encBytes += uint64(len(val))
-		enc = append(enc, encoded{source: blk.Source, key: blockKey(nil, blk), value: val, n: blk.Len()})
+		enc = append(enc, encoded{source: blk.Source, key: blockKey(nil, blk), value: val, n: blk.Len(), blk: blk})
 	}
 	// A segment that cannot be encoded is logged and left out, like a
 	// block: retrying would never store it.
@@ -667,6 +668,7 @@ func (w *Writer) commit(b *batch) (err error) {
 	start := time.Now()
 	err = w.s.db.Update(func(tx *bolt.Tx) error {
 		nBlocks, nSamples = 0, 0 // Update may not re-run fn, but keep it idempotent
+		roll := rollupSet{}      // trend rollups of the new blocks (rollup.go)
 		r, err := getRun(tx, w.runID)
 		if err != nil {
 			return err
@@ -674,6 +676,7 @@ func (w *Writer) commit(b *batch) (err error) {
 		if len(enc) > 0 {
 			raw := tx.Bucket(bucketRaw)
 			raw.FillPercent = appendFill
+			hadBlocks := raw.Bucket(u64(w.runID)) != nil
 			rb, err := raw.CreateBucketIfNotExists(u64(w.runID))
 			if err != nil {
 				return err
@@ -691,11 +694,15 @@ func (w *Writer) commit(b *batch) (err error) {
 				}
 				if sb.Get(e.key) == nil { // a repeated block replaces, not adds
 					nSamples += uint64(e.n)
+					roll.add(e.blk)
 				}
 				if err := sb.Put(e.key, e.value); err != nil {
 					return err
 				}
 				nBlocks++
+			}
+			if err := putRollups(tx, w.runID, roll, hadBlocks); err != nil {
+				return err
 			}
 		}
 		if len(segs) > 0 {
