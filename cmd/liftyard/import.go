@@ -31,29 +31,16 @@ func checkRawCSV(path, source string, r *rig.Rig, start time.Time) (channels []s
 		return nil, 0, usagef("raw CSV: %v", err)
 	}
 	defer f.Close()
-	var (
-		relative bool
-		firstUs  int64
-	)
-	err = acquire.ReadRawCSVAt(f, filepath.Base(path), 0, start, func(b acquire.Block) error {
-		if channels == nil {
-			relative = b.Received.IsZero() && b.T0Us < acquire.RelativeBeforeUs
-			firstUs = b.T0Us
-			for _, s := range b.Series {
-				channels = append(channels, s.Channel)
-			}
-		}
-		samples += b.Len()
-		return nil
-	})
+	info, err := acquire.CheckRawCSV(f, filepath.Base(path), start)
 	if err != nil {
 		return nil, 0, usagef("%v", err)
 	}
+	channels, samples = info.Channels, info.Rows
 	defer func() {
-		if err == nil && relative {
+		if err == nil && info.Relative {
 			// Relative t_s with no start: the run would be dated 1970.
 			err = usagef("%s: t_s starts at %.3f s, a relative time (not Unix time): give the UTC time of the first row with --start 2026-03-14T09:00:00Z, or a first line \"# start 2026-03-14T09:00:00Z\" in the file",
-				filepath.Base(path), float64(firstUs)/1e6)
+				filepath.Base(path), float64(info.FirstUs)/1e6)
 		}
 	}()
 	var known []string
