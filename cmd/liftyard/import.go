@@ -175,7 +175,7 @@ func recordOffline(ctx context.Context, store *storage.Store, r *rig.Rig, rigTOM
 	if err != nil {
 		return 0, process.Finished{}, err
 	}
-	_, err = process.Replay(ctx, src, rec.Pipeline(), rec.Keep)
+	_, err = process.ReplayStaged(ctx, src, rec.Pipeline(), rec.Keep)
 	if err != nil && ctx.Err() != nil {
 		err = errStopped
 	}
