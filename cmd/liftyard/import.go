@@ -92,7 +92,8 @@ func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) err
 		return nil
 	})
 	startS := fs.String("start", "", "UTC time of the file's first row, RFC 3339 (e.g. 2026-03-14T09:00:00Z); needed when t_s is relative and the file has no \"# start\" line")
-	verbose := fs.Bool("v", false, "log progress to stderr")
+	verbose := fs.Bool("v", false, "log the run's events to stderr")
+	quiet := quietFlag(fs)
 	pos, err := parseFlags(fs, args)
 	if err != nil {
 		return err
@@ -143,8 +144,10 @@ func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	}
 	defer store.Close()
 	src := &acquire.CSVFile{Path: pos[0], Source: name, BlockN: *blockN, Start: start}
+	prog := newProgress(stderr, *quiet, "import", "rows", int64(samples))
 	id, fin, err := recordOffline(ctx, store, r, string(data), fmt.Sprintf("imported from %s", filepath.Base(pos[0])),
-		src, &src.Health, name, newLogger(stderr, *verbose), block)
+		prog.replayer(src), &src.Health, name, newLogger(stderr, *verbose), block)
+	prog.finish()
 	if err != nil {
 		return err
 	}

@@ -252,8 +252,8 @@ func BenchmarkImportVsScript(b *testing.B) {
 		os.Remove(db)
 		os.Remove(out)
 		scriptWall, scriptRSS := timed(b, exec.Command(py, script, csvPath, out, calPath))
-		importWall, importRSS := timed(b, exec.Command(bin, "import", "--rig", rigPath, "--db", db, csvPath))
-		reWall, reRSS := timed(b, exec.Command(bin, "reprocess", "--db", db, "--run", "1"))
+		importWall, importRSS := timed(b, exec.Command(bin, "import", "--quiet", "--rig", rigPath, "--db", db, csvPath))
+		reWall, reRSS := timed(b, exec.Command(bin, "reprocess", "--quiet", "--db", db, "--run", "1"))
 		b.ReportMetric(readings/scriptWall.Seconds(), "script-readings/s")
 		b.ReportMetric(readings/importWall.Seconds(), "import-readings/s")
 		b.ReportMetric(readings/reWall.Seconds(), "reprocess-readings/s")
@@ -289,7 +289,7 @@ func BenchmarkImportRecord(b *testing.B) {
 		db := filepath.Join(dir, fmt.Sprintf("bench%d.db", n))
 		n++
 		var out, errb bytes.Buffer
-		if code := run(b.Context(), []string{"import", "--rig", rigPath, "--db", db, csvPath}, &out, &errb); code != 0 {
+		if code := run(b.Context(), []string{"import", "--quiet", "--rig", rigPath, "--db", db, csvPath}, &out, &errb); code != 0 {
 			b.Fatalf("import: exit %d: %s", code, errb.String())
 		}
 	}

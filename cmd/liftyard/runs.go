@@ -62,7 +62,7 @@ func runRuns(_ context.Context, args []string, stdout, _ io.Writer) error {
 }
 
 // runExport is `liftyard export --db FILE --run ID|latest --what raw|values|segments [--format csv|json] [--out FILE]`.
-func runExport(_ context.Context, args []string, stdout, _ io.Writer) error {
+func runExport(_ context.Context, args []string, stdout, stderr io.Writer) error {
 	fs := newFlags("export", "--db FILE --run ID|latest --what raw|values|segments [--format csv|json] [--out FILE]",
 		"export a run's segment results, raw samples or calibrated values", stdout)
 	db := fs.String("db", "liftyard.db", "bbolt store file")
@@ -70,6 +70,7 @@ func runExport(_ context.Context, args []string, stdout, _ io.Writer) error {
 	what := fs.String("what", "segments", "segments (one row per steady segment), raw (raw readings, CSV) or values (calibrated values in SI units, CSV; no zero or drift correction)")
 	format := fs.String("format", "json", "json or csv (raw is always csv)")
 	outPath := fs.String("out", "", "output file (default: standard output)")
+	quiet := quietFlag(fs)
 	if _, err := parseFlags(fs, args); err != nil {
 		return err
 	}
@@ -111,6 +112,12 @@ func runExport(_ context.Context, args []string, stdout, _ io.Writer) error {
 		defer f.Close()
 		w = f
 	}
+	var prog *progress
+	file := w
+	if *what != "segments" { // raw and values: one row per sample time
+		prog = newProgress(stderr, *quiet, "export", "rows", int64(run.Samples))
+		w = prog.writer(w)
+	}
 	switch *what {
 	case "raw":
 		err = store.ExportRaw(w, id)
@@ -123,10 +130,11 @@ func runExport(_ context.Context, args []string, stdout, _ io.Writer) error {
 		}
 		err = storage.ExportSegments(w, run, segs, *format)
 	}
+	prog.finish()
 	if err != nil {
 		return err
 	}
-	if f, ok := w.(*os.File); ok && f != os.Stdout {
+	if f, ok := file.(*os.File); ok && f != os.Stdout {
 		return f.Close()
 	}
 	return nil
