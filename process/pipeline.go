@@ -2,6 +2,7 @@ package process
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"math"
 	"time"
@@ -272,7 +273,8 @@ const StageAhead = 64
 // block with its events and the segments the stage has completed since
 // the last call (a segment therefore comes with a later block than the one
 // that closed it); the final call has a nil block, the segments still to
-// come and those Flush closed. each must not look at p's stage (Live)
+// come and those Flush closed. When the source fails, a last call with a
+// nil block hands on the segments the blocks before the failure closed. each must not look at p's stage (Live)
 // while the replay runs.
 func ReplayStaged(ctx context.Context, src acquire.Replayer, p *Pipeline, each func(b *acquire.Block, st Step) error) ([]estimate.Segment, error) {
 	var segs []estimate.Segment
@@ -305,13 +307,17 @@ func ReplayStaged(ctx context.Context, src acquire.Replayer, p *Pipeline, each f
 			}
 		}
 	}
+	eachFailed := false
 	err := src.Replay(ctx, func(b acquire.Block) error {
 		cb, st := p.front(&b)
 		in <- cb
 		st.Segments = ready(false)
 		segs = append(segs, st.Segments...)
 		if each != nil {
-			return each(&b, st)
+			if err := each(&b, st); err != nil {
+				eachFailed = true
+				return err
+			}
 		}
 		return nil
 	})
@@ -319,6 +325,11 @@ func ReplayStaged(ctx context.Context, src acquire.Replayer, p *Pipeline, each f
 	rest := ready(true)
 	segs = append(segs, rest...)
 	if err != nil {
+		// The blocks before the error closed these segments: hand them on
+		// as Replay would have, unless each itself failed.
+		if each != nil && !eachFailed && len(rest) > 0 {
+			err = errors.Join(err, each(nil, Step{Segments: rest}))
+		}
 		return segs, err
 	}
 	last := Step{Segments: append(rest, p.Flush()...)}
