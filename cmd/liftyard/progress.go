@@ -1,6 +1,7 @@
 package main
 
 import (
+	"bytes"
 	"context"
 	"flag"
 	"fmt"
@@ -116,22 +117,29 @@ func (p *progress) finish() {
 	fmt.Fprintln(p.w, p.lineLocked(p.now(), true))
 }
 
-// writer counts the lines written through w as items (an export's rows).
-func (p *progress) writer(w io.Writer) io.Writer {
+// writer counts the lines written through w as items (an export's rows),
+// after the first skip lines (a header).
+func (p *progress) writer(w io.Writer, skip int) io.Writer {
 	if p == nil {
 		return w
 	}
-	return &lineCounter{w: w, p: p}
+	return &lineCounter{w: w, p: p, skip: skip}
 }
 
 type lineCounter struct {
-	w io.Writer
-	p *progress
+	w    io.Writer
+	p    *progress
+	skip int
 }
 
 func (c *lineCounter) Write(b []byte) (int, error) {
 	n, err := c.w.Write(b)
-	if k := strings.Count(string(b[:n]), "\n"); k > 0 {
+	k := bytes.Count(b[:n], []byte{'\n'})
+	if c.skip > 0 {
+		d := min(k, c.skip)
+		k, c.skip = k-d, c.skip-d
+	}
+	if k > 0 {
 		c.p.add(k, 0)
 	}
 	return n, err

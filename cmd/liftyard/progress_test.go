@@ -63,7 +63,7 @@ func TestProgress_PlainLinesAndQuiet(t *testing.T) {
 	require.Equal(t, 0, code, errOut)
 	lines = progressLines(errOut, "export")
 	require.NotEmpty(t, lines)
-	require.Regexp(t, `^export: 1 451 of 1 450 rows \(100 %\), .* rows/s, done in`, lines[len(lines)-1], "the header line counts too")
+	require.Regexp(t, `^export: 1 450 of 1 450 rows \(100 %\), .* rows/s, done in`, lines[len(lines)-1], "rows after the header")
 
 	code, _, errOut = runCLI(t, "report", "--db", db, "--run", "1", "--out", filepath.Join(t.TempDir(), "r.html"))
 	require.Equal(t, 0, code, errOut)
@@ -103,4 +103,58 @@ func TestProgress_BarOnTerminal(t *testing.T) {
 	require.Contains(t, got, "100%", "the bar completes:\n%q", got)
 	require.Contains(t, got, "1450/1450", "the bar counts rows")
 	require.NotContains(t, got, "done in", "no plain lines on a terminal")
+}
+
+// Ensure that a plain progress line says the count, the share, the rate
+// and the time left in the words the README shows, comes only every
+// progressEvery, and that the last one says how long it took.
+func TestProgress_LineFormat(t *testing.T) {
+	defer func(d time.Duration) { progressEvery = d }(progressEvery)
+	progressEvery = 5 * time.Second
+	var buf bytes.Buffer
+	t0 := time.Date(2026, 12, 2, 9, 0, 0, 0, time.UTC)
+	now := t0
+	p := newProgress(&buf, false, "import", "rows", 1_000_000)
+	p.now, p.start, p.last = func() time.Time { return now }, t0, t0
+	now = t0.Add(3 * time.Second)
+	p.add(412_000, 412_000*16) // before the first 5 s: no line
+	require.Empty(t, buf.String())
+	now = t0.Add(5 * time.Second)
+	p.add(0, 0)
+	require.Equal(t, "import: 412 000 of 1 000 000 rows (41 %), 1.3 M readings/s, 7.1 s left\n", buf.String())
+	buf.Reset()
+	now = t0.Add(8 * time.Second)
+	p.add(588_000, 588_000*16)
+	require.Empty(t, buf.String(), "next line 5 s after the last")
+	now = t0.Add(130 * time.Second)
+	p.finish()
+	p.finish()
+	require.Equal(t, "import: 1 000 000 of 1 000 000 rows (100 %), 123 k readings/s, done in 2 min 10 s\n", buf.String(), "one last line")
+
+	var nilP *progress
+	nilP.add(1, 1) // --quiet: a nil progress does nothing
+	nilP.finish()
+	w := nilP.writer(&buf, 1)
+	require.Same(t, &buf, w)
+
+	for _, c := range []struct {
+		n    int64
+		want string
+	}{{0, "0"}, {999, "999"}, {1000, "1 000"}, {1_000_000, "1 000 000"}, {-12345, "-12 345"}} {
+		require.Equal(t, c.want, groupDigits(c.n))
+	}
+}
+
+// Ensure that an export's rows are counted across writes that split
+// lines, after its header.
+func TestProgress_WriterCountsRowsAfterHeader(t *testing.T) {
+	var sink, errs bytes.Buffer
+	p := newProgress(&errs, false, "export", "rows", 3)
+	w := p.writer(&sink, 1)
+	for _, part := range []string{"t_s,a\n0,", "1\n1,2", "\n2,3\n"} {
+		_, err := io.WriteString(w, part)
+		require.NoError(t, err)
+	}
+	require.Equal(t, int64(3), p.items)
+	require.Equal(t, "t_s,a\n0,1\n1,2\n2,3\n", sink.String())
 }

@@ -116,7 +116,7 @@ func runExport(_ context.Context, args []string, stdout, stderr io.Writer) error
 	file := w
 	if *what != "segments" { // raw and values: one row per sample time
 		prog = newProgress(stderr, *quiet, "export", "rows", int64(run.Samples))
-		w = prog.writer(w)
+		w = prog.writer(w, 1) // after the header
 	}
 	switch *what {
 	case "raw":
