@@ -24,14 +24,21 @@ import (
 
 // checkRawCSV reads the whole file once before a run is made, so that a bad
 // file is refused (exit 2, with its line) and leaves no half-made run. It
-// returns the channels of the header.
-func checkRawCSV(path, source string, r *rig.Rig, start time.Time) (channels []string, samples int, err error) {
+// returns the channels of the header. Its progress ("import: check") goes
+// to stderr unless quiet.
+func checkRawCSV(path, source string, r *rig.Rig, start time.Time, stderr io.Writer, quiet bool) (channels []string, samples int, err error) {
 	f, err := os.Open(path)
 	if err != nil {
 		return nil, 0, usagef("raw CSV: %v", err)
 	}
 	defer f.Close()
-	info, err := acquire.CheckRawCSV(f, filepath.Base(path), start)
+	var size int64
+	if fi, err := f.Stat(); err == nil {
+		size = fi.Size()
+	}
+	prog := newProgress(stderr, quiet, "import: check", unitBytes, size)
+	info, err := acquire.CheckRawCSV(prog.reader(f), filepath.Base(path), start)
+	prog.finish()
 	if err != nil {
 		return nil, 0, usagef("%v", err)
 	}
@@ -134,7 +141,7 @@ func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) err
 		}
 		start = start.UTC()
 	}
-	channels, samples, err := checkRawCSV(pos[0], name, r, start)
+	channels, samples, err := checkRawCSV(pos[0], name, r, start, stderr, *quiet)
 	if err != nil {
 		return err
 	}

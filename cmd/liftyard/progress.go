@@ -64,19 +64,46 @@ func newProgress(stderr io.Writer, quiet bool, verb, unit string, total int64) *
 		if max <= 0 {
 			max = -1 // a spinner
 		}
-		p.bar = progressbar.NewOptions64(max,
+		opts := []progressbar.Option{
 			progressbar.OptionSetWriter(stderr),
 			progressbar.OptionSetDescription(verb),
-			progressbar.OptionShowCount(),
-			progressbar.OptionShowIts(),
-			progressbar.OptionSetItsString(unit),
 			progressbar.OptionSetPredictTime(true),
-			progressbar.OptionThrottle(100*time.Millisecond),
+			progressbar.OptionThrottle(100 * time.Millisecond),
 			progressbar.OptionSetWidth(30),
 			progressbar.OptionOnCompletion(func() { fmt.Fprintln(stderr) }),
-		)
+		}
+		if unit == unitBytes {
+			opts = append(opts, progressbar.OptionShowBytes(true))
+		} else {
+			opts = append(opts, progressbar.OptionShowCount(), progressbar.OptionShowIts(), progressbar.OptionSetItsString(unit))
+		}
+		p.bar = progressbar.NewOptions64(max, opts...)
 	}
 	return p
+}
+
+// unitBytes counts bytes (a file read through reader), shown in MB.
+const unitBytes = "bytes"
+
+// reader counts the bytes read through r as items.
+func (p *progress) reader(r io.Reader) io.Reader {
+	if p == nil {
+		return r
+	}
+	return progressReader{r: r, p: p}
+}
+
+type progressReader struct {
+	r io.Reader
+	p *progress
+}
+
+func (r progressReader) Read(b []byte) (int, error) {
+	n, err := r.r.Read(b)
+	if n > 0 {
+		r.p.add(n, 0)
+	}
+	return n, err
 }
 
 // add counts items more done, holding readings readings.
@@ -150,17 +177,25 @@ func (c *lineCounter) Write(b []byte) (int, error) {
 //	import: 412 000 of 1 000 000 rows (41 %), 1.8 M readings/s, 3 s left
 func (p *progress) lineLocked(t time.Time, done bool) string {
 	el := t.Sub(p.start).Seconds()
+	count, unit := groupDigits, p.unit
+	if p.unit == unitBytes {
+		count = func(n int64) string { return fmt.Sprintf("%.1f", float64(n)/1e6) }
+		unit = "MB"
+	}
 	var b strings.Builder
-	b.WriteString(p.verb + ": " + groupDigits(p.items))
+	b.WriteString(p.verb + ": " + count(p.items))
 	if p.total > 0 {
-		fmt.Fprintf(&b, " of %s %s (%d %%)", groupDigits(p.total), p.unit, min(100, p.items*100/p.total))
+		fmt.Fprintf(&b, " of %s %s (%d %%)", count(p.total), unit, min(100, p.items*100/p.total))
 	} else {
-		b.WriteString(" " + p.unit)
+		b.WriteString(" " + unit)
 	}
 	if el > 0 && (p.readings > 0 || p.items >= 100) { // no rate of a few steps
-		if p.readings > 0 {
+		switch {
+		case p.readings > 0:
 			fmt.Fprintf(&b, ", %s readings/s", siRate(float64(p.readings)/el))
-		} else {
+		case p.unit == unitBytes:
+			fmt.Fprintf(&b, ", %.0f MB/s", float64(p.items)/el/1e6)
+		default:
 			fmt.Fprintf(&b, ", %s %s/s", siRate(float64(p.items)/el), p.unit)
 		}
 	}

@@ -14,11 +14,12 @@ import (
 	"github.com/stretchr/testify/require"
 )
 
-// progressLines returns stderr's progress lines of verb.
+// progressLines returns stderr's progress lines of verb ("import",
+// "import: check").
 func progressLines(stderr, verb string) []string {
 	var out []string
 	for _, l := range strings.Split(stderr, "\n") {
-		if strings.HasPrefix(l, verb+": ") {
+		if strings.HasPrefix(l, verb+": ") && (verb != "import" || !strings.HasPrefix(l, "import: check: ")) {
 			out = append(out, l)
 		}
 	}
@@ -51,6 +52,9 @@ func TestProgress_PlainLinesAndQuiet(t *testing.T) {
 		prev = n
 	}
 	require.Regexp(t, `^import: 1 450 of 1 450 rows \(100 %\), [\d.]+( [kM])? readings/s, done in [\d.]+ s$`, lines[len(lines)-1])
+	check := progressLines(errOut, "import: check")
+	require.NotEmpty(t, check, "the check pass before the run is made shows its progress too")
+	require.Regexp(t, `^import: check: 0\.1 of 0\.1 MB \(100 %\), \d+ MB/s, done in [\d.]+ s$`, check[len(check)-1])
 
 	code, _, errOut = runCLI(t, "reprocess", "--db", db, "--run", "1")
 	require.Equal(t, 0, code, errOut)
@@ -78,6 +82,7 @@ func TestProgress_PlainLinesAndQuiet(t *testing.T) {
 		code, _, errOut = runCLI(t, args...)
 		require.Equal(t, 0, code, errOut)
 		require.Empty(t, progressLines(errOut, args[0]), "--quiet shows no progress:\n%s", errOut)
+		require.NotContains(t, errOut, "import: check", "--quiet shows no check progress")
 	}
 }
 
