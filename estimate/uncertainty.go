@@ -160,13 +160,19 @@ func TypeAMean(x []float64) TypeA {
 func autocov4(d []float64, k int, out *[4]float64) {
 	n := len(d)
 	var s0, s1, s2, s3 float64
-	i := 0
-	for ; i+k+3 < n; i++ {
-		x := d[i]
-		s0 += x * d[i+k]
-		s1 += x * d[i+k+1]
-		s2 += x * d[i+k+2]
-		s3 += x * d[i+k+3]
+	i := 0 // first i not yet summed
+	if m := n - k - 3; m > 0 {
+		// Sliced so that the compiler checks bounds once per i, not four
+		// times.
+		a, e := d[:m], d[k:k+m+3]
+		for j, x := range a {
+			w := e[j : j+4 : j+4]
+			s0 += x * w[0]
+			s1 += x * w[1]
+			s2 += x * w[2]
+			s3 += x * w[3]
+		}
+		i = m
 	}
 	for j := i; j+k < n; j++ {
 		s0 += d[j] * d[j+k]
