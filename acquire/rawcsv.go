@@ -2,6 +2,7 @@ package acquire
 
 import (
 	"bufio"
+	"bytes"
 	"encoding/csv"
 	"errors"
 	"fmt"
@@ -77,6 +78,24 @@ const RelativeBeforeUs = 1_000_000_000 * 1_000_000
 // UTC, whatever its origin. Without either, blocks have no receive time and
 // t_s is taken as Unix time.
 func ReadRawCSVAt(r io.Reader, source string, blockSamples int, start time.Time, emit func(Block) error) error {
+	return readRawCSV(r, source, blockSamples, start, rawReadOptions{}, emit)
+}
+
+// rawReadOptions are the ways of reading a raw CSV that give the same
+// blocks.
+type rawReadOptions struct {
+	// straight reads every line with encoding/csv (csvRows): the
+	// reference the fast path is tested against.
+	straight bool
+	// reuse hands emit the same series again and again: emit must not
+	// keep a block (CheckRawCSV's counting pass).
+	reuse bool
+}
+
+// rawCSVBuffer is the read buffer of a raw CSV: a few thousand rows.
+const rawCSVBuffer = 256 << 10
+
+func readRawCSV(r io.Reader, source string, blockSamples int, start time.Time, opt rawReadOptions, emit func(Block) error) error {
 	if blockSamples <= 0 {
 		blockSamples = DefaultRawCSVBlock
 	}
@@ -87,7 +106,18 @@ func ReadRawCSVAt(r io.Reader, source string, blockSamples int, start time.Time,
 		}
 		return rawCSVError(source, line, col, format, args...)
 	}
-	br := bufio.NewReader(r)
+	parseErr := func(err error) error {
+		var ce *errCSV
+		if !errors.As(err, &ce) {
+			return rawCSVError(source, 0, "", "%v", err)
+		}
+		msg := ce.err.Error()
+		if errors.Is(ce.err, csv.ErrFieldCount) {
+			msg = "wrong number of fields (every row has one cell per header column; leave a cell blank for no sample)"
+		}
+		return fail(ce.line, "", "%s", msg)
+	}
+	br := bufio.NewReaderSize(r, rawCSVBuffer)
 	if c, err := br.Peek(1); err == nil && c[0] == '#' {
 		first, err := br.ReadString('\n')
 		if err != nil && err != io.EOF {
@@ -103,14 +133,17 @@ func ReadRawCSVAt(r io.Reader, source string, blockSamples int, start time.Time,
 		}
 	}
 	var firstUs int64 // device time of the first row
-	cr := csv.NewReader(br)
-	cr.ReuseRecord = true
-	header, err := cr.Read()
+	rows := newCSVRows(br, opt.straight)
+	headerB, _, err := rows.next()
 	if err == io.EOF {
 		return fail(0, "", "empty file: want a header t_s,<channel>,... and rows of readings")
 	}
 	if err != nil {
-		return rawCSVParseError(source, lineOff, err)
+		return parseErr(err)
+	}
+	header := make([]string, len(headerB))
+	for i, h := range headerB {
+		header[i] = string(h)
 	}
 	if len(header) < 2 || strings.TrimSpace(strings.TrimPrefix(header[0], "\ufeff")) != "t_s" {
 		return fail(1, "", "header %q: want t_s followed by channel names", strings.Join(header, ","))
@@ -131,16 +164,27 @@ func ReadRawCSVAt(r io.Reader, source string, blockSamples int, start time.Time,
 
 	var (
 		seq    uint64
-		cur    *Block
-		lastDt int64 // spacing of the last block emitted
+		cur    *Block // the block being filled (open), or nil
+		open   Block
+		spare  []Series // the last block's series, when opt.reuse
+		lastDt int64    // spacing of the last block emitted
 		prevT  int64
 		prevLn int
-		rows   int
+		nrows  int
 	)
 	newBlock := func(t0 int64) {
-		cur = &Block{Source: source, Seq: seq, T0Us: t0, Series: make([]Series, len(names))}
-		for i, n := range names {
-			cur.Series[i] = Series{Channel: n, Raw: make([]float64, 0, blockSamples)}
+		open = Block{Source: source, Seq: seq, T0Us: t0}
+		cur = &open
+		if spare != nil {
+			cur.Series, spare = spare, nil
+			for i := range cur.Series {
+				cur.Series[i].Raw = cur.Series[i].Raw[:0]
+			}
+		} else {
+			cur.Series = make([]Series, len(names))
+			for i, n := range names {
+				cur.Series[i] = Series{Channel: n, Raw: make([]float64, 0, blockSamples)}
+			}
 		}
 		seq++
 	}
@@ -160,33 +204,36 @@ func ReadRawCSVAt(r io.Reader, source string, blockSamples int, start time.Time,
 		if !start.IsZero() {
 			b.Received = start.Add(time.Duration(b.T0Us+int64(b.Len()-1)*b.DtUs-firstUs) * time.Microsecond).UTC()
 		}
+		if opt.reuse {
+			spare = b.Series
+		}
 		return emit(b)
 	}
 	vals := make([]float64, len(names))
 	for {
-		rec, err := cr.Read()
+		rec, line, err := rows.next()
 		if err == io.EOF {
 			break
 		}
 		if err != nil {
-			return rawCSVParseError(source, lineOff, err)
+			return parseErr(err)
 		}
-		line, _ := cr.FieldPos(0)
-		tUs, ok := parseSecondsUs(strings.TrimSpace(rec[0]))
+		ts := bytes.TrimSpace(rec[0])
+		tUs, ok := parseSecondsUs(ts)
 		if !ok {
 			return fail(line, "t_s", "%q is not a time in seconds", rec[0])
 		}
-		if rows > 0 && tUs <= prevT {
+		if nrows > 0 && tUs <= prevT {
 			return fail(line, "t_s", "%s s is not after %s s on line %d (rows must be in time order)",
-				strings.TrimSpace(rec[0]), formatUs(prevT), prevLn)
+				ts, formatUs(prevT), prevLn)
 		}
 		for i := range names {
-			s := strings.TrimSpace(rec[i+1])
-			if s == "" {
+			s := bytes.TrimSpace(rec[i+1])
+			if len(s) == 0 {
 				vals[i] = math.NaN()
 				continue
 			}
-			v, err := strconv.ParseFloat(s, 64)
+			v, err := parseFloat(s)
 			if err != nil || math.IsInf(v, 0) {
 				return fail(line, names[i], "%q is not a number", s)
 			}
@@ -216,37 +263,54 @@ func ReadRawCSVAt(r io.Reader, source string, blockSamples int, start time.Time,
 		for i, v := range vals {
 			cur.Series[i].Raw = append(cur.Series[i].Raw, v)
 		}
-		if rows == 0 {
+		if nrows == 0 {
 			firstUs = tUs
 		}
 		prevT, prevLn = tUs, line+lineOff
-		rows++
+		nrows++
 	}
-	if rows == 0 {
+	if nrows == 0 {
 		return fail(0, "", "no rows after the header")
 	}
 	return flush()
 }
 
-// rawCSVParseError turns an encoding/csv error into a positioned one.
-func rawCSVParseError(name string, lineOff int, err error) error {
-	var pe *csv.ParseError
-	if errors.As(err, &pe) {
-		msg := pe.Err.Error()
-		if errors.Is(pe.Err, csv.ErrFieldCount) {
-			msg = "wrong number of fields (every row has one cell per header column; leave a cell blank for no sample)"
+// RawCSVInfo is what CheckRawCSV learns of a raw CSV.
+type RawCSVInfo struct {
+	Channels []string // the header's channel names, in order
+	Rows     int      // sample times
+	FirstUs  int64    // t_s of the first row, µs
+	// Relative is true when the file gives no wall-clock start (no start
+	// and no "# start" line) and its t_s is before RelativeBeforeUs: a
+	// time from power-up, not Unix time.
+	Relative bool
+}
+
+// CheckRawCSV reads a whole raw CSV as ReadRawCSVAt would, with the same
+// errors, without keeping its readings: the check before an import.
+func CheckRawCSV(r io.Reader, source string, start time.Time) (RawCSVInfo, error) {
+	var info RawCSVInfo
+	err := readRawCSV(r, source, 0, start, rawReadOptions{reuse: true}, func(b Block) error {
+		if info.Channels == nil {
+			info.Relative = b.Received.IsZero() && b.T0Us < RelativeBeforeUs
+			info.FirstUs = b.T0Us
+			info.Channels = make([]string, len(b.Series))
+			for i, s := range b.Series {
+				info.Channels[i] = s.Channel
+			}
 		}
-		return rawCSVError(name, pe.Line+lineOff, "", "%s", msg)
-	}
-	return rawCSVError(name, 0, "", "%v", err)
+		info.Rows += b.Len()
+		return nil
+	})
+	return info, err
 }
 
 // parseSecondsUs reads a time in seconds as whole microseconds. Plain
 // decimals ("1733061000.000125") are read exactly, digit by digit, and
 // rounded to the microsecond past six decimals; other forms ("1.7e9") go
 // through ParseFloat.
-func parseSecondsUs(s string) (int64, bool) {
-	if s == "" {
+func parseSecondsUs(s []byte) (int64, bool) {
+	if len(s) == 0 {
 		return 0, false
 	}
 	neg := false
@@ -255,12 +319,14 @@ func parseSecondsUs(s string) (int64, bool) {
 		neg = body[0] == '-'
 		body = body[1:]
 	}
-	intPart, frac, hasDot := strings.Cut(body, ".")
-	plain := intPart != "" || (hasDot && frac != "")
-	for _, c := range intPart + frac {
-		if c < '0' || c > '9' {
-			plain = false
-			break
+	intPart, frac, hasDot := bytes.Cut(body, []byte{'.'})
+	plain := len(intPart) > 0 || (hasDot && len(frac) > 0)
+	for _, part := range [2][]byte{intPart, frac} {
+		for _, c := range part {
+			if c < '0' || c > '9' {
+				plain = false
+				break
+			}
 		}
 	}
 	if plain && len(intPart) <= 12 {
@@ -284,7 +350,7 @@ func parseSecondsUs(s string) (int64, bool) {
 		}
 		return t, true
 	}
-	v, err := strconv.ParseFloat(s, 64)
+	v, err := strconv.ParseFloat(string(s), 64)
 	if err != nil || math.IsNaN(v) || math.Abs(v) > 9e12 {
 		return 0, false
 	}

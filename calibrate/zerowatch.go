@@ -431,19 +431,77 @@ func robustLevel(cs []chunk) (level, sd float64) {
 }
 
 // quantile is the p-quantile of v by linear interpolation between order
-// statistics (NaN for no values). It sorts a copy.
+// statistics (NaN for no values). It selects the two order statistics it
+// needs in a copy (quickselect, linear time) rather than sorting it: the
+// zero watch takes a median of its recent chunks at every chunk.
 func quantile(v []float64, p float64) float64 {
 	if len(v) == 0 {
 		return math.NaN()
 	}
 	s := slices.Clone(v)
-	slices.Sort(s)
 	h := p * float64(len(s)-1)
 	lo := int(math.Floor(h))
+	if slices.ContainsFunc(s, math.IsNaN) {
+		slices.Sort(s) // NaN first, as sorting orders it
+	} else {
+		selectKth(s, min(lo, len(s)-1))
+		if lo < len(s)-1 {
+			// s[lo+1] is the least of the values above s[lo].
+			j := lo + 1
+			for i := lo + 2; i < len(s); i++ {
+				if s[i] < s[j] {
+					j = i
+				}
+			}
+			s[lo+1], s[j] = s[j], s[lo+1]
+		}
+	}
 	if lo >= len(s)-1 {
 		return s[len(s)-1]
 	}
 	return s[lo] + (h-float64(lo))*(s[lo+1]-s[lo])
+}
+
+// selectKth reorders s (no NaN) so that s[k] is the value a sort would put
+// there, with no greater value before it and no smaller one after it.
+func selectKth(s []float64, k int) {
+	lo, hi := 0, len(s)-1
+	for lo < hi {
+		// Median of three as the pivot; Hoare partition.
+		mid := lo + (hi-lo)/2
+		if s[mid] < s[lo] {
+			s[mid], s[lo] = s[lo], s[mid]
+		}
+		if s[hi] < s[lo] {
+			s[hi], s[lo] = s[lo], s[hi]
+		}
+		if s[hi] < s[mid] {
+			s[hi], s[mid] = s[mid], s[hi]
+		}
+		pivot := s[mid]
+		i, j := lo, hi
+		for i <= j {
+			for s[i] < pivot {
+				i++
+			}
+			for s[j] > pivot {
+				j--
+			}
+			if i <= j {
+				s[i], s[j] = s[j], s[i]
+				i++
+				j--
+			}
+		}
+		switch {
+		case k <= j:
+			hi = j
+		case k >= i:
+			lo = i
+		default:
+			return // s[j+1 .. i-1] all equal the pivot
+		}
+	}
 }
 
 // meanOf is the mean of a channel's finite values over blocks; NaN for none.

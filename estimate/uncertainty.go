@@ -117,12 +117,16 @@ func TypeAMean(x []float64) TypeA {
 	}
 	var gamma func(k int) float64 // Γ̂(k)·N
 	if n <= 4096 {
+		// Four lags per pass over d (autocov4): the same sums, each in
+		// the same order, so the same bits as one lag at a time.
+		var lags [4]float64
+		base := -1
 		gamma = func(k int) float64 {
-			s := 0.0
-			for i := 0; i+k < n; i++ {
-				s += d[i] * d[i+k]
+			if base < 0 || k < base || k >= base+len(lags) {
+				base = k
+				autocov4(d, k, &lags)
 			}
-			return s
+			return lags[k-base]
 		}
 	} else {
 		acf := autocovFFT(d)
@@ -148,6 +152,38 @@ func TypeAMean(x []float64) TypeA {
 	out.NEff = math.Max(1, math.Min(nf, (g0+v)/v))
 	out.Dof = math.Max(1, math.Min(nf-1, nf/float64(2*w+1)))
 	return out
+}
+
+// autocov4 sets out[j] to Σ d_i·d_{i+k+j} over i, for j = 0…3, each sum
+// taken in order of i: four independent sums in one pass keep the
+// processor's adders busy where one sum waits on its own last addition.
+func autocov4(d []float64, k int, out *[4]float64) {
+	n := len(d)
+	var s0, s1, s2, s3 float64
+	i := 0 // first i not yet summed
+	if m := n - k - 3; m > 0 {
+		// Sliced so that the compiler checks bounds once per i, not four
+		// times.
+		a, e := d[:m], d[k:k+m+3]
+		for j, x := range a {
+			w := e[j : j+4 : j+4]
+			s0 += x * w[0]
+			s1 += x * w[1]
+			s2 += x * w[2]
+			s3 += x * w[3]
+		}
+		i = m
+	}
+	for j := i; j+k < n; j++ {
+		s0 += d[j] * d[j+k]
+	}
+	for j := i; j+k+1 < n; j++ {
+		s1 += d[j] * d[j+k+1]
+	}
+	for j := i; j+k+2 < n; j++ {
+		s2 += d[j] * d[j+k+2]
+	}
+	*out = [4]float64{s0, s1, s2, s3}
 }
 
 // NEff returns the effective number of independent samples of the mean of

@@ -2,6 +2,7 @@ package process
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"math"
 	"time"
@@ -96,6 +97,14 @@ func New(r *rig.Rig, cal *calibrate.Calibrator, opt Options) (*Pipeline, error) 
 // Step aligns b's clock in place (b is stored that way), checks its
 // channels, calibrates it, removes the zero and hands it to the stage.
 func (p *Pipeline) Step(b *acquire.Block) Step {
+	cb, st := p.front(b)
+	st.Segments = p.stage.Add(cb)
+	return st
+}
+
+// front is Step up to the stage: everything but the estimation, which
+// Replay runs on a goroutine of its own.
+func (p *Pipeline) front(b *acquire.Block) (*calibrate.Block, Step) {
 	var st Step
 	p.aligner.Align(b)
 	st.Events = append(st.Events, p.chans.Observe(b)...)
@@ -119,8 +128,7 @@ func (p *Pipeline) Step(b *acquire.Block) Step {
 		st.Events = append(st.Events, acquire.Event{T: b.Received, Source: b.Source, Kind: EventOverload,
 			Message: fmt.Sprintf("channel %s at %.0f %% of its rated %g %s (%s)", l.Channel, 100*l.PeakFrac, l.CapacitySI, l.Unit, l.State)})
 	}
-	st.Segments = p.stage.Add(&cb)
-	return st
+	return &cb, st
 }
 
 // EventFlowOffZero is the kind of the event raised when a run has no
@@ -224,9 +232,11 @@ func (p *Pipeline) UnusedMarks() []estimate.Mark {
 // Replay steps every block of src through p, then flushes it, and returns
 // every segment in order. each, when not nil, is called after every step
 // with the block (nil for the final step, which holds the segments Flush
-// closed); its error stops the replay and is returned. Replay is the one
-// offline path: import, reprocess, user marks and the zero-drift correction
-// all go through it.
+// closed); its error stops the replay and is returned. each may look at p
+// (Live, Values): everything runs on the caller's goroutine. Replay is the
+// one offline path: import, reprocess, user marks, the zero-drift
+// correction and a run's timeline all go through it (ReplayStaged where
+// each leaves p alone).
 func Replay(ctx context.Context, src acquire.Replayer, p *Pipeline, each func(b *acquire.Block, st Step) error) ([]estimate.Segment, error) {
 	var segs []estimate.Segment
 	err := src.Replay(ctx, func(b acquire.Block) error {
@@ -242,6 +252,88 @@ func Replay(ctx context.Context, src acquire.Replayer, p *Pipeline, each func(b 
 	}
 	last := Step{Segments: p.Flush()}
 	segs = append(segs, last.Segments...)
+	if each != nil {
+		if err := each(nil, last); err != nil {
+			return segs, err
+		}
+	}
+	return segs, nil
+}
+
+// StageAhead is how many calibrated blocks ReplayStaged lets the
+// estimation stage fall behind the rest of the pipeline.
+const StageAhead = 64
+
+// ReplayStaged is Replay with the estimation stage on a goroutine of its
+// own, up to StageAhead blocks behind the clock alignment, calibration and
+// zero, so that on two cores the two halves of the pipeline overlap (and
+// a file's parse, and the store's writer, on theirs). It gives the same
+// segments in the same order: the stage sees the same calibrated blocks
+// in the same order. each is called on the caller's goroutine after every
+// block with its events and the segments the stage has completed since
+// the last call (a segment therefore comes with a later block than the one
+// that closed it); the final call has a nil block, the segments still to
+// come and those Flush closed. When the source fails, a last call with a
+// nil block hands on the segments the blocks before the failure closed. each must not look at p's stage (Live)
+// while the replay runs.
+func ReplayStaged(ctx context.Context, src acquire.Replayer, p *Pipeline, each func(b *acquire.Block, st Step) error) ([]estimate.Segment, error) {
+	var segs []estimate.Segment
+	in := make(chan *calibrate.Block, StageAhead)
+	// Every block gives one result; the stage is at most StageAhead blocks
+	// (and the one in hand) ahead of the reader of done.
+	done := make(chan []estimate.Segment, StageAhead+2)
+	go func() {
+		defer close(done)
+		for cb := range in {
+			done <- p.stage.Add(cb)
+		}
+	}()
+	ready := func(wait bool) []estimate.Segment {
+		var out []estimate.Segment
+		for {
+			if wait {
+				s, ok := <-done
+				if !ok {
+					return out
+				}
+				out = append(out, s...)
+				continue
+			}
+			select {
+			case s := <-done:
+				out = append(out, s...)
+			default:
+				return out
+			}
+		}
+	}
+	eachFailed := false
+	err := src.Replay(ctx, func(b acquire.Block) error {
+		cb, st := p.front(&b)
+		in <- cb
+		st.Segments = ready(false)
+		segs = append(segs, st.Segments...)
+		if each != nil {
+			if err := each(&b, st); err != nil {
+				eachFailed = true
+				return err
+			}
+		}
+		return nil
+	})
+	close(in)
+	rest := ready(true)
+	segs = append(segs, rest...)
+	if err != nil {
+		// The blocks before the error closed these segments: hand them on
+		// as Replay would have, unless each itself failed.
+		if each != nil && !eachFailed && len(rest) > 0 {
+			err = errors.Join(err, each(nil, Step{Segments: rest}))
+		}
+		return segs, err
+	}
+	last := Step{Segments: append(rest, p.Flush()...)}
+	segs = append(segs, last.Segments[len(rest):]...)
 	if each != nil {
 		if err := each(nil, last); err != nil {
 			return segs, err

@@ -439,7 +439,7 @@ func CorrectDrift(ctx context.Context, store *storage.Store, id uint64, r *rig.R
 	if err != nil {
 		return nil, err
 	}
-	return Replay(ctx, &acquire.StoredRun{Store: store, RunID: id}, p, nil)
+	return ReplayStaged(ctx, &acquire.StoredRun{Store: store, RunID: id}, p, nil)
 }
 
 func storedIDs(cal *calibrate.Calibrator) []string {

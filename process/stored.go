@@ -75,7 +75,7 @@ func Recompute(ctx context.Context, store *storage.Store, run storage.Run, marks
 		if err != nil {
 			return nil, nil, err
 		}
-		if _, err := Replay(ctx, src, first, nil); err != nil {
+		if _, err := ReplayStaged(ctx, src, first, nil); err != nil {
 			return nil, nil, err
 		}
 		d, err := first.Drift()
@@ -88,7 +88,7 @@ func Recompute(ctx context.Context, store *storage.Store, run storage.Run, marks
 	if err != nil {
 		return nil, nil, err
 	}
-	segs, err := Replay(ctx, src, p, nil)
+	segs, err := ReplayStaged(ctx, src, p, nil)
 	if err != nil {
 		return nil, nil, err
 	}

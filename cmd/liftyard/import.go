@@ -25,36 +25,30 @@ import (
 
 // checkRawCSV reads the whole file once before a run is made, so that a bad
 // file is refused (exit 2, with its line) and leaves no half-made run. It
-// returns the channels of the header.
-func checkRawCSV(path, source string, r *rig.Rig, start time.Time) (channels []string, samples int, err error) {
+// returns the channels of the header. Its progress ("import: check") goes
+// to stderr unless quiet.
+func checkRawCSV(path, source string, r *rig.Rig, start time.Time, stderr io.Writer, quiet bool) (channels []string, samples int, err error) {
 	f, err := os.Open(path)
 	if err != nil {
 		return nil, 0, usagef("raw CSV: %v", err)
 	}
 	defer f.Close()
-	var (
-		relative bool
-		firstUs  int64
-	)
-	err = acquire.ReadRawCSVAt(f, filepath.Base(path), 0, start, func(b acquire.Block) error {
-		if channels == nil {
-			relative = b.Received.IsZero() && b.T0Us < acquire.RelativeBeforeUs
-			firstUs = b.T0Us
-			for _, s := range b.Series {
-				channels = append(channels, s.Channel)
-			}
-		}
-		samples += b.Len()
-		return nil
-	})
+	var size int64
+	if fi, err := f.Stat(); err == nil {
+		size = fi.Size()
+	}
+	prog := newProgress(stderr, quiet, "import: check", unitBytes, size)
+	info, err := acquire.CheckRawCSV(prog.reader(f), filepath.Base(path), start)
+	prog.finish()
 	if err != nil {
 		return nil, 0, usagef("%v", err)
 	}
+	channels, samples = info.Channels, info.Rows
 	defer func() {
-		if err == nil && relative {
+		if err == nil && info.Relative {
 			// Relative t_s with no start: the run would be dated 1970.
 			err = usagef("%s: t_s starts at %.3f s, a relative time (not Unix time): give the UTC time of the first row with --start 2026-03-14T09:00:00Z, or a first line \"# start 2026-03-14T09:00:00Z\" in the file",
-				filepath.Base(path), float64(firstUs)/1e6)
+				filepath.Base(path), float64(info.FirstUs)/1e6)
 		}
 	}()
 	// A multi-source export names its columns source/channel
@@ -154,7 +148,8 @@ func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) err
 		return nil
 	})
 	startS := fs.String("start", "", "UTC time of the file's first row, RFC 3339 (e.g. 2026-03-14T09:00:00Z); needed when t_s is relative and the file has no \"# start\" line")
-	verbose := fs.Bool("v", false, "log progress to stderr")
+	verbose := fs.Bool("v", false, "log the run's events to stderr")
+	quiet := quietFlag(fs)
 	pos, err := parseFlags(fs, args)
 	if err != nil {
 		return err
@@ -198,7 +193,7 @@ func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) err
 		}
 		start = start.UTC()
 	}
-	channels, samples, err := checkRawCSV(pos[0], name, r, start)
+	channels, samples, err := checkRawCSV(pos[0], name, r, start, stderr, *quiet)
 	if err != nil {
 		return err
 	}
@@ -208,8 +203,10 @@ func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	}
 	defer store.Close()
 	src := &acquire.CSVFile{Path: pos[0], Source: name, BlockN: *blockN, Start: start}
+	prog := newProgress(stderr, *quiet, "import", "rows", int64(samples))
 	id, fin, err := recordOffline(ctx, store, r, string(data), fmt.Sprintf("imported from %s", filepath.Base(pos[0])),
-		acquire.SplitReplayer{R: src}, &src.Health, name, newLogger(stderr, *verbose), block)
+		prog.replayer(acquire.SplitReplayer{R: src}), &src.Health, name, newLogger(stderr, *verbose), block)
+	prog.finish()
 	if err != nil {
 		return err
 	}
@@ -240,7 +237,7 @@ func recordOffline(ctx context.Context, store *storage.Store, r *rig.Rig, rigTOM
 	if err != nil {
 		return 0, process.Finished{}, err
 	}
-	_, err = process.Replay(ctx, src, rec.Pipeline(), rec.Keep)
+	_, err = process.ReplayStaged(ctx, src, rec.Pipeline(), rec.Keep)
 	if err != nil && ctx.Err() != nil {
 		err = errStopped
 	}

@@ -15,13 +15,14 @@ import (
 // runReport is `liftyard report --db FILE --run ID|latest --out FILE.html
 // [--rig-dir DIR]`: it writes the printable HTML report of one run and
 // prints the file's path.
-func runReport(_ context.Context, args []string, stdout, _ io.Writer) error {
+func runReport(_ context.Context, args []string, stdout, stderr io.Writer) error {
 	fs := newFlags("report", "--db FILE --run ID|latest --out FILE.html [--rig-dir DIR]",
 		"write a printable HTML report of a run (plots, segments, uncertainty budgets, record quality)", stdout)
 	db := fs.String("db", "liftyard.db", "bbolt store file")
 	ref := fs.String("run", "", "run id, or latest")
 	out := fs.String("out", "", "HTML file to write")
 	rigDir := fs.String("rig-dir", "", "folder a relative [lift] design curve path is read from (default: the current directory)")
+	quiet := quietFlag(fs)
 	pos, err := parseFlags(fs, args)
 	if err != nil {
 		return err
@@ -47,13 +48,17 @@ func runReport(_ context.Context, args []string, stdout, _ io.Writer) error {
 		}
 		return usagef("%v", err)
 	}
+	prog := newProgress(stderr, *quiet, "report", "steps", 2) // gather and fit, then plot and write
 	rep, err := report.Build(store, id, report.Options{RigDir: *rigDir, Version: version})
 	if err != nil {
 		return err
 	}
+	prog.add(1, 0)
 	if err := writeFileAtomic(*out, rep.WriteHTML); err != nil {
 		return fmt.Errorf("write report: %w", err)
 	}
+	prog.add(1, 0)
+	prog.finish()
 	abs, err := filepath.Abs(*out)
 	if err != nil {
 		abs = *out

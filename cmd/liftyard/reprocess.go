@@ -20,7 +20,8 @@ func runReprocess(ctx context.Context, args []string, stdout, stderr io.Writer) 
 	ref := fs.String("run", "", "run id to re-process, or latest")
 	rigPath := fs.String("rig", "", "corrected rig file (default: the rig file stored with the run)")
 	block := fs.Duration("block", 0, "roof rigs: length of one result block (default: the run's own, else the rig's [wind] block, else 10m)")
-	verbose := fs.Bool("v", false, "log progress to stderr")
+	verbose := fs.Bool("v", false, "log the run's events to stderr")
+	quiet := quietFlag(fs)
 	pos, err := parseFlags(fs, args)
 	if err != nil {
 		return err
@@ -87,7 +88,9 @@ func runReprocess(ctx context.Context, args []string, stdout, stderr io.Writer) 
 	if *block == 0 && old.BlockS > 0 {
 		*block = time.Duration(old.BlockS * float64(time.Second)) // the run's own block length
 	}
-	newID, fin, err := recordOffline(ctx, store, r, rigTOML, note, src, &src.Health, fmt.Sprintf("replay of run %d", id), newLogger(stderr, *verbose), *block)
+	prog := newProgress(stderr, *quiet, "reprocess", "sample times", int64(old.Samples))
+	newID, fin, err := recordOffline(ctx, store, r, rigTOML, note, prog.replayer(src), &src.Health, fmt.Sprintf("replay of run %d", id), newLogger(stderr, *verbose), *block)
+	prog.finish()
 	if err != nil {
 		return err
 	}

@@ -65,7 +65,7 @@ func runRuns(_ context.Context, args []string, stdout, _ io.Writer) error {
 // or with --campaign DIR, Parquet files of many runs in a partitioned
 // directory (campaign.go).
 func runExport(_ context.Context, args []string, stdout, stderr io.Writer) error {
-	fs := newFlags("export", "--db FILE --run ID|latest --what raw|values|segments [--format csv|json|parquet] [--out FILE]\n       liftyard export --db FILE --campaign DIR [--run all|ID|latest] [--what all|raw|values|segments] [--replace]",
+	fs := newFlags("export", "--db FILE --run ID|latest --what raw|values|segments [--format csv|json|parquet] [--out FILE] [--quiet]\n       liftyard export --db FILE --campaign DIR [--run all|ID|latest] [--what all|raw|values|segments] [--replace]",
 		"export a run's segment results, raw samples or calibrated values; or Parquet files of every run into a campaign directory", stdout)
 	db := fs.String("db", "liftyard.db", "bbolt store file")
 	ref := fs.String("run", "", "run id, or latest (with --campaign: all, the default, or one run)")
@@ -74,6 +74,7 @@ func runExport(_ context.Context, args []string, stdout, stderr io.Writer) error
 	outPath := fs.String("out", "", "output file (default: standard output)")
 	campaign := fs.String("campaign", "", "write Parquet files into DIR/<what>/rig=<rig>/date=<YYYY-MM-DD>/run-<id>.parquet (docs/export.md)")
 	replace := fs.Bool("replace", false, "with --campaign: write files that already exist again (default: keep them)")
+	quiet := quietFlag(fs)
 	if _, err := parseFlags(fs, args); err != nil {
 		return err
 	}
@@ -137,11 +138,18 @@ func runExport(_ context.Context, args []string, stdout, stderr io.Writer) error
 		defer f.Close()
 		w = f
 	}
+	var prog *progress
+	file := w
+	if *what != "segments" && *format != "parquet" { // CSV raw and values: one row per sample time
+		prog = newProgress(stderr, *quiet, "export", "rows", int64(run.Samples))
+		w = prog.writer(w, 1) // after the header
+	}
 	err = exportOne(store, w, run, *what, *format)
+	prog.finish()
 	if err != nil {
 		return err
 	}
-	if f, ok := w.(*os.File); ok && f != os.Stdout {
+	if f, ok := file.(*os.File); ok && f != os.Stdout {
 		return f.Close()
 	}
 	return nil
