@@ -61,34 +61,50 @@ func SourceColumn(source, channel string) string {
 
 // timelineSource picks the source whose samples set the rows of run id's
 // export: the stored source that carries the rig's timeline channel (the
-// first normal-force channel, or a roof's reference q), else the rig's
-// first [[source]] that stored blocks, else the first in name order.
-func (s *Store) timelineSource(r *rig.Rig, sources []string, chans map[string][]string) string {
+// first normal-force channel; on a roof the first tap, whose scanner the
+// roof's blocks follow, else the reference q), else the rig's first
+// [[source]] that stored blocks; without a rig file, the fastest source
+// (the smallest sample period of its first block: the one the rows would
+// thin most if it were not the timeline), then the first in name order.
+func (s *Store) timelineSource(id uint64, r *rig.Rig, sources []string, chans map[string][]string) (string, error) {
 	if len(sources) == 0 {
-		return ""
+		return "", nil
 	}
 	if r != nil {
-		want := ""
+		var want []string
 		switch {
-		case r.Kind == rig.KindRoof && r.Lift.DynamicPressure != "":
-			want = r.Lift.DynamicPressure
 		case r.Kind == rig.KindRoof:
-			want = r.Lift.Speed
+			for _, t := range r.Taps {
+				want = append(want, t.Channel)
+			}
+			want = append(want, r.Lift.DynamicPressure, r.Lift.Speed)
 		case len(r.Lift.Normal) > 0:
-			want = r.Lift.Normal[0]
+			want = []string{r.Lift.Normal[0]}
 		}
-		for _, src := range sources {
-			if want != "" && slices.Contains(chans[src], want) {
-				return src
+		for _, w := range want {
+			for _, src := range sources {
+				if w != "" && slices.Contains(chans[src], w) {
+					return src, nil
+				}
 			}
 		}
 		for _, rs := range r.Sources {
 			if slices.Contains(sources, rs.Name) {
-				return rs.Name
+				return rs.Name, nil
 			}
 		}
 	}
-	return sources[0]
+	best, bestDt := sources[0], int64(math.MaxInt64)
+	for _, src := range sources {
+		b, ok, err := s.newBlockIter(id, src).next()
+		if err != nil {
+			return "", err
+		}
+		if ok && b.DtUs > 0 && b.DtUs < bestDt {
+			best, bestDt = src, b.DtUs
+		}
+	}
+	return best, nil
 }
 
 // planAligned lists run id's sources and channels and picks the timeline
@@ -110,7 +126,11 @@ func (s *Store) planAligned(id uint64, r *rig.Rig, keep func([]string) []string)
 		}
 		chans[src] = names
 	}
-	p := alignedPlan{primary: s.timelineSource(r, sources, chans)}
+	primary, err := s.timelineSource(id, r, sources, chans)
+	if err != nil {
+		return alignedPlan{}, err
+	}
+	p := alignedPlan{primary: primary}
 	order := []string{p.primary}
 	if r != nil {
 		for _, rs := range r.Sources {

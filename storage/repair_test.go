@@ -84,7 +84,7 @@ func damagedFixture(t *testing.T) (bad, pristine string, onPage int) {
 		}
 	})
 	db.Close()
-	if err != nil || len(leaves) < 10 {
+	if err != nil || len(leaves) < 5 {
 		t.Fatalf("%d leaf pages found: %v", len(leaves), err)
 	}
 	victim := leaves[len(leaves)/2]

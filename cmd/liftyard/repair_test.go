@@ -2,6 +2,7 @@ package main
 
 import (
 	"bytes"
+	"encoding/binary"
 	"os"
 	"path/filepath"
 	"testing"
@@ -36,7 +37,27 @@ func damageLeaf(t *testing.T, db string) {
 	require.GreaterOrEqual(t, len(leaves), 4, "leaf pages")
 	f, err := os.OpenFile(db, os.O_WRONLY, 0)
 	require.NoError(t, err)
-	_, err = f.WriteAt(bytes.Repeat([]byte{0xa5, 0x3c, 0x00, 0xff}, size/4), int64(leaves[len(leaves)/2])*int64(size))
+	// A leaf of raw blocks, not of the run records (which every read-only
+	// verb needs to list the runs) or of the rollups (which are made again
+	// from the blocks): its first element has a block's 16-byte key (time,
+	// seq) and a value that starts with a block format version (1 or 2).
+	data, err := os.ReadFile(db)
+	require.NoError(t, err)
+	var blockLeaves []int
+	for _, id := range leaves {
+		p := data[id*size : (id+1)*size]
+		const hdr = 16 // page header: id u64, flags u16, count u16, overflow u32
+		pos := binary.LittleEndian.Uint32(p[hdr+4:])
+		ksize := binary.LittleEndian.Uint32(p[hdr+8:])
+		if ksize == 16 && hdr+int(pos)+16 < size {
+			if v := p[hdr+int(pos)+16]; v == 1 || v == 2 {
+				blockLeaves = append(blockLeaves, id)
+			}
+		}
+	}
+	require.NotEmpty(t, blockLeaves, "leaf pages of raw blocks among %d leaves", len(leaves))
+	victim := blockLeaves[len(blockLeaves)/2]
+	_, err = f.WriteAt(bytes.Repeat([]byte{0xa5, 0x3c, 0x00, 0xff}, size/4), int64(victim)*int64(size))
 	require.NoError(t, err)
 	require.NoError(t, f.Close())
 }
