@@ -103,9 +103,9 @@ func timelineSource(store *storage.Store, runID uint64, points int, declared map
 // rollupSampleUs is the spacing of the samples a rollup bin is replayed
 // as. The estimator judges steadiness and withholds coefficients until its
 // moving window (2 s) holds enough samples: one sample per bin would leave
-// it waiting, so each bin is replayed as width/250 ms equal samples (its
+// it waiting, so each bin is replayed as width/500 ms equal samples (its
 // channel means), which its window sees as it would a steady hold.
-const rollupSampleUs = 250_000
+const rollupSampleUs = 500_000
 
 // rollupBlocks turns rollup bins into blocks: each bin is its channel
 // means repeated every rollupSampleUs across the bin, and the consecutive
