@@ -193,19 +193,25 @@ func runImport(ctx context.Context, args []string, stdout, stderr io.Writer) err
 		}
 		start = start.UTC()
 	}
+	// The check pass reads the whole file before a run is made, so that a
+	// bad file leaves no run; meanwhile the import parses ahead on the
+	// other core (prefetch), and nothing is stored before the check passed.
+	src := &acquire.CSVFile{Path: pos[0], Source: name, BlockN: *blockN, Start: start}
+	ahead := newPrefetch(ctx, acquire.SplitReplayer{R: src}, prefetchBytes)
 	channels, samples, err := checkRawCSV(pos[0], name, r, start, stderr, *quiet)
 	if err != nil {
+		ahead.stop()
 		return err
 	}
 	store, err := storage.Open(*db, storage.Options{})
 	if err != nil {
+		ahead.stop()
 		return err
 	}
 	defer store.Close()
-	src := &acquire.CSVFile{Path: pos[0], Source: name, BlockN: *blockN, Start: start}
 	prog := newProgress(stderr, *quiet, "import", "rows", int64(samples))
 	id, fin, err := recordOffline(ctx, store, r, string(data), fmt.Sprintf("imported from %s", filepath.Base(pos[0])),
-		prog.replayer(acquire.SplitReplayer{R: src}), &src.Health, name, newLogger(stderr, *verbose), block)
+		prog.replayer(ahead), &src.Health, name, newLogger(stderr, *verbose), block)
 	prog.finish()
 	if err != nil {
 		return err
