@@ -444,7 +444,7 @@ func quantile(v []float64, p float64) float64 {
 	if slices.ContainsFunc(s, math.IsNaN) {
 		slices.Sort(s) // NaN first, as sorting orders it
 	} else {
-		selectKth(s, min(lo, len(s)-1))
+		SelectKth(s, min(lo, len(s)-1))
 		if lo < len(s)-1 {
 			// s[lo+1] is the least of the values above s[lo].
 			j := lo + 1
@@ -462,9 +462,11 @@ func quantile(v []float64, p float64) float64 {
 	return s[lo] + (h-float64(lo))*(s[lo+1]-s[lo])
 }
 
-// selectKth reorders s (no NaN) so that s[k] is the value a sort would put
-// there, with no greater value before it and no smaller one after it.
-func selectKth(s []float64, k int) {
+// SelectKth reorders s (no NaN) so that s[k] is the value a sort would put
+// there, with no greater value before it and no smaller one after it
+// (quickselect: a median in linear time, for the robust scales here and in
+// estimate's steady test).
+func SelectKth(s []float64, k int) {
 	lo, hi := 0, len(s)-1
 	for lo < hi {
 		// Median of three as the pivot; Hoare partition.

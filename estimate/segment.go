@@ -5,6 +5,7 @@ import (
 	"slices"
 	"time"
 
+	"liftyard/calibrate"
 	"liftyard/rig"
 )
 
@@ -170,10 +171,10 @@ func (s *setpoint) halfWidth() float64 {
 	if s.scaleStale {
 		n := min(s.devN, scaleTicks)
 		s.sorted = append(s.sorted[:0], s.devs[:n]...)
-		slices.Sort(s.sorted)
+		calibrate.SelectKth(s.sorted, n/2)
 		med := s.sorted[n/2]
 		if n%2 == 0 {
-			med = (s.sorted[n/2-1] + s.sorted[n/2]) / 2
+			med = (slices.Max(s.sorted[:n/2]) + med) / 2
 		}
 		s.scale = 1.4826 * med // MAD → σ for a normal distribution
 		s.scaleStale = false
@@ -228,7 +229,7 @@ func (s *setpoint) still(v, ref float64) bool {
 	if s.stillStale {
 		n := min(s.diffN, scaleTicks)
 		s.sortedDiffs = append(s.sortedDiffs[:0], s.diffs[:n]...)
-		slices.Sort(s.sortedDiffs)
+		calibrate.SelectKth(s.sortedDiffs, n/2)
 		s.stillWidth = math.Max(stillFloorFrac*s.floor, s.k*1.4826*s.sortedDiffs[n/2])
 		s.stillStale = false
 	}
