@@ -4,6 +4,7 @@ import (
 	"encoding/binary"
 	"fmt"
 	"math"
+	"slices"
 	"sort"
 	"time"
 
@@ -18,6 +19,13 @@ import (
 // length reads a few thousand bins instead of every reading
 // (docs/storage.md §4). Finest first, each ten times the one before.
 var RollupWidths = []time.Duration{time.Second, 10 * time.Second, 100 * time.Second}
+
+// RollupMinSamples is the fewest sample times a bin of a level must hold
+// for the writer to keep that level of a source: below it (a 100 Hz tap
+// scanner's 1 s bins hold 100) the bins would cost about a third of a byte
+// per reading, as much as the readings' own headers, and RunRollups works
+// the level out from the raw blocks when it is asked for.
+const RollupMinSamples = 1000
 
 // bucketRollup holds rollup/<run id>/<source>/<level u8, bin start key>.
 // It is created by the first commit that stores a rollup: stores written
@@ -250,6 +258,12 @@ func (rs rollupSet) addLevel(blk *acquire.Block, only int) {
 				continue
 			}
 			wu := w.Microseconds()
+			if only < 0 && n > 1 && wu/blk.DtUs < RollupMinSamples {
+				// Too few samples to a bin to be worth keeping (a slow
+				// source's finest level): RunRollups works it out from
+				// the raw blocks when it is asked for.
+				continue
+			}
 			rs.bin(blk.Source, level, floorDiv(start, wu)*wu).merge(&part)
 		}
 		i = j
@@ -314,6 +328,7 @@ func (s *Store) RunRollups(id uint64, level int) (bins map[string][]RollupBin, s
 	}
 	defer guard(&err, fmt.Sprintf("read rollups of run %d", id))()
 	bins = map[string][]RollupBin{}
+	var sparse []string // sources whose stored level is not whole
 	err = s.db.View(func(tx *bolt.Tx) error {
 		if tx.Bucket(bucketRuns).Get(u64(id)) == nil {
 			return fmt.Errorf("run %d: %w", id, ErrNotFound)
@@ -329,9 +344,20 @@ func (s *Store) RunRollups(id uint64, level int) (bins map[string][]RollupBin, s
 		stored = true
 		return rb.ForEachBucket(func(src []byte) error {
 			c := rb.Bucket(src).Cursor()
-			prefix := []byte{byte(level)}
 			var list []RollupBin
-			for k, v := c.Seek(prefix); k != nil && k[0] == byte(level); k, v = c.Next() {
+			var samples [8]int // per level: the stored bins' sample times
+			for k, v := c.First(); k != nil; k, v = c.Next() {
+				if len(k) < 1 || int(k[0]) >= len(samples) {
+					continue
+				}
+				if int(k[0]) != level {
+					if len(v) > 1 {
+						if n, m := binary.Uvarint(v[1:]); m > 0 {
+							samples[k[0]] += int(n)
+						}
+					}
+					continue
+				}
 				var b RollupBin
 				var prev *RollupBin
 				if len(list) > 0 {
@@ -341,12 +367,51 @@ func (s *Store) RunRollups(id uint64, level int) (bins map[string][]RollupBin, s
 					return fmt.Errorf("run %d source %q key %x: %w", id, src, k, err)
 				}
 				b.T0Us = i64FromKey(k[1:])
+				samples[level] += b.Samples
 				list = append(list, b)
+			}
+			// A level the writer did not keep for this source (too few
+			// samples to a bin), or kept for part of the run only (its
+			// rate changed), holds fewer sample times than another level.
+			if samples[level] < slices.Max(samples[:]) {
+				sparse = append(sparse, string(src))
+				return nil
 			}
 			bins[string(src)] = list
 			return nil
 		})
 	})
+	if err == nil && stored {
+		// Sources with no stored bins at any level (slow ones), or a
+		// level the writer left out: from their raw blocks.
+		srcs, rerr := s.rawSources(id)
+		if rerr != nil {
+			return nil, stored, rerr
+		}
+		for _, src := range srcs {
+			if _, ok := bins[src]; ok && !slices.Contains(sparse, src) {
+				continue
+			}
+			rs := rollupSet{}
+			it := s.newBlockIter(id, src)
+			for {
+				b, ok, ierr := it.next()
+				if ierr != nil {
+					return nil, stored, ierr
+				}
+				if !ok {
+					break
+				}
+				rs.addLevel(&b, level)
+			}
+			list := make([]RollupBin, 0, len(rs[src][level]))
+			for _, b := range rs[src][level] {
+				list = append(list, *b)
+			}
+			sort.Slice(list, func(i, j int) bool { return list[i].T0Us < list[j].T0Us })
+			bins[src] = list
+		}
+	}
 	if err != nil || stored {
 		return bins, stored, err
 	}

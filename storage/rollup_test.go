@@ -119,8 +119,10 @@ func checkRollups(t *testing.T, s *storage.Store, id uint64, wantStored bool) {
 }
 
 // Ensure that the rollups stored as blocks are committed equal the ones
-// worked out from the raw data, at every width: two sources at different
-// rates, blocks that straddle bin edges, NaN gaps, a channel that joins
+// worked out from the raw data, at every width: three sources at different
+// rates (a 50 Hz one whose fine levels are too sparse to keep, one whose
+// rate goes from 100 Hz to 1 kHz, so a level is kept for part of the run;
+// both worked out from the raw blocks when asked), blocks that straddle bin edges, NaN gaps, a channel that joins
 // late, negative device times, a repeated block (stored once, counted
 // once) and many commits.
 func TestRollups_MatchRawData(t *testing.T) {
@@ -164,6 +166,20 @@ func TestRollups_MatchRawData(t *testing.T) {
 				}
 				p.Series = []acquire.Series{{Channel: "q", Raw: raw}}
 				q <- storage.Item{Block: p}
+				// scanner: 100 Hz for the first 200 ms blocks (its 1 s and
+				// 10 s bins too sparse to keep), then 1 kHz (kept): a level
+				// stored for part of the run only.
+				dt, n := int64(10_000), 20
+				if seq >= 200 {
+					dt, n = 1000, 200
+				}
+				sc := &acquire.Block{Source: "scanner", Seq: seq / 4, T0Us: int64(seq/4) * 200_000, DtUs: dt, Received: p.Received}
+				raw = make([]float64, n)
+				for i := range raw {
+					raw[i] = math.Round((-400+rng.NormFloat64()*30)*100) / 100
+				}
+				sc.Series = []acquire.Series{{Channel: "p01", Raw: raw}}
+				q <- storage.Item{Block: sc}
 			}
 		}
 	}()
