@@ -7,8 +7,6 @@ import (
 	"slices"
 	"time"
 
-	"gonum.org/v1/gonum/dsp/fourier"
-
 	"liftyard/calibrate"
 	"liftyard/rig"
 )
@@ -1040,8 +1038,8 @@ func (e *RoofEstimator) peakEpochs(p []float64, buf *roofBuf) int {
 }
 
 // integralTimeS is the integral time scale of the finite values of p
-// sampled every dtS seconds: the autocorrelation ρ(τ) (from the power
-// spectrum, Wiener–Khinchin) integrated up to its first zero crossing by
+// sampled every dtS seconds: the autocorrelation ρ(τ) (autocovFFT, from
+// the power spectrum) integrated up to its first zero crossing by
 // the trapezoidal rule. Non-finite values count as the mean.
 func integralTimeS(p []float64, dtS float64) float64 {
 	n := len(p)
@@ -1049,18 +1047,13 @@ func integralTimeS(p []float64, dtS float64) float64 {
 	if !finite(mean) || !(dtS > 0) {
 		return 0
 	}
-	x := make([]float64, 2*n)
+	d := make([]float64, n)
 	for i, v := range p {
 		if finite(v) {
-			x[i] = v - mean
+			d[i] = v - mean
 		}
 	}
-	fft := fourier.NewFFT(2 * n)
-	c := fft.Coefficients(nil, x)
-	for i, v := range c {
-		c[i] = complex(real(v)*real(v)+imag(v)*imag(v), 0)
-	}
-	r := fft.Sequence(x, c)
+	r := autocovFFT(d)
 	if !(r[0] > 0) {
 		return 0
 	}

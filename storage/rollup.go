@@ -321,14 +321,15 @@ func putRollups(tx *bolt.Tx, runID uint64, rs rollupSet, hadBlocks bool) error {
 // RollupWidths) for every source that stored blocks: bins in time order.
 // stored is false when the run has no stored rollups (a store written
 // before rollups existed, or a run with no blocks yet): the bins are then
-// computed from the raw blocks, which reads every block of the run.
+// computed from the raw blocks, which reads every block of the run. A
+// source whose stored level is not whole (RollupMinSamples, a rate
+// change) has it computed from its own raw blocks, stored still true.
 func (s *Store) RunRollups(id uint64, level int) (bins map[string][]RollupBin, stored bool, err error) {
 	if level < 0 || level >= len(RollupWidths) {
 		return nil, false, fmt.Errorf("rollup level %d: give 0 to %d", level, len(RollupWidths)-1)
 	}
 	defer guard(&err, fmt.Sprintf("read rollups of run %d", id))()
 	bins = map[string][]RollupBin{}
-	var sparse []string // sources whose stored level is not whole
 	err = s.db.View(func(tx *bolt.Tx) error {
 		if tx.Bucket(bucketRuns).Get(u64(id)) == nil {
 			return fmt.Errorf("run %d: %w", id, ErrNotFound)
@@ -374,63 +375,53 @@ func (s *Store) RunRollups(id uint64, level int) (bins map[string][]RollupBin, s
 			// samples to a bin), or kept for part of the run only (its
 			// rate changed), holds fewer sample times than another level.
 			if samples[level] < slices.Max(samples[:]) {
-				sparse = append(sparse, string(src))
-				return nil
+				return nil // worked out from the raw blocks below
 			}
 			bins[string(src)] = list
 			return nil
 		})
 	})
-	if err == nil && stored {
-		// Sources with no stored bins at any level (slow ones), or a
-		// level the writer left out: from their raw blocks.
-		srcs, rerr := s.rawSources(id)
-		if rerr != nil {
-			return nil, stored, rerr
+	if err != nil {
+		return nil, stored, err
+	}
+	// A source without this level stored whole — every source of a run
+	// stored before rollups existed, a slow source, a level kept for part
+	// of the run only — has it worked out from its raw blocks (this level
+	// only: the finest level of a long run would be large).
+	srcs, err := s.rawSources(id)
+	if err != nil {
+		return nil, stored, err
+	}
+	for _, src := range srcs {
+		if _, ok := bins[src]; ok {
+			continue
 		}
-		for _, src := range srcs {
-			if _, ok := bins[src]; ok && !slices.Contains(sparse, src) {
-				continue
-			}
-			rs := rollupSet{}
-			it := s.newBlockIter(id, src)
-			for {
-				b, ok, ierr := it.next()
-				if ierr != nil {
-					return nil, stored, ierr
-				}
-				if !ok {
-					break
-				}
-				rs.addLevel(&b, level)
-			}
-			list := make([]RollupBin, 0, len(rs[src][level]))
-			for _, b := range rs[src][level] {
-				list = append(list, *b)
-			}
-			sort.Slice(list, func(i, j int) bool { return list[i].T0Us < list[j].T0Us })
-			bins[src] = list
+		if bins[src], err = s.rollupFromRaw(id, src, level); err != nil {
+			return nil, stored, err
 		}
 	}
-	if err != nil || stored {
-		return bins, stored, err
-	}
-	// No stored rollups: compute this level from the raw blocks (only
-	// this one: the finest level of a long run would be large).
+	return bins, stored, nil
+}
+
+// rollupFromRaw works out one level of source src's rollup of run id from
+// its raw blocks, in time order.
+func (s *Store) rollupFromRaw(id uint64, src string, level int) ([]RollupBin, error) {
 	rs := rollupSet{}
-	if err := s.RawBlocks(id, func(b acquire.Block) error {
-		rs.addLevel(&b, level)
-		return nil
-	}); err != nil {
-		return nil, false, err
-	}
-	for src, levels := range rs {
-		list := make([]RollupBin, 0, len(levels[level]))
-		for _, b := range levels[level] {
-			list = append(list, *b)
+	it := s.newBlockIter(id, src)
+	for {
+		b, ok, err := it.next()
+		if err != nil {
+			return nil, err
 		}
-		sort.Slice(list, func(i, j int) bool { return list[i].T0Us < list[j].T0Us })
-		bins[src] = list
+		if !ok {
+			break
+		}
+		rs.addLevel(&b, level)
 	}
-	return bins, false, nil
+	list := make([]RollupBin, 0, len(rs[src][level]))
+	for _, b := range rs[src][level] {
+		list = append(list, *b)
+	}
+	sort.Slice(list, func(i, j int) bool { return list[i].T0Us < list[j].T0Us })
+	return list, nil
 }
