@@ -1,7 +1,9 @@
 package storage_test
 
 import (
+	"bytes"
 	"context"
+	"encoding/binary"
 	"errors"
 	"io"
 	"math/rand/v2"
@@ -22,8 +24,10 @@ import (
 // segments, events), marks and calibration links, closes it, keeps a
 // pristine copy, and writes random bytes over one leaf page holding
 // several records. It returns the damaged path, the pristine copy, and how
-// many records the damaged page held.
-func damagedFixture(t *testing.T) (bad, pristine string, onPage int) {
+// many records the damaged page held. With firstPage the page is the one
+// that holds the first raw block of the first run (nothing readable before
+// it in its bucket), else the leaf in the middle of those holding records.
+func damagedFixture(t *testing.T, firstPage bool) (bad, pristine string, onPage int) {
 	t.Helper()
 	dir := t.TempDir()
 	bad = filepath.Join(dir, "field.db")
@@ -35,7 +39,9 @@ func damagedFixture(t *testing.T) (bad, pristine string, onPage int) {
 		errc := make(chan error, 1)
 		go func() { errc <- w.Run(context.Background(), in) }()
 		for i := range nBlocks {
-			in <- storage.Item{Block: testBlock("bal", uint64(i), 8, "n", "a")}
+			// Each run's blocks have keys of their own (the first-page
+			// case finds its page by the first key).
+			in <- storage.Item{Block: testBlock("bal", uint64(run*100_000+i), 8, "n", "a")}
 			if i%500 == 0 {
 				in <- storage.Item{Segment: &estimate.Segment{Index: i / 500, N: 100}}
 				in <- storage.Item{Event: &storage.Event{Kind: "gap", Message: "test gap"}}
@@ -71,7 +77,11 @@ func damagedFixture(t *testing.T) (bad, pristine string, onPage int) {
 	var leaves []int
 	counts := map[int]int{}
 	pageSize := db.Info().PageSize
+	var firstKey []byte
 	err = db.View(func(tx *bolt.Tx) error {
+		rb := tx.Bucket([]byte("raw")).Bucket(binary.BigEndian.AppendUint64(nil, 1)).Bucket([]byte("bal"))
+		k, _ := rb.Cursor().First()
+		firstKey = bytes.Clone(k)
 		for id := 2; ; id++ {
 			p, err := tx.Page(id)
 			if err != nil || p == nil {
@@ -88,6 +98,28 @@ func damagedFixture(t *testing.T) (bad, pristine string, onPage int) {
 		t.Fatalf("%d leaf pages found: %v", len(leaves), err)
 	}
 	victim := leaves[len(leaves)/2]
+	if firstPage {
+		data, err := os.ReadFile(bad)
+		if err != nil {
+			t.Fatal(err)
+		}
+		victim = -1
+		for _, id := range leaves {
+			// The first element's key: page header (id u64, flags u16,
+			// count u16, overflow u32), then the element (flags, pos,
+			// ksize, vsize; u32 each), pos counted from the element.
+			p := data[id*pageSize : (id+1)*pageSize]
+			const hdr = 16
+			pos := int(binary.LittleEndian.Uint32(p[hdr+4:]))
+			ksize := int(binary.LittleEndian.Uint32(p[hdr+8:]))
+			if hdr+pos+ksize <= pageSize && bytes.Equal(p[hdr+pos:hdr+pos+ksize], firstKey) {
+				victim = id
+			}
+		}
+		if victim < 0 {
+			t.Fatalf("no leaf starts with the first block key %x", firstKey)
+		}
+	}
 	garbage := make([]byte, pageSize)
 	rng := rand.New(rand.NewPCG(16, 2026))
 	for i := range garbage {
@@ -130,7 +162,22 @@ func copyFile(t *testing.T, from, to string) {
 // every readable record into a new file — every block except exactly those
 // of the damaged page, each bit for bit — and says what it lost.
 func TestRepair_DamagedPage(t *testing.T) {
-	bad, pristine, onPage := damagedFixture(t)
+	for _, tc := range []struct {
+		name      string
+		firstPage bool
+	}{
+		{"a page in the middle", false},
+		// Nothing readable before it: the search for the next page starts
+		// from no key (it once probed with 8-byte keys, which skipped the
+		// blocks whose 16-byte keys share their first 8 bytes).
+		{"the first page of a bucket", true},
+	} {
+		t.Run(tc.name, func(t *testing.T) { testRepairDamagedPage(t, tc.firstPage) })
+	}
+}
+
+func testRepairDamagedPage(t *testing.T, firstPage bool) {
+	bad, pristine, onPage := damagedFixture(t, firstPage)
 
 	_, err := storage.Open(bad, storage.Options{})
 	if !errors.Is(err, storage.ErrDamaged) || !errors.Is(err, storage.ErrCorrupt) {
@@ -226,7 +273,7 @@ func TestRepair_DamagedPage(t *testing.T) {
 // Ensure that an intact file opens for writing after the checks, and that
 // Repair of it loses nothing.
 func TestRepair_IntactFile(t *testing.T) {
-	_, pristine, _ := damagedFixture(t)
+	_, pristine, _ := damagedFixture(t, false)
 	s := MustOpenStoreAt(t, pristine, storage.Options{})
 	s.Close()
 	out := filepath.Join(t.TempDir(), "copy.db")

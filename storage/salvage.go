@@ -154,8 +154,20 @@ func (w *walker) skip(b *bolt.Bucket, last []byte) (*bolt.Cursor, []byte, []byte
 		return c, k, v, err == nil
 	}
 	if last == nil {
-		// The first page is unreadable: step from the smallest 8-byte key.
-		last = make([]byte, 8)
+		// The first page is unreadable: step from the smallest key of the
+		// bucket's key length, which the last key tells when its page
+		// reads (a probe of another length could not land on the first
+		// key of the next page, and would skip the keys it prefixes), else
+		// from the smallest 8-byte key.
+		n := 8
+		if err := protect(func() {
+			if k, _ := b.Cursor().Last(); k != nil {
+				n = len(k)
+			}
+		}); err != nil {
+			n = 8
+		}
+		last = make([]byte, n)
 	}
 	bits := 8*len(last) + 1
 	hi := -1
