@@ -4,6 +4,7 @@ import (
 	"encoding/binary"
 	"fmt"
 	"math"
+	"strconv"
 	"time"
 
 	"liftyard/acquire"
@@ -41,27 +42,13 @@ const maxBlockReadings = 1 << 22
 // channels, each in the smallest exact codec of blockcodec.go. Every
 // reading decodes to the same float64 bits (NaN payloads and −0 included).
 func encodeBlock(dst []byte, b *acquire.Block) ([]byte, error) {
+	if err := checkBlock(b); err != nil {
+		return dst, err
+	}
 	n := b.Len()
-	if len(b.Series) > math.MaxUint16 {
-		return dst, fmt.Errorf("block %s seq %d: %d channels (at most %d): %w",
-			b.Source, b.Seq, len(b.Series), math.MaxUint16, ErrBadRecord)
-	}
-	if uint64(n)*uint64(max(len(b.Series), 1)) > maxBlockReadings {
-		return dst, fmt.Errorf("block %s seq %d: %d channels × %d samples (at most %d readings): %w",
-			b.Source, b.Seq, len(b.Series), n, maxBlockReadings, ErrBadRecord)
-	}
 	size := 1 + 5*binary.MaxVarintLen64
 	for i := range b.Series {
-		s := &b.Series[i]
-		if len(s.Raw) != n {
-			return dst, fmt.Errorf("block %s seq %d: channel %q has %d samples, channel %q has %d: %w",
-				b.Source, b.Seq, s.Channel, len(s.Raw), b.Series[0].Channel, n, ErrBadRecord)
-		}
-		if len(s.Channel) > math.MaxUint16 {
-			return dst, fmt.Errorf("block %s seq %d: channel name of %d bytes: %w",
-				b.Source, b.Seq, len(s.Channel), ErrBadRecord)
-		}
-		size += 3 + len(s.Channel) + 3*n + 16
+		size += 3 + len(b.Series[i].Channel) + 3*n + 16
 	}
 	var recv int64
 	if !b.Received.IsZero() {
@@ -80,22 +67,113 @@ func encodeBlock(dst []byte, b *acquire.Block) ([]byte, error) {
 	dst = binary.AppendUvarint(dst, uint64(len(b.Series)))
 	dst = binary.AppendUvarint(dst, uint64(n))
 	prev := ""
-	for i := range b.Series {
+	for i := 0; i < len(b.Series); {
 		name := b.Series[i].Channel
+		if isNextName(prev, name) {
+			m := 1
+			for i+m < len(b.Series) && isNextName(b.Series[i+m-1].Channel, b.Series[i+m].Channel) {
+				m++
+			}
+			dst = binary.AppendUvarint(dst, 0)
+			dst = binary.AppendUvarint(dst, uint64(m-1))
+			i += m
+			prev = b.Series[i-1].Channel
+			continue
+		}
 		shared := 0
 		for shared < len(name) && shared < len(prev) && name[shared] == prev[shared] {
 			shared++
 		}
-		dst = binary.AppendUvarint(dst, uint64(shared))
+		dst = binary.AppendUvarint(dst, uint64(shared)+1)
 		dst = binary.AppendUvarint(dst, uint64(len(name)-shared))
 		dst = append(dst, name[shared:]...)
 		prev = name
+		i++
 	}
 	ks := make([]int64, n)
+	var ctx scaledCtx
 	for i := range b.Series {
-		dst = appendChannel(dst, b.Series[i].Raw, ks)
+		dst = appendChannel(dst, b.Series[i].Raw, ks, &ctx)
 	}
 	return dst, nil
+}
+
+// maxNameDigits is how many trailing digits of a channel name count as its
+// number (10^18 + 1 still fits a uint64).
+const maxNameDigits = 18
+
+// nameNumber splits name into a stem and its number: the trailing decimal
+// digits, at most maxNameDigits of them; ok is false without a digit at
+// the end.
+func nameNumber(name string) (stem string, digits string, ok bool) {
+	i := len(name)
+	for i > 0 && len(name)-i < maxNameDigits && name[i-1] >= '0' && name[i-1] <= '9' {
+		i--
+	}
+	return name[:i], name[i:], i < len(name)
+}
+
+// appendNextNumber appends the number of digits plus one, zero-padded to
+// the width of digits (tap_09 → tap_10, p9 → p10, x099 → x100).
+func appendNextNumber(dst []byte, digits string) []byte {
+	var v uint64
+	for i := 0; i < len(digits); i++ {
+		v = 10*v + uint64(digits[i]-'0')
+	}
+	var buf [20]byte
+	num := strconv.AppendUint(buf[:0], v+1, 10)
+	for range len(digits) - len(num) {
+		dst = append(dst, '0')
+	}
+	return append(dst, num...)
+}
+
+// isNextName reports whether name is the channel after prev in a numbered
+// run (tap_01, tap_02, …), which a block stores in no bytes of its own.
+func isNextName(prev, name string) bool {
+	stem, digits, ok := nameNumber(prev)
+	if !ok || len(name) < len(stem) || name[:len(stem)] != stem {
+		return false
+	}
+	var buf [24]byte
+	return string(appendNextNumber(buf[:0], digits)) == name[len(stem):]
+}
+
+// nextName is the channel after prev in a numbered run; ok is false when
+// prev ends in no digit.
+func nextName(prev string) (string, bool) {
+	stem, digits, ok := nameNumber(prev)
+	if !ok {
+		return "", false
+	}
+	return string(appendNextNumber([]byte(stem), digits)), true
+}
+
+// checkBlock returns an error wrapping ErrBadRecord when b cannot be
+// stored: too many channels or readings, channels of unequal lengths, a
+// name too long.
+func checkBlock(b *acquire.Block) error {
+	n := b.Len()
+	if len(b.Series) > math.MaxUint16 {
+		return fmt.Errorf("block %s seq %d: %d channels (at most %d): %w",
+			b.Source, b.Seq, len(b.Series), math.MaxUint16, ErrBadRecord)
+	}
+	if uint64(n)*uint64(max(len(b.Series), 1)) > maxBlockReadings {
+		return fmt.Errorf("block %s seq %d: %d channels × %d samples (at most %d readings): %w",
+			b.Source, b.Seq, len(b.Series), n, maxBlockReadings, ErrBadRecord)
+	}
+	for i := range b.Series {
+		s := &b.Series[i]
+		if len(s.Raw) != n {
+			return fmt.Errorf("block %s seq %d: channel %q has %d samples, channel %q has %d: %w",
+				b.Source, b.Seq, s.Channel, len(s.Raw), b.Series[0].Channel, n, ErrBadRecord)
+		}
+		if len(s.Channel) > math.MaxUint16 {
+			return fmt.Errorf("block %s seq %d: channel name of %d bytes: %w",
+				b.Source, b.Seq, len(s.Channel), ErrBadRecord)
+		}
+	}
+	return nil
 }
 
 // decodeBlock decodes data (block format version 1 or 2) into b (all but
@@ -142,27 +220,52 @@ func decodeBlockV2(data []byte, b *acquire.Block) error {
 	n := int(n64)
 	names := make([]string, nch)
 	prev := ""
-	for i := range names {
-		shared, m := binary.Uvarint(rest)
-		if m <= 0 || shared > uint64(len(prev)) {
+	for i := 0; i < len(names); {
+		cut := func() error {
 			return fmt.Errorf("block record seq %d: channel %d name cut short: %w", seq, i, ErrCorrupt)
 		}
+		x, m := binary.Uvarint(rest)
+		if m <= 0 {
+			return cut()
+		}
 		rest = rest[m:]
+		if x == 0 { // a numbered run after prev
+			more, m := binary.Uvarint(rest)
+			if m <= 0 || more >= uint64(len(names)-i) {
+				return cut()
+			}
+			rest = rest[m:]
+			for range more + 1 {
+				next, ok := nextName(prev)
+				if !ok || len(next) > math.MaxUint16 {
+					return fmt.Errorf("block record seq %d: channel %d follows %q, which ends in no number: %w", seq, i, prev, ErrCorrupt)
+				}
+				names[i], prev = next, next
+				i++
+			}
+			continue
+		}
+		shared := x - 1
+		if shared > uint64(len(prev)) {
+			return cut()
+		}
 		l, m := binary.Uvarint(rest)
 		if m <= 0 || uint64(len(rest)-m) < l || shared+l > math.MaxUint16 {
-			return fmt.Errorf("block record seq %d: channel %d name cut short: %w", seq, i, ErrCorrupt)
+			return cut()
 		}
 		rest = rest[m:]
 		names[i] = prev[:shared] + string(rest[:l])
 		rest = rest[l:]
 		prev = names[i]
+		i++
 	}
 	series := make([]acquire.Series, nch)
 	all := make([]float64, int(nch)*n)
+	var ctx scaledCtx
 	for i := range series {
 		raw := all[i*n : (i+1)*n : (i+1)*n]
 		var err error
-		if rest, err = decodeChannel(rest, raw); err != nil {
+		if rest, err = decodeChannel(rest, raw, &ctx); err != nil {
 			return fmt.Errorf("block record seq %d: channel %d (%q) of %d samples: %w: %w", seq, i, names[i], n, err, ErrCorrupt)
 		}
 		series[i] = acquire.Series{Channel: names[i], Raw: raw}

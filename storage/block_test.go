@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"encoding/binary"
 	"errors"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"strconv"
@@ -59,8 +60,11 @@ func TestDecodeBlock_V2Errors(t *testing.T) {
 	hdr := []byte{blockV2, 9, 10, 0xd0, 0x0f, 0}
 	huge := binary.AppendUvarint(append(bytes.Clone(hdr), 1), 1<<30)
 	noCh := append(bytes.Clone(hdr), 0, 5)
-	badCodec := append(append(bytes.Clone(hdr), 1, 2, 0, 1, 'x'), 9)
-	badShare := append(bytes.Clone(hdr), 2, 0, 0, 1, 'x', 2, 0) // second name shares 2 bytes of "x"
+	badCodec := append(append(bytes.Clone(hdr), 1, 2, 1, 1, 'x'), 9)
+	badShare := append(bytes.Clone(hdr), 2, 0, 1, 1, 'x', 3, 0) // second name shares 2 bytes of "x"
+	noNumber := append(bytes.Clone(hdr), 2, 0, 1, 1, 'x', 0, 0) // "the one after x"
+	longRun := append(bytes.Clone(hdr), 2, 0, 1, 1, '1', 0, 1)  // a run of 2 after the first of 2
+	likeFirst := append(bytes.Clone(hdr), 1, 2, 1, 1, 'x', chanLike, 0)
 	for _, tc := range []struct {
 		name string
 		data []byte
@@ -74,6 +78,9 @@ func TestDecodeBlock_V2Errors(t *testing.T) {
 		{"samples without channels", noCh, "5 samples but no channel"},
 		{"unknown codec", badCodec, "channel data cut short or malformed"},
 		{"name shares more than the previous", badShare, "channel 1 name cut short"},
+		{"numbered run after a name without a number", noNumber, `channel 1 follows "x", which ends in no number`},
+		{"numbered run past the last channel", longRun, "channel 1 name cut short"},
+		{"like code without a scaled channel before", likeFirst, "channel data cut short or malformed"},
 	} {
 		var b acquire.Block
 		err := decodeBlock(tc.data, &b)
@@ -210,11 +217,81 @@ func TestEncodeBlock_Regimes(t *testing.T) {
 func blockOverhead(b *acquire.Block) int {
 	e, _ := encodeBlock(nil, &acquire.Block{Seq: b.Seq, T0Us: b.T0Us, DtUs: b.DtUs, Received: b.Received})
 	for _, s := range b.Series { // each test block has one channel: nothing shared
-		e = binary.AppendUvarint(e, 0)
+		e = binary.AppendUvarint(e, 1)
 		e = binary.AppendUvarint(e, uint64(len(s.Channel)))
 		e = append(e, s.Channel...)
 	}
 	return len(e)
+}
+
+// Ensure that what a scanner's channels share costs little: a numbered run
+// of names (tap_01 … tap_64) is stored in two bytes, and a channel scaled
+// like the one before it repeats no tag or width and codes its level
+// against that channel's. Each count below is the layout's own arithmetic
+// (docs/storage.md §2), so a change of layout that costs more fails here;
+// 64 taps of white noise in 10-sample blocks stay near the entropy of
+// their readings (σ 40 Pa in 0.01 Pa steps: 14 bits, 1.75 bytes).
+func TestEncodeBlock_ScannerSharing(t *testing.T) {
+	names := func(stem string, from, n, width int) []string {
+		var out []string
+		for i := range n {
+			out = append(out, fmt.Sprintf("%s%0*d", stem, width, from+i))
+		}
+		return out
+	}
+	block := func(chs []string, raw func(c int) []float64) *acquire.Block {
+		b := &acquire.Block{Seq: 3, T0Us: 1_773_478_800_000_000, DtUs: 10_000}
+		for c, ch := range chs {
+			b.Series = append(b.Series, acquire.Series{Channel: ch, Raw: raw(c)})
+		}
+		return b
+	}
+	same := func(c int) []float64 { return []float64{-12.25, -12.5, -12.75, -12.5} }
+	header, _ := encodeBlock(nil, &acquire.Block{Seq: 3, T0Us: 1_773_478_800_000_000, DtUs: 10_000})
+	header = header[:len(header)-2] // without its channel and sample counts
+	for _, tc := range []struct {
+		name      string
+		chs       []string
+		nameBytes int // after the header and the two counts
+	}{
+		{"a numbered run", names("tap_", 1, 64, 2), 1 + 1 + 6 + 2},        // "tap_01" in full, then (0, 62)
+		{"numbers that grow a digit", names("p", 8, 5, 1), 1 + 1 + 2 + 2}, // p8, then p9 p10 p11 p12
+		{"zero-padded past 99", names("k", 98, 4, 3), 1 + 1 + 4 + 2},      // k098 … k101
+		{"two runs", append(names("a", 1, 3, 1), names("b", 1, 3, 1)...), 2*(1+1+2) + 2*2},
+		{"no numbers", []string{"pitot", "vane", "temp"}, 2 + 5 + 2 + 4 + 2 + 4},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			b := block(tc.chs, same)
+			size := roundTrip(t, b)
+			counts := uvarintLen(uint64(len(tc.chs))) + 1
+			// The readings −12.25 −12.5 −12.75 −12.5 go by their
+			// differences (−25 −25 +25: 6 bits each, 3 bytes). The first
+			// channel: a tag, the anchor (zigzag of −1225: 2 bytes), a
+			// width and the 3 bytes; each other one a like code, an
+			// anchor of 1 byte (0: the level of the one before) and the
+			// same 3 bytes.
+			channels := (1 + 2 + 1 + 3) + (len(tc.chs)-1)*(1+1+3)
+			if want := len(header) + counts + tc.nameBytes + channels; size != want {
+				t.Errorf("%d bytes, want %d", size, want)
+			}
+		})
+	}
+
+	// 64 taps, 10 samples of white noise (σ 40 Pa, two decimals): the
+	// packed offsets take the width of the block's range, about 14 bits.
+	rng := rand.New(rand.NewPCG(40, 64))
+	noise := block(names("tap", 1, 64, 2), func(c int) []float64 {
+		raw := make([]float64, 10)
+		for i := range raw {
+			raw[i] = math.Round(100*(-300+7.5*float64(c)+40*rng.NormFloat64())) / 100
+		}
+		return raw
+	})
+	size := roundTrip(t, noise)
+	t.Logf("64 taps × 10 samples of white noise: %d bytes, %.2f per reading", size, float64(size)/640)
+	if per := float64(size) / 640; per > 2.2 {
+		t.Errorf("white noise: %.2f bytes per reading, want at most 2.2", per)
+	}
 }
 
 // Ensure that many channels and long channels round-trip, and that a block

@@ -11,10 +11,17 @@ import (
 // of a block is stored by the smallest of these that gives every reading
 // back bit for bit:
 //
-//   - scaled (tag 0x80 | exceptions<<6 | order<<4 | d): the readings are k/10^d for integers k (|k| < 2^53) and
-//     one d in 0…9, bit for bit; k is stored as itself (order 0), its first
-//     difference (order 1) or its second-order linear prediction residual
-//     (order 2), zigzag mapped and bit-packed at the width of the largest.
+//   - scaled (tag 0x80 | exceptions<<6 | order<<4 | d): the readings are
+//     k/10^d for integers k (|k| < 2^53) and one d in 0…9, bit for bit; k is
+//     stored as its offset from the block's least k (order 0, frame of
+//     reference), its first difference (order 1) or its second-order linear
+//     prediction residual (order 2), bit-packed at the width of the largest
+//     (zigzag mapped for orders 1 and 2). The first stored integer (the least
+//     k, or k0) is coded against the previous scaled channel's of the same
+//     d, as neighbouring taps and bridges sit at neighbouring levels.
+//   - like (tag 4, 5, 6): scaled with the previous scaled channel's tag and
+//     its width, its width + 1 or its width − 1; the header a scanner's
+//     channels repeat costs one byte instead of two.
 //   - chanXOR: each reading's bits XOR the previous one's, with the leading
 //     and trailing zero windows of Gorilla (Pelkonen et al. 2015).
 //   - chanRaw: float64 bits, 8 bytes each.
@@ -23,8 +30,29 @@ const (
 	chanRaw    = 0
 	chanXOR    = 2
 	chanConst  = 3
+	chanLike   = 4    // 4, 5, 6: width +0, +1, −1
 	chanScaled = 0x80 // | 0x40 with exceptions | order<<4 | d
 )
+
+// scaledCtx is what a scaled channel's header is coded against: the last
+// scaled channel before it in the block (channels of other codecs leave it
+// as it is).
+type scaledCtx struct {
+	ok     bool
+	tag    byte
+	w      uint
+	d      int
+	anchor int64 // its first stored integer: the least k (order 0) or k0
+}
+
+// ref is the integer a channel of d decimals codes its first stored integer
+// against.
+func (c *scaledCtx) ref(d int) int64 {
+	if c.ok && c.d == d {
+		return c.anchor
+	}
+	return 0
+}
 
 // maxScaledDecimals is the most decimals decimal scaling tries: 10^9 keeps
 // a count of a 24-bit converter with nine decimals below 2^53.
@@ -122,22 +150,9 @@ func decimalsOf(raw []float64, ks []int64) (d, exceptions int, ok bool) {
 func zigzag(v int64) uint64   { return uint64(v<<1) ^ uint64(v>>63) }
 func unzigzag(u uint64) int64 { return int64(u>>1) ^ -int64(u&1) }
 
-// residual returns the order-o prediction residual of ks at i (i ≥ o), in
-// wrapping integer arithmetic so that decoding is exact whatever the
-// magnitudes.
-func residual(ks []int64, i, o int) int64 {
-	switch o {
-	case 1:
-		return ks[i] - ks[i-1]
-	case 2:
-		return ks[i] - 2*ks[i-1] + ks[i-2]
-	}
-	return ks[i]
-}
-
-// appendChannel appends the smallest exact encoding of raw to dst. ks is
-// scratch of len(raw).
-func appendChannel(dst []byte, raw []float64, ks []int64) []byte {
+// appendChannel appends the smallest exact encoding of raw to dst, coding a
+// scaled header against ctx (and updating it). ks is scratch of len(raw).
+func appendChannel(dst []byte, raw []float64, ks []int64, ctx *scaledCtx) []byte {
 	n := len(raw)
 	if n == 0 {
 		return append(dst, chanConst, 0, 0, 0, 0, 0, 0, 0, 0)
@@ -150,35 +165,19 @@ func appendChannel(dst []byte, raw []float64, ks []int64) []byte {
 			break
 		}
 	}
+	if d, exc, ok := decimalsOf(raw, ks); ok && exc <= n/8 {
+		pl := planScaled(raw, ks, d, exc, ctx)
+		limit := 1 + 8*n // raw float64
+		if constant {
+			limit = 9
+		}
+		if pl.size < limit {
+			return appendScaled(dst, raw, ks, pl, ctx)
+		}
+	}
 	if constant {
 		dst = append(dst, chanConst)
 		return binary.BigEndian.AppendUint64(dst, first)
-	}
-	if d, exc, ok := decimalsOf(raw, ks); ok && exc <= n/8 {
-		// Width of each order's residuals (the first o values are stored
-		// as varints of their own).
-		var or [3]uint64
-		for i := range n {
-			or[0] |= zigzag(ks[i])
-			if i >= 1 {
-				or[1] |= zigzag(ks[i] - ks[i-1])
-			}
-			if i >= 2 {
-				or[2] |= zigzag(ks[i] - 2*ks[i-1] + ks[i-2])
-			}
-		}
-		best, bestBits := 0, uint64(math.MaxUint64)
-		for o := range 3 {
-			if o >= n {
-				break
-			}
-			if b := uint64(bits.Len64(or[o])) * uint64(n-o); b < bestBits {
-				best, bestBits = o, b
-			}
-		}
-		if bestBits/8+12+9*uint64(exc) < uint64(8*n) {
-			return appendScaled(dst, raw, ks, d, best, exc, uint(bits.Len64(or[best])))
-		}
 	}
 	xorStart := len(dst)
 	dst = appendXOR(dst, raw)
@@ -192,20 +191,99 @@ func appendChannel(dst []byte, raw []float64, ks []int64) []byte {
 	return dst
 }
 
-// appendScaled writes: u8 tag 0x80 | 0x40 when there are exceptions |
-// order<<4 | d; with exceptions, uvarint count E and E × (uvarint gap to the
-// previous exception's index (the first: its index), 8 bytes of float64
-// bits); then the first order values as zigzag varints (k0, then k1−k0),
-// u8 width w, and the residuals of values order… as w-bit zigzag codes,
-// packed most significant bit first.
-func appendScaled(dst []byte, raw []float64, ks []int64, d, order, exc int, w uint) []byte {
-	tag := byte(chanScaled | order<<4 | d)
-	if exc > 0 {
-		tag |= 0x40
+// scaledPlan is the layout appendScaled writes for one channel.
+type scaledPlan struct {
+	d, order, exc int
+	tag           byte
+	like          byte // 0, or the chanLike code that replaces tag and width
+	w             uint
+	anchor        int64
+	size          int // bytes
+}
+
+func uvarintLen(u uint64) int { return (bits.Len64(u|1) + 6) / 7 }
+
+// planScaled picks the order whose header and packed residuals take the
+// fewest bits, and whether the header can be a like code.
+func planScaled(raw []float64, ks []int64, d, exc int, ctx *scaledCtx) scaledPlan {
+	n := len(ks)
+	ref := ctx.ref(d)
+	lo, hi := ks[0], ks[0]
+	var or1, or2 uint64
+	for i, k := range ks {
+		lo, hi = min(lo, k), max(hi, k)
+		if i >= 1 {
+			or1 |= zigzag(k - ks[i-1])
+		}
+		if i >= 2 {
+			or2 |= zigzag(k - 2*ks[i-1] + ks[i-2])
+		}
 	}
-	dst = append(dst, tag)
+	widths := [3]uint{uint(bits.Len64(uint64(hi - lo))), uint(bits.Len64(or1)), uint(bits.Len64(or2))}
+	anchors := [3]int64{lo, ks[0], ks[0]}
+	best := scaledPlan{size: math.MaxInt}
+	for o := range 3 {
+		if o > 0 && o >= n {
+			break
+		}
+		head := uvarintLen(zigzag(anchors[o] - ref))
+		if o == 2 {
+			head += uvarintLen(zigzag(ks[1] - ks[0]))
+		}
+		bitsN := uint64(widths[o]) * uint64(n-o)
+		if b := 8*uint64(head) + bitsN; best.size == math.MaxInt || b < uint64(best.size) {
+			best = scaledPlan{d: d, order: o, exc: exc, w: widths[o], anchor: anchors[o], size: int(b)}
+		}
+	}
+	best.tag = byte(chanScaled | best.order<<4 | d)
 	if exc > 0 {
-		dst = binary.AppendUvarint(dst, uint64(exc))
+		best.tag |= 0x40
+	}
+	size := 2 + (best.size+7)/8 // tag, width, header varints and packed bits
+	if ctx.ok && ctx.tag == best.tag {
+		switch {
+		case best.w == ctx.w:
+			best.like = chanLike
+		case best.w == ctx.w+1:
+			best.like = chanLike + 1
+		case best.w+1 == ctx.w:
+			best.like = chanLike + 2
+		}
+		if best.like != 0 {
+			size--
+		}
+	}
+	if exc > 0 {
+		size += uvarintLen(uint64(exc))
+		last := 0
+		for i, v := range raw {
+			if isException(v) {
+				size += uvarintLen(uint64(i-last)) + 8
+				last = i
+			}
+		}
+	}
+	best.size = size
+	return best
+}
+
+// appendScaled writes: u8 tag (0x80 | 0x40 when there are exceptions |
+// order<<4 | d), or a like code 4–6 in its place; with exceptions, uvarint
+// count E and E × (uvarint gap to the previous exception's index (the
+// first: its index), 8 bytes of float64 bits); the anchor (the least k for
+// order 0, k0 otherwise) as a zigzag varint of its difference to ctx's
+// anchor (same d; else to 0); for order 2, k1−k0 as a zigzag varint; u8
+// width w unless the tag was a like code; then the residuals as w-bit codes
+// (order 0: k − least k; orders 1 and 2: zigzag of the residual of values
+// order…), packed most significant bit first.
+func appendScaled(dst []byte, raw []float64, ks []int64, pl scaledPlan, ctx *scaledCtx) []byte {
+	if pl.like != 0 {
+		dst = append(dst, pl.like)
+	} else {
+		dst = append(dst, pl.tag)
+	}
+	if pl.exc > 0 {
+		dst = binary.AppendUvarint(dst, uint64(pl.exc))
 		last := 0
 		for i, v := range raw {
 			if isException(v) {
@@ -215,19 +293,24 @@ func appendScaled(dst []byte, raw []float64, ks []int64, d, order, exc int, w ui
 			}
 		}
 	}
-	for i := range order {
-		dst = binary.AppendUvarint(dst, zigzag(residual(ks, i, i)))
+	dst = binary.AppendUvarint(dst, zigzag(pl.anchor-ctx.ref(pl.d)))
+	if pl.order == 2 {
+		dst = binary.AppendUvarint(dst, zigzag(ks[1]-ks[0]))
 	}
-	dst = append(dst, byte(w))
+	*ctx = scaledCtx{ok: true, tag: pl.tag, w: pl.w, d: pl.d, anchor: pl.anchor}
+	w := pl.w
+	if pl.like == 0 {
+		dst = append(dst, byte(w))
+	}
 	if w == 0 {
 		return dst
 	}
 	var bw bitWriter
 	bw.buf = dst
-	switch order {
+	switch pl.order {
 	case 0:
 		for _, k := range ks {
-			bw.write(zigzag(k), w)
+			bw.write(uint64(k-pl.anchor), w)
 		}
 	case 1:
 		for i := 1; i < len(ks); i++ {
@@ -279,16 +362,26 @@ func appendXOR(dst []byte, raw []float64) []byte {
 }
 
 // decodeChannel decodes one channel of n readings from data into out
-// (len n) and returns the rest of data.
-func decodeChannel(data []byte, out []float64) ([]byte, error) {
+// (len n), a scaled header against ctx (which it updates), and returns the
+// rest of data.
+func decodeChannel(data []byte, out []float64, ctx *scaledCtx) ([]byte, error) {
 	if len(data) < 1 {
 		return nil, errShort
 	}
 	n := len(out)
 	if data[0]&chanScaled != 0 {
-		return decodeScaled(data, out)
+		return decodeScaled(data[1:], out, data[0], -1, ctx)
 	}
 	switch data[0] {
+	case chanLike, chanLike + 1, chanLike + 2:
+		if !ctx.ok {
+			return nil, errShort // like what?
+		}
+		w := int(ctx.w) + []int{0, 1, -1}[data[0]-chanLike]
+		if w < 0 || w > 64 {
+			return nil, errShort
+		}
+		return decodeScaled(data[1:], out, ctx.tag, w, ctx)
 	case chanConst:
 		if len(data) < 9 {
 			return nil, errShort
@@ -313,14 +406,12 @@ func decodeChannel(data []byte, out []float64) ([]byte, error) {
 	return nil, errShort
 }
 
-func decodeScaled(data []byte, out []float64) ([]byte, error) {
-	if len(data) < 1 {
-		return nil, errShort
-	}
-	d, order, hasExc := int(data[0]&0x0f), int(data[0]>>4&0x03), data[0]&0x40 != 0
-	data = data[1:]
+// decodeScaled decodes a scaled channel after its tag byte; width is the
+// packed width, or −1 when it follows in data.
+func decodeScaled(data []byte, out []float64, tag byte, width int, ctx *scaledCtx) ([]byte, error) {
+	d, order, hasExc := int(tag&0x0f), int(tag>>4&0x03), tag&0x40 != 0
 	n := len(out)
-	if d > maxScaledDecimals || order > 2 || order > n || (n > 0 && order == n) {
+	if d > maxScaledDecimals || order > 2 || n == 0 || order >= n && order > 0 {
 		return nil, errShort
 	}
 	// Exceptions are read first and put in place last.
@@ -351,29 +442,37 @@ func decodeScaled(data []byte, out []float64) ([]byte, error) {
 		}
 	}
 	p := pow10[d]
-	var k1, k2 int64 // the last two integers
-	for i := range order {
+	u, m := binary.Uvarint(data)
+	if m <= 0 {
+		return nil, errShort
+	}
+	data = data[m:]
+	anchor := unzigzag(u) + ctx.ref(d)
+	k1, k2 := anchor, int64(0) // the last two integers (orders 1 and 2)
+	if order >= 1 {
+		out[0] = float64(k1) / p
+	}
+	if order == 2 {
 		u, m := binary.Uvarint(data)
 		if m <= 0 {
 			return nil, errShort
 		}
 		data = data[m:]
-		r := unzigzag(u)
-		if i == 0 {
-			k1 = r
-		} else {
-			k2, k1 = k1, k1+r
+		k2, k1 = k1, k1+unzigzag(u)
+		out[1] = float64(k1) / p
+	}
+	if width < 0 {
+		if len(data) < 1 {
+			return nil, errShort
 		}
-		out[i] = float64(k1) / p
+		width = int(data[0])
+		data = data[1:]
+		if width > 64 {
+			return nil, errShort
+		}
 	}
-	if len(data) < 1 {
-		return nil, errShort
-	}
-	w := uint(data[0])
-	data = data[1:]
-	if w > 64 {
-		return nil, errShort
-	}
+	*ctx = scaledCtx{ok: true, tag: tag, w: uint(width), d: d, anchor: anchor}
+	w := uint(width)
 	cnt := uint64(n - order)
 	nbytes := (cnt*uint64(w) + 7) / 8
 	if uint64(len(data)) < nbytes {
@@ -396,12 +495,18 @@ func decodeScaled(data []byte, out []float64) ([]byte, error) {
 	var j uint64
 	switch order {
 	case 0:
+		if w == 0 {
+			for i := range out {
+				out[i] = float64(anchor) / p
+			}
+			break
+		}
 		for ; j < fast; j++ {
-			out[j] = float64(unzigzag(get(j))) / p
+			out[j] = float64(anchor+int64(get(j))) / p
 		}
 		br.pos = j * uint64(w)
 		for i := int(j); i < n; i++ {
-			out[i] = float64(unzigzag(br.read(w))) / p
+			out[i] = float64(anchor+int64(br.read(w))) / p
 		}
 	case 1:
 		for ; j < fast; j++ {

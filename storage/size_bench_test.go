@@ -138,6 +138,10 @@ var storeCases = []struct {
 	{"pressure_100Hz64taps_turb15Pa_tau3", 1200, 100, 64, 10, func(c int) signal { return pressure(-300+float64(c)*7.5, 15, 3) }},
 	{"pressure_100Hz64taps_turb15Pa_tau3_blocks100", 1200, 100, 64, 100, func(c int) signal { return pressure(-300+float64(c)*7.5, 15, 3) }},
 	{"pressure_100Hz64taps_white40Pa", 1200, 100, 64, 10, func(c int) signal { return pressure(-300+float64(c)*7.5, 40, 0) }},
+	// Harsher than a field record, to show where 3 bytes stops holding.
+	{"loadcell_1kHz16ch_noise10000", 600, 1000, 16, 100, func(c int) signal { return loadCell(float64(c)*90_000-700_000, 10_000) }},
+	{"pressure_1kHz16ch_white100Pa", 600, 1000, 16, 100, func(c int) signal { return pressure(123.45+float64(c)*10, 100, 0) }},
+	{"pressure_100Hz64taps_white100Pa_blocks100", 1200, 100, 64, 100, func(c int) signal { return pressure(-300+float64(c)*7.5, 100, 0) }},
 }
 
 // BenchmarkStoreSize records each case through the writer and reports the

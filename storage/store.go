@@ -56,7 +56,7 @@ var (
 // write transaction (bbolt does not persist it). Keys in those buckets only
 // ever grow, so nearly full pages waste nothing; bbolt's default 0.5 doubles
 // the leaf pages.
-const appendFill = 0.9
+const appendFill = 1.0
 
 // Options configure Open. A zero Options opens read-write with the default
 // timeout and the system clock.

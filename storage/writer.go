@@ -614,6 +614,67 @@ type encoded struct {
 	value  []byte
 	n      int
 	blk    *acquire.Block // for the rollups
+	part   int            // which part of the block (appendStored)
+}
+
+// StoredPartReadings bounds a stored block record: a block of more
+// readings (channels × samples) is stored as consecutive parts of at most
+// this many, whole samples each, every part a block of its own with the
+// block's seq and period. bbolt packs a leaf page well only with many
+// records on it: when a commit adds a record or two to a full page, the
+// split leaves two records behind, so 10 kB blocks on 32 KiB pages filled
+// them to 65 % (docs/storage.md §1). The bound counts readings, not bytes,
+// so a block is cut the same way whenever it is stored (a block sent again
+// replaces its parts) without encoding it twice; at 1–3 bytes a reading a
+// part is 1–3 KiB.
+const StoredPartReadings = 1024
+
+// appendStored appends blk to enc, encoded whole or as parts of at most
+// StoredPartReadings readings; an error (wrapping ErrBadRecord) when the
+// block cannot be stored, with nothing appended.
+func appendStored(enc []encoded, blk *acquire.Block) ([]encoded, error) {
+	n := blk.Len()
+	per := n
+	if parts := (n*len(blk.Series) + StoredPartReadings - 1) / StoredPartReadings; parts > 1 && blk.DtUs > 0 {
+		parts = min(n, parts)
+		per = (n + parts - 1) / parts
+	}
+	if per >= n { // whole, an empty block too
+		v, err := encodeBlock(nil, blk)
+		if err != nil {
+			return enc, err
+		}
+		return append(enc, encoded{source: blk.Source, key: blockKey(nil, blk), value: v, n: n, blk: blk}), nil
+	}
+	if err := checkBlock(blk); err != nil { // before cutting channels of unequal lengths
+		return enc, err
+	}
+	from := len(enc)
+	for i := 0; i < n; i += per {
+		pb := blockPart(blk, i, min(i+per, n))
+		v, err := encodeBlock(nil, pb)
+		if err != nil {
+			return enc[:from], err
+		}
+		enc = append(enc, encoded{source: blk.Source, key: blockKey(nil, pb), value: v, n: pb.Len(), blk: pb, part: i / per})
+	}
+	return enc, nil
+}
+
+// blockPart is samples [from, to) of blk as a block of its own: the same
+// source, seq and sample period, its first sample's time, and a receive
+// time earlier by the samples after it, so that the offset between device
+// and receive time (which the aligner and the rollups use) is the block's.
+func blockPart(blk *acquire.Block, from, to int) *acquire.Block {
+	pb := &acquire.Block{Source: blk.Source, Seq: blk.Seq, T0Us: blk.T0Us + int64(from)*blk.DtUs, DtUs: blk.DtUs,
+		Series: make([]acquire.Series, len(blk.Series))}
+	if !blk.Received.IsZero() {
+		pb.Received = blk.Received.Add(-time.Duration(int64(blk.Len()-to)*blk.DtUs) * time.Microsecond)
+	}
+	for i, s := range blk.Series {
+		pb.Series[i] = acquire.Series{Channel: s.Channel, Raw: s.Raw[from:to:to]}
+	}
+	return pb
 }
 
 // commit writes b in one transaction: the blocks, segments and events, and
@@ -637,9 +698,9 @@ func (w *Writer) commit(b *batch) (err error) {
 		if blk.Source == "" {
 			err = fmt.Errorf("block seq %d has no source name: %w", blk.Seq, ErrBadRecord)
 		}
-		var val []byte
+		from := len(enc)
 		if err == nil {
-			val, err = encodeBlock(nil, blk)
+			enc, err = appendStored(enc, blk)
 		}
 		if err != nil {
 			rejected++
@@ -647,8 +708,9 @@ func (w *Writer) commit(b *batch) (err error) {
 			events = append(events, Event{T: now, Kind: EventRejected, Source: blk.Source, Message: err.Error()})
 			continue
 		}
-		encBytes += uint64(len(val))
-		enc = append(enc, encoded{source: blk.Source, key: blockKey(nil, blk), value: val, n: blk.Len(), blk: blk})
+		for _, e := range enc[from:] {
+			encBytes += uint64(len(e.value))
+		}
 	}
 	// A segment that cannot be encoded is logged and left out, like a
 	// block: retrying would never store it.
@@ -699,7 +761,9 @@ func (w *Writer) commit(b *batch) (err error) {
 				if err := sb.Put(e.key, e.value); err != nil {
 					return err
 				}
-				nBlocks++
+				if e.part == 0 {
+					nBlocks++
+				}
 			}
 			if err := putRollups(tx, w.runID, roll, hadBlocks); err != nil {
 				return err

@@ -2,12 +2,19 @@ package storage_test
 
 import (
 	"context"
+	"fmt"
+	"math"
+	"math/rand/v2"
 	"sync"
 	"sync/atomic"
 	"testing"
 	"testing/synctest"
 	"time"
 
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+
+	"liftyard/acquire"
 	"liftyard/estimate"
 	"liftyard/storage"
 )
@@ -227,4 +234,72 @@ func TestOffer_ConcurrentAccounting(t *testing.T) {
 	if got := received.Load() + dropped.Items.Load(); got != producers*each {
 		t.Errorf("received %d + dropped %d = %d, want %d", received.Load(), dropped.Items.Load(), got, producers*each)
 	}
+}
+
+// Ensure that a block whose encoding is larger than StoredPartBytes is
+// stored in parts that give every reading back in order, each a block with
+// the block's seq and period, its own first-sample time and the block's
+// device-to-receive offset; that a block sent again adds nothing; and that
+// the writer counts blocks, not parts.
+func TestWriter_StoresLargeBlocksInParts(t *testing.T) {
+	s := MustOpenStore(t)
+	id := mustCreateRun(t, s)
+	w := s.NewWriter(id, storage.WriterConfig{})
+	in := w.NewQueue()
+	errc := make(chan error, 1)
+	go func() { errc <- w.Run(context.Background(), in) }()
+	rng := rand.New(rand.NewPCG(7, 64))
+	mk := func(seq uint64) *acquire.Block {
+		b := &acquire.Block{Source: "scanner", Seq: seq, T0Us: int64(seq) * 1_000_000, DtUs: 10_000,
+			Received: time.Date(2026, 12, 2, 9, 0, int(seq)+1, 250_000_000, time.UTC)}
+		for c := range 64 {
+			raw := make([]float64, 100)
+			for i := range raw {
+				raw[i] = math.Round(100*(-300+7.5*float64(c)+15*rng.NormFloat64())) / 100
+			}
+			b.Series = append(b.Series, acquire.Series{Channel: fmt.Sprintf("tap%02d", c+1), Raw: raw})
+		}
+		return b
+	}
+	sent := []*acquire.Block{mk(0), mk(1), mk(2)}
+	for _, b := range sent {
+		in <- storage.Item{Block: b}
+	}
+	again := *sent[1] // delivered twice (a broker's redelivery)
+	in <- storage.Item{Block: &again}
+	close(in)
+	if err := <-errc; err != nil {
+		t.Fatal(err)
+	}
+	if blocks, samples := w.Committed(); blocks != 4 || samples != 300 {
+		t.Errorf("committed %d blocks, %d samples; want 4 (one sent twice), 300 sample times", blocks, samples)
+	}
+	r, err := s.Run(id)
+	require.NoError(t, err)
+	assert.EqualValues(t, 300, r.Samples, "the run's sample times (the block sent twice counted once)")
+
+	var parts []acquire.Block
+	require.NoError(t, s.RawBlocks(id, func(b acquire.Block) error { parts = append(parts, b); return nil }))
+	require.Greater(t, len(parts), len(sent), "64 × 100 readings (about 14 kB) stored whole")
+	next := 0 // sample index into sent, block by block
+	for _, p := range parts {
+		blk := sent[next/100]
+		from := next % 100
+		require.Equal(t, blk.Seq, p.Seq)
+		require.Equal(t, blk.DtUs, p.DtUs)
+		require.Equal(t, blk.T0Us+int64(from)*blk.DtUs, p.T0Us, "part of seq %d from sample %d", blk.Seq, from)
+		offset := func(b *acquire.Block) time.Duration {
+			return b.Received.Sub(time.UnixMicro(b.T0Us + int64(b.Len()-1)*b.DtUs))
+		}
+		require.Equal(t, offset(blk), offset(&p), "receive time less device time of the last sample")
+		require.Len(t, p.Series, 64)
+		for c, ser := range p.Series {
+			require.Equal(t, blk.Series[c].Channel, ser.Channel)
+			for i, v := range ser.Raw {
+				require.Equal(t, math.Float64bits(blk.Series[c].Raw[from+i]), math.Float64bits(v))
+			}
+		}
+		next += p.Len()
+	}
+	assert.Equal(t, 300, next, "sample times read back")
 }
