@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"path/filepath"
 	"strconv"
 	"testing"
 	"time"
@@ -441,10 +442,16 @@ func TestSegmentJSON_NaN(t *testing.T) {
 	}
 }
 
-// Ensure that the migration fixture really holds version 1 records (so
-// TestMigration_* test the old format, not what the generator writes now).
-func TestFixtureV1_IsVersion1(t *testing.T) {
-	db, err := bolt.Open("testdata/store-v1.db", 0o600, &bolt.Options{ReadOnly: true})
+// Ensure that each fixture really holds records of its version (so
+// TestMigration_* test the old formats, not what the generator writes now).
+func TestFixtures_RecordVersions(t *testing.T) {
+	for path, version := range map[string]byte{"testdata/store-v1.db": blockV1, "testdata/store-v2.db": blockV2} {
+		t.Run(filepath.Base(path), func(t *testing.T) { testFixtureVersion(t, path, version) })
+	}
+}
+
+func testFixtureVersion(t *testing.T, path string, version byte) {
+	db, err := bolt.Open(path, 0o600, &bolt.Options{ReadOnly: true})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -455,7 +462,7 @@ func TestFixtureV1_IsVersion1(t *testing.T) {
 			rb := tx.Bucket(bucketRaw).Bucket(run)
 			return rb.ForEachBucket(func(src []byte) error {
 				return rb.Bucket(src).ForEach(func(_, v []byte) error {
-					if v[0] != blockV1 {
+					if v[0] != version {
 						t.Errorf("run %x source %s: record version %d", run, src, v[0])
 					}
 					n++

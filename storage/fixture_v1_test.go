@@ -28,9 +28,18 @@ import (
 //	go test ./storage -run '^TestGenerateStoreV1$' -gen-store-v1
 var genStoreV1 = flag.Bool("gen-store-v1", false, "rewrite testdata/store-v1.db (the old-format migration fixture)")
 
+// genStoreV2 writes testdata/store-v2.db: the same blocks as the v1 fixture,
+// written by the version 2 block format, so that a later format keeps
+// reading version 2 files. Regenerate only while version 2 is what the
+// writer writes:
+//
+//	go test ./storage -run '^TestGenerateStoreV2$' -gen-store-v2
+var genStoreV2 = flag.Bool("gen-store-v2", false, "rewrite testdata/store-v2.db (the version 2 fixture)")
+
 const (
 	storeV1Path   = "testdata/store-v1.db"
-	storeV1Values = "testdata/store-v1.values.json"
+	storeV2Path   = "testdata/store-v2.db"
+	storeV1Values = "testdata/store-v1.values.json" // the blocks of both fixtures
 )
 
 // v1Fixture is what the generator wrote: per run (in creation order), per
@@ -142,7 +151,34 @@ func TestGenerateStoreV1(t *testing.T) {
 	if !*genStoreV1 {
 		t.Skip("fixture generator: run with -gen-store-v1")
 	}
-	path := filepath.Join(t.TempDir(), "store-v1.db")
+	writeFixtureStore(t, storeV1Path, storeV1Values)
+}
+
+// Generate the version 2 fixture (see genStoreV2); its blocks must be those
+// the v1 fixture's values file lists.
+func TestGenerateStoreV2(t *testing.T) {
+	if !*genStoreV2 {
+		t.Skip("fixture generator: run with -gen-store-v2")
+	}
+	values := filepath.Join(t.TempDir(), "values.json")
+	writeFixtureStore(t, storeV2Path, values)
+	got, err := os.ReadFile(values)
+	if err != nil {
+		t.Fatal(err)
+	}
+	want, err := os.ReadFile(storeV1Values)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if string(got) != string(want) {
+		t.Fatalf("the fixture blocks are no longer those of %s", storeV1Values)
+	}
+}
+
+// writeFixtureStore writes the fixture blocks (v1FixtureBlocks) through the
+// writer into a compact file at dbPath, and what it wrote to valuesPath.
+func writeFixtureStore(t *testing.T, dbPath, valuesPath string) {
+	path := filepath.Join(t.TempDir(), "store.db")
 	s, err := storage.Open(path, storage.Options{Now: newTestClock().Now})
 	if err != nil {
 		t.Fatal(err)
@@ -190,12 +226,12 @@ func TestGenerateStoreV1(t *testing.T) {
 	}
 	// Copy into a compact file (the store reserves address space and
 	// grows its file in large steps; the fixture should be small).
-	os.Remove(storeV1Path)
+	os.Remove(dbPath)
 	src, err := bolt.Open(path, 0o600, &bolt.Options{ReadOnly: true})
 	if err != nil {
 		t.Fatal(err)
 	}
-	dst, err := bolt.Open(storeV1Path, 0o644, nil)
+	dst, err := bolt.Open(dbPath, 0o644, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -210,7 +246,7 @@ func TestGenerateStoreV1(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if err := os.WriteFile(storeV1Values, append(data, '\n'), 0o644); err != nil {
+	if err := os.WriteFile(valuesPath, append(data, '\n'), 0o644); err != nil {
 		t.Fatal(err)
 	}
 }

@@ -59,9 +59,18 @@ func fixtureBits(t *testing.T, s string) uint64 {
 // (NaN payloads, ±Inf, −0, 24-bit counts, two-decimal pressures, random
 // bits); and that blocks appended to it now (version 2) read back beside
 // the old ones.
-func TestMigration_V1StoreReadsBitForBit(t *testing.T) {
+// The version 2 fixture (testdata/store-v2.db) holds the same blocks in
+// the version 2 format and is read the same way, so that a later format
+// keeps reading today's files.
+func TestMigration_FixturesReadBitForBit(t *testing.T) {
+	for _, path := range []string{storeV1Path, storeV2Path} {
+		t.Run(filepath.Base(path), func(t *testing.T) { testFixtureReadsBitForBit(t, path) })
+	}
+}
+
+func testFixtureReadsBitForBit(t *testing.T, path string) {
 	fx := loadV1Fixture(t)
-	s := openFixtureCopy(t, storeV1Path)
+	s := openFixtureCopy(t, path)
 	if len(fx.Runs) != 2 {
 		t.Fatalf("fixture has %d runs, want 2", len(fx.Runs))
 	}
