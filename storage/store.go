@@ -4,6 +4,7 @@ import (
 	"encoding/binary"
 	"errors"
 	"fmt"
+	"hash/fnv"
 	"io/fs"
 	"os"
 	"runtime/debug"
@@ -148,6 +149,12 @@ func Open(path string, opts Options) (*Store, error) {
 	if opts.MaxSizeBytes > 0 {
 		bopts.MaxSize = int(opts.MaxSizeBytes)
 	}
+	if !fresh {
+		// Before bbolt maps it: bbolt faults on a file cut short.
+		if err := checkLength(path, info.Size()); err != nil {
+			return nil, err
+		}
+	}
 	db, err := openBolt(path, bopts)
 	if err != nil {
 		return nil, openError(path, err)
@@ -178,6 +185,63 @@ func openBolt(path string, opts *bolt.Options) (db *bolt.DB, err error) {
 	defer guard(&err, "bbolt open")()
 	return bolt.Open(path, 0o600, opts)
 }
+
+// checkLength reads the two meta pages of a bbolt file directly and returns
+// an error wrapping ErrCorrupt when the file is shorter than the pages the
+// newest valid one says it holds (a copy cut short, a disk that filled
+// while it was copied). A file whose meta pages are not bbolt's is left to
+// bbolt's own checks.
+//
+// A meta page (bbolt 1.4, little-endian): a 16-byte page header, then
+// magic u32, version u32, page size u32, flags u32, root bucket (16 bytes),
+// freelist page u64, page count u64 (the high-water mark), txid u64, and an
+// FNV-64a checksum of the fields before it.
+func checkLength(path string, size int64) error {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil // bbolt says why
+	}
+	defer f.Close()
+	var (
+		m        [80]byte
+		pageSize int64
+		need     int64
+		bestTx   uint64
+		found    bool
+	)
+	for i := range 2 {
+		if i == 1 && pageSize == 0 {
+			break
+		}
+		if _, err := f.ReadAt(m[:], int64(i)*pageSize); err != nil {
+			break
+		}
+		le := binary.LittleEndian
+		if le.Uint32(m[16:]) != boltMagic {
+			continue
+		}
+		h := fnv.New64a()
+		h.Write(m[16:72])
+		if h.Sum64() != le.Uint64(m[72:]) {
+			continue
+		}
+		ps := int64(le.Uint32(m[24:]))
+		if i == 0 {
+			pageSize = ps
+		}
+		if tx := le.Uint64(m[64:]); !found || tx > bestTx {
+			bestTx, need, found = tx, int64(le.Uint64(m[56:]))*ps, true
+		}
+	}
+	if found && size < need {
+		return fmt.Errorf("open store %q: the file is truncated (a copy cut short?): %d bytes, its pages need %d; use the original or a backup: %w",
+			path, size, need, ErrCorrupt)
+	}
+	return nil
+}
+
+// boltMagic is the magic number of a bbolt meta page.
+const boltMagic = 0xED0CDAED
 
 // openError explains why bolt.Open failed and wraps the matching sentinel.
 func openError(path string, err error) error {

@@ -9,6 +9,7 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"syscall"
 	"testing"
@@ -166,6 +167,41 @@ func TestOpen_BadFiles(t *testing.T) {
 				}
 			}
 		})
+	}
+}
+
+// Ensure that a store cut short anywhere before the end of its pages —
+// inside its first meta page, between the two, just past them, one page
+// short — is refused by Open, read-only or not, as truncated (ErrCorrupt,
+// the file named, the sizes given) before bbolt maps it: bbolt itself faults
+// on such a file (a nil dereference opening it for writing).
+func TestOpen_TruncatedBeforeItsPages(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "s.db")
+	s := MustOpenStoreAt(t, path, storage.Options{})
+	mustCreateRun(t, s)
+	s.Close()
+	data, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	const page = 32 << 10 // a new store's pages
+	used := int(diskBytes(t, path))
+	for _, n := range []int{100, page / 2, page + 100, 2 * page, 2*page + 100, used - page} {
+		cut := filepath.Join(t.TempDir(), "cut.db")
+		if err := os.WriteFile(cut, data[:n], 0o600); err != nil {
+			t.Fatal(err)
+		}
+		for _, ro := range []bool{false, true} {
+			s, err := storage.Open(cut, storage.Options{ReadOnly: ro})
+			if err == nil {
+				s.Close()
+				t.Fatalf("cut to %d bytes, ReadOnly=%v: Open succeeded", n, ro)
+			}
+			if !errors.Is(err, storage.ErrCorrupt) || !strings.Contains(err.Error(), "truncated") ||
+				!strings.Contains(err.Error(), cut) || !strings.Contains(err.Error(), strconv.Itoa(n)+" bytes") {
+				t.Errorf("cut to %d bytes, ReadOnly=%v: %v", n, ro, err)
+			}
+		}
 	}
 }
 

@@ -107,8 +107,12 @@ func TestSimulateRecord_SerialDelimitedAndMQTT(t *testing.T) {
 	br := mosquittotest.Start(t)
 	steps := []float64{-2, 4, 9}
 	d := simulateThenRecord(t, func(port string) string { return mixedRigTOML(t, port, br.URL()) }, "amp",
-		[]string{"--device", "amp=pty", "--seed", "15", "--steps-deg", "-2,4,9", "--hold", "3s", "--for", "11s"},
-		[]string{"--for", "10500ms"})
+		// Holds of 4 s (steps at 0–4, 4.5–8.5 and 9–13 s): the recorder
+		// comes up (store, dashboard, broker) after the simulator has
+		// started, and with 3 s holds a loaded machine once left a step
+		// without a steady segment.
+		[]string{"--device", "amp=pty", "--seed", "15", "--steps-deg", "-2,4,9", "--hold", "4s", "--for", "14s"},
+		[]string{"--for", "13500ms"})
 	db, recRig, recOut := d.db, d.rigPath, d.recOut
 	out := d.simOut
 	assert.Contains(t, out, "source amp: writing n_fore, n_aft, a_main, alpha as delimited lines t_ms;n_fore;n_aft;_;a_main;alpha")
