@@ -26,14 +26,18 @@ import (
 //     AlignedT0Us − T0Us of the source's first block, taken again after a
 //     gap, a change of rate or a clock step, exactly as estimate.Estimator
 //     dates its samples, so exported times and segment times agree.
-//   - A channel of another source takes, at each row, that source's reading
-//     nearest to the row's instant on the host timeline (the earlier on a
-//     tie), if it is less than one of that source's sample periods away;
-//     otherwise the cell is blank. No value is invented (every cell is a
-//     reading as received, bit for bit), no systematic lag is added (a
-//     "latest before" rule would lag half a period on average, and a lag
-//     between loads and q biases C_L in turbulence), and a source that
-//     stopped or had a gap shows blank rather than a stale value.
+//   - A channel of another source takes, at each row, that source as the
+//     estimator joins it (estimate's history.at): its two readings either
+//     side of the row's instant, interpolated linearly (a row on one of
+//     its samples gets that reading bit for bit; a gap is bridged, as the
+//     estimator bridges it); before its first reading the cell is blank,
+//     and after its last it holds that reading for less than one sample
+//     period, then is blank (fillFromLane). So a re-import computes from
+//     what the live run computed from. Taking the nearest reading instead
+//     kept every cell a reading as received, but gave a re-import a
+//     noisier q than the live run had (interpolation averages two
+//     readings): in dry runs with a noisy pitot one import in three lost
+//     a steady segment.
 
 // gapUs is the gap in a timeline source's device time after which its
 // wall-clock offset is taken again (the estimator's tick).
@@ -337,11 +341,16 @@ func (ln *lane) fill(untilUs, floorUs int64) error {
 	return nil
 }
 
-// fillFromLane writes, into cells, the values of ln's reading nearest to
-// at (the earlier on a tie) when it is less than one of its sample periods
-// away; otherwise the cells stay blank. It drops the blocks no later row
-// can need (rows come in time order). The lane holds a sample after at
-// (lane.fill), so both neighbours of at are at hand.
+// fillFromLane writes, into cells, ln's channels at instant at as the
+// estimator joins them (estimate's history.at): a channel's readings either
+// side of at, when both are finite, interpolated linearly (a reading at at
+// exactly is that reading, bit for bit; a gap in the source is bridged, as
+// the estimator bridges it); otherwise its reading nearest to at (the
+// earlier on a tie) when less than one sample period away; otherwise
+// blank (before the source's first reading, more than a period after its
+// last). It drops the blocks no later row can need (rows come in time
+// order). The lane holds a sample after at (lane.fill), so both
+// neighbours of at are at hand.
 func fillFromLane(ln *lane, at int64, cells []float64) {
 	trimLane(ln, at)
 	if len(ln.blocks) == 0 {
@@ -365,18 +374,63 @@ func fillFromLane(ln *lane, at int64, cells []float64) {
 			after = &pick{ln.blocks[1], 0}
 		}
 	}
-	best := before
-	if best == nil || (after != nil && after.b.at(after.i)-at < at-best.b.at(best.i)) {
-		best = after
+	nearest := before
+	if nearest == nil || (after != nil && after.b.at(after.i)-at < at-nearest.b.at(nearest.i)) {
+		nearest = after
 	}
-	if best == nil || abs64(best.b.at(best.i)-at) >= best.b.dtUs {
-		return // a gap, or the source has not started or has ended: blank
+	if nearest != nil && abs64(nearest.b.at(nearest.i)-at) >= nearest.b.dtUs {
+		nearest = nil // a gap, or the source has not started or has ended
 	}
-	for k, sr := range best.b.series {
-		if c := best.b.seriesCol[k]; c >= 0 && best.i < len(sr.v) {
-			cells[c] = sr.v[best.i]
+	// Interpolation needs a reading on each side, in blocks with the same
+	// series in the same order (else the nearest rule applies). Like the
+	// estimator, it bridges a gap in the source.
+	var f float64
+	interp := before != nil && after != nil && before.b.at(before.i) < at && sameChannels(before.b, after.b)
+	if interp {
+		t0 := before.b.at(before.i)
+		f = float64(at-t0) / float64(after.b.at(after.i)-t0)
+	}
+	src := nearest // whose series say the columns (both neighbours' when interp)
+	if src == nil {
+		if !interp {
+			return
+		}
+		src = before
+	}
+	finite := func(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
+	for k, sr := range src.b.series {
+		c := src.b.seriesCol[k]
+		if c < 0 {
+			continue
+		}
+		if interp {
+			v0, v1 := before.b.series[k].v[before.i], after.b.series[k].v[after.i]
+			if r := v0 + f*(v1-v0); finite(v0) && finite(v1) && finite(r) {
+				cells[c] = r
+				continue
+			}
+		}
+		if nearest != nil && nearest.i < len(sr.v) {
+			cells[c] = sr.v[nearest.i]
 		}
 	}
+}
+
+// sameChannels reports whether a and b hold the same channels in the same
+// order (so that series k of one is series k of the other).
+func sameChannels(a, b *alignedBlock) bool {
+	if a == b {
+		return true
+	}
+	if len(a.series) != len(b.series) {
+		return false
+	}
+	for k := range a.series {
+		if a.series[k].channel != b.series[k].channel {
+			return false
+		}
+	}
+	return true
 }
 
 func abs64(x int64) int64 {

@@ -92,9 +92,10 @@ func exportSegmentsCSV(w io.Writer, run Run, rows []estimate.Row) error {
 // "Raw CSV", docs/export.md): a header t_s,<column>,..., then one row per
 // sample time of the run's timeline source on the aligned UTC timeline
 // (aligned.go): t_s is Unix time in seconds with microsecond digits,
-// written exactly; a cell of another source is that source's reading
-// nearest the row's instant when less than one of its sample periods
-// away, else blank; a blank cell is also a NaN reading. Every
+// written exactly; a cell of another source is that source as the
+// estimator joins it (fillFromLane: interpolated linearly between its
+// readings either side of the row), blank before its first reading and a
+// period after its last; a blank cell is also a NaN reading. Every
 // reading is written with the fewest digits that give its float64 back
 // bit for bit.
 //

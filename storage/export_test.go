@@ -9,6 +9,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"testing"
 
@@ -169,9 +170,11 @@ func TestExportSegments_Formats(t *testing.T) {
 
 // Ensure that the raw export of two sources at different rates writes one
 // row per sample of the timeline source (balance: the first by name when
-// the run has no rig file), each pitot cell the pitot reading nearest the
-// row (the earlier on a tie) when less than one pitot period (1.5 ms)
-// away, else blank; columns say their source; and matches its golden.
+// the run has no rig file), each pitot cell the pitot readings either side
+// of the row interpolated linearly, as the estimator joins them (a row on
+// a pitot sample gets that reading; before the first and after the last,
+// the nearest reading within one pitot period, 1.5 ms); columns say their
+// source; and matches its golden.
 func TestExportRaw_Golden(t *testing.T) {
 	s := MustOpenStore(t)
 	id := mustCreateRun(t, s)
@@ -200,13 +203,15 @@ func TestExportRaw_Golden(t *testing.T) {
 		t.Errorf("header %q", recs[0])
 	}
 	// balance at 1.000000, .001, .002, .003, .004; pitot at .0005, .002, .0035
-	want := []string{"201.4", "201.4", "201.9", "202.25", "202.25"}
+	lerp := func(v0, v1 float64, f float64) float64 { return v0 + f*(v1-v0) }
+	want := []float64{201.4, lerp(201.4, 201.9, 500.0/1500), 201.9, lerp(201.9, 202.25, 1000.0/1500), 202.25}
 	if len(recs) != 1+len(want) {
 		t.Fatalf("%d rows, want %d", len(recs)-1, len(want))
 	}
 	for i, w := range want {
-		if got := recs[i+1][3]; got != w {
-			t.Errorf("row %d (t %s): dp %q, want %q", i+1, recs[i+1][0], got, w)
+		got, err := strconv.ParseFloat(recs[i+1][3], 64)
+		if err != nil || got != w {
+			t.Errorf("row %d (t %s): dp %q, want %v", i+1, recs[i+1][0], recs[i+1][3], w)
 		}
 	}
 }

@@ -16,8 +16,9 @@ import (
 
 // Ensure that the values export calibrates every sample with the given
 // calibrator, names each column with its source and SI unit, writes the
-// rows of the timeline source (balance) with the other source's nearest
-// value within one of its periods, and leaves a blank where there is none.
+// rows of the timeline source (balance) with the other source's values
+// interpolated between its samples either side (the nearest within one of
+// its periods outside them), and leaves a blank where there is none.
 func TestExportValues(t *testing.T) {
 	s := MustOpenStore(t)
 	id := mustCreateRun(t, s)
@@ -57,12 +58,12 @@ func TestExportValues(t *testing.T) {
 		return v
 	}
 	// pitot samples (period 1 ms) at 2.0015 and 2.0025: none within 1 ms
-	// of 2.000; 2.0015 nearest to 2.001, and the earlier of the two 0.5 ms
-	// from 2.002.
+	// of 2.000; at 2.001 only the one after, 0.5 ms away; 2.002 halfway
+	// between the two.
 	want := [][4]float64{
 		{2.000000, 0, 12.5, math.NaN()},
 		{2.001, 2 * math.Pi / 180, math.NaN(), 200},
-		{2.002, 4 * math.Pi / 180, 17.5, 200},
+		{2.002, 4 * math.Pi / 180, 17.5, 225},
 	}
 	if len(recs)-1 != len(want) {
 		t.Fatalf("%d rows, want %d:\n%v", len(recs)-1, len(want), recs)

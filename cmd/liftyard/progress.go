@@ -267,10 +267,17 @@ type progressReplayer struct {
 	p   *progress
 }
 
+// Replay counts the rows of the file as those of its furthest source: a
+// file with several sources' columns gives each row to every source, as a
+// block of each.
 func (r progressReplayer) Replay(ctx context.Context, fn func(acquire.Block) error) error {
+	rows := map[string]int{}
+	most := 0
 	return r.src.Replay(ctx, func(b acquire.Block) error {
 		n := b.Len()
-		r.p.add(n, n*len(b.Series))
+		rows[b.Source] += n
+		r.p.add(max(rows[b.Source]-most, 0), n*len(b.Series))
+		most = max(most, rows[b.Source])
 		return fn(b)
 	})
 }
