@@ -9,6 +9,7 @@ import (
 	"math/rand/v2"
 	"path/filepath"
 	"strconv"
+	"strings"
 	"testing"
 	"time"
 
@@ -26,7 +27,7 @@ func TestDecodeBlock_V1Errors(t *testing.T) {
 		t.Fatal(err)
 	}
 	withVersion := bytes.Clone(good)
-	withVersion[0] = 3
+	withVersion[0] = 4
 	noChannels := bytes.Clone(good[:blockHeaderLen])
 	binary.BigEndian.PutUint16(noChannels[33:], 0)
 	for _, tc := range []struct {
@@ -36,7 +37,7 @@ func TestDecodeBlock_V1Errors(t *testing.T) {
 	}{
 		{"empty", nil, "block record of 0 bytes"},
 		{"short header", good[:20], "block record of 20 bytes (header is 39)"},
-		{"future version", withVersion, "block record version 3 (this liftyard reads 1 and 2"},
+		{"future version", withVersion, "block record version 4 (this liftyard reads 1, 2 and 3"},
 		{"name cut", good[:blockHeaderLen+4], "channel 0 name cut short"},
 		{"readings cut", good[:len(good)-1], "15 bytes of readings for 1 channels × 2 samples"},
 		{"readings extra", append(bytes.Clone(good), 0), "17 bytes of readings"},
@@ -371,17 +372,27 @@ func FuzzDecodeBlock(f *testing.F) {
 			{Channel: "x", Raw: []float64{1e300, -1e-300, 3}}}}
 	v1, _ := encodeBlockV1(nil, blk)
 	v2, _ := encodeBlock(nil, blk)
+	next := *blk
+	next.Seq, next.T0Us = 2, 4000
+	v3 := encodeGroup(nil, []*acquire.Block{blk, &next})
 	f.Add(v1)
 	f.Add(v1[:blockHeaderLen])
 	f.Add(v2)
 	f.Add(v2[:12])
+	f.Add(v3)
+	f.Add(v3[:20])
 	f.Add([]byte{1})
 	f.Add([]byte{2})
+	f.Add([]byte{3, 2})
 	f.Add([]byte{})
 	f.Fuzz(func(t *testing.T, data []byte) {
-		var b acquire.Block
-		if err := decodeBlock(data, &b); err == nil {
-			roundTrip(t, &b)
+		if blocks, err := decodeRecord(data); err == nil {
+			for i := range blocks {
+				roundTrip(t, &blocks[i])
+			}
+			if len(blocks) > 1 {
+				groupRoundTrip(t, blocks)
+			}
 		} else if !errors.Is(err, ErrCorrupt) {
 			t.Fatalf("error %v does not wrap ErrCorrupt", err)
 		}
@@ -415,6 +426,85 @@ func FuzzDecodeBlock(f *testing.F) {
 	})
 }
 
+// groupRoundTrip encodes blocks as a group record and fails unless it
+// decodes to the same blocks, headers and readings bit for bit.
+func groupRoundTrip(t testing.TB, blocks []acquire.Block) {
+	t.Helper()
+	ptrs := make([]*acquire.Block, len(blocks))
+	for i := range blocks {
+		ptrs[i] = &blocks[i]
+	}
+	data := encodeGroup(nil, ptrs)
+	got, err := decodeRecord(data)
+	if err != nil {
+		t.Fatalf("own group record does not decode: %v", err)
+	}
+	if len(got) != len(blocks) {
+		t.Fatalf("%d blocks back, want %d", len(got), len(blocks))
+	}
+	for i := range blocks {
+		a, b := &blocks[i], &got[i]
+		if a.Seq != b.Seq || a.T0Us != b.T0Us || a.DtUs != b.DtUs || !a.Received.Equal(b.Received) || len(a.Series) != len(b.Series) {
+			t.Fatalf("block %d header %+v, want %+v", i, b, a)
+		}
+		for c := range a.Series {
+			if a.Series[c].Channel != b.Series[c].Channel || len(a.Series[c].Raw) != len(b.Series[c].Raw) {
+				t.Fatalf("block %d channel %d differs", i, c)
+			}
+			for k, v := range a.Series[c].Raw {
+				if math.Float64bits(v) != math.Float64bits(b.Series[c].Raw[k]) {
+					t.Fatalf("block %d %s[%d]: %v, want %v", i, a.Series[c].Channel, k, b.Series[c].Raw[k], v)
+				}
+			}
+		}
+	}
+}
+
+// Ensure that a group record gives back every block as it came, and that
+// malformed ones are refused as corrupt.
+func TestEncodeGroup_RoundTripAndErrors(t *testing.T) {
+	var blocks []acquire.Block
+	for seq := range uint64(5) {
+		b := acquire.Block{Seq: 40 + seq, T0Us: 1_000_000 + int64(seq)*3000, DtUs: 1000,
+			Received: time.Unix(1_773_478_800, int64(seq)*1_000_003).UTC()}
+		n := int(seq%3) + 1 // blocks of 1, 2 and 3 samples
+		for _, ch := range []string{"tap01", "tap02", "pitot"} {
+			raw := make([]float64, n)
+			for i := range raw {
+				raw[i] = float64(int(seq)*10+i) / 100
+			}
+			if seq == 2 && ch == "pitot" {
+				raw[0] = math.NaN()
+			}
+			b.Series = append(b.Series, acquire.Series{Channel: ch, Raw: raw})
+		}
+		blocks = append(blocks, b)
+	}
+	groupRoundTrip(t, blocks)
+	good := encodeGroup(nil, []*acquire.Block{&blocks[0], &blocks[1]})
+	for _, tc := range []struct {
+		name string
+		data []byte
+		msg  string
+	}{
+		{"one block", []byte{blockGroup, 1}, "block count cut short or wrong"},
+		{"header cut", good[:6], "header of block 0 cut short"},
+		{"body cut", good[:len(good)-1], "channel data cut short"},
+		{"trailing", append(bytes.Clone(good), 0), "bytes after the last channel"},
+		{"as one block", good, "group record where one block was expected"},
+	} {
+		var err error
+		if tc.name == "as one block" {
+			err = decodeBlock(tc.data, &acquire.Block{})
+		} else {
+			_, err = decodeRecord(tc.data)
+		}
+		if !errors.Is(err, ErrCorrupt) || !strings.Contains(err.Error(), tc.msg) {
+			t.Errorf("%s: %v, want ErrCorrupt with %q", tc.name, err, tc.msg)
+		}
+	}
+}
+
 // Ensure that segments without a design value store En as null and read it
 // back as NaN, also when the field is absent.
 func TestSegmentJSON_NaN(t *testing.T) {
@@ -445,25 +535,31 @@ func TestSegmentJSON_NaN(t *testing.T) {
 // Ensure that each fixture really holds records of its version (so
 // TestMigration_* test the old formats, not what the generator writes now).
 func TestFixtures_RecordVersions(t *testing.T) {
-	for path, version := range map[string]byte{"testdata/store-v1.db": blockV1, "testdata/store-v2.db": blockV2} {
+	for path, version := range map[string]byte{"testdata/store-v1.db": blockV1, "testdata/store-v2.db": blockV2,
+		"testdata/store-v3.db": blockGroup} {
 		t.Run(filepath.Base(path), func(t *testing.T) { testFixtureVersion(t, path, version) })
 	}
 }
 
+// testFixtureVersion checks that every record of the fixture at path is of
+// version, or for the group fixture of version 2 or 3 with some of 3.
 func testFixtureVersion(t *testing.T, path string, version byte) {
 	db, err := bolt.Open(path, 0o600, &bolt.Options{ReadOnly: true})
 	if err != nil {
 		t.Fatal(err)
 	}
 	defer db.Close()
-	n := 0
+	n, matching := 0, 0
 	err = db.View(func(tx *bolt.Tx) error {
 		return tx.Bucket(bucketRaw).ForEachBucket(func(run []byte) error {
 			rb := tx.Bucket(bucketRaw).Bucket(run)
 			return rb.ForEachBucket(func(src []byte) error {
 				return rb.Bucket(src).ForEach(func(_, v []byte) error {
-					if v[0] != version {
+					if v[0] != version && (version != blockGroup || v[0] != blockV2) {
 						t.Errorf("run %x source %s: record version %d", run, src, v[0])
+					}
+					if v[0] == version {
+						matching++
 					}
 					n++
 					return nil
@@ -471,7 +567,7 @@ func testFixtureVersion(t *testing.T, path string, version byte) {
 			})
 		})
 	})
-	if err != nil || n < 20 {
-		t.Fatalf("%d records, %v", n, err)
+	if err != nil || n < 3 || matching == 0 {
+		t.Fatalf("%d records, %d of version %d: %v", n, matching, version, err)
 	}
 }

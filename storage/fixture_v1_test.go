@@ -36,9 +36,16 @@ var genStoreV1 = flag.Bool("gen-store-v1", false, "rewrite testdata/store-v1.db 
 //	go test ./storage -run '^TestGenerateStoreV2$' -gen-store-v2
 var genStoreV2 = flag.Bool("gen-store-v2", false, "rewrite testdata/store-v2.db (the version 2 fixture)")
 
+// genStoreV3 writes testdata/store-v3.db: the same blocks again, written by
+// the writer with group records (version 3) for the small ones.
+//
+//	go test ./storage -run '^TestGenerateStoreV3$' -gen-store-v3
+var genStoreV3 = flag.Bool("gen-store-v3", false, "rewrite testdata/store-v3.db (the group-record fixture)")
+
 const (
 	storeV1Path   = "testdata/store-v1.db"
 	storeV2Path   = "testdata/store-v2.db"
+	storeV3Path   = "testdata/store-v3.db"
 	storeV1Values = "testdata/store-v1.values.json" // the blocks of both fixtures
 )
 
@@ -160,8 +167,22 @@ func TestGenerateStoreV2(t *testing.T) {
 	if !*genStoreV2 {
 		t.Skip("fixture generator: run with -gen-store-v2")
 	}
+	generateLikeV1(t, storeV2Path)
+}
+
+// Generate the group-record fixture (see genStoreV3).
+func TestGenerateStoreV3(t *testing.T) {
+	if !*genStoreV3 {
+		t.Skip("fixture generator: run with -gen-store-v3")
+	}
+	generateLikeV1(t, storeV3Path)
+}
+
+// generateLikeV1 writes the fixture blocks into dbPath and checks that they
+// are the blocks the v1 fixture's values file lists.
+func generateLikeV1(t *testing.T, dbPath string) {
 	values := filepath.Join(t.TempDir(), "values.json")
-	writeFixtureStore(t, storeV2Path, values)
+	writeFixtureStore(t, dbPath, values)
 	got, err := os.ReadFile(values)
 	if err != nil {
 		t.Fatal(err)

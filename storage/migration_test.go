@@ -62,7 +62,7 @@ func fixtureBits(t *testing.T, s string) uint64 {
 // the version 2 format and is read the same way, so that a later format
 // keeps reading today's files.
 func TestMigration_FixturesReadBitForBit(t *testing.T) {
-	for _, path := range []string{storeV1Path, storeV2Path} {
+	for _, path := range []string{storeV1Path, storeV2Path, storeV3Path} {
 		t.Run(filepath.Base(path), func(t *testing.T) { testFixtureReadsBitForBit(t, path) })
 	}
 }

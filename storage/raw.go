@@ -125,12 +125,14 @@ func (it *blockIter) fill() (err error) {
 			}
 		}
 		for ; k != nil && len(it.buf) < readChunk; k, v = c.Next() {
-			var b acquire.Block
-			if err := decodeBlock(v, &b); err != nil {
+			blocks, err := decodeRecord(v)
+			if err != nil {
 				return fmt.Errorf("run %d source %q key %x: %w", it.runID, it.source, k, err)
 			}
-			b.Source = it.source
-			it.buf = append(it.buf, b)
+			for i := range blocks {
+				blocks[i].Source = it.source
+			}
+			it.buf = append(it.buf, blocks...)
 			it.lastKey = bytes.Clone(k)
 		}
 		if k == nil {

@@ -12,8 +12,6 @@ import (
 	"time"
 
 	bolt "go.etcd.io/bbolt"
-
-	"liftyard/acquire"
 )
 
 // ErrDamaged is returned by Open, opened for writing, when the structural
@@ -251,15 +249,17 @@ func (c *copier) visit(path [][]byte, seq uint64, k, v []byte) error {
 		if run == nil {
 			return nil // data of a run without a readable record
 		}
-		var b acquire.Block
 		if len(k) != 16 {
 			return bad(run, "block key of the wrong length")
 		}
-		if err := decodeBlock(v, &b); err != nil {
+		blocks, err := decodeRecord(v)
+		if err != nil {
 			return bad(run, "block does not decode")
 		}
-		run.Blocks++
-		run.Samples += uint64(b.Len())
+		for i := range blocks {
+			run.Blocks++
+			run.Samples += uint64(blocks[i].Len())
+		}
 	case top == "results" && len(path) == 2:
 		run := c.runOf(path[1])
 		if run == nil {

@@ -32,7 +32,7 @@ func damagedFixture(t *testing.T, firstPage bool) (bad, pristine string, onPage 
 	dir := t.TempDir()
 	bad = filepath.Join(dir, "field.db")
 	s := MustOpenStoreAt(t, bad, storage.Options{})
-	for run, nBlocks := range []int{3000, 400} {
+	for run, nBlocks := range []int{1500, 200} {
 		id := mustCreateRun(t, s)
 		w := s.NewWriter(id, storage.WriterConfig{})
 		in := w.NewQueue()
@@ -41,9 +41,11 @@ func damagedFixture(t *testing.T, firstPage bool) (bad, pristine string, onPage 
 		for i := range nBlocks {
 			// Each run's blocks have keys of their own (the first-page
 			// case finds its page by the first key).
-			in <- storage.Item{Block: testBlock("bal", uint64(run*100_000+i), 8, "n", "a")}
-			if i%500 == 0 {
-				in <- storage.Item{Segment: &estimate.Segment{Index: i / 500, N: 100}}
+			// 600 readings a block: two would not fit one group record
+			// (storage.StoredPartReadings), so every block is a record.
+			in <- storage.Item{Block: testBlock("bal", uint64(run*100_000+i), 300, "n", "a")}
+			if i%250 == 0 {
+				in <- storage.Item{Segment: &estimate.Segment{Index: i / 250, N: 100}}
 				in <- storage.Item{Event: &storage.Event{Kind: "gap", Message: "test gap"}}
 			}
 		}

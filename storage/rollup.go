@@ -258,7 +258,7 @@ func (rs rollupSet) addLevel(blk *acquire.Block, only int) {
 				continue
 			}
 			wu := w.Microseconds()
-			if only < 0 && n > 1 && wu/blk.DtUs < RollupMinSamples {
+			if only < 0 && blk.DtUs > 0 && wu/blk.DtUs < RollupMinSamples {
 				// Too few samples to a bin to be worth keeping (a slow
 				// source's finest level): RunRollups works it out from
 				// the raw blocks when it is asked for.

@@ -274,9 +274,11 @@ func lastReceived(tx *bolt.Tx, id uint64) time.Time {
 	_ = rb.ForEachBucket(func(name []byte) error {
 		sb := rb.Bucket(name)
 		_, v := sb.Cursor().Last()
-		var b acquire.Block
-		if v != nil && decodeBlock(v, &b) == nil && b.Received.After(last) {
-			last = b.Received
+		if v == nil {
+			return nil
+		}
+		if blocks, err := decodeRecord(v); err == nil && blocks[len(blocks)-1].Received.After(last) {
+			last = blocks[len(blocks)-1].Received
 		}
 		return nil
 	})

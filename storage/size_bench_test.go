@@ -142,6 +142,11 @@ var storeCases = []struct {
 	{"loadcell_1kHz16ch_noise10000", 600, 1000, 16, 100, func(c int) signal { return loadCell(float64(c)*90_000-700_000, 10_000) }},
 	{"pressure_1kHz16ch_white100Pa", 600, 1000, 16, 100, func(c int) signal { return pressure(123.45+float64(c)*10, 100, 0) }},
 	{"pressure_100Hz64taps_white100Pa_blocks100", 1200, 100, 64, 100, func(c int) signal { return pressure(-300+float64(c)*7.5, 100, 0) }},
+	// A node that sends one, two or five samples at a time (group records).
+	{"pressure_100Hz16ch_white20Pa_blocks1", 1200, 100, 16, 1, func(c int) signal { return pressure(123.45+float64(c)*10, 20, 0) }},
+	{"pressure_100Hz16ch_white20Pa_blocks2", 1200, 100, 16, 2, func(c int) signal { return pressure(123.45+float64(c)*10, 20, 0) }},
+	{"pressure_100Hz16ch_white20Pa_blocks5", 1200, 100, 16, 5, func(c int) signal { return pressure(123.45+float64(c)*10, 20, 0) }},
+	{"pressure_100Hz16ch_white20Pa_blocks10", 1200, 100, 16, 10, func(c int) signal { return pressure(123.45+float64(c)*10, 20, 0) }},
 }
 
 // BenchmarkStoreSize records each case through the writer and reports the

@@ -744,26 +744,23 @@ func (w *Writer) commit(b *batch) (err error) {
 				return err
 			}
 			rb.FillPercent = appendFill
-			var sb *bolt.Bucket
-			var sbName string
-			for _, e := range enc {
-				if sb == nil || e.source != sbName {
-					if sb, err = rb.CreateBucketIfNotExists([]byte(e.source)); err != nil {
-						return fmt.Errorf("source %q: %w", e.source, err)
-					}
-					sb.FillPercent = appendFill
-					sbName = e.source
+			put := newRawPutter(rb) // small blocks in groups (group.go)
+			for i := range enc {
+				e := &enc[i]
+				isNew, err := put.put(e)
+				if err != nil {
+					return err
 				}
-				if sb.Get(e.key) == nil { // a repeated block replaces, not adds
+				if isNew { // a block stored before is left as it is
 					nSamples += uint64(e.n)
 					roll.add(e.blk)
-				}
-				if err := sb.Put(e.key, e.value); err != nil {
-					return err
 				}
 				if e.part == 0 {
 					nBlocks++
 				}
+			}
+			if err := put.flush(); err != nil {
+				return err
 			}
 			if err := putRollups(tx, w.runID, roll, hadBlocks); err != nil {
 				return err

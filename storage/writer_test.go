@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"slices"
 	"sync"
 	"sync/atomic"
 	"testing"
@@ -302,4 +303,96 @@ func TestWriter_StoresLargeBlocksInParts(t *testing.T) {
 		next += p.Len()
 	}
 	assert.Equal(t, 300, next, "sample times read back")
+}
+
+// Ensure that small blocks are stored in group records that give every
+// block back as it came (seq, device time, period, receive time, readings
+// bit for bit), in time order, each once: a block sent again — in the same
+// commit, a later one, or after the writer was restarted — is left out and
+// not counted; a block that arrives late, inside a group's span, is put in
+// its place; a change of channels starts a new record; and a second
+// writer on the same run appends to the last group.
+func TestWriter_GroupsSmallBlocks(t *testing.T) {
+	s := MustOpenStore(t)
+	id := mustCreateRun(t, s)
+	t0 := time.Date(2026, 12, 2, 9, 0, 0, 0, time.UTC)
+	chans := []string{"p01", "p02", "p03", "p04"}
+	mk := func(seq uint64, chs []string) *acquire.Block {
+		b := &acquire.Block{Source: "node", Seq: seq, T0Us: t0.UnixMicro() + int64(seq)*20_000, DtUs: 10_000,
+			Received: t0.Add(time.Duration(seq)*20*time.Millisecond + 35*time.Millisecond + time.Duration(seq%7)*time.Microsecond)}
+		for c, ch := range chs {
+			b.Series = append(b.Series, acquire.Series{Channel: ch,
+				Raw: []float64{float64(seq)/4 + float64(c), math.Round(1e2*math.Sin(float64(seq)+float64(c))) / 100}})
+		}
+		return b
+	}
+	var want []*acquire.Block
+	send := func(w *storage.Writer, blocks ...*acquire.Block) {
+		t.Helper()
+		in := w.NewQueue()
+		errc := make(chan error, 1)
+		go func() { errc <- w.Run(context.Background(), in) }()
+		for _, b := range blocks {
+			in <- storage.Item{Block: b}
+		}
+		close(in)
+		require.NoError(t, <-errc)
+	}
+	// 300 two-sample blocks of 4 channels (8 readings each), the odd
+	// seqs 101–119 held back; 50 and 200 sent twice; then the held-back
+	// ones late, one of them twice; then 40 blocks with a fifth channel.
+	var first, late []*acquire.Block
+	for seq := range uint64(300) {
+		b := mk(seq, chans)
+		want = append(want, b)
+		if seq > 100 && seq < 120 && seq%2 == 1 {
+			late = append(late, b)
+			continue
+		}
+		first = append(first, b)
+	}
+	again50, again200 := *want[50], *want[200]
+	first = append(first, &again50)
+	w := s.NewWriter(id, storage.WriterConfig{MaxBlocks: 25})
+	send(w, first...)
+	blocks1, samples1 := w.Committed()
+	w2 := s.NewWriter(id, storage.WriterConfig{MaxBlocks: 7}) // restarted
+	again113 := *late[6]
+	five := append(slices.Clone(chans), "vane")
+	var more []*acquire.Block
+	for seq := uint64(300); seq < 340; seq++ {
+		more = append(more, mk(seq, five))
+	}
+	want = append(want, more...)
+	send(w2, append(append(append([]*acquire.Block{&again200}, late...), &again113), more...)...)
+	blocks2, samples2 := w2.Committed()
+	assert.EqualValues(t, 291, blocks1, "blocks committed by the first writer (290 and one sent twice)")
+	assert.EqualValues(t, 290*2, samples1, "new sample times of the first writer")
+	assert.EqualValues(t, 1+10+1+40, blocks2)
+	assert.EqualValues(t, (10+40)*2, samples2, "only the late and the new blocks add sample times")
+	r, err := s.Run(id)
+	require.NoError(t, err)
+	assert.EqualValues(t, 340*2, r.Samples)
+
+	var got []acquire.Block
+	require.NoError(t, s.RawBlocks(id, func(b acquire.Block) error { got = append(got, b); return nil }))
+	require.Len(t, got, len(want), "every block once")
+	for i, b := range got {
+		w := want[i]
+		require.Equal(t, w.Seq, b.Seq, "block %d in time order", i)
+		require.Equal(t, w.T0Us, b.T0Us)
+		require.Equal(t, w.DtUs, b.DtUs)
+		require.True(t, w.Received.Equal(b.Received), "seq %d received %v, want %v", w.Seq, b.Received, w.Received)
+		require.Len(t, b.Series, len(w.Series))
+		for c := range w.Series {
+			require.Equal(t, w.Series[c].Channel, b.Series[c].Channel)
+			for k, v := range w.Series[c].Raw {
+				require.Equal(t, math.Float64bits(v), math.Float64bits(b.Series[c].Raw[k]), "seq %d %s[%d]", w.Seq, w.Series[c].Channel, k)
+			}
+		}
+	}
+	recs, err := storage.RawRecordCount(s, id, "node")
+	require.NoError(t, err)
+	t.Logf("%d blocks in %d records", len(got), recs)
+	assert.Less(t, recs, len(got)/20, "small blocks share records")
 }

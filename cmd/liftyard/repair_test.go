@@ -15,7 +15,8 @@ import (
 )
 
 // damageLeaf writes garbage over the leaf page in the middle of the pages
-// of db that hold at least five records.
+// of raw blocks of db that hold at least two records (small blocks are
+// stored in group records, so a short import fills a page or two).
 func damageLeaf(t *testing.T, db string) {
 	t.Helper()
 	bdb, err := bolt.Open(db, 0o600, nil) // read-write: bbolt loads the freelist only then
@@ -27,20 +28,19 @@ func damageLeaf(t *testing.T, db string) {
 			if err != nil || p == nil {
 				return err
 			}
-			if p.Type == "leaf" && p.Count >= 5 {
+			if p.Type == "leaf" && p.Count >= 2 {
 				leaves = append(leaves, id)
 			}
 		}
 	}))
 	size := bdb.Info().PageSize
 	require.NoError(t, bdb.Close())
-	require.GreaterOrEqual(t, len(leaves), 4, "leaf pages")
 	f, err := os.OpenFile(db, os.O_WRONLY, 0)
 	require.NoError(t, err)
 	// A leaf of raw blocks, not of the run records (which every read-only
 	// verb needs to list the runs) or of the rollups (which are made again
 	// from the blocks): its first element has a block's 16-byte key (time,
-	// seq) and a value that starts with a block format version (1 or 2).
+	// seq) and a value that starts with a block format version (1 to 3).
 	data, err := os.ReadFile(db)
 	require.NoError(t, err)
 	var blockLeaves []int
@@ -50,7 +50,7 @@ func damageLeaf(t *testing.T, db string) {
 		pos := binary.LittleEndian.Uint32(p[hdr+4:])
 		ksize := binary.LittleEndian.Uint32(p[hdr+8:])
 		if ksize == 16 && hdr+int(pos)+16 < size {
-			if v := p[hdr+int(pos)+16]; v == 1 || v == 2 {
+			if v := p[hdr+int(pos)+16]; v >= 1 && v <= 3 {
 				blockLeaves = append(blockLeaves, id)
 			}
 		}
