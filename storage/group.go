@@ -124,10 +124,11 @@ func (p *rawPutter) put(e *encoded) (bool, error) {
 // put as a record of its own.
 func (p *rawPutter) late(sb *bolt.Bucket, e *encoded) (bool, error) {
 	c := sb.Cursor()
-	k, v := c.Seek(e.key)
+	k, _ := c.Seek(e.key)
 	if k != nil && bytes.Equal(k, e.key) {
 		return false, nil
 	}
+	var v []byte
 	if k == nil {
 		k, v = c.Last()
 	} else {
