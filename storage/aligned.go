@@ -419,18 +419,7 @@ func fillFromLane(ln *lane, at int64, cells []float64) {
 // sameChannels reports whether a and b hold the same channels in the same
 // order (so that series k of one is series k of the other).
 func sameChannels(a, b *alignedBlock) bool {
-	if a == b {
-		return true
-	}
-	if len(a.series) != len(b.series) {
-		return false
-	}
-	for k := range a.series {
-		if a.series[k].channel != b.series[k].channel {
-			return false
-		}
-	}
-	return true
+	return a == b || slices.EqualFunc(a.series, b.series, func(x, y sampleSeries) bool { return x.channel == y.channel })
 }
 
 func abs64(x int64) int64 {

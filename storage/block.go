@@ -4,6 +4,7 @@ import (
 	"encoding/binary"
 	"fmt"
 	"math"
+	"slices"
 	"strconv"
 	"time"
 
@@ -181,15 +182,7 @@ func (h groupHeader) end() int64 { return h.t0 + int64(h.n)*h.dt }
 // sameLayout reports whether a and b have the same channels in the same
 // order (so that a group record can hold both).
 func sameLayout(a, b *acquire.Block) bool {
-	if len(a.Series) != len(b.Series) {
-		return false
-	}
-	for i := range a.Series {
-		if a.Series[i].Channel != b.Series[i].Channel {
-			return false
-		}
-	}
-	return true
+	return slices.EqualFunc(a.Series, b.Series, func(x, y acquire.Series) bool { return x.Channel == y.Channel })
 }
 
 // maxNameDigits is how many trailing digits of a channel name count as its
