@@ -148,21 +148,17 @@ func (s *Store) channelsOf(id uint64, sources []string) ([]string, error) {
 	seen := map[string]bool{}
 	var names []string
 	for _, src := range sources {
-		it := s.newBlockIter(id, src)
-		for {
-			b, ok, err := it.next()
-			if err != nil {
-				return nil, err
-			}
-			if !ok {
-				break
-			}
+		err := s.sourceBlocks(id, src, func(b *acquire.Block) error {
 			for _, sr := range b.Series {
 				if !seen[sr.Channel] {
 					seen[sr.Channel] = true
 					names = append(names, sr.Channel)
 				}
 			}
+			return nil
+		})
+		if err != nil {
+			return nil, err
 		}
 	}
 	return names, nil

@@ -32,13 +32,14 @@ import (
 // with 2,048 (20 min at 100 Hz, BenchmarkStoreSize).
 const GroupReadings = 512
 
-// rawPutter puts the encoded blocks of one commit into the source buckets
+// rawPutter encodes and puts the blocks of one commit into the source buckets
 // of a run, grouping small ones. It holds each source's open group until
 // flush.
 type rawPutter struct {
 	rb    *bolt.Bucket
 	open  map[string]*openGroup
 	order []string // sources with an open group, for a deterministic flush
+	grown int      // bytes the records put add to the store (for its write rate)
 }
 
 // openGroup is the last record of a source as this commit will leave it.
@@ -48,8 +49,7 @@ type openGroup struct {
 	blocks   []*acquire.Block // in key order
 	keys     [][]byte         // each block's key
 	readings int
-	dirty    bool   // to be written by flush
-	single   []byte // the stored encoding when it is one block as stored
+	dirty    bool // to be written by flush
 }
 
 func newRawPutter(rb *bolt.Bucket) *rawPutter {
@@ -57,7 +57,7 @@ func newRawPutter(rb *bolt.Bucket) *rawPutter {
 }
 
 // put stores e unless it is a duplicate; it reports whether e was new.
-func (p *rawPutter) put(e *encoded) (bool, error) {
+func (p *rawPutter) put(e *toStore) (bool, error) {
 	sb, err := p.rb.CreateBucketIfNotExists([]byte(e.source))
 	if err != nil {
 		return false, fmt.Errorf("source %q: %w", e.source, err)
@@ -75,7 +75,7 @@ func (p *rawPutter) put(e *encoded) (bool, error) {
 			g.blocks = append(g.blocks, e.blk)
 			g.keys = append(g.keys, e.key)
 			g.readings += readings
-			g.dirty, g.single = true, nil
+			g.dirty = true
 			return true, nil
 		}
 		if err := p.write(g); err != nil {
@@ -84,8 +84,7 @@ func (p *rawPutter) put(e *encoded) (bool, error) {
 		if g == nil {
 			p.order = append(p.order, e.source)
 		}
-		p.open[e.source] = &openGroup{sb: sb, key: e.key, blocks: []*acquire.Block{e.blk}, keys: [][]byte{e.key},
-			readings: readings, dirty: true, single: e.value}
+		p.open[e.source] = newOpenGroup(sb, []*acquire.Block{e.blk})
 		return true, nil
 	}
 	if bytes.Compare(e.key, g.key) >= 0 {
@@ -98,7 +97,7 @@ func (p *rawPutter) put(e *encoded) (bool, error) {
 		g.blocks = slices.Insert(g.blocks, i, e.blk)
 		g.keys = slices.Insert(g.keys, i, e.key)
 		g.readings += readings
-		g.dirty, g.single = true, nil
+		g.dirty = true
 		if g.readings <= GroupReadings && sameLayout(g.blocks[0], e.blk) {
 			return true, nil
 		}
@@ -106,7 +105,7 @@ func (p *rawPutter) put(e *encoded) (bool, error) {
 		// rewrite it as records that fit; the last stays open.
 		recs := fitRecords(g.blocks)
 		for _, r := range recs[:len(recs)-1] {
-			if err := putRecord(sb, r); err != nil {
+			if err := p.putRecord(sb, r); err != nil {
 				return false, err
 			}
 		}
@@ -122,7 +121,7 @@ func (p *rawPutter) put(e *encoded) (bool, error) {
 // is left out when a stored block has its key; inside a group's span, the
 // group is rewritten with e in its place (as records that fit); else e is
 // put as a record of its own.
-func (p *rawPutter) late(sb *bolt.Bucket, e *encoded) (bool, error) {
+func (p *rawPutter) late(sb *bolt.Bucket, e *toStore) (bool, error) {
 	c := sb.Cursor()
 	k, _ := c.Seek(e.key)
 	if k != nil && bytes.Equal(k, e.key) {
@@ -151,14 +150,14 @@ func (p *rawPutter) late(sb *bolt.Bucket, e *encoded) (bool, error) {
 		if i < len(keys) { // inside the group
 			blocks = slices.Insert(blocks, i, e.blk)
 			for _, r := range fitRecords(blocks) {
-				if err := putRecord(sb, r); err != nil { // the first replaces the group
+				if err := p.putRecord(sb, r); err != nil { // the first replaces the group
 					return false, err
 				}
 			}
 			return true, nil
 		}
 	}
-	return true, sb.Put(e.key, e.value)
+	return true, p.putRecord(sb, []*acquire.Block{e.blk})
 }
 
 // fitRecords cuts blocks (in key order) into runs that one record can
@@ -179,9 +178,20 @@ func fitRecords(blocks []*acquire.Block) [][]*acquire.Block {
 }
 
 // putRecord puts blocks as one record under the first one's key: the
-// block's own record for one, a group record for more.
-func putRecord(sb *bolt.Bucket, blocks []*acquire.Block) error {
-	return newOpenGroup(sb, blocks).writeTo()
+// block's own record (version 2) for one, a group record for more.
+func (p *rawPutter) putRecord(sb *bolt.Bucket, blocks []*acquire.Block) error {
+	var val []byte
+	if len(blocks) == 1 {
+		var err error
+		if val, err = encodeBlock(nil, blocks[0]); err != nil {
+			return err
+		}
+	} else {
+		val = encodeGroup(nil, blocks)
+	}
+	key := blockKey(nil, blocks[0])
+	p.grown += len(val) - len(sb.Get(key))
+	return sb.Put(key, val)
 }
 
 // newOpenGroup is a changed open group of blocks (in key order).
@@ -210,9 +220,6 @@ func (p *rawPutter) tail(source string, sb *bolt.Bucket) (*openGroup, error) {
 		return nil, fmt.Errorf("source %q: last record %x: %w", source, k, err)
 	}
 	g := &openGroup{sb: sb, key: bytes.Clone(k)}
-	if len(blocks) == 1 {
-		g.single = bytes.Clone(v)
-	}
 	for i := range blocks {
 		b := &blocks[i]
 		g.blocks = append(g.blocks, b)
@@ -232,24 +239,8 @@ func (p *rawPutter) write(g *openGroup) error {
 	if g == nil || !g.dirty {
 		return nil
 	}
-	return g.writeTo()
-}
-
-// writeTo puts g as the block's own record when it holds one block, else
-// as a group record under its first block's key.
-func (g *openGroup) writeTo() error {
 	g.dirty = false
-	if len(g.blocks) == 1 {
-		val := g.single
-		if val == nil {
-			var err error
-			if val, err = encodeBlock(nil, g.blocks[0]); err != nil {
-				return err
-			}
-		}
-		return g.sb.Put(g.key, val)
-	}
-	return g.sb.Put(g.key, encodeGroup(nil, g.blocks))
+	return p.putRecord(g.sb, g.blocks)
 }
 
 // flush writes every open group that changed.

@@ -28,21 +28,26 @@ func (s *Store) RawBlocks(id uint64, fn func(acquire.Block) error) error {
 		return err
 	}
 	for _, src := range sources {
-		it := s.newBlockIter(id, src)
-		for {
-			b, ok, err := it.next()
-			if err != nil {
-				return err
-			}
-			if !ok {
-				break
-			}
-			if err := fn(b); err != nil {
-				return err
-			}
+		if err := s.sourceBlocks(id, src, func(b *acquire.Block) error { return fn(*b) }); err != nil {
+			return err
 		}
 	}
 	return nil
+}
+
+// sourceBlocks calls fn with each block of source src of run id, in time
+// order, as RawBlocks does (fn may keep the block).
+func (s *Store) sourceBlocks(id uint64, src string, fn func(*acquire.Block) error) error {
+	it := s.newBlockIter(id, src)
+	for {
+		b, ok, err := it.next()
+		if err != nil || !ok {
+			return err
+		}
+		if err := fn(&b); err != nil {
+			return err
+		}
+	}
 }
 
 // RawSources returns the names of the sources that stored blocks in run id,

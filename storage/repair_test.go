@@ -26,7 +26,7 @@ import (
 // several records. It returns the damaged path, the pristine copy, and how
 // many records the damaged page held. With firstPage the page is the one
 // that holds the first raw block of the first run (nothing readable before
-// it in its bucket), else the leaf in the middle of those holding records.
+// it in its bucket), else the leaf in the middle of the pages of raw blocks.
 func damagedFixture(t *testing.T, firstPage bool) (bad, pristine string, onPage int) {
 	t.Helper()
 	dir := t.TempDir()
@@ -70,8 +70,6 @@ func damagedFixture(t *testing.T, firstPage bool) (bad, pristine string, onPage 
 	pristine = filepath.Join(dir, "pristine.db")
 	copyFile(t, bad, pristine)
 
-	// The leaf page in the middle of the leaves that hold many records (raw
-	// blocks: about 20 to a page).
 	db, err := bolt.Open(bad, 0o600, nil) // the freelist is loaded only read-write
 	if err != nil {
 		t.Fatal(err)
@@ -99,28 +97,41 @@ func damagedFixture(t *testing.T, firstPage bool) (bad, pristine string, onPage 
 	if err != nil || len(leaves) < 5 {
 		t.Fatalf("%d leaf pages found: %v", len(leaves), err)
 	}
-	victim := leaves[len(leaves)/2]
-	if firstPage {
-		data, err := os.ReadFile(bad)
-		if err != nil {
-			t.Fatal(err)
+	// Each leaf's first element (page header: id u64, flags u16, count u16,
+	// overflow u32; then the element: flags, pos, ksize, vsize, u32 each,
+	// pos counted from the element): a page of raw blocks starts with a
+	// 16-byte block key and a value of a block format version (1 to 3); a
+	// run, rollup or result page does not, and the rollups are not copied
+	// by repair (they are made again), so damage there would be unseen.
+	data, err := os.ReadFile(bad)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var blockLeaves []int
+	victim := -1
+	for _, id := range leaves {
+		p := data[id*pageSize : (id+1)*pageSize]
+		const hdr = 16
+		pos := int(binary.LittleEndian.Uint32(p[hdr+4:]))
+		ksize := int(binary.LittleEndian.Uint32(p[hdr+8:]))
+		if ksize != 16 || hdr+pos+ksize >= pageSize {
+			continue
 		}
-		victim = -1
-		for _, id := range leaves {
-			// The first element's key: page header (id u64, flags u16,
-			// count u16, overflow u32), then the element (flags, pos,
-			// ksize, vsize; u32 each), pos counted from the element.
-			p := data[id*pageSize : (id+1)*pageSize]
-			const hdr = 16
-			pos := int(binary.LittleEndian.Uint32(p[hdr+4:]))
-			ksize := int(binary.LittleEndian.Uint32(p[hdr+8:]))
-			if hdr+pos+ksize <= pageSize && bytes.Equal(p[hdr+pos:hdr+pos+ksize], firstKey) {
-				victim = id
-			}
+		if v := p[hdr+pos+ksize]; v >= 1 && v <= 3 {
+			blockLeaves = append(blockLeaves, id)
 		}
-		if victim < 0 {
-			t.Fatalf("no leaf starts with the first block key %x", firstKey)
+		if bytes.Equal(p[hdr+pos:hdr+pos+ksize], firstKey) {
+			victim = id
 		}
+	}
+	if !firstPage {
+		if len(blockLeaves) < 3 {
+			t.Fatalf("%d leaf pages of raw blocks", len(blockLeaves))
+		}
+		victim = blockLeaves[len(blockLeaves)/2]
+	}
+	if victim < 0 {
+		t.Fatalf("no leaf starts with the first block key %x", firstKey)
 	}
 	garbage := make([]byte, pageSize)
 	rng := rand.New(rand.NewPCG(16, 2026))

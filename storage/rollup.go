@@ -407,16 +407,8 @@ func (s *Store) RunRollups(id uint64, level int) (bins map[string][]RollupBin, s
 // its raw blocks, in time order.
 func (s *Store) rollupFromRaw(id uint64, src string, level int) ([]RollupBin, error) {
 	rs := rollupSet{}
-	it := s.newBlockIter(id, src)
-	for {
-		b, ok, err := it.next()
-		if err != nil {
-			return nil, err
-		}
-		if !ok {
-			break
-		}
-		rs.addLevel(&b, level)
+	if err := s.sourceBlocks(id, src, func(b *acquire.Block) error { rs.addLevel(b, level); return nil }); err != nil {
+		return nil, err
 	}
 	list := make([]RollupBin, 0, len(rs[src][level]))
 	for _, b := range rs[src][level] {

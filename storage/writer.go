@@ -203,7 +203,7 @@ type Writer struct {
 	commits         atomic.Uint64
 	rejected        atomic.Uint64
 	rejectedSamples atomic.Uint64
-	bytes           atomic.Uint64 // encoded bytes committed
+	bytes           atomic.Uint64 // bytes the committed block records added to the store
 	lastCommitNs    atomic.Int64
 	lastCommitted   atomic.Int64 // Unix ns of the host clock at the last commit
 
@@ -607,14 +607,13 @@ func eventBytes(e *Event) int64 {
 	return int64(80 + len(e.Kind) + len(e.Source) + len(e.Message))
 }
 
-// encoded is a block ready to put.
-type encoded struct {
+// toStore is a block, or a part of one, ready to put (group.go encodes it).
+type toStore struct {
 	source string
 	key    []byte
-	value  []byte
 	n      int
-	blk    *acquire.Block // for the rollups
-	part   int            // which part of the block (appendStored)
+	blk    *acquire.Block
+	part   int // which part of the block (appendStored)
 }
 
 // StoredPartReadings bounds a stored block record: a block of more
@@ -625,14 +624,18 @@ type encoded struct {
 // split leaves two records behind, so 10 kB blocks on 32 KiB pages filled
 // them to 65 % (docs/storage.md §1). The bound counts readings, not bytes,
 // so a block is cut the same way whenever it is stored (a block sent again
-// replaces its parts) without encoding it twice; at 1–3 bytes a reading a
+// finds its parts stored) before it is encoded; at 1–3 bytes a reading a
 // part is 1–3 KiB.
 const StoredPartReadings = 1024
 
-// appendStored appends blk to enc, encoded whole or as parts of at most
+// appendStored appends blk to enc, whole or as parts of at most
 // StoredPartReadings readings; an error (wrapping ErrBadRecord) when the
-// block cannot be stored, with nothing appended.
-func appendStored(enc []encoded, blk *acquire.Block) ([]encoded, error) {
+// block cannot be stored (checkBlock), with nothing appended. What it
+// accepts encodes without error.
+func appendStored(enc []toStore, blk *acquire.Block) ([]toStore, error) {
+	if err := checkBlock(blk); err != nil {
+		return enc, err
+	}
 	n := blk.Len()
 	per := n
 	if parts := (n*len(blk.Series) + StoredPartReadings - 1) / StoredPartReadings; parts > 1 && blk.DtUs > 0 {
@@ -640,23 +643,11 @@ func appendStored(enc []encoded, blk *acquire.Block) ([]encoded, error) {
 		per = (n + parts - 1) / parts
 	}
 	if per >= n { // whole, an empty block too
-		v, err := encodeBlock(nil, blk)
-		if err != nil {
-			return enc, err
-		}
-		return append(enc, encoded{source: blk.Source, key: blockKey(nil, blk), value: v, n: n, blk: blk}), nil
+		return append(enc, toStore{source: blk.Source, key: blockKey(nil, blk), n: n, blk: blk}), nil
 	}
-	if err := checkBlock(blk); err != nil { // before cutting channels of unequal lengths
-		return enc, err
-	}
-	from := len(enc)
 	for i := 0; i < n; i += per {
 		pb := blockPart(blk, i, min(i+per, n))
-		v, err := encodeBlock(nil, pb)
-		if err != nil {
-			return enc[:from], err
-		}
-		enc = append(enc, encoded{source: blk.Source, key: blockKey(nil, pb), value: v, n: pb.Len(), blk: pb, part: i / per})
+		enc = append(enc, toStore{source: blk.Source, key: blockKey(nil, pb), n: pb.Len(), blk: pb, part: i / per})
 	}
 	return enc, nil
 }
@@ -687,18 +678,17 @@ func (w *Writer) commit(b *batch) (err error) {
 		}
 	}
 	now := w.s.now()
-	// Encode outside the transaction: the write lock is held for the puts
-	// only. A block that cannot be encoded is counted and logged, and the
-	// rest of the batch is stored.
-	enc := make([]encoded, 0, len(b.blocks))
+	// Check and cut the blocks outside the transaction; they are encoded
+	// once, as they are put (group.go). A block that cannot be stored is
+	// counted and logged, and the rest of the batch is stored.
+	enc := make([]toStore, 0, len(b.blocks))
 	events := b.events
-	var rejected, rejectedSamples, encBytes uint64
+	var rejected, rejectedSamples uint64
 	for _, blk := range b.blocks {
 		var err error
 		if blk.Source == "" {
 			err = fmt.Errorf("block seq %d has no source name: %w", blk.Seq, ErrBadRecord)
 		}
-		from := len(enc)
 		if err == nil {
 			enc, err = appendStored(enc, blk)
 		}
@@ -706,10 +696,6 @@ func (w *Writer) commit(b *batch) (err error) {
 			rejected++
 			rejectedSamples += uint64(blk.Len())
 			events = append(events, Event{T: now, Kind: EventRejected, Source: blk.Source, Message: err.Error()})
-			continue
-		}
-		for _, e := range enc[from:] {
-			encBytes += uint64(len(e.value))
 		}
 	}
 	// A segment that cannot be encoded is logged and left out, like a
@@ -726,11 +712,11 @@ func (w *Writer) commit(b *batch) (err error) {
 		segIdx = append(segIdx, sg.Index)
 	}
 
-	var nBlocks, nSamples uint64
+	var nBlocks, nSamples, grown uint64
 	start := time.Now()
 	err = w.s.db.Update(func(tx *bolt.Tx) error {
-		nBlocks, nSamples = 0, 0 // Update may not re-run fn, but keep it idempotent
-		roll := rollupSet{}      // trend rollups of the new blocks (rollup.go)
+		nBlocks, nSamples, grown = 0, 0, 0 // Update may not re-run fn, but keep it idempotent
+		roll := rollupSet{}                // trend rollups of the new blocks (rollup.go)
 		r, err := getRun(tx, w.runID)
 		if err != nil {
 			return err
@@ -762,6 +748,7 @@ func (w *Writer) commit(b *batch) (err error) {
 			if err := put.flush(); err != nil {
 				return err
 			}
+			grown = uint64(max(put.grown, 0))
 			if err := putRollups(tx, w.runID, roll, hadBlocks); err != nil {
 				return err
 			}
@@ -801,7 +788,7 @@ func (w *Writer) commit(b *batch) (err error) {
 		return writeError(fmt.Sprintf("store run %d: commit of %d blocks, %d segments, %d events",
 			w.runID, len(enc), len(segs), len(events)), err)
 	}
-	w.bytes.Add(encBytes)
+	w.bytes.Add(grown)
 	w.rejectedSamples.Add(rejectedSamples)
 	w.lastCommitNs.Store(int64(time.Since(start)))
 	w.lastCommitted.Store(now.UnixNano())
